@@ -1,0 +1,5 @@
+"""`curvefit bound` (being built)."""
+
+
+def register(app):
+    pass

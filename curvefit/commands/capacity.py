@@ -1,0 +1,5 @@
+"""`curvefit capacity` (being built)."""
+
+
+def register(app):
+    pass

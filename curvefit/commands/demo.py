@@ -1,0 +1,5 @@
+"""`curvefit demo` (being built)."""
+
+
+def register(app):
+    pass

@@ -1,0 +1,5 @@
+"""`curvefit fit` (being built)."""
+
+
+def register(app):
+    pass

@@ -1,0 +1,5 @@
+"""`curvefit history` (being built)."""
+
+
+def register(app):
+    pass

@@ -1,0 +1,5 @@
+"""`curvefit measure` (being built)."""
+
+
+def register(app):
+    pass

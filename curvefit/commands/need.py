@@ -1,0 +1,5 @@
+"""`curvefit need` (being built)."""
+
+
+def register(app):
+    pass

@@ -1,0 +1,5 @@
+"""`curvefit report` (being built)."""
+
+
+def register(app):
+    pass

@@ -1,0 +1,5 @@
+"""`curvefit track` (being built)."""
+
+
+def register(app):
+    pass

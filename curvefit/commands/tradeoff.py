@@ -1,0 +1,5 @@
+"""`curvefit tradeoff` (being built)."""
+
+
+def register(app):
+    pass

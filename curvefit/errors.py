@@ -1,0 +1,15 @@
+"""Exceptions that curvefit raises on purpose.
+
+`InputError` means the user gave something curvefit cannot use (a missing file, an
+absent column, a malformed option). The command line prints its message as one line on
+stderr and exits with code 2; the Python API lets it propagate. Messages name the
+problem and, where there is one, the fix.
+"""
+
+
+class InputError(ValueError):
+    """Bad input or usage: one clear line for the user, exit code 2 on the CLI."""
+
+
+class FitWarning(UserWarning):
+    """A result was computed but should be read with care (poorly determined, extrapolated)."""
