@@ -1,0 +1,483 @@
+"""Headline figures of a run and the rule that says whether a run regressed.
+
+A nightly job retrains a model and measures its learning curve; what matters for a
+team is whether the model became less data-efficient. Each run is summarised by a few
+*headline figures*, each a point estimate with a bootstrap interval and a direction:
+
+============================  =========  ===============================================
+name                          better     meaning
+============================  =========  ===============================================
+``test_error_at_ref``         lower      fitted test error at the series' reference size
+``decay_exponent``            higher     rate at which test error falls with more data
+``asymptote``                 lower      fitted irreducible error (error as n → ∞)
+``samples_for_target``        lower      labelled samples needed for the target error
+``effective_capacity``        (none)     effective VC dimension from the measured gap;
+                                         reported, never gates
+============================  =========  ===============================================
+
+Sign of the exponent. With the power law ``e(n) = γ + α·n^β`` (Hestness et al. 2017),
+``β`` is negative for a falling curve. ``decay_exponent`` is ``b = −β ≥ 0`` so that a
+larger value always means "error falls faster as labels are added". A *smaller*
+``decay_exponent`` is a slower decay and therefore worse: its direction is "higher".
+
+Regression rule: a figure regressed when it is worse than the baseline's by more than
+its tolerance (absolute, or relative to the baseline's value) **and** the two intervals
+do not overlap. Both conditions are needed: the tolerance stops tiny but well-measured
+changes from failing a build, and the interval test stops noise from doing so. This is a
+statistical screen, not a guarantee.
+
+This module is pure: it reads result objects and returns new ones; it performs no I/O.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass, field
+from typing import Any, Iterable, Mapping
+
+from curvefit.errors import InputError
+from curvefit.results import Estimate
+
+LOWER, HIGHER = "lower", "higher"
+
+# name -> (direction, one-line label for tables)
+FIGURES: dict[str, tuple[str | None, str]] = {
+    "test_error_at_ref": (LOWER, "test error at reference size"),
+    "decay_exponent": (HIGHER, "decay exponent (higher = faster)"),
+    "asymptote": (LOWER, "asymptote (error as n grows)"),
+    "samples_for_target": (LOWER, "samples for target error"),
+    "effective_capacity": (None, "effective capacity (VC units)"),
+}
+
+# Defaults chosen as common practice: one percentage point of error, a fifth of the
+# exponent, a quarter of the labels. Numbers are absolute, strings "N%" relative.
+DEFAULT_TOLERANCES: dict[str, "Tolerance"] = {}
+
+
+@dataclass(frozen=True)
+class Tolerance:
+    """How much worse a figure may get before it counts: ``value`` absolute, or
+    ``value`` × |baseline| when ``relative``."""
+
+    value: float
+    relative: bool = False
+
+    def threshold(self, baseline: float) -> float:
+        return self.value * abs(baseline) if self.relative else self.value
+
+    def __str__(self) -> str:
+        return f"{self.value * 100:g}%" if self.relative else f"{self.value:g}"
+
+
+DEFAULT_TOLERANCES.update({
+    "test_error_at_ref": Tolerance(0.01),
+    "decay_exponent": Tolerance(0.20, relative=True),
+    "asymptote": Tolerance(0.01),
+    "samples_for_target": Tolerance(0.25, relative=True),
+    "effective_capacity": Tolerance(0.25, relative=True),
+})
+
+
+@dataclass(frozen=True)
+class Figure:
+    """One headline figure of a run: estimate, interval, level and direction.
+
+    ``better`` is ``"lower"``, ``"higher"`` or ``None`` (informational, never gates).
+    ``estimate`` may be ``inf`` for ``samples_for_target`` when the fitted curve never
+    reaches the target.
+    """
+
+    name: str
+    estimate: float
+    low: float = math.nan
+    high: float = math.nan
+    level: float = 0.9
+    better: str | None = None
+    note: str = ""
+
+    @property
+    def interval(self) -> Estimate:
+        return Estimate(self.estimate, self.low, self.high, self.level)
+
+    def to_dict(self) -> dict:
+        return asdict(self)
+
+    def __repr__(self) -> str:
+        return (f"Figure({self.name}={self.estimate:.6g}, {self.level:.0%} interval "
+                f"{self.low:.6g}–{self.high:.6g}, better={self.better})")
+
+
+def make_figure(name: str, estimate: float, low: float = math.nan, high: float = math.nan,
+                level: float = 0.9, note: str = "") -> Figure:
+    """A `Figure` with the direction registered for ``name`` (None for unknown names)."""
+    better = FIGURES.get(name, (None, ""))[0]
+    return Figure(name, _float(estimate), _float(low), _float(high), float(level), better, note)
+
+
+def _float(v: Any) -> float:
+    try:
+        return math.nan if v is None else float(v)
+    except (TypeError, ValueError):
+        return math.nan
+
+
+# --------------------------------------------------------------------- figures from a fit
+def headline_figures(fit: Any, *, reference_size: int, target_error: float | None = None,
+                     capacity: Any = None, interval: float = 0.9) -> list[Figure]:
+    """Headline figures of one run, read from its curve fit.
+
+    Parameters
+    ----------
+    fit : CurveFit
+        Result of `curvefit.fitting.fit_curve`; uses ``.predict``, ``.exponent``,
+        ``.asymptote`` and ``.samples_for``, each with bootstrap intervals.
+    reference_size : int
+        Sample size at which the test error is read off the fitted curve (fixed per
+        series so that runs are compared at the same size).
+    target_error : float, optional
+        Test error the series aims for; gives ``samples_for_target``.
+    capacity : CapacityEstimate, optional
+        Effective capacity of the run (``vc_dim``, ``low``, ``high``); omitted if None.
+    interval : float
+        Level of every interval, e.g. 0.9.
+
+    Returns
+    -------
+    list of Figure
+        Figures that the fit can give; a family without an asymptote or exponent simply
+        yields fewer figures.
+
+    References
+    ----------
+    .. [1] J. Hestness et al., "Deep Learning Scaling is Predictable, Empirically",
+       arXiv:1712.00409, 2017 (power law with a floor, exponent β < 0).
+    .. [2] C. Cortes, L. D. Jackel, S. A. Solla, V. Vapnik, J. S. Denker, "Learning
+       curves: asymptotic values and rate of convergence", NIPS 6, 1994.
+    """
+    figs: list[Figure] = []
+    est = fit.predict(reference_size, interval=interval)
+    figs.append(make_figure("test_error_at_ref", est.estimate, est.low, est.high, interval,
+                            note=f"n={int(reference_size)}"))
+    expo = _call_optional(fit, "exponent", interval)
+    if expo is not None and math.isfinite(_float(expo.estimate)):
+        figs.append(decay_figure(expo, interval))
+    asym = _call_optional(fit, "asymptote", interval)
+    if asym is not None and math.isfinite(_float(asym.estimate)):
+        figs.append(make_figure("asymptote", asym.estimate, asym.low, asym.high, interval))
+    if target_error is not None:
+        figs.append(samples_figure(fit.samples_for(test_error=float(target_error),
+                                                   interval=interval),
+                                   target_error, interval))
+    if capacity is not None:
+        vc = _float(getattr(capacity, "vc_dim", math.nan))
+        if math.isfinite(vc):
+            note = "lower bound (above probed range)" if getattr(capacity, "above_range", False) else ""
+            figs.append(make_figure("effective_capacity", vc, getattr(capacity, "low", math.nan),
+                                    getattr(capacity, "high", math.nan), interval, note=note))
+    return figs
+
+
+def _call_optional(fit: Any, method: str, interval: float):
+    fn = getattr(fit, method, None)
+    if fn is None:
+        return None
+    return fn(interval=interval)
+
+
+def decay_figure(exponent: Estimate, interval: float = 0.9) -> Figure:
+    """``decay_exponent`` from a fitted exponent in either sign convention.
+
+    A falling curve has ``β < 0`` in ``α·n^β``; some fits report ``b = −β > 0``
+    instead. Both become ``b ≥ 0`` here (a negated interval swaps its ends).
+
+    Examples
+    --------
+    >>> decay_figure(Estimate(-0.3, -0.4, -0.2)).estimate
+    0.3
+    >>> decay_figure(Estimate(-0.3, -0.4, -0.2)).low
+    0.2
+    """
+    e, lo, hi = _float(exponent.estimate), _float(exponent.low), _float(exponent.high)
+    if e < 0:
+        e, lo, hi = -e, -hi, -lo
+    return make_figure("decay_exponent", e, lo, hi, interval)
+
+
+def samples_figure(sample_estimate: Any, target_error: float, interval: float = 0.9) -> Figure:
+    """``samples_for_target`` from a `SampleEstimate`; ``inf`` when unreachable."""
+    reachable = bool(getattr(sample_estimate, "reachable", True))
+    n = _float(getattr(sample_estimate, "n", math.nan))
+    lo = _float(getattr(sample_estimate, "low", math.nan))
+    hi = _float(getattr(sample_estimate, "high", math.nan))
+    note = f"target {target_error:g}"
+    if not reachable or not math.isfinite(n):
+        # Unreachable: the need is unbounded; keep the lower end if the fit gave one.
+        n, hi = math.inf, math.inf
+        msg = getattr(sample_estimate, "message", "") or "target not reached by the fitted curve"
+        note += f"; {msg}"
+    elif not math.isfinite(hi):
+        hi = math.inf
+    return make_figure("samples_for_target", n, lo, hi, interval, note=note)
+
+
+# --------------------------------------------------------------------- tolerances
+def parse_tolerance(name: str, value: Any) -> Tolerance:
+    """A number is absolute; a string ``"20%"`` is relative; ``{"relative": 0.2}`` or
+    ``{"absolute": 0.01}`` are spelled out.
+
+    Examples
+    --------
+    >>> parse_tolerance("asymptote", 0.02)
+    Tolerance(value=0.02, relative=False)
+    >>> parse_tolerance("samples_for_target", "30%")
+    Tolerance(value=0.3, relative=True)
+    """
+    if isinstance(value, Tolerance):
+        return value
+    bad = InputError(f"tolerance for {name!r} must be a number (absolute), a string like "
+                     f"'20%' (relative) or {{relative = 0.2}}; got {value!r}")
+    if isinstance(value, bool):
+        raise bad
+    if isinstance(value, (int, float)):
+        v, rel = float(value), False
+    elif isinstance(value, str):
+        s = value.strip()
+        try:
+            v, rel = (float(s[:-1]) / 100.0, True) if s.endswith("%") else (float(s), False)
+        except ValueError:
+            raise bad from None
+    elif isinstance(value, Mapping) and len(value) == 1 and set(value) <= {"relative", "absolute"}:
+        key = next(iter(value))
+        try:
+            v, rel = float(value[key]), key == "relative"
+        except (TypeError, ValueError):
+            raise bad from None
+    else:
+        raise bad
+    if not math.isfinite(v) or v < 0:
+        raise InputError(f"tolerance for {name!r} must be finite and >= 0; got {value!r}")
+    return Tolerance(v, rel)
+
+
+def resolve_tolerances(*layers: Mapping[str, Any] | None) -> dict[str, Tolerance]:
+    """Defaults overridden by each layer in turn (series config, then the caller)."""
+    tol = dict(DEFAULT_TOLERANCES)
+    for layer in layers:
+        for name, value in (layer or {}).items():
+            if name not in FIGURES:
+                raise InputError(f"unknown figure {name!r} in tolerances; "
+                                 f"known: {', '.join(FIGURES)}")
+            tol[name] = parse_tolerance(name, value)
+    return tol
+
+
+def tolerances_to_config(tol: Mapping[str, Any] | None) -> dict[str, Any]:
+    """Tolerances as plain JSON values (numbers absolute, "N%" relative)."""
+    outd: dict[str, Any] = {}
+    for name, value in (tol or {}).items():
+        t = parse_tolerance(name, value)
+        outd[name] = f"{t.value * 100:g}%" if t.relative else t.value
+    return outd
+
+
+# --------------------------------------------------------------------- comparison
+@dataclass(frozen=True)
+class FigureChange:
+    """One figure compared with the baseline's.
+
+    ``worse_by`` is positive when the current run is worse (in the figure's direction);
+    ``status`` is ``"regressed"``, ``"improved"``, ``"same"`` (within tolerance or
+    overlapping intervals), ``"info"`` (no direction) or ``"missing"`` (absent on one side).
+    """
+
+    name: str
+    current: Figure | None
+    baseline: Figure | None
+    better: str | None
+    worse_by: float
+    tolerance: Tolerance | None
+    overlap: bool
+    status: str
+
+    def to_dict(self) -> dict:
+        return {"name": self.name,
+                "current": self.current.to_dict() if self.current else None,
+                "baseline": self.baseline.to_dict() if self.baseline else None,
+                "better": self.better, "worse_by": self.worse_by,
+                "tolerance": str(self.tolerance) if self.tolerance else None,
+                "overlap": self.overlap, "status": self.status}
+
+
+def compare_figure(current: Figure | None, baseline: Figure | None,
+                   tolerance: Tolerance | None) -> FigureChange:
+    """Apply the regression rule to one figure (see the module docstring).
+
+    Examples
+    --------
+    >>> a = make_figure("test_error_at_ref", 0.10, 0.09, 0.11)
+    >>> b = make_figure("test_error_at_ref", 0.15, 0.14, 0.16)
+    >>> compare_figure(b, a, Tolerance(0.01)).status
+    'regressed'
+    >>> compare_figure(a, b, Tolerance(0.01)).status
+    'improved'
+    """
+    ref = current or baseline
+    name = ref.name if ref else "?"
+    better = ref.better if ref else None
+    if current is None or baseline is None or _nan(current.estimate) or _nan(baseline.estimate):
+        return FigureChange(name, current, baseline, better, math.nan, tolerance, True, "missing")
+    overlap = current.interval.overlaps(baseline.interval)
+    if better is None:
+        diff = current.estimate - baseline.estimate
+        return FigureChange(name, current, baseline, None, diff, tolerance, overlap, "info")
+    if current.estimate == baseline.estimate:
+        worse_by = 0.0  # also covers inf == inf (both unreachable)
+    elif better == LOWER:
+        worse_by = current.estimate - baseline.estimate
+    else:
+        worse_by = baseline.estimate - current.estimate
+    threshold = tolerance.threshold(baseline.estimate) if tolerance else 0.0
+    if _nan(threshold):
+        threshold = math.inf  # relative tolerance of an unbounded baseline: nothing exceeds it
+    if not overlap and worse_by > threshold:
+        status = "regressed"
+    elif not overlap and -worse_by > threshold:
+        status = "improved"
+    else:
+        status = "same"
+    return FigureChange(name, current, baseline, better, worse_by, tolerance, overlap, status)
+
+
+def _nan(v: float) -> bool:
+    return isinstance(v, float) and math.isnan(v)
+
+
+@dataclass(frozen=True)
+class Comparison:
+    """A run compared with its baseline.
+
+    Attributes
+    ----------
+    series : str
+    run_id : int
+    baseline_id : int or None
+        None when the series has no earlier run to compare with.
+    baseline_rule : str
+        ``"previous"``, ``"best"`` or ``"run"`` (an explicit id).
+    comparable : bool
+        False when the data fingerprint or metric differ from the baseline's and the
+        change was not allowed.
+    reasons : list of str
+        Why the runs differ in data or metric (also filled when the change was allowed).
+    changes : list of FigureChange
+    """
+
+    series: str
+    run_id: int
+    baseline_id: int | None
+    baseline_rule: str
+    comparable: bool
+    reasons: list[str] = field(default_factory=list)
+    changes: list[FigureChange] = field(default_factory=list)
+    data_change_allowed: bool = False
+
+    @property
+    def regressed(self) -> list[str]:
+        """Names of the figures that regressed (empty when not comparable)."""
+        if not self.comparable:
+            return []
+        return [c.name for c in self.changes if c.status == "regressed"]
+
+    @property
+    def improved(self) -> list[str]:
+        if not self.comparable:
+            return []
+        return [c.name for c in self.changes if c.status == "improved"]
+
+    @property
+    def exit_code(self) -> int:
+        """CI gate: 2 not comparable, 1 a regression, 0 otherwise."""
+        if not self.comparable:
+            return 2
+        return 1 if self.regressed else 0
+
+    @property
+    def verdict(self) -> str:
+        if not self.comparable:
+            return "not comparable"
+        if self.baseline_id is None:
+            return "first run"
+        return "regressed" if self.regressed else "ok"
+
+    def to_dict(self) -> dict:
+        return {"series": self.series, "run_id": self.run_id,
+                "baseline_id": self.baseline_id, "baseline_rule": self.baseline_rule,
+                "comparable": self.comparable, "data_change_allowed": self.data_change_allowed,
+                "reasons": list(self.reasons), "verdict": self.verdict,
+                "regressed": self.regressed, "improved": self.improved,
+                "figures": [c.to_dict() for c in self.changes]}
+
+    def to_markdown(self) -> str:
+        """A short markdown summary for CI logs."""
+        head = f"### curvefit track: series `{self.series}`, run {self.run_id}"
+        if self.baseline_id is None:
+            lines = [head, "", "First run of the series: recorded as the baseline; nothing to compare.", ""]
+            lines += _figure_table([(c.name, c.current, None, None) for c in self.changes])
+            return "\n".join(lines) + "\n"
+        lines = [f"{head} vs run {self.baseline_id} ({self.baseline_rule})", ""]
+        for r in self.reasons:
+            lines.append(f"- {'allowed: ' if self.data_change_allowed else ''}{r}")
+        if self.reasons:
+            lines.append("")
+        lines += _figure_table([(c.name, c.current, c.baseline, c) for c in self.changes])
+        lines.append("")
+        if not self.comparable:
+            lines.append("**Result: not comparable** (data or metric changed; "
+                         "pass --allow-data-change to compare anyway)")
+        elif self.regressed:
+            lines.append(f"**Result: REGRESSED** — {', '.join(self.regressed)}")
+        else:
+            better = f" (improved: {', '.join(self.improved)})" if self.improved else ""
+            lines.append(f"**Result: no regression**{better}")
+        return "\n".join(lines) + "\n"
+
+
+def _figure_table(rows: Iterable[tuple[str, Figure | None, Figure | None, FigureChange | None]]) -> list[str]:
+    rows = list(rows)
+    with_base = any(b is not None for _, _, b, _ in rows)
+    if with_base:
+        lines = ["| figure | baseline | current | worse by | tolerance | verdict |",
+                 "|---|---|---|---|---|---|"]
+    else:
+        lines = ["| figure | current |", "|---|---|"]
+    for name, cur, base, change in rows:
+        label = FIGURES.get(name, (None, name))[1]
+        note = (cur or base).note if (cur or base) else ""
+        label = f"{label} ({note})" if note and name in ("test_error_at_ref", "samples_for_target") else label
+        if with_base:
+            lines.append(f"| {label} | {format_figure(base)} | {format_figure(cur)} | "
+                         f"{_fmt(change.worse_by) if change else ''} | "
+                         f"{change.tolerance if change and change.tolerance and change.better else ''} | "
+                         f"{change.status if change else ''} |")
+        else:
+            lines.append(f"| {label} | {format_figure(cur)} |")
+    return lines
+
+
+def format_figure(f: Figure | None) -> str:
+    """``0.0812 [0.0791, 0.0833]`` style text; ``—`` when absent."""
+    if f is None or _nan(f.estimate):
+        return "—"
+    if _nan(f.low) and _nan(f.high):
+        return _fmt(f.estimate)
+    return f"{_fmt(f.estimate)} [{_fmt(f.low)}, {_fmt(f.high)}]"
+
+
+def _fmt(v: float) -> str:
+    if v is None or _nan(v):
+        return "—"
+    if math.isinf(v):
+        return "∞" if v > 0 else "−∞"
+    if abs(v) >= 1000:
+        return f"{v:,.0f}"
+    return f"{v:.4g}"
