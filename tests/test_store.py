@@ -1,0 +1,382 @@
+"""Tests of the history store (curvefit/store.py) and the comparison rule (tracking.py)."""
+
+import json
+import math
+import sqlite3
+import subprocess
+import sys
+import textwrap
+import time
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from conftest import ROOT, run_cli
+from curvefit import tracking
+from curvefit.curve import Curve
+from curvefit.errors import InputError
+from curvefit.store import APPLICATION_ID, SCHEMA_VERSION, Store
+from curvefit.tracking import Tolerance, compare_figure, make_figure
+
+
+def _curve(fingerprint="abc123", metric="error", shift=0.0, sizes=(50, 100, 200), repeats=2):
+    rows = []
+    for s in sizes:
+        for r in range(repeats):
+            rows.append({"size": s, "repeat": r, "train_error": 0.02,
+                         "test_error": 0.5 / math.sqrt(s) + shift + 0.001 * r,
+                         "n_test": 100, "n_test_errors": 5, "fit_seconds": 0.01,
+                         "status": "ok", "message": ""})
+    return Curve.from_table(pd.DataFrame(rows), meta={
+        "data_fingerprint": fingerprint, "metric": metric,
+        "model": {"spec": "sklearn.linear_model:LogisticRegression", "params": {"C": 1.0}}})
+
+
+def _figs(err=0.05, half=0.002, expo=0.5, samples=400.0):
+    return [make_figure("test_error_at_ref", err, err - half, err + half),
+            make_figure("decay_exponent", expo, expo - 0.05, expo + 0.05),
+            make_figure("samples_for_target", samples, samples * 0.9, samples * 1.1)]
+
+
+@pytest.fixture
+def store(tmp_path):
+    s = Store(tmp_path / "history.db")
+    yield s
+    s.close()
+
+
+# ----------------------------------------------------------------------------- basics
+def test_record_and_read_back(store):
+    c = _curve()
+    rid = store.record(c, None, series="nightly", headline=_figs(), target_error=0.04)
+    runs = store.runs("nightly")
+    assert runs["run_id"].tolist() == [rid]
+    assert runs.loc[0, "n_points"] == len(c.points)
+    assert runs.loc[0, "test_error_at_ref"] == pytest.approx(0.05)
+    assert runs.loc[0, "test_error_at_ref_low"] == pytest.approx(0.048)
+    assert runs.loc[0, "data_fingerprint"] == "abc123"
+    back = store.curve(rid)
+    pd.testing.assert_frame_equal(back.points, c.points, check_dtype=False)
+    assert back.meta["metric"] == "error"
+    assert back.meta["tracking"]["reference_size"] == 200  # largest size of the first run
+    cfg = store.series_config("nightly")
+    assert cfg["reference_size"] == 200 and cfg["target_error"] == 0.04
+    h = store.headline(rid)
+    assert h["decay_exponent"].better == "higher"
+    assert h["test_error_at_ref"].better == "lower"
+
+
+def test_pragmas_and_text_only_columns(store, tmp_path):
+    store.record(_curve(), None, series="s", headline=_figs())
+    con = sqlite3.connect(tmp_path / "history.db")
+    assert con.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
+    assert con.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION
+    assert con.execute("PRAGMA application_id").fetchone()[0] == APPLICATION_ID
+    # JSON text, never blobs: nothing in the store could be unpickled
+    assert con.execute("SELECT typeof(meta) FROM runs").fetchone()[0] == "text"
+    assert con.execute("SELECT typeof(config) FROM series").fetchone()[0] == "text"
+    n_blobs = con.execute("SELECT count(*) FROM runs WHERE typeof(meta) = 'blob' OR "
+                          "typeof(model) = 'blob'").fetchone()[0]
+    assert n_blobs == 0
+    assert json.loads(con.execute("SELECT model FROM runs").fetchone()[0])["params"] == {"C": 1.0}
+    con.close()
+
+
+def test_foreign_keys_enforced(store):
+    with pytest.raises(sqlite3.IntegrityError):
+        store._con.execute("INSERT INTO points (run_id, size, repeat, status) VALUES (999, 1, 0, 'ok')")
+
+
+def test_reference_size_is_fixed_per_series(store):
+    store.record(_curve(sizes=(50, 100)), None, series="s", headline=_figs())
+    store.record(_curve(sizes=(50, 100, 400)), None, series="s", headline=_figs())
+    assert store.series_config("s")["reference_size"] == 100
+    with pytest.raises(InputError, match="reference size"):
+        store.record(_curve(), None, series="s", headline=_figs(), reference_size=400)
+
+
+def test_code_version_recorded_inside_git_checkout(tmp_path, monkeypatch):
+    head = subprocess.run(["git", "rev-parse", "HEAD"], cwd=ROOT, capture_output=True,
+                          text=True).stdout.strip()
+    monkeypatch.chdir(ROOT)
+    with Store(tmp_path / "h.db") as s:
+        rid = s.record(_curve(), None, series="s", headline=_figs())
+        assert s.runs("s").loc[0, "code_version"] == head
+        monkeypatch.chdir(tmp_path)  # not a git checkout
+        s.record(_curve(), None, series="s", headline=_figs())
+        assert pd.isna(s.runs("s").loc[1, "code_version"])
+        assert rid == 1
+
+
+def test_unknown_series_and_run(store):
+    store.record(_curve(), None, series="a", headline=_figs())
+    with pytest.raises(InputError, match="series 'b' not found"):
+        store.runs("b")
+    with pytest.raises(InputError, match="run 42 not found"):
+        store.compare(42)
+
+
+# ----------------------------------------------------------------------------- comparison
+def test_regression_rule_needs_tolerance_and_separated_intervals():
+    # common practice: a change counts only if larger than the tolerance AND outside noise
+    base = make_figure("test_error_at_ref", 0.100, 0.095, 0.105)
+    small = make_figure("test_error_at_ref", 0.108, 0.1055, 0.1105)  # separate, within 0.01
+    noisy = make_figure("test_error_at_ref", 0.130, 0.090, 0.170)    # beyond 0.01, overlapping
+    clear = make_figure("test_error_at_ref", 0.130, 0.125, 0.135)
+    tol = Tolerance(0.01)
+    assert compare_figure(small, base, tol).status == "same"
+    assert compare_figure(noisy, base, tol).status == "same"
+    assert compare_figure(clear, base, tol).status == "regressed"
+    assert compare_figure(clear, base, tol).worse_by == pytest.approx(0.03)
+    assert compare_figure(base, clear, tol).status == "improved"
+
+
+def test_exponent_direction_slower_decay_is_worse():
+    fast = make_figure("decay_exponent", 0.50, 0.45, 0.55)
+    slow = make_figure("decay_exponent", 0.20, 0.15, 0.25)
+    assert compare_figure(slow, fast, Tolerance(0.2, relative=True)).status == "regressed"
+    assert compare_figure(fast, slow, Tolerance(0.2, relative=True)).status == "improved"
+    # beta < 0 in e = c + a*n^beta (Hestness et al. 2017) becomes a positive decay rate
+    f = tracking.decay_figure(tracking.Estimate(-0.35, -0.40, -0.30))
+    assert (f.estimate, f.low, f.high) == pytest.approx((0.35, 0.30, 0.40))
+
+
+def test_unreachable_target_is_a_regression_when_baseline_was_reachable():
+    class Unreachable:
+        n, low, high, reachable, message = math.nan, 5000.0, math.nan, False, "above asymptote"
+
+    cur = tracking.samples_figure(Unreachable(), 0.01)
+    assert math.isinf(cur.estimate) and cur.better == "lower"
+    base = make_figure("samples_for_target", 800, 700, 900)
+    assert compare_figure(cur, base, Tolerance(0.25, relative=True)).status == "regressed"
+    assert compare_figure(cur, cur, Tolerance(0.25, relative=True)).status == "same"
+
+
+def test_relative_and_parsed_tolerances():
+    assert tracking.parse_tolerance("x", "20%") == Tolerance(0.2, True)
+    assert tracking.parse_tolerance("x", {"relative": 0.1}) == Tolerance(0.1, True)
+    assert tracking.parse_tolerance("x", 0.02) == Tolerance(0.02, False)
+    for bad in ("lots", -1, True, {"sideways": 1}):
+        with pytest.raises(InputError):
+            tracking.parse_tolerance("x", bad)
+    with pytest.raises(InputError, match="unknown figure"):
+        tracking.resolve_tolerances({"accuracy": 0.1})
+
+
+def test_compare_previous_best_and_explicit(store):
+    r1 = store.record(_curve(), None, series="s", headline=_figs(err=0.05))
+    first = store.compare(r1)
+    assert first.baseline_id is None and first.exit_code == 0 and first.verdict == "first run"
+    r2 = store.record(_curve(), None, series="s", headline=_figs(err=0.04))   # improved
+    r3 = store.record(_curve(), None, series="s", headline=_figs(err=0.047))  # worse than r2 only
+    c = store.compare(r3, "previous")
+    assert c.baseline_id == r2 and c.regressed == [] and c.exit_code == 0  # 0.007 < 0.01
+    c = store.compare(r3, "previous", tolerances={"test_error_at_ref": 0.001})
+    assert c.regressed == ["test_error_at_ref"] and c.exit_code == 1
+    assert store.compare(r3, "best").baseline_id == r2
+    assert store.compare(r3, r1).baseline_id == r1
+    assert store.compare(r3, str(r1)).improved == []  # 0.047 vs 0.05: within tolerance
+    r4 = store.record(_curve(), None, series="s", headline=_figs(err=0.09, samples=2000))
+    c = store.compare(r4, "best")
+    assert c.baseline_id == r2
+    assert set(c.regressed) == {"test_error_at_ref", "samples_for_target"}
+    md = c.to_markdown()
+    assert "REGRESSED" in md and "samples_for_target" in md
+    d = c.to_dict()
+    assert d["verdict"] == "regressed" and d["baseline_id"] == r2
+    json.dumps(d, allow_nan=True)
+    with pytest.raises(InputError, match="baseline must be"):
+        store.compare(r4, "yesterday")
+    with pytest.raises(InputError, match="its own baseline"):
+        store.compare(r4, r4)
+
+
+def test_series_tolerances_are_used(store):
+    store.record(_curve(), None, series="s", headline=_figs(err=0.05),
+                 tolerances={"test_error_at_ref": 0.001})
+    r2 = store.record(_curve(), None, series="s", headline=_figs(err=0.06))
+    assert store.series_config("s")["tolerances"] == {"test_error_at_ref": 0.001}
+    assert store.compare(r2).regressed == ["test_error_at_ref"]
+    assert store.compare(r2, tolerances={"test_error_at_ref": "50%"}).regressed == []
+
+
+def test_data_or_metric_change_is_not_comparable(store):
+    store.record(_curve(fingerprint="aaa"), None, series="s", headline=_figs(err=0.05))
+    r2 = store.record(_curve(fingerprint="bbb"), None, series="s", headline=_figs(err=0.09))
+    c = store.compare(r2)
+    assert not c.comparable and c.exit_code == 2 and c.regressed == []
+    assert "data fingerprint differs" in c.reasons[0]
+    c = store.compare(r2, allow_data_change=True)
+    assert c.comparable and c.regressed == ["test_error_at_ref"] and c.data_change_allowed
+    r3 = store.record(_curve(fingerprint="bbb", metric="log_loss"), None, series="s",
+                      headline=_figs(err=0.09))
+    c = store.compare(r3)
+    assert not c.comparable and "metric differs" in c.reasons[0]
+
+
+# ----------------------------------------------------------------------------- migration
+V1_DDL = """
+CREATE TABLE series (id INTEGER PRIMARY KEY, name TEXT NOT NULL UNIQUE,
+    config TEXT NOT NULL DEFAULT '{}', created TEXT NOT NULL);
+CREATE TABLE runs (id INTEGER PRIMARY KEY,
+    series_id INTEGER NOT NULL REFERENCES series(id) ON DELETE CASCADE,
+    created TEXT NOT NULL, meta TEXT NOT NULL DEFAULT '{}', data_fingerprint TEXT,
+    model TEXT, metric TEXT);
+CREATE TABLE points (run_id INTEGER NOT NULL REFERENCES runs(id) ON DELETE CASCADE,
+    size INTEGER NOT NULL, repeat INTEGER NOT NULL, train_error REAL, test_error REAL,
+    n_test REAL, n_test_errors REAL, fit_seconds REAL, status TEXT NOT NULL,
+    message TEXT NOT NULL DEFAULT '', PRIMARY KEY (run_id, size, repeat));
+CREATE TABLE fits (run_id INTEGER PRIMARY KEY REFERENCES runs(id) ON DELETE CASCADE,
+    summary TEXT NOT NULL);
+CREATE TABLE headline (run_id INTEGER NOT NULL REFERENCES runs(id) ON DELETE CASCADE,
+    name TEXT NOT NULL, estimate REAL, low REAL, high REAL, level REAL,
+    PRIMARY KEY (run_id, name));
+"""
+
+
+def test_migration_from_v1_keeps_data(tmp_path):
+    path = tmp_path / "old.db"
+    con = sqlite3.connect(path)
+    con.executescript(V1_DDL)
+    con.execute("INSERT INTO series (id, name, config, created) VALUES (1, 'old', ?, '2026-01-01')",
+                (json.dumps({"reference_size": 200}),))
+    con.execute("INSERT INTO runs (id, series_id, created, meta, data_fingerprint, model, metric)"
+                " VALUES (1, 1, '2026-01-01', ?, 'fp1', 'm:M', 'error')",
+                (json.dumps({"metric": "error", "data_fingerprint": "fp1"}),))
+    for s, e in [(50, 0.2), (200, 0.1)]:
+        con.execute("INSERT INTO points (run_id, size, repeat, test_error, status)"
+                    " VALUES (1, ?, 0, ?, 'ok')", (s, e))
+    con.execute("INSERT INTO fits VALUES (1, ?)", (json.dumps({"best": "pow3"}),))
+    con.execute("INSERT INTO headline VALUES (1, 'test_error_at_ref', 0.1, 0.09, 0.11, 0.9)")
+    con.execute("INSERT INTO headline VALUES (1, 'decay_exponent', 0.4, 0.3, 0.5, 0.9)")
+    con.execute(f"PRAGMA application_id = {APPLICATION_ID}")
+    con.execute("PRAGMA user_version = 1")
+    con.commit()
+    con.close()
+
+    with Store(path) as s:
+        assert s.schema_version == SCHEMA_VERSION == 2
+        runs = s.runs("old")
+        assert runs["run_id"].tolist() == [1]
+        assert runs.loc[0, "n_points"] == 2 and pd.isna(runs.loc[0, "code_version"])
+        assert runs.loc[0, "test_error_at_ref"] == pytest.approx(0.1)
+        h = s.headline(1)
+        assert h["decay_exponent"].better == "higher"      # filled by the migration
+        assert h["test_error_at_ref"].better == "lower"
+        assert s.fit_summary(1) == {"best": "pow3"}
+        assert s.curve(1).points["test_error"].tolist() == [0.2, 0.1]
+        r2 = s.record(_curve(fingerprint="fp1"), None, series="old",
+                      headline=[make_figure("test_error_at_ref", 0.2, 0.19, 0.21)])
+        assert s.compare(r2).regressed == ["test_error_at_ref"]
+    con = sqlite3.connect(path)
+    cols = {r[1] for r in con.execute("PRAGMA table_info(runs)")}
+    assert "code_version" in cols
+    assert con.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
+    con.close()
+
+
+def test_newer_schema_is_refused(tmp_path):
+    path = tmp_path / "new.db"
+    Store(path).close()
+    con = sqlite3.connect(path)
+    con.execute(f"PRAGMA user_version = {SCHEMA_VERSION + 1}")
+    con.close()
+    with pytest.raises(InputError, match="newer"):
+        Store(path)
+
+
+# ----------------------------------------------------------------------------- not a store
+def _foreign_sqlite(path):
+    con = sqlite3.connect(path)
+    con.execute("CREATE TABLE customers (id INTEGER, name TEXT)")
+    con.commit()
+    con.close()
+
+
+def _corrupt_sqlite(path):
+    Store(path).close()
+    data = bytearray(path.read_bytes())
+    # keep the 16-byte header, destroy the rest of the first page (schema)
+    data[16:4096] = np.random.default_rng(0).integers(0, 256, 4096 - 16, dtype=np.uint8).tobytes()
+    path.write_bytes(bytes(data))
+    for side in ("-wal", "-shm"):
+        p = path.with_name(path.name + side)
+        if p.exists():
+            p.unlink()
+
+
+@pytest.mark.parametrize("kind", ["random", "text", "foreign", "corrupt"])
+def test_not_a_store_is_input_error(tmp_path, kind):
+    path = tmp_path / "x.db"
+    if kind == "random":
+        path.write_bytes(np.random.default_rng(1).integers(0, 256, 5000, dtype=np.uint8).tobytes())
+    elif kind == "text":
+        path.write_text("size,test_error\n10,0.3\n")
+    elif kind == "foreign":
+        _foreign_sqlite(path)
+    else:
+        _corrupt_sqlite(path)
+    before = path.read_bytes()
+    with pytest.raises(InputError):
+        Store(path)
+    if kind != "corrupt":
+        assert path.read_bytes() == before  # refused without touching the file
+
+
+@pytest.mark.parametrize("kind", ["random", "foreign", "corrupt"])
+def test_not_a_store_cli_exit_2(tmp_path, kind):
+    path = tmp_path / "x.db"
+    {"random": lambda p: p.write_bytes(b"\x00\xff" * 3000), "foreign": _foreign_sqlite,
+     "corrupt": _corrupt_sqlite}[kind](path)
+    res = run_cli("history", "--store", path)
+    assert res.returncode == 2, res.stderr
+    lines = res.stderr.strip().splitlines()
+    assert len(lines) == 1 and "Traceback" not in res.stderr
+    assert str(path) in lines[0]
+    assert res.stdout == ""
+
+
+# ----------------------------------------------------------------------------- concurrency
+WRITER = textwrap.dedent("""
+    import sys, time, math
+    from pathlib import Path
+    import pandas as pd
+    from curvefit.curve import Curve
+    from curvefit.store import Store
+    from curvefit.tracking import make_figure
+    path, tag, n, go = sys.argv[1], sys.argv[2], int(sys.argv[3]), Path(sys.argv[4])
+    while not go.exists():
+        time.sleep(0.005)
+    for i in range(n):
+        # a fresh connection each time, as separate nightly jobs would have
+        with Store(path) as s:
+            rows = [{"size": sz, "repeat": r, "test_error": 1 / sz + r * 1e-3}
+                    for sz in (10, 20, 40, 80) for r in range(3)]
+            c = Curve.from_table(pd.DataFrame(rows), meta={"data_fingerprint": "same"})
+            s.record(c, None, series=tag if i % 2 else "shared", code_version=None,
+                     headline=[make_figure("test_error_at_ref", 0.1 + i, 0.0, 1.0)])
+    print("done", tag)
+""")
+
+
+def test_two_processes_record_concurrently(tmp_path):
+    path, go, n = tmp_path / "shared.db", tmp_path / "go", 25
+    procs = [subprocess.Popen([sys.executable, "-c", WRITER, str(path), tag, str(n), str(go)],
+                              stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, cwd=ROOT)
+             for tag in ("alpha", "beta")]
+    time.sleep(1.0)  # let both import and wait at the start line, so they race on creation too
+    go.touch()
+    outs = [p.communicate(timeout=120) for p in procs]
+    for p, (o, e) in zip(procs, outs):
+        assert p.returncode == 0, e
+    con = sqlite3.connect(path)
+    assert con.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
+    assert con.execute("SELECT count(*) FROM runs").fetchone()[0] == 2 * n
+    assert con.execute("SELECT count(*) FROM points").fetchone()[0] == 2 * n * 12
+    assert con.execute("SELECT count(*) FROM headline").fetchone()[0] == 2 * n
+    assert con.execute("PRAGMA foreign_key_check").fetchall() == []
+    con.close()
+    with Store(path) as s:
+        assert sorted(s.series_names()) == ["alpha", "beta", "shared"]
+        assert len(s.runs("shared")) == 2 * math.ceil(n / 2)
