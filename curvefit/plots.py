@@ -48,7 +48,7 @@ MARKERS = ["o", "s", "^", "D", "v"]
 LINESTYLES = ["-", (0, (5, 2)), (0, (1, 1.5)), (0, (6, 2, 1, 2)), (0, (3, 1, 1, 1, 1, 1))]
 TARGET_COLOUR = "#b0213c"
 NEUTRAL = "#5b6570"
-FIGSIZE = (7.6, 4.6)
+FIGSIZE = (8.6, 5.4)
 DPI = 110
 
 _RC = {
@@ -122,10 +122,21 @@ _count_formatter = FuncFormatter(lambda v, _pos: _fmt_count(v) if v > 0 else "")
 
 
 def _new_axes(figsize=FIGSIZE):
-    with plt.rc_context(_RC):
-        fig = Figure(figsize=figsize, dpi=DPI, layout="constrained")
-        ax = fig.add_subplot()
+    fig = Figure(figsize=figsize, dpi=DPI, layout="constrained")
+    ax = fig.add_subplot()
     return fig, ax
+
+
+def _styled(fn):
+    """Run a figure function under our rc settings (they are read while drawing)."""
+    import functools
+
+    @functools.wraps(fn)
+    def wrapper(*args, **kwargs):
+        with plt.rc_context(_RC):
+            return fn(*args, **kwargs)
+
+    return wrapper
 
 
 def _as_list(obj: Any) -> list:
@@ -217,6 +228,7 @@ def _answer_of(answer: Any) -> dict | None:
             "reachable": bool(_get(answer, "reachable", _finite(n)))}
 
 
+@_styled
 def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float | None = None,
                           answers: Any = None, interval: float = 0.9, confidence: float = 0.9,
                           show_train: bool = True, title: str | None = None) -> Figure:
@@ -328,7 +340,10 @@ def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float 
             xmax = max(xmax, a["high"] if _finite(a["high"]) else n)
     if target_error is not None:
         ax.axhline(target_error, color=TARGET_COLOUR, linewidth=1.0, linestyle=(0, (4, 2, 1, 2)),
-                   zorder=2, label=f"target {target_error:.3g}")
+                   zorder=2)
+        ax.annotate(f"target {target_error:.3g}", (1.0, target_error), xycoords=("axes fraction", "data"),
+                    xytext=(-3, -11), textcoords="offset points", ha="right", fontsize=8.5,
+                    color=TARGET_COLOUR)
     if not any_data:
         ax.text(0.5, 0.5, "no successful cells to draw", transform=ax.transAxes,
                 ha="center", va="center", color=NEUTRAL)
@@ -348,29 +363,45 @@ _KIND_ORDER = ["test", "train", "measured", "fit", "runner-up", "VC", "power", "
 
 
 def _legend_outside(ax) -> None:
-    """Legend to the right of the axes, grouped by model, then measured before fitted."""
+    """Legend below the axes: one column per model, measured entries before fitted ones.
+
+    Entries are labelled ``"<model>: <kind>"``; a label without ``": "`` stands alone.
+    """
+    from matplotlib.patches import Rectangle
+
     handles, labels = ax.get_legend_handles_labels()
-    groups: list[str] = []
-    for lab in labels:
-        g = lab.split(": ")[0] if ": " in lab else "~"
-        if g not in groups:
-            groups.append(g)
-
-    def key(pair):
-        lab = pair[1]
-        if ": " not in lab:
-            return (len(groups), 0)
-        g, kind = lab.split(": ", 1)
-        rank = next((r for r, k in enumerate(_KIND_ORDER) if kind.startswith(k)), len(_KIND_ORDER))
-        return (groups.index(g), rank)
-
-    if handles:
-        handles, labels = zip(*sorted(zip(handles, labels), key=key))
-        ax.legend(handles, labels, loc="upper left", bbox_to_anchor=(1.01, 1.0),
-                  borderaxespad=0.0, handlelength=2.6)
+    if not handles:
+        return
+    groups: dict[str, list] = {}
+    loose = []
+    for h, lab in zip(handles, labels):
+        if ": " in lab:
+            g, kind = lab.split(": ", 1)
+            rank = next((r for r, k in enumerate(_KIND_ORDER) if kind.startswith(k)),
+                        len(_KIND_ORDER))
+            groups.setdefault(g, []).append((rank, h, lab))
+        else:
+            loose.append((h, lab))
+    cols = [sorted(v, key=lambda t: t[0]) for v in groups.values()]
+    if len(cols) <= 1:
+        entries = [(h, lab) for col in cols for _, h, lab in col] + loose
+        ncols = min(3, len(entries))
+    else:
+        depth = max(len(c) for c in cols)
+        blank = Rectangle((0, 0), 0, 0, visible=False)
+        entries = []
+        for col in cols:  # column-major fill: pad each model's column to the same depth
+            entries += [(h, lab) for _, h, lab in col] + [(blank, "")] * (depth - len(col))
+        for h, lab in loose:
+            entries.append((h, lab))
+        ncols = len(cols)
+    hs, ls = zip(*entries)
+    ax.figure.legend(hs, ls, loc="outside lower center", ncols=ncols, handlelength=2.6,
+                     columnspacing=1.6)
 
 
 # --------------------------------------------------------------------------- gap
+@_styled
 def gap_figure(curves: Any, lines: Any = None, *, title: str | None = None) -> Figure:
     """Generalization gap (test − train) against size, with fitted gap curves.
 
@@ -443,6 +474,7 @@ def _design_columns(design: pd.DataFrame) -> tuple[str | None, str | None, str |
     return x, y, e
 
 
+@_styled
 def probe_figure(capacity: Any, *, title: str | None = None) -> Figure:
     """Max-deviation probe: measured ξ(n) with the fitted Φ(n/h) and h's interval.
 
@@ -503,6 +535,7 @@ def probe_figure(capacity: Any, *, title: str | None = None) -> Figure:
 
 
 # --------------------------------------------------------------------------- trade-off
+@_styled
 def tradeoff_figure(tradeoff: Any, *, title: str | None = None) -> Figure:
     """Train and test error against a complexity parameter, one line per sample size.
 
@@ -564,6 +597,7 @@ def tradeoff_figure(tradeoff: Any, *, title: str | None = None) -> Figure:
 
 
 # --------------------------------------------------------------------------- worst case
+@_styled
 def worst_case_figure(rows: Sequence[Mapping], *, title: str | None = None,
                       measured_max: float | None = None) -> Figure:
     """Sample sizes side by side on a log axis: worst-case bound, rule of thumb, measured.
