@@ -130,6 +130,20 @@ def analyse(curves: Any, *, target_error: float | None = None, bootstrap: int = 
     return results
 
 
+def result_summary(res: ModelResult) -> dict:
+    """Plain JSON-ready headline of one model: chosen family, answer, capacity, notes."""
+    ans, cap = res.answer, res.capacity
+    return _jsonable({
+        "label": res.label, "source": res.source,
+        "best": plots._family_name(_get(res.fit, "best")),
+        "answer": None if ans is None else {
+            k: _get(ans, k) for k in ("n", "low", "high", "reachable", "message")},
+        "capacity": None if cap is None else {
+            k: _get(cap, k) for k in ("vc_dim", "low", "high", "level", "method", "above_range")},
+        "notes": list(res.notes),
+    })
+
+
 # --------------------------------------------------------------------------- formatting
 def esc(value: Any) -> str:
     """HTML-escape anything (quotes too), after turning it into text."""
@@ -445,21 +459,26 @@ def _capacity_row(label: str, c: Any) -> dict:
 
 
 def _gap_lines(res: ModelResult) -> list:
-    """Read the fitted gap curves (VC-shaped and power law) from a capacity estimate."""
+    """The fitted gap curves (VC-shaped s·Φ(n/h) and power law a·n^-b) of a capacity
+    estimate, evaluated on a grid from its own fitted parameters."""
+    from curvefit.capacity import phi
+
     c = res.capacity
     if c is None or not len(res.curve.sizes):
         return []
     sizes = res.curve.sizes
-    grid = np.geomspace(sizes.min(), sizes.max() * 4, 120)
+    grid = np.geomspace(sizes.min(), sizes.max() * 2, 120)
+    extra = _get(c, "extra", None) or {}
     lines = []
-    for meth, name in (("predict_gap", "VC-shaped fit s·Φ(n/h)"),
-                       ("predict_power_gap", "power-law fit")):
-        fn = getattr(c, meth, None)
-        if callable(fn):
-            try:
-                lines.append((name, grid, np.asarray(fn(grid), float)))
-            except Exception:  # noqa: BLE001 - an optional line
-                pass
+    h = extra.get("h_fit", _get(c, "vc_dim"))
+    s = _get(c, "scale")
+    if _finite(h) and _finite(s) and float(h) > 0:
+        lines.append((f"VC-shaped fit s·Φ(n/h), h = {float(h):.3g}", grid,
+                      float(s) * np.asarray(phi(grid / float(h)), float)))
+    a, b = extra.get("power_scale"), _get(_get(c, "exponent"), "estimate")
+    if _finite(a) and _finite(b):
+        lines.append((f"power-law fit a·n^-b, b = {float(b):.2f}", grid,
+                      float(a) * grid ** (-float(b))))
     return lines
 
 
@@ -484,12 +503,13 @@ def _worst_case(results: list[ModelResult], probe: Any, target_error: float | No
         rows = []
         try:
             rows.append({"label": f"VC bound (d={float(d):.3g}, ε={eps:.3g}, δ={delta:g})",
-                         "n": float(bounds.vc_sample_size(float(d), eps, delta)), "kind": "bound"})
+                         "n": float(bounds.vc_sample_size(int(math.ceil(float(d))), eps, delta)),
+                         "kind": "bound"})
         except Exception:  # noqa: BLE001 - skip a bound that cannot be computed
             pass
         rule = getattr(bounds, "rule_of_thumb_samples", None)
         rows.append({"label": "rule of thumb, 10 × d",
-                     "n": float(rule(float(d))) if callable(rule) else 10.0 * float(d),
+                     "n": float(rule(int(math.ceil(float(d))))) if callable(rule) else 10.0 * float(d),
                      "kind": "rule"})
         n = _get(r.answer, "n")
         if bool(_get(r.answer, "reachable", False)) and _finite(n):
