@@ -43,7 +43,7 @@ LOWER, HIGHER = "lower", "higher"
 # name -> (direction, one-line label for tables)
 FIGURES: dict[str, tuple[str | None, str]] = {
     "test_error_at_ref": (LOWER, "test error at reference size"),
-    "decay_exponent": (HIGHER, "decay exponent (higher = faster)"),
+    "decay_exponent": (HIGHER, "decay exponent"),
     "asymptote": (LOWER, "asymptote (error as n grows)"),
     "samples_for_target": (LOWER, "samples for target error"),
     "effective_capacity": (None, "effective capacity (VC units)"),
