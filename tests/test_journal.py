@@ -1,0 +1,74 @@
+"""The journal: durable append, torn-line tolerance, refusal of corrupt or foreign files."""
+
+import json
+
+import pytest
+
+from curvefit.errors import InputError
+from curvefit.journal import JOURNAL_FORMAT, Journal, journal_path
+
+ID = {"data": "abc", "seed": 0, "sizes": [10, 20], "repeats": 2}
+
+
+def _write(path, cells, identity=ID):
+    j, done = Journal.open(path, identity, resume=False)
+    assert done == []
+    for c in cells:
+        j.append(c)
+    j.close()
+
+
+def test_journal_path_sits_beside_the_run_file(tmp_path):
+    assert journal_path(tmp_path / "run.json") == tmp_path / "run.json.journal"
+
+
+def test_round_trip_and_header(tmp_path):
+    p = tmp_path / "j"
+    _write(p, [{"size": 10, "repeat": 0, "test_error": 0.5}, {"size": 20, "repeat": 0, "test_error": None}])
+    first = json.loads(p.read_text().splitlines()[0])
+    assert first["format"] == JOURNAL_FORMAT and first["run"]["data"] == "abc"
+    j, done = Journal.open(p, ID, resume=True)
+    j.close()
+    assert [(c["size"], c["repeat"]) for c in done] == [(10, 0), (20, 0)]
+
+
+def test_torn_last_line_is_dropped_and_truncated(tmp_path):
+    p = tmp_path / "j"
+    _write(p, [{"size": 10, "repeat": 0}])
+    good = p.read_bytes()
+    with open(p, "ab") as fh:
+        fh.write(b'{"size": 20, "rep')  # what kill -9 mid-write leaves
+    j, done = Journal.open(p, ID, resume=True)
+    assert len(done) == 1
+    j.append({"size": 20, "repeat": 1})
+    j.close()
+    assert p.read_bytes().startswith(good)
+    assert [json.loads(line)["repeat"] for line in p.read_text().splitlines()[1:]] == [0, 1]
+
+
+def test_corrupt_middle_line_is_refused(tmp_path):
+    p = tmp_path / "j"
+    _write(p, [{"size": 10, "repeat": 0}, {"size": 20, "repeat": 0}])
+    lines = p.read_text().splitlines()
+    lines[1] = "not json"
+    p.write_text("\n".join(lines) + "\n")
+    with pytest.raises(InputError, match="corrupt at line 2"):
+        Journal.open(p, ID, resume=True)
+
+
+def test_foreign_journal_is_refused_naming_the_difference(tmp_path):
+    p = tmp_path / "j"
+    _write(p, [{"size": 10, "repeat": 0}])
+    with pytest.raises(InputError, match="different run.*seed"):
+        Journal.open(p, {**ID, "seed": 1}, resume=True)
+    (tmp_path / "k").write_text('{"format": "something/else"}\n')
+    with pytest.raises(InputError, match="not a curvefit journal"):
+        Journal.open(tmp_path / "k", ID, resume=True)
+
+
+def test_without_resume_an_old_journal_is_replaced(tmp_path):
+    p = tmp_path / "j"
+    _write(p, [{"size": 10, "repeat": 0}])
+    j, done = Journal.open(p, {**ID, "seed": 5}, resume=False)
+    j.close()
+    assert done == [] and len(p.read_text().splitlines()) == 1

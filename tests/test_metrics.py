@@ -1,0 +1,83 @@
+"""Losses checked against scikit-learn's metric functions (the reference library)."""
+
+import numpy as np
+import pytest
+from sklearn.datasets import load_breast_cancer, load_diabetes, load_iris
+from sklearn.linear_model import LinearRegression, LogisticRegression
+from sklearn.metrics import (balanced_accuracy_score, f1_score, log_loss, mean_absolute_error,
+                             mean_squared_error, r2_score, roc_auc_score)
+from sklearn.svm import SVC
+
+from curvefit.errors import InputError
+from curvefit.metrics import check_response, resolve_metric
+
+
+@pytest.fixture(scope="module")
+def iris_fit():
+    X, y = load_iris(return_X_y=True)
+    return LogisticRegression(max_iter=500).fit(X, y), X, y
+
+
+def test_zero_one_error_and_count_match_accuracy(iris_fit):
+    est, X, y = iris_fit
+    loss, k = resolve_metric("error", "classification").loss(est, X, y)
+    pred = est.predict(X)
+    assert loss == 1.0 - np.mean(pred == y)  # scikit-learn's accuracy, complemented
+    assert k == int((pred != y).sum())
+
+
+def test_balanced_error_matches_sklearn(iris_fit):
+    est, X, y = iris_fit
+    loss, k = resolve_metric("balanced_error", "classification").loss(est, X, y)
+    assert loss == pytest.approx(1 - balanced_accuracy_score(y, est.predict(X)), abs=1e-15)
+    assert k is None
+
+
+def test_regression_losses_match_sklearn():
+    X, y = load_diabetes(return_X_y=True)
+    est = LinearRegression().fit(X, y)
+    pred = est.predict(X)
+    assert resolve_metric("error", "regression").loss(est, X, y)[0] == pytest.approx(mean_squared_error(y, pred), rel=1e-12)
+    assert resolve_metric("mae", "regression").loss(est, X, y)[0] == pytest.approx(mean_absolute_error(y, pred), rel=1e-12)
+    # r2 scorer: loss is 1 - r2 (fraction of variance unexplained)
+    assert resolve_metric("r2", "regression").loss(est, X, y)[0] == pytest.approx(1 - r2_score(y, pred), rel=1e-12)
+
+
+def test_scorers_become_losses(iris_fit):
+    est, X, y = iris_fit
+    f1 = resolve_metric("f1_macro", "classification")
+    assert f1.transform == "1 - f1_macro"
+    assert f1.loss(est, X, y)[0] == pytest.approx(1 - f1_score(y, est.predict(X), average="macro"), abs=1e-12)
+    ll = resolve_metric("neg_log_loss", "classification")
+    assert ll.response == "predict_proba"
+    assert ll.loss(est, X, y)[0] == pytest.approx(log_loss(y, est.predict_proba(X)), rel=1e-12)
+
+
+def test_roc_auc_binary():
+    X, y = load_breast_cancer(return_X_y=True)
+    est = LogisticRegression(max_iter=3000).fit(X, y)
+    m = resolve_metric("roc_auc", "classification")
+    assert m.loss(est, X, y)[0] == pytest.approx(1 - roc_auc_score(y, est.decision_function(X)), abs=1e-12)
+
+
+def test_precomputed_predictions_give_the_same_loss(iris_fit):
+    est, X, y = iris_fit
+    for name in ("error", "balanced_error", "f1_macro", "accuracy"):
+        m = resolve_metric(name, "classification")
+        assert m.loss(est, X, y, est.predict(X))[0] == pytest.approx(m.loss(est, X, y)[0], abs=1e-15)
+
+
+def test_unknown_metric_and_wrong_task():
+    with pytest.raises(InputError, match="unknown metric"):
+        resolve_metric("accuracy_typo", "classification")
+    with pytest.raises(InputError, match="classification"):
+        resolve_metric("balanced_error", "regression")
+
+
+def test_probability_metric_needs_predict_proba():
+    m = resolve_metric("neg_log_loss", "classification")
+    with pytest.raises(InputError, match="predict_proba"):
+        check_response(m, SVC())
+    check_response(m, SVC(probability=True))
+    # roc_auc takes decision_function or predict_proba
+    check_response(resolve_metric("roc_auc", "classification"), SVC())
