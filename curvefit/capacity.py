@@ -560,7 +560,8 @@ def probe_capacity(model, X=None, *, n_features: int | None = None, sizes=None,
         sd = np.interp(np.log(ns2), np.log(known_n), spread.to_numpy()) if len(known_n) else np.ones(len(ns2))
         sd = np.maximum(sd, 0.02)
         budget = repeats * len(ns2)
-        alloc = np.maximum(2, np.round(budget * sd / sd.sum())).astype(int)
+        # Neyman-style allocation, capped so that one noisy point cannot take the whole budget.
+        alloc = np.clip(np.round(budget * sd / sd.sum()), 2, 3 * repeats).astype(int)
         df = run({n: int(k) for n, k in zip(ns2, alloc)})
         h = _fit_probe(df, max_n)
         say(f"probe round 2: {len(df)} cells, h ≈ {h:.3g}")
