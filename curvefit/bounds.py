@@ -24,7 +24,7 @@ from dataclasses import asdict, dataclass, field
 from typing import Any
 
 import numpy as np
-from scipy import optimize, special
+from scipy import special
 
 from curvefit.errors import InputError
 
@@ -367,6 +367,8 @@ def vc_sample_size(vc_dim, eps, delta, growth: str = "polynomial", trace: bool =
             lo, hi = hi, 2.0 * hi
             if hi > 1e300:
                 raise InputError(f"no VC sample size found for vc_dim={d}, eps={e}, delta={dl}")
+        from scipy import optimize  # imported here: the command line starts faster without it
+
         try:
             root = optimize.brentq(_vc_gap, lo, hi, args=(d, e, dl, growth),
                                    xtol=1e-9, rtol=1e-14, maxiter=500)
