@@ -38,7 +38,7 @@ MIN_PER_CLASS = 2
 # Smallest default subsample for a numeric target (common practice).
 MIN_ROWS_REGRESSION = 10
 # Shared duplicate feature rows between train and test above which a split looks leaky.
-LEAK_FRACTION = 0.01
+LEAK_FRACTION = 0.05
 
 
 class LeakWarning(UserWarning):
