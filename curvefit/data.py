@@ -402,7 +402,7 @@ def prepare(df: pd.DataFrame, target: str, features=None, *, drop=(),
     if n_missing:
         rows = np.flatnonzero(y_series.isna().to_numpy())[:5].tolist()
         raise InputError(f"target column {target!r} has {n_missing} missing value"
-                         f"{'s' if n_missing > 1 else ''} (first at row{'s' if len(rows) > 1 else ''} "
+                         f"{'s' if n_missing > 1 else ''} (first at row index "
                          f"{', '.join(map(str, rows))}); drop or fill those rows")
     if task is None:
         task = infer_task(y_series)
@@ -418,7 +418,8 @@ def prepare(df: pd.DataFrame, target: str, features=None, *, drop=(),
             raise InputError(f"target column {target!r} mixes value types; "
                              "store the labels as one type (all text or all numbers)") from None
         if len(classes) < 2:
-            raise InputError(f"target column {target!r} has a single class ({classes[0]!r}); "
+            only = classes[0].item() if hasattr(classes[0], "item") else classes[0]
+            raise InputError(f"target column {target!r} has a single class ({only!r}); "
                              "classification needs at least two classes")
     else:
         try:
