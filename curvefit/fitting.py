@@ -278,6 +278,21 @@ class CurveFit:
         }
 
     @property
+    def sizes(self) -> np.ndarray:
+        """The measured sizes the fit used, ascending."""
+        return self._state.data.sizes.copy()
+
+    @property
+    def largest_size(self) -> float:
+        """The largest measured size (the labels the curve's user has now, by default)."""
+        return self._state.data.n_max
+
+    @property
+    def formula(self) -> str:
+        """Formula of the chosen family."""
+        return self._state.fits[self.best].family.formula
+
+    @property
     def n_bootstrap_ok(self) -> int:
         """Bootstrap replicates whose refit succeeded."""
         boot = self._state.boot
