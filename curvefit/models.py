@@ -687,7 +687,8 @@ def with_encoding(estimator, X, encode: str = "auto"):
     table as ``X`` so that every column with a gap anywhere gets an imputer. When there
     is nothing to do, the estimator comes back unchanged. With ``encode="none"`` data
     pass through untouched (non-numeric columns are then an error). A `CommandModel`
-    is never wrapped: the program reads the raw columns.
+    is never wrapped: the program reads the raw columns. The estimator itself goes into
+    the pipeline (it is not cloned), so pass a fresh one from ``ModelSpec.make()``.
 
     Returns
     -------
