@@ -193,8 +193,12 @@ def _fit_lines(fit: Any, grid: np.ndarray, interval: float) -> _FitLines | None:
     """Read the chosen family's forecast band and the runner-up's line from a fit."""
     if fit is None or not hasattr(fit, "predict"):
         return None
+    import warnings
+
     try:
-        pred = fit.predict(grid, interval=interval)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # extrapolation warnings belong in the report text
+            pred = fit.predict(grid, interval=interval)
     except Exception:  # an unusable fit still leaves the measured points to draw
         return None
     if isinstance(pred, pd.DataFrame):
@@ -212,7 +216,9 @@ def _fit_lines(fit: Any, grid: np.ndarray, interval: float) -> _FitLines | None:
     runner_est = None
     if runner and runner != best and hasattr(fit, "predict_family"):
         try:
-            runner_est = np.asarray(fit.predict_family(runner, grid), float).reshape(-1)
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                runner_est = np.asarray(fit.predict_family(runner, grid), float).reshape(-1)
         except Exception:  # the runner-up line is optional
             runner_est = None
     return _FitLines(size, est, low, high, best, runner, runner_est)

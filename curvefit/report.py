@@ -257,15 +257,15 @@ def answer_sentence(res: ModelResult, target_error: float, interval: float = INT
         return (f"To reach <strong>{esc(target)}</strong> {esc(what)} you need about "
                 f"<strong>{esc(fmt_count(n))} labelled samples</strong>{span}.{extra}")
     msg = _get(ans, "message") or ""
+    if msg:
+        return (f"<strong>{esc(target)}</strong> {esc(what)} is <strong>not reachable</strong> "
+                f"by adding labels alone. {esc(msg)}")
     asym = _get(ans, "asymptote")
     a = _get(asym, "estimate", asym)
-    floor = (f" The fitted curve levels off at about {esc(fmt_error(a, metric))}"
-             + (f" ({esc(fmt_error(_get(asym, 'low'), metric))}–"
-                f"{esc(fmt_error(_get(asym, 'high'), metric))})"
-                if _finite(_get(asym, "low")) and _finite(_get(asym, "high")) else "")
-             + "." if _finite(a) else "")
+    floor = (f" The fitted curve levels off at about {esc(fmt_error(a, metric))}."
+             if _finite(a) else "")
     return (f"<strong>{esc(target)}</strong> {esc(what)} is <strong>not reachable</strong> "
-            f"with this model by adding labels alone.{floor} {esc(msg)}").strip()
+            f"with this model by adding labels alone.{floor}")
 
 
 def _forecast_sentence(res: ModelResult, interval: float) -> str:
