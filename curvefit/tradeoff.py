@@ -115,8 +115,11 @@ class Tradeoff:
             rows.append({"size": int(size), "best_value": best["value"],
                          "test_mean": float(best["test_mean"]),
                          "test_sem": float(best["test_sem"]), "within_1se": within})
-        return pd.DataFrame(rows, columns=["size", "best_value", "test_mean", "test_sem",
-                                           "within_1se"])
+        out = pd.DataFrame(rows, columns=["size", "best_value", "test_mean", "test_sem",
+                                          "within_1se"])
+        out["best_value"] = pd.Series([r["best_value"] for r in rows], dtype=object,
+                                      index=out.index)
+        return out
 
     def to_dict(self) -> dict:
         from curvefit.curve import _jsonable
@@ -140,7 +143,8 @@ class Tradeoff:
             if col in table:
                 table[col] = pd.to_numeric(table[col], errors="coerce").astype(float)
         if "value" in table:
-            table["value"] = table["value"].astype(object)
+            table["value"] = pd.Series([r.get("value") for r in d["table"]], dtype=object,
+                                       index=table.index)
         return cls(table=table, param=str(d["param"]), values=list(d.get("values") or []),
                    metric=str(d.get("metric") or "error"),
                    capacities=dict(d.get("capacities") or {}), meta=dict(d.get("meta") or {}))
@@ -253,8 +257,9 @@ def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: 
         say(f"{param}={label}: measured {len(sizes)} sizes")
     cols = TABLE_COLUMNS + (CAPACITY_COLUMNS if probe else [])
     table = pd.DataFrame(rows, columns=cols)
-    table["value"] = table["value"].astype(object)
-    table["param"] = table["param"].astype(object)
+    # Object dtype keeps ints as ints and None as None (pandas would make them floats/NaN).
+    table["value"] = pd.Series([r["value"] for r in rows], dtype=object, index=table.index)
+    table["param"] = pd.Series([r["param"] for r in rows], dtype=object, index=table.index)
     meta = {"model": base.describe() if hasattr(base, "describe") else repr(base),
             "sizes": sizes, "repeats": int(repeats), "seed": int(random_state),
             "test_size": test_size, "failed_cells": int(failed_total)}
