@@ -119,6 +119,13 @@ def _count(x, name: str, minimum: int = 0) -> np.ndarray:
     return a
 
 
+def _one(a: np.ndarray, name: str) -> float:
+    """The single value of a validated input; lists belong to the vectorised functions."""
+    if a.ndim != 0:
+        raise InputError(f"{name} takes one value here, got {a.size}; call once per value")
+    return float(a)
+
+
 def _show(x) -> str:
     a = np.asarray(x)
     return repr(a.item()) if a.ndim == 0 else repr(a.tolist())
@@ -246,8 +253,8 @@ def cover_dichotomies(n: int, d: int) -> int:
     >>> cover_dichotomies(4, 2), cover_dichotomies(3, 3)
     (8, 8)
     """
-    n_i = int(_count(n, "n", minimum=1))
-    d_i = int(_count(d, "d", minimum=1))
+    n_i = int(_one(_count(n, "n", minimum=1), "n"))
+    d_i = int(_one(_count(d, "d", minimum=1), "d"))
     return 2 * sum(math.comb(n_i - 1, k) for k in range(d_i))
 
 
@@ -352,10 +359,10 @@ def vc_sample_size(vc_dim, eps, delta, growth: str = "polynomial", trace: bool =
     (29299.4, 21193)
     """
     _kind(growth, GROWTH_KINDS, "growth")
-    d = int(_count(vc_dim, "vc_dim"))
-    e = float(_unit_open(eps, "eps"))
-    dl = float(_unit_open(delta, "delta"))
-    start = float(_positive(start, "start"))
+    d = int(_one(_count(vc_dim, "vc_dim"), "vc_dim"))
+    e = _one(_unit_open(eps, "eps"), "eps")
+    dl = _one(_unit_open(delta, "delta"), "delta")
+    start = _one(_positive(start, "start"), "start")
 
     lo = 8.0 / e ** 2 * math.log(4.0 / dl)
     f_lo = _vc_gap(lo, d, e, dl, growth)
@@ -410,9 +417,9 @@ def pac_sample_size(vc_dim, eps, delta) -> int:
     >>> pac_sample_size(3, 0.1, 0.1)
     1686
     """
-    d = int(_count(vc_dim, "vc_dim"))
-    e = float(_unit_open(eps, "eps"))
-    dl = float(_unit_open(delta, "delta"))
+    d = int(_one(_count(vc_dim, "vc_dim"), "vc_dim"))
+    e = _one(_unit_open(eps, "eps"), "eps")
+    dl = _one(_unit_open(delta, "delta"), "delta")
     m = max(4.0 / e * math.log2(2.0 / dl), 8.0 * d / e * math.log2(13.0 / e))
     return int(math.ceil(m - 1e-9))
 
@@ -433,8 +440,8 @@ def rule_of_thumb_samples(vc_dim, factor: float = 10) -> int:
     >>> rule_of_thumb_samples(3)
     30
     """
-    d = int(_count(vc_dim, "vc_dim"))
-    f = float(_positive(factor, "factor"))
+    d = int(_one(_count(vc_dim, "vc_dim"), "vc_dim"))
+    f = _one(_positive(factor, "factor"), "factor")
     return int(math.ceil(f * d - 1e-9))
 
 
@@ -554,11 +561,11 @@ def test_sample_size(eps, delta=0.05, method: str = "hoeffding", p=None) -> int:
     True
     """
     _kind(method, TEST_METHODS, "method")
-    e = float(_unit_open(eps, "eps"))
-    dl = float(_unit_open(delta, "delta"))
+    e = _one(_unit_open(eps, "eps"), "eps")
+    dl = _one(_unit_open(delta, "delta"), "delta")
     if method == "hoeffding":
         return int(math.ceil(math.log(2.0 / dl) / (2.0 * e * e) - 1e-9))
-    p_val = 0.5 if p is None else float(_array(p, "expected error"))
+    p_val = 0.5 if p is None else _one(_array(p, "expected error"), "expected error")
     if not 0.0 <= p_val <= 1.0:
         raise InputError(f"expected error must lie between 0 and 1, got {p!r}")
 
@@ -597,8 +604,8 @@ def relative_error_test_size(p, rel_error=0.2, delta=0.05) -> int:
     >>> relative_error_test_size(0.01)
     9508
     """
-    p_val = float(_unit_open(p, "expected error"))
-    b = float(_positive(rel_error, "relative error"))
-    dl = float(_unit_open(delta, "delta"))
+    p_val = _one(_unit_open(p, "expected error"), "expected error")
+    b = _one(_positive(rel_error, "relative error"), "relative error")
+    dl = _one(_unit_open(delta, "delta"), "delta")
     z = float(special.ndtri(1.0 - dl / 2.0))
     return int(math.ceil(z * z * (1.0 - p_val) / (b * b * p_val) - 1e-9))

@@ -364,6 +364,8 @@ def test_test_sample_size_monotone_in_eps(e1, e2, p, method):
     lambda: bounds.pac_sample_size(3, 0.1, 2),
     lambda: bounds.cover_dichotomies(0, 2),
     lambda: bounds.rule_of_thumb_samples(-3),
+    lambda: bounds.vc_sample_size([3, 4], 0.1, 0.1),
+    lambda: bounds.vc_sample_size("three", 0.1, 0.1),
 ])
 def test_bad_input_raises_input_error(call):
     with pytest.raises(InputError):

@@ -251,4 +251,5 @@ def test_samples(
 
 
 def register(app: typer.Typer) -> None:
-    app.add_typer(bound_app, name="bound")
+    app.add_typer(bound_app, name="bound",
+                  short_help="Worst-case calculators: VC bound, Hoeffding, exact binomial.")
