@@ -493,7 +493,7 @@ class Store:
         the series), ``"best"`` (earlier run with the lowest test error at the
         reference size) or an explicit run id. None when the series has no earlier run."""
         row = self._run_row(run_id)
-        rule = str(baseline).strip().lower()
+        rule = tracking.check_baseline(baseline)
         if rule == "previous":
             r = self._query("SELECT r.id FROM runs r JOIN series s ON s.id = r.series_id"
                             " WHERE s.name = ? AND r.id < ? ORDER BY r.id DESC LIMIT 1",
@@ -508,10 +508,7 @@ class Store:
             if r:
                 return int(r[0][0])
             return self.baseline_for(run_id, "previous")
-        try:
-            bid = int(rule)
-        except ValueError:
-            raise InputError(f"baseline must be 'previous', 'best' or a run id; got {baseline!r}") from None
+        bid = rule
         if bid == row["id"]:
             raise InputError(f"run {bid} cannot be its own baseline")
         self._run_row(bid)
@@ -540,7 +537,7 @@ class Store:
             the data or metric changed and that was not allowed.
         """
         row = self._run_row(run_id)
-        rule = str(baseline).strip().lower()
+        rule = tracking.check_baseline(baseline)
         rule_name = rule if rule in ("previous", "best") else "run"
         bid = self.baseline_for(run_id, baseline)
         config = self.series_config(row["series"]) or {}
@@ -569,7 +566,15 @@ def _short(fp: str | None) -> str:
 
 
 def _fingerprint(meta: Mapping[str, Any]) -> str | None:
+    """The run's data fingerprint: ``meta["data_fingerprint"]`` or, as the runner
+    writes it, ``meta["data"]["fingerprint"]`` (plus a separate test set's, if any)."""
     fp = meta.get("data_fingerprint")
+    data = meta.get("data")
+    if fp is None and isinstance(data, Mapping):
+        fp = data.get("fingerprint")
+        test_fp = (meta.get("test_data") or {}).get("fingerprint") if isinstance(meta.get("test_data"), Mapping) else None
+        if fp is not None and test_fp:
+            fp = f"{fp}+{test_fp}"
     if isinstance(fp, Mapping):  # a runner may keep several hashes; store them all
         return _json(fp)
     return None if fp is None else str(fp)

@@ -185,22 +185,18 @@ def _call_optional(fit: Any, method: str, interval: float):
 
 
 def decay_figure(exponent: Estimate, interval: float = 0.9) -> Figure:
-    """``decay_exponent`` from a fitted exponent in either sign convention.
+    """``decay_exponent`` from `CurveFit.exponent`.
 
-    A falling curve has ``β < 0`` in ``α·n^β``; some fits report ``b = −β > 0``
-    instead. Both become ``b ≥ 0`` here (a negated interval swaps its ends).
+    `CurveFit.exponent` already reports the decay rate ``b`` of ``a·n^(−b)`` (``b > 0``
+    for a falling curve), which is ``−β`` in Hestness et al.'s ``α·n^β``; it is kept
+    as is, so a rising curve shows up as a negative (and therefore worse) value.
 
     Examples
     --------
-    >>> decay_figure(Estimate(-0.3, -0.4, -0.2)).estimate
-    0.3
-    >>> decay_figure(Estimate(-0.3, -0.4, -0.2)).low
-    0.2
+    >>> decay_figure(Estimate(0.3, 0.2, 0.4)).better
+    'higher'
     """
-    e, lo, hi = _float(exponent.estimate), _float(exponent.low), _float(exponent.high)
-    if e < 0:
-        e, lo, hi = -e, -hi, -lo
-    return make_figure("decay_exponent", e, lo, hi, interval)
+    return make_figure("decay_exponent", exponent.estimate, exponent.low, exponent.high, interval)
 
 
 def samples_figure(sample_estimate: Any, target_error: float, interval: float = 0.9) -> Figure:
@@ -218,6 +214,26 @@ def samples_figure(sample_estimate: Any, target_error: float, interval: float = 
     elif not math.isfinite(hi):
         hi = math.inf
     return make_figure("samples_for_target", n, lo, hi, interval, note=note)
+
+
+def check_baseline(baseline: Any) -> str | int:
+    """``"previous"``, ``"best"`` or a run id (int); anything else is an `InputError`.
+
+    Examples
+    --------
+    >>> check_baseline("Best"), check_baseline("12")
+    ('best', 12)
+    """
+    text = str(baseline).strip().lower()
+    if text in ("previous", "best"):
+        return text
+    try:
+        rid = int(text)
+    except ValueError:
+        rid = 0
+    if rid <= 0 or isinstance(baseline, bool):
+        raise InputError(f"baseline must be 'previous', 'best' or a run id; got {baseline!r}")
+    return rid
 
 
 # --------------------------------------------------------------------- tolerances

@@ -137,9 +137,10 @@ def test_exponent_direction_slower_decay_is_worse():
     slow = make_figure("decay_exponent", 0.20, 0.15, 0.25)
     assert compare_figure(slow, fast, Tolerance(0.2, relative=True)).status == "regressed"
     assert compare_figure(fast, slow, Tolerance(0.2, relative=True)).status == "improved"
-    # beta < 0 in e = c + a*n^beta (Hestness et al. 2017) becomes a positive decay rate
-    f = tracking.decay_figure(tracking.Estimate(-0.35, -0.40, -0.30))
+    # CurveFit.exponent is b in a*n^(-b), i.e. -beta of Hestness et al. 2017: kept as is
+    f = tracking.decay_figure(tracking.Estimate(0.35, 0.30, 0.40))
     assert (f.estimate, f.low, f.high) == pytest.approx((0.35, 0.30, 0.40))
+    assert f.better == "higher"
 
 
 def test_unreachable_target_is_a_regression_when_baseline_was_reachable():

@@ -1,5 +1,307 @@
-"""`curvefit track` (being built)."""
+"""`curvefit track`: record a run in the history store and gate CI on regressions.
+
+Two forms:
+
+- ``curvefit track RUN --store DB --series NAME`` fits an existing run file, records
+  it and compares it with the series' baseline;
+- ``curvefit track --config nightly.toml`` measures first (the TOML keys are the
+  ``measure`` option names), then fits, records and compares, in one command.
+
+Output is a short markdown summary (for CI logs) or, with ``--json``, one JSON document.
+Exit codes: 0 no regression (or first run); 1 a headline figure regressed; 2 bad input,
+or the run is not comparable with its baseline (data or metric changed) unless
+``--allow-data-change``.
+"""
+
+from __future__ import annotations
+
+import math
+import sys
+import warnings
+from pathlib import Path
+from typing import Any, Optional
+
+import typer
+
+from curvefit.commands._common import emit_json, err, out, parse_list, warn
+from curvefit.errors import InputError
+
+# Job-file keys: the `measure` options (dashes or underscores) plus the tracking ones.
+MEASURE_KEYS = {"data", "target", "model", "param", "features", "test", "sizes", "repeats",
+                "test_fraction", "metric", "encode", "jobs", "backend", "scheduler", "seed",
+                "timeout", "out", "command"}
+TRACK_KEYS = {"store", "series", "target_error", "baseline", "tolerances",
+              "allow_data_change", "bootstrap", "interval", "reference_size", "families"}
+DEFAULT_BOOTSTRAP = 300
 
 
-def register(app):
-    pass
+# --------------------------------------------------------------------------- job file
+def read_job(path: str | Path) -> dict:
+    """Read a job file: keys normalised to underscores, paths resolved against its folder.
+
+    A numeric ``target`` is taken as the target error (``target_error``); a string
+    ``target`` names the label column, as with ``measure --target``.
+    """
+    import tomllib
+
+    p = Path(path)
+    if not p.is_file():
+        raise InputError(f"job file not found: {p}")
+    try:
+        with open(p, "rb") as fh:
+            raw = tomllib.load(fh)
+    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
+        raise InputError(f"{p} is not valid TOML: {str(exc).splitlines()[0]}") from None
+    job: dict[str, Any] = {}
+    for key, value in raw.items():
+        k = key.replace("-", "_")
+        if k == "target" and isinstance(value, (int, float)) and not isinstance(value, bool):
+            k = "target_error"
+        if k not in MEASURE_KEYS | TRACK_KEYS:
+            known = ", ".join(sorted(MEASURE_KEYS | TRACK_KEYS))
+            raise InputError(f"{p}: unknown key {key!r}; known keys: {known}")
+        job[k] = value
+    base = p.resolve().parent
+    for k in ("data", "test", "store", "out"):
+        if k in job:
+            if not isinstance(job[k], str):
+                raise InputError(f"{p}: {k!r} must be a path string, got {job[k]!r}")
+            job[k] = str(_resolve(base, job[k]))
+    if isinstance(job.get("model"), str) and ".py:" in job["model"]:
+        file_part, _, attr = job["model"].rpartition(":")
+        job["model"] = f"{_resolve(base, file_part)}:{attr}"
+    return job
+
+
+def _resolve(base: Path, text: str) -> Path:
+    q = Path(text).expanduser()
+    return q if q.is_absolute() else base / q
+
+
+def _as_list(value: Any, name: str) -> list | None:
+    if value is None:
+        return None
+    if isinstance(value, str):
+        return [v.strip() for v in value.split(",") if v.strip()]
+    if isinstance(value, list):
+        return [str(v) for v in value]
+    raise InputError(f"{name!r} must be a list or a comma-separated string, got {value!r}")
+
+
+def _params(value: Any) -> dict:
+    from curvefit.models import parse_params
+
+    if value is None:
+        return {}
+    if isinstance(value, dict):
+        return dict(value)
+    if isinstance(value, str):
+        value = [value]
+    if isinstance(value, list):
+        return parse_params([str(v) for v in value])
+    raise InputError(f"'param' must be a table {{C = 0.5}} or a list of \"KEY=VALUE\"; got {value!r}")
+
+
+def _int(job: dict, key: str, default: int | None, minimum: int = 0) -> int | None:
+    v = job.get(key, default)
+    if v is None:
+        return None
+    if isinstance(v, bool) or not isinstance(v, int) or v < minimum:
+        raise InputError(f"{key!r} must be a whole number >= {minimum}, got {v!r}")
+    return v
+
+
+def measure_job(job: dict, *, quiet: bool = False):
+    """Measure the learning curve a job file describes (the `measure` step of `track`)."""
+    from curvefit import runner
+    from curvefit.data import load_table, prepare
+    from curvefit.models import resolve_model
+
+    for key in ("data", "target"):
+        if key not in job:
+            raise InputError(f"the job file needs {key!r} to measure (or give a RUN file "
+                             "instead of --config)")
+    if "model" not in job and "command" not in job:
+        raise InputError("the job file needs 'model' (e.g. \"sklearn.linear_model:LogisticRegression\")")
+    if not isinstance(job["target"], str):
+        raise InputError(f"'target' must name the label column, got {job['target']!r}")
+    features = _as_list(job.get("features"), "features")
+    ds = prepare(load_table(job["data"]), job["target"], features)
+    X_test = y_test = None
+    if job.get("test"):
+        test_ds = prepare(load_table(job["test"]), job["target"], list(ds.feature_names))
+        X_test, y_test = test_ds.X, test_ds.y
+    spec = resolve_model(job.get("model"), _params(job.get("param")), command=job.get("command"),
+                         timeout=job.get("timeout"))
+    sizes = job.get("sizes")
+    if isinstance(sizes, str):
+        sizes = parse_list(sizes, int, name="size", integer_range=True)
+    elif isinstance(sizes, list):
+        if not all(isinstance(s, int) and not isinstance(s, bool) for s in sizes):
+            raise InputError(f"'sizes' must be whole numbers, got {sizes!r}")
+    elif sizes is not None:
+        raise InputError(f"'sizes' must be a list like [50, 100] or a string like \"50:500:6\"; got {sizes!r}")
+    test_fraction = job.get("test_fraction", 0.25)
+    if isinstance(test_fraction, bool) or not isinstance(test_fraction, (int, float)):
+        raise InputError(f"'test_fraction' must be a number, got {test_fraction!r}")
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        curve = runner.measure(
+            spec, ds.X, ds.y, sizes=sizes, repeats=_int(job, "repeats", 5, 1),
+            test_size=test_fraction, X_test=X_test, y_test=y_test,
+            metric=str(job.get("metric", "error")), n_jobs=_int(job, "jobs", 1, 1),
+            backend=str(job.get("backend", "local")), scheduler=job.get("scheduler"),
+            random_state=_int(job, "seed", 0), timeout=job.get("timeout"),
+            encode=str(job.get("encode", "auto")), progress=not quiet and sys.stderr.isatty(),
+            meta={"data": ds.describe(), "data_file": job["data"], "job": "track"})
+    _relay(caught, quiet)
+    if job.get("out"):
+        curve.write(job["out"])
+    return curve
+
+
+def _relay(caught, quiet: bool) -> None:
+    seen = set()
+    for w in caught:
+        msg = str(w.message).splitlines()[0]
+        if msg not in seen:
+            seen.add(msg)
+            warn(msg, quiet)
+
+
+# --------------------------------------------------------------------------- the pipeline
+def track_curve(curve, *, store: str, series: str, baseline: str = "previous",
+                target_error: float | None = None, tolerances: dict | None = None,
+                allow_data_change: bool = False, bootstrap: int = DEFAULT_BOOTSTRAP,
+                interval: float = 0.9, seed: int = 0, reference_size: int | None = None,
+                families: Any = "auto", quiet: bool = False):
+    """Fit ``curve``, record it in ``store`` under ``series`` and compare with the baseline.
+
+    Returns the `Comparison`. Effective capacity is added when the curve has train
+    error and the estimate succeeds; otherwise it is skipped with a warning.
+    """
+    from curvefit.fitting import fit_curve
+    from curvefit.store import Store
+    from curvefit.tracking import check_baseline
+
+    if not 0 < interval < 1:
+        raise InputError(f"interval must lie strictly between 0 and 1, got {interval}")
+    if bootstrap < 0:
+        raise InputError(f"bootstrap must be >= 0, got {bootstrap}")
+    rule = check_baseline(baseline)
+    with Store(store) as st:  # open first: a bad store or baseline fails before the slow fit
+        if isinstance(rule, int):
+            st.headline(rule)  # the named baseline run must exist
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            fit = fit_curve(curve, families=families, bootstrap=bootstrap, random_state=seed)
+            capacity = None
+            if curve.has_train:
+                try:
+                    from curvefit.capacity import effective_capacity
+
+                    capacity = effective_capacity(curve, bootstrap=bootstrap,
+                                                  random_state=seed, interval=interval)
+                except (InputError, ValueError, RuntimeError, ArithmeticError) as exc:
+                    warn(f"effective capacity skipped: {str(exc).splitlines()[0]}", quiet)
+            run_id = st.record(curve, fit, series=series, target_error=target_error,
+                               tolerances=tolerances, reference_size=reference_size,
+                               capacity=capacity, interval=interval)
+        _relay(caught, quiet)
+        return st.compare(run_id, baseline, allow_data_change=allow_data_change)
+
+
+def _report(comparison, json_out: bool, store: str) -> None:
+    if json_out:
+        doc = comparison.to_dict()
+        doc["store"] = store
+        emit_json(doc)
+    else:
+        out.print(comparison.to_markdown(), markup=False, end="")
+    if not comparison.comparable:
+        # one line on stderr, as for any exit 2
+        print(f"curvefit: error: run {comparison.run_id} is not comparable with baseline run "
+              f"{comparison.baseline_id}: {'; '.join(comparison.reasons)}; pass "
+              "--allow-data-change to compare anyway", file=sys.stderr)
+
+
+def register(app: typer.Typer) -> None:
+    @app.command("track")
+    def track(
+        run: Optional[Path] = typer.Argument(None, help="Run file (or curve table) to record; "
+                                             "omit with --config."),
+        config: Optional[Path] = typer.Option(None, "--config",
+                                              help="Job file (TOML): measure, fit, record, compare."),
+        store: Optional[str] = typer.Option(None, "--store", help="History store file (history.db)."),
+        series: Optional[str] = typer.Option(None, "--series", help="Series name, e.g. nightly."),
+        baseline: Optional[str] = typer.Option(None, "--baseline",
+                                               help="previous (default), best, or a run id."),
+        target_error: Optional[float] = typer.Option(None, "--target-error",
+                                                     help="Target test error of the series."),
+        allow_data_change: bool = typer.Option(False, "--allow-data-change",
+                                               help="Compare even if the data or metric changed."),
+        bootstrap: Optional[int] = typer.Option(None, "--bootstrap",
+                                                help=f"Bootstrap replicates (default {DEFAULT_BOOTSTRAP})."),
+        interval: Optional[float] = typer.Option(None, "--interval", help="Interval level (default 0.9)."),
+        seed: Optional[int] = typer.Option(None, "--seed", help="Seed of the measurement and bootstrap."),
+        json_out: bool = typer.Option(False, "--json", help="Print JSON on stdout."),
+        quiet: bool = typer.Option(False, "--quiet", help="No warnings or progress."),
+    ):
+        """Record a run in the history store, compare it with the series' baseline and
+        exit 1 on a regression (2 if the data or metric changed)."""
+        from curvefit.curve import Curve
+
+        if (run is None) == (config is None):
+            raise InputError("give either a RUN file or --config job.toml (not both)")
+        job = read_job(config) if config is not None else {}
+        if seed is not None:
+            job["seed"] = seed
+        if run is not None:
+            curve = Curve.read(run)
+        else:
+            curve = None  # measured after the tracking settings are checked
+        store_path = store or job.get("store")
+        series_name = series or job.get("series")
+        if not store_path:
+            raise InputError("no history store: pass --store history.db or set 'store' in the job file")
+        if not series_name or not isinstance(series_name, str):
+            raise InputError("no series: pass --series NAME or set 'series' in the job file")
+        te = target_error if target_error is not None else job.get("target_error")
+        if te is not None and (isinstance(te, bool) or not isinstance(te, (int, float))
+                               or not math.isfinite(te) or te < 0):
+            raise InputError(f"target error must be a number >= 0, got {te!r}")
+        tolerances = job.get("tolerances")
+        if tolerances is not None and not isinstance(tolerances, dict):
+            raise InputError("'tolerances' must be a table, e.g. tolerances = {test_error_at_ref = 0.01}")
+        if tolerances is not None:
+            from curvefit.tracking import resolve_tolerances
+
+            resolve_tolerances(tolerances)
+        from curvefit.tracking import check_baseline
+
+        base = check_baseline(baseline or job.get("baseline", "previous"))
+        allow = allow_data_change or bool(job.get("allow_data_change", False))
+        boots = bootstrap if bootstrap is not None else _int(job, "bootstrap", DEFAULT_BOOTSTRAP)
+        level = interval if interval is not None else float(job.get("interval", 0.9))
+        ref = _int(job, "reference_size", None, 1)
+        if curve is None:
+            from curvefit.store import Store
+
+            if Path(store_path).exists():
+                Store(store_path, create=False).close()  # refuse a bad store before measuring
+            elif not Path(store_path).parent.is_dir():
+                raise InputError(f"cannot create history store {store_path}: its directory does not exist")
+            curve = measure_job(job, quiet=quiet)
+            failed = len(curve.failed_points())
+            if failed:
+                warn(f"{failed} of {len(curve.points)} fits failed (recorded in the run)", quiet)
+        comparison = track_curve(curve, store=store_path, series=series_name, baseline=base,
+                                 target_error=te, tolerances=tolerances,
+                                 allow_data_change=allow, bootstrap=boots, interval=level,
+                                 seed=int(job.get("seed", 0)), reference_size=ref,
+                                 families=job.get("families", "auto"), quiet=quiet)
+        _report(comparison, json_out, store_path)
+        if not quiet and not json_out and comparison.comparable:
+            err.print(f"recorded run {comparison.run_id} in {store_path} (series {series_name})",
+                      markup=False, highlight=False)
+        raise typer.Exit(comparison.exit_code)

@@ -1,0 +1,185 @@
+"""End-to-end tests of `curvefit track` and `curvefit history` through the real CLI.
+
+Data: scikit-learn's bundled breast-cancer set (Wisconsin diagnostic, 569 rows) written
+to CSV; the model is scikit-learn's LogisticRegression, scaled in a pipeline file.
+"""
+
+import json
+import sqlite3
+import textwrap
+
+import pytest
+from sklearn.datasets import load_breast_cancer
+
+from conftest import run_cli
+
+MODEL_FILE = textwrap.dedent("""
+    from sklearn.linear_model import LogisticRegression
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    def make_model(C=1.0):
+        return make_pipeline(StandardScaler(), LogisticRegression(C=C, max_iter=500))
+""")
+
+
+def _job(tmp_path, name, *, C=1.0, data="cancer.csv", extra=""):
+    text = textwrap.dedent(f"""
+        data = "{data}"
+        target = "target"
+        model = "model.py:make_model"
+        param = {{C = {C}}}
+        sizes = [25, 50, 100, 200]
+        repeats = 2
+        seed = 3
+        store = "history.db"
+        series = "cancer"
+        target_error = 0.08
+        bootstrap = 25
+        out = "{name}.json"
+        tolerances = {{test_error_at_ref = 0.01, samples_for_target = "25%"}}
+    """) + extra
+    path = tmp_path / f"{name}.toml"
+    path.write_text(text)
+    return path
+
+
+@pytest.fixture(scope="module")
+def nightly(tmp_path_factory):
+    """Three nightly jobs on one store: good, good again, crippled (C=1e-4)."""
+    tmp = tmp_path_factory.mktemp("nightly")
+    frame = load_breast_cancer(as_frame=True).frame
+    frame.to_csv(tmp / "cancer.csv", index=False)
+    (tmp / "model.py").write_text(MODEL_FILE)
+    results = {}
+    for name, C in [("first", 1.0), ("again", 1.0), ("crippled", 1e-4)]:
+        results[name] = run_cli("track", "--config", _job(tmp, name, C=C), "--json",
+                                cwd=tmp)
+    return tmp, results
+
+
+def test_first_and_repeated_run_pass(nightly):
+    tmp, res = nightly
+    first, again = res["first"], res["again"]
+    assert first.returncode == 0, first.stderr
+    doc = json.loads(first.stdout)
+    assert doc["verdict"] == "first run" and doc["baseline_id"] is None
+    names = {f["name"] for f in doc["figures"]}
+    assert {"test_error_at_ref", "samples_for_target"} <= names
+    assert again.returncode == 0, again.stderr
+    doc = json.loads(again.stdout)
+    assert doc["baseline_id"] == 1 and doc["run_id"] == 2 and doc["regressed"] == []
+    assert doc["comparable"] is True
+    # the same seed gives the same measured curve, so the figures agree exactly
+    for f in doc["figures"]:
+        assert f["current"]["estimate"] == pytest.approx(f["baseline"]["estimate"])
+    assert (tmp / "first.json").is_file()
+
+
+def test_crippled_model_regresses(nightly):
+    tmp, res = nightly
+    bad = res["crippled"]
+    assert bad.returncode == 1, bad.stderr
+    doc = json.loads(bad.stdout)
+    assert doc["verdict"] == "regressed" and doc["baseline_id"] == 2
+    assert "test_error_at_ref" in doc["regressed"]
+    row = next(f for f in doc["figures"] if f["name"] == "test_error_at_ref")
+    assert row["current"]["low"] > row["baseline"]["high"]  # separated intervals
+    assert row["worse_by"] > 0.01
+
+
+def test_markdown_summary_names_regressed_figures(nightly):
+    tmp, _ = nightly
+    # re-record the crippled run file against the best run: markdown for CI logs
+    res = run_cli("track", tmp / "crippled.json", "--store", tmp / "history.db",
+                  "--series", "cancer", "--baseline", "best", "--bootstrap", "25", cwd=tmp)
+    assert res.returncode == 1, res.stderr
+    assert "**Result: REGRESSED**" in res.stdout and "test_error_at_ref" in res.stdout
+    assert "| figure | baseline | current |" in res.stdout
+
+
+def test_history_lists_runs_and_plots(nightly):
+    tmp, _ = nightly
+    res = run_cli("history", "--store", tmp / "history.db", "--json")
+    assert res.returncode == 0, res.stderr
+    doc = json.loads(res.stdout)
+    runs = doc["series"][0]["runs"]
+    assert [r["run_id"] for r in runs][:3] == [1, 2, 3]
+    assert runs[2]["figures"]["test_error_at_ref"]["estimate"] > \
+        runs[0]["figures"]["test_error_at_ref"]["estimate"]
+    res = run_cli("history", "--store", tmp / "history.db", "--series", "cancer",
+                  "--plot", tmp / "trend.png")
+    assert res.returncode == 0, res.stderr
+    assert "series cancer" in res.stdout and "error@ref" in res.stdout
+    assert (tmp / "trend.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_data_change_not_comparable_unless_allowed(nightly, tmp_path):
+    tmp, _ = nightly
+    # a real data change: the same table without its last 60 rows
+    lines = (tmp / "cancer.csv").read_text().splitlines()
+    (tmp / "fewer.csv").write_text("\n".join(lines[:-60]) + "\n")
+    db = tmp_path / "h.db"
+    run = tmp / "first.json"
+    assert run_cli("track", run, "--store", db, "--series", "s", "--bootstrap", "20",
+                   "--quiet").returncode == 0
+    job = _job(tmp, "changed", data="fewer.csv")
+    res = run_cli("track", "--config", job, "--store", db, "--series", "s", "--quiet", cwd=tmp)
+    assert res.returncode == 2, res.stderr
+    lines = res.stderr.strip().splitlines()
+    assert len(lines) == 1 and "not comparable" in lines[0] and "Traceback" not in res.stderr
+    assert "data fingerprint differs" in lines[0]
+    res = run_cli("track", tmp / "changed.json", "--store", db, "--series", "s",
+                  "--baseline", "1", "--allow-data-change", "--bootstrap", "20", "--json", "--quiet")
+    assert res.returncode in (0, 1), res.stderr
+    doc = json.loads(res.stdout)
+    assert doc["comparable"] is True and doc["data_change_allowed"] is True
+    con = sqlite3.connect(db)
+    assert con.execute("SELECT count(*) FROM runs").fetchone()[0] == 3  # all recorded
+    assert con.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
+    con.close()
+
+
+@pytest.mark.parametrize("args, words", [
+    ((), "either a RUN file or --config"),
+    (("RUN",), "no history store"),
+    (("RUN", "--store", "DB"), "no series"),
+    (("RUN", "--store", "DB", "--series", "s", "--baseline", "yesterday"), "baseline must be"),
+    (("RUN", "--store", "DB", "--series", "s", "--target-error", "-1"), "target error"),
+    (("missing.json", "--store", "DB", "--series", "s"), "run file not found"),
+    (("--config", "BADKEY"), "unknown key"),
+    (("--config", "BADTOML"), "not valid TOML"),
+    (("--config", "BADTOL"), "tolerance"),
+    (("RUN", "--store", "TEXTDB", "--series", "s"), "not a curvefit history store"),
+])
+def test_bad_input_exit_2(nightly, tmp_path, args, words):
+    tmp, _ = nightly
+    (tmp_path / "badkey.toml").write_text('store = "h.db"\nseries = "s"\nlearning_rate = 3\n')
+    (tmp_path / "badtoml.toml").write_text('store = "h.db\n')
+    (tmp_path / "badtol.toml").write_text('data = "x.csv"\ntarget = "y"\nmodel = "m:M"\n'
+                                          'store = "h.db"\nseries = "s"\n'
+                                          'tolerances = {test_error_at_ref = "lots"}\n')
+    (tmp_path / "text.db").write_text("not a database\n")
+    subst = {"RUN": tmp / "first.json", "DB": tmp_path / "new.db",
+             "BADKEY": tmp_path / "badkey.toml", "BADTOML": tmp_path / "badtoml.toml",
+             "BADTOL": tmp_path / "badtol.toml", "TEXTDB": tmp_path / "text.db"}
+    res = run_cli("track", *[subst.get(a, a) for a in args], "--quiet", cwd=tmp_path)
+    assert res.returncode == 2, (res.stdout, res.stderr)
+    lines = res.stderr.strip().splitlines()
+    assert len(lines) == 1, res.stderr
+    assert words in lines[0] and "Traceback" not in res.stderr
+
+
+def test_history_bad_input_exit_2(tmp_path):
+    for args, words in [(("--store", tmp_path / "none.db"), "not found"),
+                        (("--store", tmp_path / "h.db", "--series", "x"), "not found")]:
+        if "--series" in args:
+            # an empty but valid store: the series is unknown
+            run_cli("history", "--store", tmp_path / "plain.db")  # (does not create)
+            from curvefit.store import Store
+            Store(tmp_path / "h.db").close()
+        res = run_cli("history", *args)
+        assert res.returncode == 2, res.stderr
+        lines = res.stderr.strip().splitlines()
+        assert len(lines) == 1 and words in lines[0] and "Traceback" not in res.stderr
+    assert not (tmp_path / "plain.db").exists()
