@@ -1,0 +1,329 @@
+"""The fitting engine, checked on curves measured on scikit-learn's bundled datasets.
+
+Curves come from ``sklearn.model_selection.learning_curve`` (a reference library) and are
+turned into a ``Curve`` with ``Curve.from_table``.
+"""
+
+import json
+import math
+import warnings
+from functools import lru_cache
+from types import SimpleNamespace
+
+import numpy as np
+import pandas as pd
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+from scipy.optimize import curve_fit
+
+from curvefit.curve import Curve, _jsonable
+from curvefit.errors import FitWarning, InputError
+from curvefit.families import get_family
+from curvefit.fitting import CurveFit, SampleEstimate, fit_curve
+from curvefit.results import Estimate
+
+
+# ------------------------------------------------------------------ measured curves
+def _sklearn_curve(dataset: str, model: str, fractions, repeats: int, seed: int = 0):
+    from sklearn import datasets
+    from sklearn.linear_model import LogisticRegression
+    from sklearn.model_selection import ShuffleSplit, learning_curve
+    from sklearn.naive_bayes import GaussianNB
+    from sklearn.neighbors import KNeighborsClassifier
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+    from sklearn.tree import DecisionTreeClassifier
+    from threadpoolctl import threadpool_limits
+
+    X, y = getattr(datasets, f"load_{dataset}")(return_X_y=True)
+    est = {"nb": GaussianNB(), "knn": KNeighborsClassifier(),
+           "tree": DecisionTreeClassifier(random_state=0),
+           "lr": make_pipeline(StandardScaler(), LogisticRegression(max_iter=500))}[model]
+    with threadpool_limits(1):  # the test machine is shared; one BLAS thread is fastest
+        sizes, tr, te = learning_curve(est, X, y, train_sizes=np.asarray(fractions),
+                                       cv=ShuffleSplit(repeats, test_size=0.3, random_state=seed),
+                                       n_jobs=1)
+    rows = [{"size": int(s), "repeat": r, "train_error": 1 - tr[i, r], "test_error": 1 - te[i, r]}
+            for i, s in enumerate(sizes) for r in range(repeats)]
+    return pd.DataFrame(rows)
+
+
+@lru_cache(maxsize=None)
+def measured_curve(key: str):
+    """A small measured curve: ``.curve`` (Curve), ``.table`` and per-size ``.summary_frame``."""
+    dataset, model = {"digits_nb": ("digits", "nb"), "bc_tree": ("breast_cancer", "tree"),
+                      "digits_knn": ("digits", "knn")}[key]
+    table = _sklearn_curve(dataset, model, np.geomspace(0.05, 1.0, 8), repeats=4)
+    curve = Curve.from_table(table, meta={"source": f"sklearn {dataset} {model}"})
+    summary = table.groupby("size", as_index=False).agg(test_mean=("test_error", "mean"),
+                                                        train_mean=("train_error", "mean"))
+    return SimpleNamespace(curve=curve, table=table, summary_frame=summary)
+
+
+@pytest.fixture(scope="module")
+def nb():
+    return measured_curve("digits_nb")
+
+
+@pytest.fixture(scope="module")
+def nb_fit(nb):
+    return fit_curve(nb.curve, bootstrap=60, random_state=1)
+
+
+# ------------------------------------------------------------------ outside checks
+@pytest.mark.parametrize("family", ["pow3", "exp3", "vap3", "pow2"])
+def test_weighted_least_squares_agrees_with_scipy_curve_fit(nb, family):
+    # reference: scipy.optimize.curve_fit on the same weighted problem (sigma = 1/√w)
+    fit = fit_curve(nb.curve, families=family, bootstrap=0)
+    data = fit._state.data
+    fam = get_family(family)
+    theta = fit._state.fits[family].theta
+    lo, hi = fam.bounds()
+    ref, _ = curve_fit(lambda n, *t: fam.func(n, np.array(t)), data.sizes, data.y,
+                       p0=theta * 1.05 + 1e-4 * (theta == 0), sigma=1 / np.sqrt(data.w),
+                       bounds=(lo, hi), method="trf", jac=lambda n, *t: fam.jac(n, np.array(t)),
+                       ftol=1e-14, xtol=1e-14, gtol=1e-14, max_nfev=5000)
+    pred_ours = fam.func(data.sizes, theta)
+    pred_ref = fam.func(data.sizes, ref)
+    rss = lambda p: float(np.sum(data.w * (p - data.y) ** 2))  # noqa: E731
+    assert rss(pred_ours) <= rss(pred_ref) * (1 + 1e-6) + 1e-15
+    np.testing.assert_allclose(pred_ours, pred_ref, rtol=1e-4)
+
+
+def test_index_weights_follow_figueroa(nb):
+    # Figueroa et al. 2012 (BMC Med. Inform. Decis. Mak. 12:8): weights grow with the
+    # point's index (proportional to index: from memory)
+    fit = fit_curve(nb.curve, families="pow3", weights="index", bootstrap=0)
+    w = fit._state.data.w
+    np.testing.assert_allclose(w / w[0], np.arange(1, len(w) + 1))
+
+
+def test_joint_family_puts_the_shared_asymptote_between_train_and_test():
+    # Cortes et al. 1994 (NIPS 6): train error rises and test error falls to one
+    # asymptote a, so a lies between the two curves at the largest size
+    bc = measured_curve("bc_tree")
+    fit = fit_curve(bc.curve, families="joint5", bootstrap=30)
+    row = fit.table.set_index("family").loc["joint5"]
+    a = row["params"]["a"]
+    last = bc.summary_frame.iloc[-1]
+    assert last["train_mean"] - 1e-9 <= a <= last["test_mean"] + 0.02
+    # naive Bayes has a rising train error: the train component stays below the asymptote
+    nb = measured_curve("digits_nb")
+    train_fit = fit_curve(nb.curve, families="joint5", on="train", bootstrap=0)
+    assert train_fit.best == "joint5"
+    a_nb = train_fit.table.set_index("family").loc["joint5", "params"]["a"]
+    assert train_fit.predict(10 * train_fit.largest_size).estimate <= a_nb + 1e-9
+
+
+# ------------------------------------------------------------------ the result object
+def test_curvefit_contract(nb_fit):
+    fit = nb_fit
+    assert isinstance(fit, CurveFit)
+    assert fit.on == "test"
+    assert list(fit.table.columns[:7]) == ["family", "n_params", "params", "forecast_error",
+                                           "aicc", "status", "chosen"]
+    assert fit.table["chosen"].sum() == 1
+    assert fit.table.iloc[0]["family"] == fit.best
+    assert set(fit.table["status"]) <= {"converged", "poorly determined", "failed"}
+    assert {"last1", "pow3", "joint5"} <= set(fit.table["family"])
+    assert fit.runner_up is None or fit.runner_up in set(fit.table["family"])
+    assert fit.best != "last1"
+    assert "CurveFit(" in repr(fit) and fit.best in repr(fit)
+    json.dumps(_jsonable(fit.to_dict()), allow_nan=False)
+
+
+def test_predict_scalar_and_array(nb_fit):
+    e = nb_fit.predict(2000)
+    assert isinstance(e, Estimate) and e.level == 0.9
+    assert e.low <= e.estimate <= e.high
+    df = nb_fit.predict([500, 1000, 2000], interval=0.8)
+    assert list(df.columns) == ["size", "estimate", "low", "high"]
+    assert df["estimate"].iloc[2] == pytest.approx(e.estimate)
+    wide = nb_fit.predict(2000, interval=0.95)
+    assert wide.high - wide.low >= e.high - e.low - 1e-12
+    with pytest.warns(FitWarning):
+        nb_fit.predict(100 * nb_fit.largest_size)
+    with pytest.raises(InputError):
+        nb_fit.predict(-5)
+    with pytest.raises(InputError):
+        nb_fit.predict(100, interval=1.5)
+
+
+def test_parameters_asymptote_exponent(nb_fit):
+    p = nb_fit.parameters()
+    assert list(p.columns) == ["param", "estimate", "low", "high"]
+    assert list(p["param"]) == list(get_family(nb_fit.best).params)
+    a = nb_fit.asymptote()
+    if a is not None:
+        assert a.low <= a.high
+    for name in ["pow3", "pow2", "exp3", "log2"]:
+        f = fit_curve(measured_curve("digits_nb").curve, families=name, bootstrap=10)
+        if f.best != name:
+            continue
+        assert (f.exponent() is not None) == (name in ("pow3", "pow2"))
+        assert (f.asymptote() is None) == (name == "log2")
+
+
+def test_predict_family_draws_any_fitted_family(nb_fit):
+    for name in nb_fit.table.loc[nb_fit.table["status"] != "failed", "family"]:
+        assert np.isfinite(nb_fit.predict_family(name, [100.0, 1e4])).all()
+    with pytest.raises(InputError):
+        nb_fit.predict_family("nope", 10)
+
+
+def test_same_seed_same_numbers(nb):
+    a = fit_curve(nb.curve, families="pow3,exp3", bootstrap=40, random_state=7)
+    b = fit_curve(nb.curve, families="pow3,exp3", bootstrap=40, random_state=7)
+    c = fit_curve(nb.curve, families="pow3,exp3", bootstrap=40, random_state=8)
+    assert a.predict(5000) == b.predict(5000)
+    assert a.predict(5000).estimate == c.predict(5000).estimate
+    assert a.predict(5000).low != c.predict(5000).low
+
+
+def test_weights_choices_change_the_fit(nb):
+    fits = {w: fit_curve(nb.curve, families="pow3", weights=w, bootstrap=0) for w in
+            ["sem", "index", "none"]}
+    vals = {w: tuple(np.round(f._state.fits["pow3"].theta, 8)) for w, f in fits.items()}
+    assert len(set(vals.values())) == 3
+
+
+def test_gap_and_train_fits(nb):
+    gap = fit_curve(nb.curve, on="gap", bootstrap=20)
+    assert gap.on == "gap"
+    summary = nb.summary_frame
+    observed = (summary["test_mean"] - summary["train_mean"]).to_numpy()
+    assert np.max(np.abs(gap.predict(summary["size"].to_numpy())["estimate"] - observed)) < 0.05
+    train = fit_curve(nb.curve, on="train", bootstrap=20)
+    pred = train.predict(summary["size"].to_numpy())["estimate"].to_numpy()
+    assert np.max(np.abs(pred - summary["train_mean"].to_numpy())) < 0.05
+
+
+# ------------------------------------------------------------------ answers
+def test_samples_for_inverts_predict(nb_fit):
+    now = nb_fit.predict(nb_fit.largest_size).estimate
+    asym = nb_fit.asymptote()
+    floor = asym.estimate if asym is not None else 0.0
+    target = floor + 0.6 * (now - floor)
+    s = nb_fit.samples_for(test_error=target)
+    assert isinstance(s, SampleEstimate) and s.kind == "test_error" and s.reachable
+    assert nb_fit.predict(s.n).estimate == pytest.approx(target, abs=2e-4)
+    assert s.low <= s.n <= s.high
+    assert s.message.startswith("To reach ") and "labelled samples" in s.message
+    json.dumps(_jsonable(s.to_dict()))
+
+
+def test_target_below_the_asymptote_is_not_reachable(nb):
+    fit = fit_curve(nb.curve, families="pow3", bootstrap=60)
+    asym = fit.asymptote()
+    assert asym is not None and asym.low > 0.01, asym  # naive Bayes levels off well above 1%
+    s = fit.samples_for(test_error=0.5 * asym.low)
+    assert not s.reachable and math.isinf(s.n)
+    assert "not reachable by more data with this model" in s.message
+    assert s.asymptote == asym
+
+
+def test_already_reached_target(nb_fit):
+    s = nb_fit.samples_for(test_error=0.9)
+    assert s.reachable and s.n <= nb_fit.largest_size
+    assert s.message.startswith("The measured curve already reaches")
+
+
+def test_gap_target_fits_the_gap_internally(nb_fit):
+    s = nb_fit.samples_for(gap=0.05)
+    assert s.kind == "gap"
+    assert "gap" in nb_fit._state.companions
+    assert nb_fit.samples_for(gap=0.05).n == s.n  # cached companion, same answer
+    with pytest.raises(InputError):
+        nb_fit.samples_for()
+    with pytest.raises(InputError):
+        nb_fit.samples_for(test_error=0.1, gap=0.1)
+    no_train = Curve.from_table(nb_fit.curve.points[["size", "repeat", "test_error"]])
+    with pytest.raises(InputError):
+        fit_curve(no_train, bootstrap=5).samples_for(gap=0.05)
+
+
+# ------------------------------------------------------------------ honest warnings
+def test_warning_few_sizes(nb):
+    few = nb.table[nb.table["size"].isin(sorted(nb.table["size"].unique())[:3])]
+    fit = fit_curve(Curve.from_table(few), bootstrap=10)
+    assert any("only 3 distinct sizes" in w for w in fit.warnings)
+
+
+def test_warning_curve_that_does_not_decrease(nb):
+    # the train error of a measured curve grows with size: as a "test error" it must be flagged
+    t = nb.table.assign(test_error=nb.table["train_error"])[["size", "repeat", "test_error"]]
+    fit = fit_curve(Curve.from_table(t), bootstrap=10)
+    assert any("does not decrease" in w for w in fit.warnings)
+
+
+def test_warning_wide_interval_and_long_extrapolation():
+    # 3 sizes of the tree curve: an interval wider than the estimate at 10×
+    bc = measured_curve("bc_tree").table
+    few = bc[bc["size"].isin(sorted(bc["size"].unique())[:4])]
+    fit = fit_curve(Curve.from_table(few), families="pow3", bootstrap=60)
+    s = fit.samples_for(test_error=0.01)
+    assert (not s.reachable) or s.warnings or any("wider" in w for w in fit.warnings)
+
+
+def test_bad_arguments_raise_input_error(nb):
+    for kwargs in [{"on": "middle"}, {"weights": "heavy"}, {"bootstrap": -1},
+                   {"families": "pow3,nope"}, {"families": ""}]:
+        with pytest.raises(InputError):
+            fit_curve(nb.curve, **kwargs)
+    with pytest.raises(InputError):
+        fit_curve(Curve.from_table(nb.table[["size", "test_error"]]), on="gap")
+    with pytest.raises(InputError):
+        fit_curve("not a curve")
+
+
+# ------------------------------------------------------------------ odd input never raises
+cell = st.one_of(st.floats(min_value=0.0, max_value=1.0), st.just(float("nan")))
+
+
+@st.composite
+def odd_curves(draw):
+    kind = draw(st.sampled_from(["noisy", "flat", "increasing", "tiny", "huge", "one_size"]))
+    n_sizes = 1 if kind == "one_size" else draw(st.integers(2, 7))
+    repeats = draw(st.integers(1, 3))
+    sizes = sorted(draw(st.lists(st.integers(2, 5000), min_size=n_sizes, max_size=n_sizes,
+                                 unique=True)))
+    rows = []
+    for i, s in enumerate(sizes):
+        for r in range(repeats):
+            if kind == "flat":
+                v = 0.2
+            elif kind == "increasing":
+                v = 0.05 + 0.1 * i + draw(st.floats(0, 0.01))
+            else:
+                v = draw(cell)
+            if kind == "tiny" and math.isfinite(v):
+                v *= 1e-9
+            if kind == "huge" and math.isfinite(v):
+                v *= 1e6
+            rows.append({"size": s, "repeat": r, "test_error": v,
+                         "train_error": v * 0.5 if math.isfinite(v) else v})
+    df = pd.DataFrame(rows)
+    if not np.isfinite(df["test_error"]).any():
+        df.loc[0, "test_error"] = 0.3
+    return df
+
+
+@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(odd_curves(), st.sampled_from(["test", "gap"]))
+def test_odd_finite_curves_give_a_result(table, on):
+    curve = Curve.from_table(table)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        try:
+            fit = fit_curve(curve, on=on, bootstrap=8, random_state=0)
+        except InputError as exc:  # only when nothing finite is left for this quantity
+            assert "nothing to fit" in str(exc)
+            return
+        assert fit.best in set(fit.table["family"])
+        assert set(fit.table["status"]) <= {"converged", "poorly determined", "failed"}
+        e = fit.predict(2 * fit.largest_size)
+        assert isinstance(e, Estimate)
+        if on == "test":
+            s = fit.samples_for(test_error=float(np.nanmin(table["test_error"])) * 0.9)
+            assert isinstance(s, SampleEstimate) and s.message
