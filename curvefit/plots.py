@@ -309,13 +309,14 @@ def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float 
                         label=f"{label}: train", zorder=4)
         # fitted families, extrapolated far enough to show the answer
         a = _answer_of(ans)
-        if fit is not None and any_data:
-            right = xmax * 4
+        if fit is not None and len(summ):
+            top = float(summ["size"].max())  # this model's own largest size, not the running max
+            right = top * 4
             if a and _finite(a["high"]):
                 right = max(right, a["high"] * 1.3)
             elif a and _finite(a["n"]):
                 right = max(right, a["n"] * 1.5)
-            right = min(right, xmax * 1e3)
+            right = min(right, top * 1e3)
             left = float(summ["size"].min()) if len(summ) else xmin
             grid = np.geomspace(left, right, 160)
             lines = _fit_lines(fit, grid, interval)

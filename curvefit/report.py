@@ -168,6 +168,14 @@ def fmt_error(v: Any, metric: str | None = "error") -> str:
     return f"{v:.3g}"
 
 
+def fmt_capacity(v: Any) -> str:
+    """A VC dimension: whole units with separators from 100 up, else three digits."""
+    if not _finite(v):
+        return "∞" if v == math.inf else "–"
+    v = float(v)
+    return f"{v:,.0f}" if v >= 100 else f"{v:.3g}"
+
+
 def fmt_count(v: Any) -> str:
     """A sample count rounded to three significant digits with thousands separators."""
     if not _finite(v):
@@ -197,6 +205,18 @@ def _fmt_cell(v: Any) -> str:
     return str(v)
 
 
+def _align(v: Any) -> str:
+    """Text cells align left, numbers right (the default)."""
+    if isinstance(v, (Mapping, list, tuple)):
+        return ' class="text"'
+    if isinstance(v, str):
+        try:
+            float(v.replace(",", "").rstrip("%"))
+        except ValueError:
+            return ' class="text"'
+    return ""
+
+
 def html_table(df: pd.DataFrame, *, columns: Sequence[str] | None = None,
                headers: Mapping[str, str] | None = None, highlight: str | None = None,
                max_rows: int = 60) -> str:
@@ -209,7 +229,8 @@ def html_table(df: pd.DataFrame, *, columns: Sequence[str] | None = None,
     body = []
     for _, row in df.head(max_rows).iterrows():
         mark = ' class="chosen"' if highlight and highlight in df.columns and bool(row[highlight]) else ""
-        cells = "".join(f"<td>{esc(_fmt_cell(row[c]))}</td>" for c in cols)
+        cells = "".join(
+            f'<td{_align(row[c])}>{esc(_fmt_cell(row[c]))}</td>' for c in cols)
         body.append(f"<tr{mark}>{cells}</tr>")
     more = (f'<p class="small">{len(df) - max_rows} more rows not shown.</p>'
             if len(df) > max_rows else "")
@@ -307,6 +328,33 @@ def _order(results: list[ModelResult]) -> list[ModelResult]:
     return sorted(results, key=key)
 
 
+def _purchase_view(plan: pd.DataFrame, metric: str, interval: float) -> pd.DataFrame:
+    """The purchase plan with readable units: counts, errors as %, cost, drop per 1,000."""
+    view = pd.DataFrame(index=plan.index)
+    count = lambda v: f"{int(round(float(v))):,}" if _finite(v) else "–"  # noqa: E731
+    if "extra" in plan:
+        view["extra labels"] = plan["extra"].map(count)
+    if "total_n" in plan:
+        view["total labels"] = plan["total_n"].map(count)
+    if "test_error" in plan:
+        view["expected test error"] = plan["test_error"].map(lambda v: fmt_error(v, metric))
+    if "low" in plan and "high" in plan:
+        view[f"{interval:.0%} interval"] = [f"{fmt_error(lo, metric)}–{fmt_error(hi, metric)}"
+                                            for lo, hi in zip(plan["low"], plan["high"])]
+    if "cost" in plan and plan["cost"].notna().any():
+        view["cost"] = plan["cost"].map(lambda v: f"{float(v):,.2f}" if _finite(v) else "–")
+    if "drop_per_1000" in plan:
+        rate = _is_rate(metric)
+        view["error drop per 1,000 labels"] = plan["drop_per_1000"].map(
+            lambda v: ("–" if not _finite(v) else
+                       f"{100 * float(v):.2f} points" if rate else f"{float(v):.3g}"))
+    extra = [c for c in plan.columns if c not in
+             ("extra", "total_n", "test_error", "low", "high", "cost", "drop_per_1000")]
+    for c in extra:
+        view[c] = plan[c]
+    return view
+
+
 # --------------------------------------------------------------------------- sections
 CSS = """
 :root { --ink:#1d2731; --muted:#5b6570; --line:#d9dee3; --accent:#1f3b57; --warm:#d47a1e;
@@ -336,7 +384,7 @@ figcaption { color:var(--muted); font-size:13px; margin-top:6px; }
 table { border-collapse:collapse; font-size:13px; background:var(--panel); }
 th, td { border:1px solid var(--line); padding:4px 9px; text-align:right; vertical-align:top; }
 th { background:#eef1f4; font-weight:bold; }
-td:first-child, th:first-child { text-align:left; }
+td:first-child, th:first-child, td.text { text-align:left; }
 tr.chosen td { background:#fdf1e3; font-weight:bold; }
 .note { border-left:4px solid var(--muted); background:#f1f2f3; padding:6px 12px; margin:8px 0;
         font-size:14px; }
@@ -452,9 +500,10 @@ def _capacity_row(label: str, c: Any) -> dict:
     d, lo, hi = _get(c, "vc_dim"), _get(c, "low"), _get(c, "high")
     above = bool(_get(c, "above_range", False))
     return {"model": label, "method": _get(c, "method", ""),
-            "effective VC dimension": (("≥ " if above else "") + f"{float(d):.3g}") if _finite(d) else "–",
-            f"{float(lvl):.0%} interval": (f"{float(lo):.3g}–{float(hi):.3g}"
-                                            if _finite(lo) and _finite(hi) else "–"),
+            "effective VC dimension": (("≥ " if above else "") + fmt_capacity(d)) if _finite(d) else "–",
+            f"{float(lvl):.0%} interval": (f"{fmt_capacity(lo)}–{fmt_capacity(hi)}"
+                                            if _finite(lo) and (_finite(hi) or hi == math.inf)
+                                            else "–"),
             "note": _get(c, "message", "") or ("above the probed range: a lower bound" if above else "")}
 
 
@@ -502,7 +551,7 @@ def _worst_case(results: list[ModelResult], probe: Any, target_error: float | No
         delta = round(1.0 - interval, 6)
         rows = []
         try:
-            rows.append({"label": f"VC bound (d={float(d):.3g}, ε={eps:.3g}, δ={delta:g})",
+            rows.append({"label": f"VC bound (d={fmt_capacity(d)}, ε={eps:.3g}, δ={delta:g})",
                          "n": float(bounds.vc_sample_size(int(math.ceil(float(d))), eps, delta)),
                          "kind": "bound"})
         except Exception:  # noqa: BLE001 - skip a bound that cannot be computed
@@ -517,7 +566,7 @@ def _worst_case(results: list[ModelResult], probe: Any, target_error: float | No
                          "low": _get(r.answer, "low"), "high": _get(r.answer, "high"),
                          "kind": "measured"})
         text = (f"For <strong>{esc(r.label)}</strong> with effective capacity d ≈ "
-                f"{esc(f'{float(d):.3g}')} ({esc(_get(cap, 'method', 'estimate'))}): the VC "
+                f"{esc(fmt_capacity(d))} ({esc(_get(cap, 'method', 'estimate'))}): the VC "
                 f"bound asks for the gap between training and test error to be at most "
                 f"ε = {esc(f'{eps:.3g}')} (the target minus the fitted floor) with "
                 f"probability {1 - delta:.0%}. It holds for every distribution, so it is "
@@ -622,10 +671,13 @@ def build_report(results: Any, *, target_error: float | None = None, probe: Any 
         body.append(f"<h3>Buying more labels ({esc(res[0].label)})</h3>")
         if purchase_note:
             body.append(f"<p>{esc(purchase_note)}</p>")
-        body.append(html_table(purchase, headers={
-            "extra": "extra labels", "total_n": "total", "test_error": "expected test error",
-            "low": f"{interval:.0%} low", "high": f"{interval:.0%} high", "cost": "cost",
-            "drop_per_1000": "error drop per 1,000 labels"}))
+        body.append(html_table(_purchase_view(purchase, res[0].curve.metric, interval)))
+    shown = []
+    for r in res:
+        for w in _get(r.answer, "warnings", None) or ():
+            if w not in shown:
+                shown.append(w)
+                body.append(f'<p class="note warn">{esc(r.label)}: {esc(w)}</p>')
     failed = sum(len(r.curve.failed_points()) for r in res)
     if failed:
         body.append(f'<p class="note warn">{failed} cell(s) failed and were left out of the '
@@ -676,9 +728,12 @@ def build_report(results: Any, *, target_error: float | None = None, probe: Any 
             body.append(figure("probe", fig, "capacity probe: max deviation against n",
                                "Max-deviation experiment (Vapnik, Levin and LeCun 1994): "
                                "measured ξ(n) with the fitted Φ(n/h) and the interval of h."))
-        for r in res:
+        seen = []
+        for r in res:  # notes shared by every model are shown once
             for n in _get(r.capacity, "notes", None) or []:
-                body.append(f'<p class="note">{esc(r.label)}: {esc(n)}</p>')
+                if n not in seen:
+                    seen.append(n)
+        body += [f'<p class="note">{esc(n)}</p>' for n in seen]
         sections.append(("capacity", "Capacity", "".join(body)))
 
     # --- trade-off
