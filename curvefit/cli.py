@@ -58,15 +58,21 @@ def main(argv: list[str] | None = None) -> None:
     except InputError as exc:
         _fail(str(exc))
     except _cx.UsageError as exc:
-        hint = f" (see: curvefit {exc.ctx.info_name} --help)" if exc.ctx and exc.ctx.parent else ""
+        if type(exc).__name__ == "NoArgsIsHelpError":
+            sys.exit(0)  # a bare `curvefit` or `curvefit bound`: help was printed
+        hint = f" (see: {exc.ctx.command_path} --help)" if exc.ctx and exc.ctx.parent else ""
         _fail(exc.format_message().replace("\n", " ") + hint)
     except _cx.ClickException as exc:
         _fail(exc.format_message().replace("\n", " "))
-    except (KeyboardInterrupt, _cx.Abort):
+    except BrokenPipeError:
+        # Output piped into `head` and closed early: not an error of ours.
+        sys.stderr.close()
+        sys.exit(0)
+    except (KeyboardInterrupt, typer.Abort):
         print("curvefit: interrupted; finished work is kept (use --resume to continue)",
               file=sys.stderr)
         sys.exit(130)
-    except _cx.Exit as exc:
+    except typer.Exit as exc:
         if exc.exit_code == 130:  # typer turns Ctrl-C into Exit(130) without a word
             print("curvefit: interrupted; finished work is kept (use --resume to continue)",
                   file=sys.stderr)
