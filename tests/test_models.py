@@ -425,3 +425,53 @@ def test_encode_auto_on_arrays():
     assert "numeric column (x1)" in how
     est.fit(X, [0, 0, 1, 1])
     assert est.predict(X).shape == (4,)
+
+
+# ---------------------------------------------------------------- through the real CLI
+def _cli_bad(args, match):
+    from conftest import run_cli
+
+    r = run_cli("measure", *args)
+    lines = [ln for ln in r.stderr.splitlines() if ln.strip()]
+    assert r.returncode == 2, (r.returncode, r.stderr)
+    assert len(lines) == 1 and "Traceback" not in r.stderr, r.stderr
+    assert match in lines[0], lines[0]
+
+
+@pytest.fixture(scope="module")
+def wine_csv(tmp_path_factory):
+    path = tmp_path_factory.mktemp("wine") / "wine.csv"
+    load_wine(as_frame=True).frame.to_csv(path, index=False)
+    return path
+
+
+def test_cli_bad_model_inputs(wine_csv, tmp_path):
+    base = [wine_csv, "--target", "target", "--out", tmp_path / "run.json"]
+    _cli_bad(base + ["--model", f"{tmp_path / 'absent.py'}:make_model"], "model file not found")
+    _cli_bad(base + ["--model", "sklearn.linear_model:LogisticRegression", "--features", "alcohol,nope"],
+             "feature column nope not in the table")
+
+
+def test_cli_file_spec_in_parallel_workers(wine_csv, tmp_path, model_file):
+    """loky workers rebuild a file.py spec by path; results equal a one-process run."""
+    import json
+
+    from conftest import run_cli
+    from curvefit.data import load_table, prepare
+    from curvefit.runner import measure
+
+    out = tmp_path / "run.json"
+    r = run_cli("measure", wine_csv, "--target", "target", "--model", f"{model_file}:make_model",
+                "--param", "C=0.5", "--sizes", "30,90", "--repeats", "2", "--jobs", "2",
+                "--seed", "0", "--out", out, "--quiet")
+    assert r.returncode == 0, r.stderr
+    doc = json.loads(out.read_text())
+    assert doc["meta"]["model"]["kind"] == "file" and doc["meta"]["model"]["params"] == {"C": 0.5}
+    cols = ["size", "repeat", "train_error", "test_error", "status"]
+    parallel = pd.DataFrame(doc["points"])[cols].sort_values(["size", "repeat"]).reset_index(drop=True)
+    ds = prepare(load_table(wine_csv), "target")
+    local = measure(resolve_model(f"{model_file}:make_model", {"C": 0.5}), ds.X, ds.y,
+                    sizes=[30, 90], repeats=2, n_jobs=1, random_state=0)
+    local = local.points[cols].sort_values(["size", "repeat"]).reset_index(drop=True)
+    assert (parallel["status"] == "ok").all()
+    pd.testing.assert_frame_equal(parallel, local)
