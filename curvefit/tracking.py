@@ -209,8 +209,7 @@ def samples_figure(sample_estimate: Any, target_error: float, interval: float = 
     if not reachable or not math.isfinite(n):
         # Unreachable: the need is unbounded; keep the lower end if the fit gave one.
         n, hi = math.inf, math.inf
-        msg = getattr(sample_estimate, "message", "") or "target not reached by the fitted curve"
-        note += f"; {msg}"
+        note += "; not reachable (the fitted curve levels off above it)"
     elif not math.isfinite(hi):
         hi = math.inf
     return make_figure("samples_for_target", n, lo, hi, interval, note=note)
