@@ -124,7 +124,9 @@ def analyse(curves: Any, *, target_error: float | None = None, bootstrap: int = 
         if capacity and len(curve.ok_points()) and curve.has_train:
             from curvefit.capacity import effective_capacity
 
-            res.capacity = _call(lambda: effective_capacity(curve), res.notes,
+            res.capacity = _call(lambda: effective_capacity(curve, bootstrap=bootstrap,
+                                                            random_state=random_state),
+                                 res.notes,
                                  "capacity from the gap")
         results.append(res)
     return results
