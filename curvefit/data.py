@@ -102,7 +102,7 @@ def load_table(path: str | os.PathLike) -> pd.DataFrame:
     suffix = _data_suffix(path)
     try:
         if suffix in _CSV_SUFFIXES:
-            df = pd.read_csv(path)
+            df = pd.read_csv(path, low_memory=False)  # one dtype per column, not per chunk
         elif suffix in _SNIFF_SUFFIXES:
             df = pd.read_csv(path, sep=None, engine="python")
         elif suffix in _PARQUET_SUFFIXES:

@@ -23,7 +23,7 @@ process, so a typo fails before any work starts.
 from __future__ import annotations
 
 import ast
-import copy
+import dataclasses
 import hashlib
 import importlib
 import importlib.util
@@ -86,7 +86,7 @@ def parse_params(items) -> dict:
 
 # ---------------------------------------------------------------------- loading
 _MODULE_FILE_CACHE: dict[str, Any] = {}
-_LOAD_LOCK = threading.Lock()
+_LOAD_LOCK = threading.RLock()  # re-entrant: a model file may resolve another
 
 
 def _load_file_module(path: str):
@@ -367,7 +367,9 @@ def as_model_spec(model, params: dict | None = None, *, timeout: float | None = 
     Parameters
     ----------
     model : ModelSpec, str, estimator, or callable
-        A `ModelSpec` (returned as is), a spec string (see `resolve_model`), an
+        A `ModelSpec` (returned as is; a command spec without a timeout takes
+        ``timeout``), a spec string (see `resolve_model`; a string holding the
+        ``{train}``/``{test}``/``{predictions}`` placeholders is a trainer command), an
         estimator instance (an unfitted clone is stored and cloned again for every
         ``make()``, so the caller's object is never touched), or a zero-argument
         factory returning an estimator.
@@ -381,8 +383,12 @@ def as_model_spec(model, params: dict | None = None, *, timeout: float | None = 
     (False, 3)
     """
     if isinstance(model, ModelSpec):
+        if model.kind == "command" and timeout is not None and model.timeout is None:
+            return dataclasses.replace(model, timeout=float(timeout))
         return model
     if isinstance(model, str):
+        if any(p in model for p in PLACEHOLDERS):  # a trainer command line
+            return resolve_model(None, params, command=model, timeout=timeout)
         return resolve_model(model, params, timeout=timeout)
     if _is_estimator(model) and not inspect.isclass(model):
         if isinstance(model, CommandModel):

@@ -233,6 +233,9 @@ def test_factory_and_class(iris_split):
         as_model_spec(lambda: "nope")
     with pytest.raises(InputError, match="model must be an estimator"):
         as_model_spec(42)
+    # from Python, a string with the placeholders is a trainer command
+    cmd = as_model_spec(f"{PY} t.py {{train}} {{test}} {{predictions}}", timeout=7)
+    assert cmd.kind == "command" and cmd.make().timeout == 7
 
 
 # ---------------------------------------------------------------- command trainer
