@@ -73,10 +73,10 @@ def main(argv: list[str] | None = None) -> None:
               file=sys.stderr)
         sys.exit(130)
     except typer.Exit as exc:
-        if exc.exit_code == 130:  # typer turns Ctrl-C into Exit(130) without a word
-            print("curvefit: interrupted; finished work is kept (use --resume to continue)",
-                  file=sys.stderr)
         sys.exit(exc.exit_code)
+    if code == 130:  # typer turns Ctrl-C into exit code 130 without a word
+        print("curvefit: interrupted; finished work is kept (use --resume to continue)",
+              file=sys.stderr)
     sys.exit(code if isinstance(code, int) else 0)
 
 
