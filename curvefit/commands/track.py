@@ -27,9 +27,10 @@ from curvefit.commands._common import emit_json, err, out, parse_list, warn
 from curvefit.errors import InputError
 
 # Job-file keys: the `measure` options (dashes or underscores) plus the tracking ones.
-MEASURE_KEYS = {"data", "target", "model", "param", "features", "test", "sizes", "repeats",
-                "test_fraction", "metric", "encode", "jobs", "backend", "scheduler", "seed",
-                "timeout", "out", "command"}
+MEASURE_KEYS = {"data", "target", "model", "param", "command", "features", "test", "sizes",
+                "repeats", "test_fraction", "metric", "encode", "jobs", "backend",
+                "scheduler", "seed", "timeout", "resume", "out", "quiet", "json", "groups",
+                "order", "size_unit"}
 TRACK_KEYS = {"store", "series", "target_error", "baseline", "tolerances",
               "allow_data_change", "bootstrap", "interval", "reference_size", "families"}
 DEFAULT_BOOTSTRAP = 300
@@ -112,38 +113,77 @@ def _int(job: dict, key: str, default: int | None, minimum: int = 0) -> int | No
 
 
 def measure_job(job: dict, *, quiet: bool = False):
-    """Measure the learning curve a job file describes (the `measure` step of `track`)."""
+    """Measure the learning curve a job file describes (the `measure` step of `track`).
+
+    Same meaning of the keys as ``curvefit measure``; when ``out`` is set the run file
+    is written there with its journal beside it, so ``resume = true`` continues an
+    interrupted nightly run.
+    """
+    from curvefit import data as cfdata
     from curvefit import runner
-    from curvefit.data import load_table, prepare
+    from curvefit.journal import journal_path
     from curvefit.models import resolve_model
 
     for key in ("data", "target"):
-        if key not in job:
+        if not job.get(key):
             raise InputError(f"the job file needs {key!r} to measure (or give a RUN file "
                              "instead of --config)")
-    if "model" not in job and "command" not in job:
+    if not job.get("model") and not job.get("command"):
         raise InputError("the job file needs 'model' (e.g. \"sklearn.linear_model:LogisticRegression\")")
     if not isinstance(job["target"], str):
         raise InputError(f"'target' must name the label column, got {job['target']!r}")
-    features = _as_list(job.get("features"), "features")
-    ds = prepare(load_table(job["data"]), job["target"], features)
+    encode = str(job.get("encode", "auto"))
+    if encode not in ("auto", "none"):
+        raise InputError(f"unknown encode {encode!r}; use auto or none")
+    df = cfdata.load_table(job["data"])
+    columns = [str(c) for c in df.columns]
+    special = {}
+    for option in ("groups", "order"):
+        col = job.get(option)
+        if col is None:
+            continue
+        col = str(col)
+        if col == job["target"]:
+            raise InputError(f"the {option!r} column {col!r} is the target; pick another column")
+        if col not in columns:
+            raise InputError(f"{option!r} column {col!r} not in the table; available columns: "
+                             f"{', '.join(columns[:25])}")
+        if df[col].isna().any():
+            raise InputError(f"the {option!r} column {col!r} has missing values; fill them or drop those rows")
+        special[option] = df[col].reset_index(drop=True)
+    ds = cfdata.prepare(df, job["target"], _as_list(job.get("features"), "features"),
+                        drop=tuple(str(job[o]) for o in special))
     X_test = y_test = None
     if job.get("test"):
-        test_ds = prepare(load_table(job["test"]), job["target"], list(ds.feature_names))
-        X_test, y_test = test_ds.X, test_ds.y
+        tdf = cfdata.load_table(job["test"])
+        missing = [c for c in ds.feature_names + [ds.target] if c not in tdf.columns]
+        if missing:
+            raise InputError(f"the test file {job['test']} lacks the columns "
+                             f"{', '.join(missing[:10])}; it needs the same features and target")
+        tds = cfdata.prepare(tdf, ds.target, ds.feature_names, task=ds.task)
+        X_test, y_test = tds.X, tds.y
     spec = resolve_model(job.get("model"), _params(job.get("param")), command=job.get("command"),
                          timeout=job.get("timeout"))
     sizes = job.get("sizes")
-    if isinstance(sizes, str):
-        sizes = parse_list(sizes, int, name="size", integer_range=True)
-    elif isinstance(sizes, list):
-        if not all(isinstance(s, int) and not isinstance(s, bool) for s in sizes):
-            raise InputError(f"'sizes' must be whole numbers, got {sizes!r}")
-    elif sizes is not None:
-        raise InputError(f"'sizes' must be a list like [50, 100] or a string like \"50:500:6\"; got {sizes!r}")
+    if isinstance(sizes, list):
+        sizes = ",".join(str(v) for v in sizes)
+    if sizes is not None:
+        sizes = parse_list(str(sizes), float, name="size", integer_range=True)
+        if any(float(v) != int(v) or v < 1 for v in sizes):
+            raise InputError(f"'sizes' must be whole numbers >= 1, got {job.get('sizes')!r}")
+        sizes = [int(v) for v in sizes]
     test_fraction = job.get("test_fraction", 0.25)
-    if isinstance(test_fraction, bool) or not isinstance(test_fraction, (int, float)):
-        raise InputError(f"'test_fraction' must be a number, got {test_fraction!r}")
+    if isinstance(test_fraction, bool) or not isinstance(test_fraction, (int, float)) \
+            or not 0 < test_fraction < 1:
+        raise InputError(f"'test_fraction' must be a number strictly between 0 and 1, got {test_fraction!r}")
+    out_path = Path(job["out"]) if job.get("out") else None
+    data_meta = ds.describe()
+    data_meta["path"] = str(job["data"])
+    if job.get("test"):
+        data_meta["test_path"] = str(job["test"])
+    meta = {"data": data_meta, "target": ds.target, "features": ds.feature_names}
+    for option in special:
+        meta[f"{option}_column"] = str(job[option])
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         curve = runner.measure(
@@ -151,12 +191,16 @@ def measure_job(job: dict, *, quiet: bool = False):
             test_size=test_fraction, X_test=X_test, y_test=y_test,
             metric=str(job.get("metric", "error")), n_jobs=_int(job, "jobs", 1, 1),
             backend=str(job.get("backend", "local")), scheduler=job.get("scheduler"),
-            random_state=_int(job, "seed", 0), timeout=job.get("timeout"),
-            encode=str(job.get("encode", "auto")), progress=not quiet and sys.stderr.isatty(),
-            meta={"data": ds.describe(), "data_file": job["data"], "job": "track"})
+            random_state=_int(job, "seed", 0),
+            journal=journal_path(out_path) if out_path else None,
+            resume=bool(job.get("resume", False)) and out_path is not None,
+            timeout=job.get("timeout"), encode=encode, groups=special.get("groups"),
+            order=special.get("order"), size_unit=str(job.get("size_unit", "rows")),
+            progress=not quiet and sys.stderr.isatty(), meta=meta)
     _relay(caught, quiet)
-    if job.get("out"):
-        curve.write(job["out"])
+    if out_path is not None:
+        out_path.parent.mkdir(parents=True, exist_ok=True)
+        curve.write(out_path)
     return curve
 
 
@@ -254,6 +298,8 @@ def register(app: typer.Typer) -> None:
         if (run is None) == (config is None):
             raise InputError("give either a RUN file or --config job.toml (not both)")
         job = read_job(config) if config is not None else {}
+        quiet = quiet or bool(job.get("quiet", False))
+        json_out = json_out or bool(job.get("json", False))
         if seed is not None:
             job["seed"] = seed
         if run is not None:
