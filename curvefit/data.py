@@ -70,7 +70,8 @@ def load_table(path: str | os.PathLike) -> pd.DataFrame:
     Parameters
     ----------
     path : str or path-like
-        ``.csv`` (comma separated, header row), ``.tsv``/``.txt``/``.tab`` (separator
+        ``.csv`` (comma separated, header row; a file whose header only splits on
+        ``;``, tab or ``|`` is re-read with that separator), ``.tsv``/``.txt``/``.tab`` (separator
         detected from the file), ``.parquet``/``.pq`` (via pyarrow), or ``.npz`` with
         arrays ``X`` (2-D) and ``y`` (1-D) and optionally ``feature_names``. Text
         formats may be compressed (``.csv.gz``).
@@ -103,6 +104,9 @@ def load_table(path: str | os.PathLike) -> pd.DataFrame:
     try:
         if suffix in _CSV_SUFFIXES:
             df = pd.read_csv(path, low_memory=False)  # one dtype per column, not per chunk
+            if df.shape[1] == 1 and any(sep in str(df.columns[0]) for sep in ";\t|"):
+                # a ".csv" written with semicolons or tabs (common with decimal commas)
+                df = pd.read_csv(path, sep=None, engine="python")
         elif suffix in _SNIFF_SUFFIXES:
             df = pd.read_csv(path, sep=None, engine="python")
         elif suffix in _PARQUET_SUFFIXES:

@@ -6,6 +6,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 from sklearn.datasets import load_breast_cancer, load_diabetes, load_digits, load_iris, load_wine
 
 from curvefit.data import (MAX_INTEGER_CLASSES, Dataset, dataset_from_arrays, infer_task,
@@ -39,6 +41,32 @@ def test_csv_and_parquet_give_same_table_and_fingerprint(tmp_path, wine_mixed):
     assert table_fingerprint(a) == table_fingerprint(b) == table_fingerprint(c) == fp
     # the Dataset carries the same fingerprint whatever the file format
     assert prepare(a, "target").fingerprint == prepare(b, "target").fingerprint == fp
+
+
+def test_semicolon_csv(tmp_path, wine_mixed):
+    wine_mixed.to_csv(tmp_path / "w.csv", sep=";", index=False)
+    assert table_fingerprint(load_table(tmp_path / "w.csv")) == table_fingerprint(wine_mixed)
+
+
+# letters only: pandas reads words such as "nan", "NA" or "true" in a CSV as missing or bool
+_words = st.text(alphabet="bcdkmpqsxz", min_size=1, max_size=6)
+_floats = st.floats(min_value=-1e12, max_value=1e12, allow_nan=False, allow_infinity=False)
+
+
+@settings(max_examples=15, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(rows=st.lists(st.tuples(_floats, st.integers(-10**9, 10**9), _words, st.booleans()),
+                     min_size=1, max_size=30),
+       gaps=st.lists(st.integers(0, 29), max_size=5))
+def test_fingerprint_csv_parquet_property(tmp_path, rows, gaps):
+    df = pd.DataFrame(rows, columns=["f", "i", "s", "b"])
+    for g in gaps:
+        if g < len(df):
+            df.loc[g, "f"] = np.nan
+    df.to_csv(tmp_path / "p.csv", index=False)
+    df.to_parquet(tmp_path / "p.parquet")
+    fp = table_fingerprint(df)
+    assert table_fingerprint(load_table(tmp_path / "p.csv")) == fp
+    assert table_fingerprint(load_table(tmp_path / "p.parquet")) == fp
 
 
 def test_compressed_csv(tmp_path, wine_mixed):
