@@ -441,7 +441,7 @@ def gap_figure(curves: Any, lines: Any = None, *, title: str | None = None) -> F
         x = summ["size"].to_numpy(float)
         xs.extend([x.min(), x.max()])
         sem = np.nan_to_num(summ["gap_sem"].to_numpy(float))
-        ax.errorbar(x, summ["gap_mean"], yerr=sem, fmt=st["marker"], color=st["color"], ms=5.5,
+        ax.errorbar(x, summ["gap_mean"].to_numpy(float), yerr=sem, fmt=st["marker"], color=st["color"], ms=5.5,
                     elinewidth=2.2, capsize=0, zorder=4, label=f"{label}: measured gap")
         these = (lines.get(label) if isinstance(lines, Mapping)
                  else (line_items[i] if line_items and i < len(line_items) else None)) or []
