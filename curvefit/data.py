@@ -216,6 +216,11 @@ def table_fingerprint(df: pd.DataFrame) -> str:
     kind (numeric or not) and its values in row order (whole numbers exact, others to
     12 significant digits, missing as null).
 
+    References
+    ----------
+    .. [1] National Institute of Standards and Technology, "Secure Hash Standard (SHS)",
+       FIPS PUB 180-4, 2015 (SHA-256).
+
     Examples
     --------
     >>> a = pd.DataFrame({"x": [1, 2], "y": ["a", "b"]})

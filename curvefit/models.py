@@ -525,6 +525,11 @@ class CommandModel(BaseEstimator):
     timeout : float, optional
         Seconds allowed per run of the program.
 
+    References
+    ----------
+    .. [1] Y. Shafranovich, "Common Format and MIME Type for Comma-Separated Values (CSV)
+       Files", RFC 4180, IETF, 2005.
+
     Examples
     --------
     >>> import sys, tempfile, pathlib
