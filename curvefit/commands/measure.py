@@ -112,10 +112,9 @@ def _print_summary(curve, path: Path) -> None:
 
 def run_measure(opts: dict) -> int:
     """Do the work of the command from merged options; return the exit code."""
+    # data problems are reported before scikit-learn is even imported (it is slow to load)
     from curvefit import data as cfdata
     from curvefit.journal import journal_path
-    from curvefit.models import resolve_model
-    from curvefit.runner import measure
 
     if not opts["data"]:
         raise InputError("no data file given; usage: curvefit measure DATA --target COL --model SPEC")
@@ -144,6 +143,9 @@ def run_measure(opts: dict) -> int:
                              "values; fill them or drop those rows")
         special[option] = df[col].reset_index(drop=True)
     ds = cfdata.prepare(df, opts["target"], features, drop=tuple(str(opts[o]) for o in special))
+    from curvefit.models import resolve_model
+    from curvefit.runner import measure
+
     spec = resolve_model(opts["model"], _params(opts.get("param_config"), opts["param"]),
                          command=opts["command"], timeout=opts["timeout"])
     X_test = y_test = None
