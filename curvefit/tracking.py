@@ -123,7 +123,8 @@ def _float(v: Any) -> float:
 
 # --------------------------------------------------------------------- figures from a fit
 def headline_figures(fit: Any, *, reference_size: int, target_error: float | None = None,
-                     capacity: Any = None, interval: float = 0.9) -> list[Figure]:
+                     capacity: Any = None, interval: float = 0.9,
+                     curve: Any = None) -> list[Figure]:
     """Headline figures of one run, read from its curve fit.
 
     Parameters
@@ -140,6 +141,12 @@ def headline_figures(fit: Any, *, reference_size: int, target_error: float | Non
         Effective capacity of the run (``vc_dim``, ``low``, ``high``); omitted if None.
     interval : float
         Level of every interval, e.g. 0.9.
+    curve : Curve, optional
+        The measured curve (default: ``fit.curve``). The interval of
+        ``test_error_at_ref`` is widened to at least the measurement noise at the
+        measured size nearest the reference (see `measurement_interval`): a fit that
+        borrows strength across sizes can report an interval narrower than what the
+        repeats at that size support, and the gate would then fire on seed noise.
 
     Returns
     -------
@@ -156,18 +163,30 @@ def headline_figures(fit: Any, *, reference_size: int, target_error: float | Non
     """
     figs: list[Figure] = []
     est = fit.predict(reference_size, interval=interval)
-    figs.append(make_figure("test_error_at_ref", est.estimate, est.low, est.high, interval,
-                            note=f"n={int(reference_size)}"))
+    low, high, note = est.low, est.high, f"n={int(reference_size)}"
+    curve = curve if curve is not None else getattr(fit, "curve", None)
+    if curve is not None and math.isfinite(_float(est.estimate)):
+        low, high, widened = _widen(est.estimate, low, high,
+                                    measurement_interval(curve, reference_size, interval))
+        note += f"; {widened}" if widened else ""
+    figs.append(make_figure("test_error_at_ref", est.estimate, low, high, interval, note=note))
     expo = _call_optional(fit, "exponent", interval)
     if expo is not None and math.isfinite(_float(expo.estimate)):
         figs.append(decay_figure(expo, interval))
     asym = _call_optional(fit, "asymptote", interval)
     if asym is not None and math.isfinite(_float(asym.estimate)):
-        figs.append(make_figure("asymptote", asym.estimate, asym.low, asym.high, interval))
+        lo, hi, note = asym.low, asym.high, ""
+        if curve is not None and len(curve.sizes):
+            # the floor is known no better than the error at the largest measured size
+            m = measurement_interval(curve, float(curve.sizes.max()), interval)
+            lo, hi, note = _widen(asym.estimate, lo, hi, m)
+        figs.append(make_figure("asymptote", asym.estimate, lo, hi, interval, note=note))
     if target_error is not None:
-        figs.append(samples_figure(fit.samples_for(test_error=float(target_error),
-                                                   interval=interval),
-                                   target_error, interval))
+        sample = fit.samples_for(test_error=float(target_error), interval=interval)
+        fig = samples_figure(sample, target_error, interval)
+        if curve is not None and math.isfinite(fig.estimate) and len(curve.sizes):
+            fig = _widen_samples(fig, fit, curve, float(target_error), interval)
+        figs.append(fig)
     if capacity is not None:
         vc = _float(getattr(capacity, "vc_dim", math.nan))
         if math.isfinite(vc):
@@ -175,6 +194,107 @@ def headline_figures(fit: Any, *, reference_size: int, target_error: float | Non
             figs.append(make_figure("effective_capacity", vc, getattr(capacity, "low", math.nan),
                                     getattr(capacity, "high", math.nan), interval, note=note))
     return figs
+
+
+def _widen(est: float, low: float, high: float, m: "_Measured | None") -> tuple[float, float, str]:
+    """Envelope of an interval and ``est`` ± the measurement noise ``m``."""
+    if m is None:
+        return low, high, ""
+    new_low = min(_nan_to(low, math.inf), est - (m.estimate - m.low))
+    new_high = max(_nan_to(high, -math.inf), est + (m.high - m.estimate))
+    widened = new_low < _nan_to(low, math.inf) or new_high > _nan_to(high, -math.inf)
+    return (max(new_low, 0.0) if est >= 0 else new_low, new_high,
+            f"interval widened to the measurement noise at n={int(m.note)}" if widened else "")
+
+
+def _widen_samples(fig: Figure, fit: Any, curve: Any, target: float, interval: float) -> Figure:
+    """Widen ``samples_for_target`` by the error-level noise carried through the curve.
+
+    If the error near the answer is known only to ± the measurement noise there, the
+    fitted curve reaches the target somewhere between where it reaches
+    ``target + down`` and ``target − up``; both are read off the same fit.
+    """
+    m = measurement_interval(curve, min(max(fig.estimate, 1.0), float(curve.sizes.max())), interval)
+    if m is None:
+        return fig
+    down, up = m.estimate - m.low, m.high - m.estimate
+    n_low = fit.samples_for(test_error=target + down, interval=interval).n if down > 0 else fig.estimate
+    n_high = fit.samples_for(test_error=max(target - up, 0.0), interval=interval).n if up > 0 else fig.estimate
+    n_low = _nan_to(n_low, fig.estimate)
+    n_high = math.inf if not math.isfinite(_float(n_high)) else float(n_high)
+    low = min(_nan_to(fig.low, math.inf), n_low)
+    high = max(_nan_to(fig.high, -math.inf), n_high)
+    note = fig.note
+    if low < _nan_to(fig.low, math.inf) or high > _nan_to(fig.high, -math.inf):
+        note += f"; interval widened to the measurement noise at n={int(m.note)}"
+    return Figure(fig.name, fig.estimate, low, high, fig.level, fig.better, note)
+
+
+def _nan_to(v: float, default: float) -> float:
+    v = _float(v)
+    return default if math.isnan(v) else v
+
+
+@dataclass(frozen=True)
+class _Measured:
+    estimate: float
+    low: float
+    high: float
+    note: float  # the measured size used
+
+
+def measurement_interval(curve: Any, size: float, interval: float = 0.9) -> _Measured | None:
+    """How well the mean test error is known at the measured size nearest ``size``.
+
+    Two lower limits on the uncertainty of the mean over the ``R`` repeats there, and
+    the wider of the two is returned: the Student-t interval of the repeats' mean
+    (``t_{R−1} · s / √R``), and, for 0-1 error, the exact Clopper–Pearson interval of
+    the pooled test mistakes ``K`` out of ``N`` test rows. The pooled interval
+    treats the repeats' test sets as independent, so it is a floor, not an estimate
+    of all the noise (training-set variation adds to it).
+
+    Returns None when the curve has no successful cell.
+
+    References
+    ----------
+    .. [1] C. J. Clopper and E. S. Pearson, "The use of confidence or fiducial limits
+       illustrated in the case of the binomial", Biometrika 26(4), 1934.
+    .. [2] "Student" (W. S. Gosset), "The probable error of a mean", Biometrika 6(1), 1908.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> from curvefit.curve import Curve
+    >>> c = Curve.from_table(pd.DataFrame({"size": [100, 100], "test_error": [0.1, 0.1],
+    ...                                    "n_test": [100, 100], "n_test_errors": [10, 10]}))
+    >>> m = measurement_interval(c, 100, 0.95)  # 20 of 200 wrong, exact interval
+    >>> round(m.low, 4), round(m.high, 4)
+    (0.0622, 0.1502)
+    """
+    import numpy as np
+    from scipy import stats
+
+    ok = curve.ok_points()
+    if ok.empty:
+        return None
+    sizes = np.sort(ok["size"].unique()).astype(float)
+    nearest = sizes[int(np.argmin(np.abs(np.log(sizes) - math.log(max(float(size), 1e-12)))))]
+    g = ok[ok["size"] == nearest]
+    r = len(g)
+    mean = float(g["test_error"].mean())
+    lo, hi = mean, mean
+    if r >= 2:
+        sd = float(g["test_error"].std(ddof=1))
+        half = float(stats.t.ppf(0.5 + interval / 2, r - 1)) * sd / math.sqrt(r)
+        lo, hi = mean - half, mean + half
+    if g["n_test_errors"].notna().all() and g["n_test"].notna().all():
+        k, n = int(round(g["n_test_errors"].sum())), int(round(g["n_test"].sum()))
+        if n >= 1 and 0 <= k <= n:
+            ci = stats.binomtest(k, n).proportion_ci(confidence_level=interval, method="exact")
+            p = k / n
+            # centre the exact interval on the repeats' mean (equal to k/n for equal n_test)
+            lo, hi = min(lo, mean - (p - ci.low)), max(hi, mean + (ci.high - p))
+    return _Measured(mean, lo, hi, nearest)
 
 
 def _call_optional(fit: Any, method: str, interval: float):
