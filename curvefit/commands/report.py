@@ -111,6 +111,9 @@ def register(app: typer.Typer) -> None:
             raise InputError(f"--bootstrap must be >= 0, got {bootstrap}")
         if out_path.suffix.lower() not in (".html", ".htm"):
             raise InputError(f"--out must name an .html file, got {out_path}")
+        if not out_path.parent.exists():
+            raise InputError(f"folder {out_path.parent} does not exist; create it or choose "
+                             "another --out")
         curves = [Curve.read(p) for p in runs]
         check_target(target_error, curves)
         probe = load_probe(capacity) if capacity else None
