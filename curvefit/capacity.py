@@ -17,13 +17,12 @@ from __future__ import annotations
 
 import math
 import time
+from statistics import NormalDist
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 import pandas as pd
-from scipy.optimize import brentq, least_squares
-from scipy.stats import norm
 
 from curvefit.errors import InputError
 from curvefit.results import Estimate
@@ -112,6 +111,8 @@ def phi_inverse(value: float) -> float:
         hi *= 4.0
         if hi > 1e15:
             return math.inf
+    from scipy.optimize import brentq
+
     return float(brentq(lambda t: phi(t) - v, 0.5, hi, xtol=1e-12, rtol=1e-12))
 
 
@@ -262,6 +263,8 @@ def fit_vc_curve(n, values, weights=None, *, free_scale: bool = False,
     >>> round(h, 3), s
     (12.0, 1.0)
     """
+    from scipy.optimize import least_squares
+
     n = np.asarray(n, dtype=float)
     y = np.asarray(values, dtype=float)
     w = np.ones_like(y) if weights is None else np.asarray(weights, dtype=float)
@@ -606,7 +609,7 @@ def probe_capacity(model, X=None, *, n_features: int | None = None, sizes=None,
     if above:
         # Lower bound: the smallest h consistent with a lower confidence bound of ξ at the top n.
         sem_top = float(np.std(top, ddof=1) / math.sqrt(len(top))) if len(top) > 1 else 0.0
-        xi_lcb = float(np.mean(top)) - norm.ppf(interval) * sem_top
+        xi_lcb = float(np.mean(top)) - NormalDist().inv_cdf(interval) * sem_top
         tau_max = phi_inverse(xi_lcb) if xi_lcb > 0 else math.inf
         h_low = n_top / tau_max if math.isfinite(tau_max) else 0.0
         vc, low, high = h_low, h_low, math.inf
@@ -660,6 +663,8 @@ def _regime(b: float) -> str:
 
 def _fit_power(n: np.ndarray, g: np.ndarray, w: np.ndarray) -> tuple[float, float]:
     """Weighted least squares of g ≈ a·n^-b with a > 0, 0 ≤ b ≤ 3."""
+    from scipy.optimize import least_squares
+
     pos = g > 0
     if pos.sum() >= 2:
         # Start from the log-log line through the positive gaps.

@@ -102,8 +102,9 @@ def register(app: typer.Typer) -> None:
         if any(s < 1 or float(s) != int(s) for s in size_list):
             raise InputError("sizes must be whole numbers >= 1 (training rows)")
         spec = resolve_model(model, fixed, timeout=timeout)
-        # Fail on a parameter the model does not take before any work starts.
-        spec.with_params(**{name: varied[name][0]})
+        # Fail on a parameter or value the model does not take before any work starts.
+        for value in varied[name]:
+            spec.with_params(**{name: value})
         df = cfdata.load_table(data)
         feats = [f.strip() for f in features.split(",") if f.strip()] if features else None
         ds = cfdata.prepare(df, target, feats)

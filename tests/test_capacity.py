@@ -1,0 +1,288 @@
+"""Tests of curvefit.capacity and `curvefit capacity` against outside facts.
+
+Outside references used here:
+- Φ check values: Vapnik, Levin & LeCun 1994, "Measuring the VC-dimension of a
+  learning machine", Neural Computation 6(5), values computed independently ([C] in
+  REFERENCES.md).
+- Linear threshold classifiers with a bias in R^d have VC dimension d+1 (Vapnik &
+  Chervonenkis 1971; Cover 1965, IEEE Trans. Electronic Computers EC-14(3)).
+- 1-nearest-neighbour memorises any labelling of distinct points (common practice),
+  so its capacity exceeds any finite probe.
+"""
+
+import json
+import math
+
+import numpy as np
+import pandas as pd
+import pytest
+from sklearn.linear_model import LogisticRegression
+from sklearn.neighbors import KNeighborsClassifier
+from sklearn.svm import LinearSVC
+
+from conftest import run_cli
+from curvefit.capacity import (CapacityEstimate, effective_capacity, fit_vc_curve, phi,
+                               phi_inverse, probe_capacity)
+from curvefit.curve import Curve
+from curvefit.errors import InputError
+
+
+# ---------------------------------------------------------------------------- Φ
+@pytest.mark.parametrize("tau, expected", [(1.0, 0.722), (2.0, 0.493), (10.0, 0.194),
+                                           (30.0, 0.105)])
+def test_phi_check_values(tau, expected):
+    # Check values [C] of REFERENCES.md for Φ of Vapnik, Levin & LeCun 1994.
+    assert phi(tau) == pytest.approx(expected, abs=6e-4)
+
+
+def test_phi_flat_continuous_and_decreasing():
+    # Φ = 1 below τ = 0.5 and k = 0.14928 makes it continuous there (REFERENCES.md [C]).
+    assert phi(np.array([0.01, 0.2, 0.49])).tolist() == [1.0, 1.0, 1.0]
+    assert phi(0.5) == pytest.approx(1.0, abs=1e-4)
+    t = np.geomspace(0.5, 1e4, 400)
+    v = phi(t)
+    assert np.all(np.diff(v) < 0)
+    for x in (0.7, 3.0, 50.0):
+        assert phi_inverse(phi(x)) == pytest.approx(x, rel=1e-9)
+
+
+def test_fit_vc_curve_recovers_h_and_scale():
+    n = np.array([3, 6, 12, 25, 50, 100, 200, 400])
+    h, s = fit_vc_curve(n, phi(n / 17.0))
+    assert h == pytest.approx(17.0, rel=1e-4) and s == 1.0
+    h, s = fit_vc_curve(n, 0.3 * phi(n / 40.0), free_scale=True)
+    assert h == pytest.approx(40.0, rel=1e-4) and s == pytest.approx(0.3, rel=1e-4)
+
+
+# ---------------------------------------------------------------------------- probe
+@pytest.mark.parametrize("d", [5, 10])
+def test_probe_linear_svm_lands_near_d_plus_1(d):
+    # VC dimension of linear threshold classifiers with a bias in R^d is d+1
+    # (Vapnik & Chervonenkis 1971; Cover 1965). Weak regularisation: C = 100.
+    # Over 8 seeds the estimate spread is about ±10% (notes/capacity.md); seed 0 is fixed.
+    est = probe_capacity(LinearSVC(C=100.0, max_iter=20000), n_features=d, repeats=8,
+                         bootstrap=150, random_state=0)
+    assert est.method == "probe" and not est.above_range
+    assert abs(est.vc_dim - (d + 1)) <= 0.15 * (d + 1), est.message
+    assert est.low <= d + 1 <= est.high, est.message
+    assert set(["n", "tau", "xi_mean", "xi_sem", "repeats"]) <= set(est.design.columns)
+    assert est.message.startswith("Effective VC dimension ≈")
+
+
+def test_probe_logistic_regression_on_resampled_rows():
+    # Same reference (d+1 = 5 for d = 4); inputs are rows resampled from a Gaussian table.
+    X = np.random.default_rng(5).standard_normal((3000, 4))
+    est = probe_capacity(LogisticRegression(C=1e4, max_iter=5000), X, repeats=6,
+                         bootstrap=100, random_state=1)
+    assert abs(est.vc_dim - 5) <= 0.15 * 5, est.message
+    assert est.low <= 5 <= est.high, est.message
+
+
+def test_probe_one_nearest_neighbour_is_above_range():
+    # 1-NN memorises every labelling of distinct points: ξ stays 1 (common practice).
+    est = probe_capacity(KNeighborsClassifier(n_neighbors=1), n_features=3, repeats=3,
+                         max_n=120, bootstrap=20)
+    assert est.above_range
+    assert est.vc_dim >= 120 and math.isinf(est.high)
+    assert "h ≥" in est.message and "above the probed range" in est.message
+    assert (est.design["xi_mean"] == 1.0).all()
+
+
+def test_probe_regularisation_lowers_capacity_and_says_so():
+    # Strong regularisation keeps the separator from following random labels.
+    weak = probe_capacity(LinearSVC(C=100.0, max_iter=20000), n_features=8, repeats=4,
+                          bootstrap=20)
+    strong = probe_capacity(LinearSVC(C=1e-3, max_iter=20000), n_features=8, repeats=4,
+                            bootstrap=20)
+    assert strong.vc_dim < 0.8 * weak.vc_dim
+    assert any("regularisation" in n for n in strong.notes)
+
+
+def test_probe_same_numbers_for_any_n_jobs():
+    model = LogisticRegression(C=100.0, max_iter=2000)
+    a = probe_capacity(model, n_features=3, sizes=[2, 4, 8, 16, 32], repeats=3,
+                       bootstrap=30, random_state=11, n_jobs=1)
+    b = probe_capacity(model, n_features=3, sizes=[2, 4, 8, 16, 32], repeats=3,
+                       bootstrap=30, random_state=11, n_jobs=2)
+    assert a.vc_dim == b.vc_dim and (a.low, a.high) == (b.low, b.high)
+    pd.testing.assert_frame_equal(a.design, b.design)
+    assert not hasattr(model, "coef_")  # the user's estimator was never fitted
+
+
+class _Flaky:
+    """Fails on half-sizes above 10; a stand-in for a user model that breaks."""
+
+    def fit(self, X, y):
+        if len(X) > 20:
+            raise RuntimeError("out of memory (pretend)")
+        self._inner = LinearSVC(C=100.0, max_iter=20000).fit(X, y)
+        return self
+
+    def predict(self, X):
+        return self._inner.predict(X)
+
+
+def test_probe_failing_cells_are_recorded_not_fatal():
+    est = probe_capacity(_Flaky, n_features=2, sizes=[2, 4, 8, 16, 32], repeats=3,
+                         bootstrap=10)
+    assert est.extra["failed_cells"] == 6
+    assert est.design["n"].tolist() == [2, 4, 8]
+    assert any("failed" in n for n in est.notes)
+
+
+class _Broken:
+    def fit(self, X, y):
+        raise ValueError("cannot fit anything")
+
+    def predict(self, X):
+        return np.zeros(len(X))
+
+
+def test_probe_all_cells_failing_is_an_input_error():
+    with pytest.raises(InputError, match="failed on every probe cell"):
+        probe_capacity(_Broken, n_features=2, sizes=[2, 4], repeats=2)
+
+
+def test_probe_bad_inputs():
+    with pytest.raises(InputError, match="n_features"):
+        probe_capacity(LinearSVC())
+    with pytest.raises(InputError, match="missing or infinite"):
+        probe_capacity(LinearSVC(), np.array([[1.0, np.nan], [2.0, 3.0]]))
+
+
+def test_capacity_estimate_round_trip_through_json():
+    est = probe_capacity(KNeighborsClassifier(n_neighbors=1), n_features=2, repeats=2,
+                         max_n=40, bootstrap=5)
+    doc = json.loads(json.dumps(est.to_dict(), allow_nan=False))
+    back = CapacityEstimate.from_dict(doc)
+    assert back.above_range and math.isinf(back.high)
+    assert back.vc_dim == est.vc_dim and back.message == est.message
+    pd.testing.assert_frame_equal(back.design, est.design, check_dtype=False)
+
+
+# ---------------------------------------------------------------------------- gap model
+def _gaussian_linear_curve(d, noise, seed, repeats=6):
+    """Train/test 0-1 errors of a weakly regularised logistic regression on Gaussian
+    inputs whose labels are a linear threshold flipped with probability ``noise``."""
+    rng = np.random.default_rng(seed)
+    w = rng.standard_normal(d)
+    sizes = np.unique(np.geomspace(max(3, d // 2), 40 * (d + 1), 9).astype(int))
+    rows = []
+    for n in sizes:
+        for r in range(repeats):
+            X = rng.standard_normal((n + 600, d))
+            y = (X @ w > 0).astype(int)
+            y = np.where(rng.random(len(y)) < noise, 1 - y, y)
+            if len(np.unique(y[:n])) < 2:
+                y[0] = 1 - y[0]
+            m = LogisticRegression(C=1e3, max_iter=1000).fit(X[:n], y[:n])
+            rows.append({"size": int(n), "repeat": r,
+                         "train_error": float(np.mean(m.predict(X[:n]) != y[:n])),
+                         "test_error": float(np.mean(m.predict(X[n:]) != y[n:]))})
+    return Curve.from_table(pd.DataFrame(rows))
+
+
+def test_gap_model_linear_within_factor_two_of_d_plus_1():
+    # Reference: VC dimension d+1 of linear threshold classifiers (Vapnik & Chervonenkis
+    # 1971; Cover 1965). The gap-based h is for this distribution, so the check is loose:
+    # within a factor of 2 everywhere, the interval covering d+1 in most cases.
+    results = []
+    for d in (3, 5, 8):
+        for noise in (0.1, 0.2):
+            est = effective_capacity(_gaussian_linear_curve(d, noise, seed=10 * d + int(100 * noise)),
+                                     bootstrap=100)
+            assert est.method == "gap" and est.scale > 0 and est.exponent is not None
+            results.append((d, noise, est.vc_dim / (d + 1), est.low <= d + 1 <= est.high))
+    ratios = [r[2] for r in results]
+    assert all(0.5 <= r <= 2.0 for r in ratios), results
+    assert sum(r[3] for r in results) >= 4, results
+
+
+def test_gap_model_recovers_planted_shape_and_power_exponent():
+    rng = np.random.default_rng(3)
+    rows = [{"size": n, "repeat": r, "train_error": 0.05,
+             "test_error": 0.05 + 0.4 * phi(n / 25.0) + rng.normal(0, 0.004)}
+            for n in [5, 10, 20, 40, 80, 160, 320, 640] for r in range(4)]
+    est = effective_capacity(Curve.from_table(pd.DataFrame(rows)), bootstrap=60)
+    assert est.vc_dim == pytest.approx(25.0, rel=0.1)
+    assert est.low <= 25.0 <= est.high
+    # A pure power law a·n^-0.5 gives b near 1/2 and the agnostic regime.
+    rows = [{"size": n, "repeat": r, "train_error": 0.1,
+             "test_error": 0.1 + 2.0 * n ** -0.5 + rng.normal(0, 0.002)}
+            for n in [20, 40, 80, 160, 320, 640, 1280] for r in range(4)]
+    est = effective_capacity(Curve.from_table(pd.DataFrame(rows)), bootstrap=60)
+    assert est.exponent.estimate == pytest.approx(0.5, abs=0.05)
+    assert est.regime.startswith("noisy/agnostic")
+
+
+def test_gap_model_needs_train_error():
+    c = Curve.from_table(pd.DataFrame({"size": [10, 20, 40], "test_error": [0.3, 0.2, 0.1]}))
+    with pytest.raises(InputError, match="train_error"):
+        effective_capacity(c)
+
+
+# ---------------------------------------------------------------------------- CLI
+def _one_line_error(proc):
+    assert proc.returncode == 2, (proc.returncode, proc.stderr)
+    lines = [ln for ln in proc.stderr.splitlines() if ln.strip()]
+    assert len(lines) == 1, proc.stderr
+    assert "Traceback" not in proc.stderr
+    return lines[0]
+
+
+def test_cli_gap_model_text_and_json(tmp_path):
+    curve = _gaussian_linear_curve(4, 0.1, seed=2, repeats=4)
+    run = curve.write(tmp_path / "run.json")
+    p = run_cli("capacity", run, "--bootstrap", "40")
+    assert p.returncode == 0, p.stderr
+    first = p.stdout.splitlines()[0]
+    assert first.startswith("Effective capacity on this data ≈") and "90% interval" in first
+    assert "size" in p.stdout and "gap" in p.stdout
+    p = run_cli("capacity", run, "--bootstrap", "40", "--json")
+    assert p.returncode == 0, p.stderr
+    doc = json.loads(p.stdout)
+    assert doc["method"] == "gap" and doc["exponent"]["estimate"] > 0
+    assert CapacityEstimate.from_dict(doc).vc_dim == pytest.approx(doc["vc_dim"])
+
+
+def test_cli_probe_on_normal_inputs_and_on_data(tmp_path):
+    p = run_cli("capacity", "--probe", "--n-features", "3", "--model", "sklearn.svm:LinearSVC",
+                "--param", "C=100", "--param", "max_iter=20000", "--repeats", "4",
+                "--bootstrap", "40", "--json")
+    assert p.returncode == 0, p.stderr
+    doc = json.loads(p.stdout)
+    assert doc["method"] == "probe" and 2.5 < doc["vc_dim"] < 6
+    table = pd.DataFrame(np.random.default_rng(0).standard_normal((400, 2)), columns=["a", "b"])
+    table["label"] = (table["a"] > 0).astype(int)
+    table.to_csv(tmp_path / "t.csv", index=False)
+    p = run_cli("capacity", "--probe", tmp_path / "t.csv", "--target", "label", "--model",
+                "sklearn.neighbors:KNeighborsClassifier", "--param", "n_neighbors=1",
+                "--max-n", "60", "--repeats", "2", "--quiet")
+    assert p.returncode == 0, p.stderr
+    assert p.stdout.startswith("Capacity above the probed range: h ≥")
+    assert "repeats" in p.stdout.splitlines()[2]
+
+
+@pytest.mark.parametrize("args, needle", [
+    (["capacity"], "no run file"),
+    (["capacity", "nowhere.json"], "not found"),
+    (["capacity", "--probe", "--n-features", "3"], "--model"),
+    (["capacity", "--probe", "--model", "sklearn.svm:LinearSVC"], "--n-features"),
+    (["capacity", "x.json", "--model", "sklearn.svm:LinearSVC"], "--probe"),
+    (["capacity", "--probe", "--n-features", "3", "--model", "nosuchpkg.mod:Thing"], "nosuchpkg"),
+    (["capacity", "--probe", "--n-features", "2", "--model", "sklearn.svm:LinearSVC",
+      "--level", "1.5"], "--level"),
+])
+def test_cli_bad_input_is_one_line_exit_2(args, needle):
+    line = _one_line_error(run_cli(*args))
+    assert needle in line
+
+
+def test_cli_bad_files_exit_2(tmp_path):
+    no_train = tmp_path / "curve.csv"
+    pd.DataFrame({"size": [10, 20, 40], "test_error": [0.3, 0.2, 0.1]}).to_csv(no_train, index=False)
+    assert "train_error" in _one_line_error(run_cli("capacity", no_train))
+    text = tmp_path / "text.csv"
+    pd.DataFrame({"a": [1.0, 2.0, 3.0], "colour": ["r", "g", "b"]}).to_csv(text, index=False)
+    line = _one_line_error(run_cli("capacity", "--probe", text, "--model", "sklearn.svm:LinearSVC"))
+    assert "colour" in line
