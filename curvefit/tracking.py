@@ -172,7 +172,7 @@ def headline_figures(fit: Any, *, reference_size: int, target_error: float | Non
     figs.append(make_figure("test_error_at_ref", est.estimate, low, high, interval, note=note))
     expo = _call_optional(fit, "exponent", interval)
     if expo is not None and math.isfinite(_float(expo.estimate)):
-        figs.append(decay_figure(expo, interval))
+        figs.append(decay_figure(expo, interval, family=getattr(fit, "best", None)))
     asym = _call_optional(fit, "asymptote", interval)
     if asym is not None and math.isfinite(_float(asym.estimate)):
         lo, hi, note = asym.low, asym.high, ""
@@ -304,19 +304,31 @@ def _call_optional(fit: Any, method: str, interval: float):
     return fn(interval=interval)
 
 
-def decay_figure(exponent: Estimate, interval: float = 0.9) -> Figure:
+def decay_figure(exponent: Estimate, interval: float = 0.9, family: str | None = None) -> Figure:
     """``decay_exponent`` from `CurveFit.exponent`.
 
     `CurveFit.exponent` already reports the decay rate ``b`` of ``a·n^(−b)`` (``b > 0``
     for a falling curve), which is ``−β`` in Hestness et al.'s ``α·n^β``; it is kept
     as is, so a rising curve shows up as a negative (and therefore worse) value.
+    The chosen family is kept in the note (``family pow3``): exponents of different
+    families are different parameters, and are not gated against each other.
 
     Examples
     --------
     >>> decay_figure(Estimate(0.3, 0.2, 0.4)).better
     'higher'
     """
-    return make_figure("decay_exponent", exponent.estimate, exponent.low, exponent.high, interval)
+    note = f"family {family}" if family else ""
+    return make_figure("decay_exponent", exponent.estimate, exponent.low, exponent.high,
+                       interval, note=note)
+
+
+def _family(fig: Figure) -> str | None:
+    for part in fig.note.split(";"):
+        part = part.strip()
+        if part.startswith("family "):
+            return part[len("family "):]
+    return None
 
 
 def samples_figure(sample_estimate: Any, target_error: float, interval: float = 0.9) -> Figure:
@@ -422,7 +434,8 @@ class FigureChange:
 
     ``worse_by`` is positive when the current run is worse (in the figure's direction);
     ``status`` is ``"regressed"``, ``"improved"``, ``"same"`` (within tolerance or
-    overlapping intervals), ``"info"`` (no direction) or ``"missing"`` (absent on one side).
+    overlapping intervals), ``"info"`` (no direction, or exponents of two different
+    fitted families) or ``"missing"`` (absent on one side).
     """
 
     name: str
@@ -462,6 +475,9 @@ def compare_figure(current: Figure | None, baseline: Figure | None,
     if current is None or baseline is None or _nan(current.estimate) or _nan(baseline.estimate):
         return FigureChange(name, current, baseline, better, math.nan, tolerance, True, "missing")
     overlap = current.interval.overlaps(baseline.interval)
+    if name == "decay_exponent" and _family(current) != _family(baseline):
+        # another family was chosen: its exponent is another parameter, so report only
+        better = None
     if better is None:
         diff = current.estimate - baseline.estimate
         return FigureChange(name, current, baseline, None, diff, tolerance, overlap, "info")
@@ -588,7 +604,14 @@ def _figure_table(rows: Iterable[tuple[str, Figure | None, Figure | None, Figure
     for name, cur, base, change in rows:
         label = FIGURES.get(name, (None, name))[1]
         note = (cur or base).note if (cur or base) else ""
-        label = f"{label} ({note})" if note and name in ("test_error_at_ref", "samples_for_target") else label
+        if name == "decay_exponent" and change and change.current and change.baseline \
+                and _family(change.current) != _family(change.baseline):
+            note = f"{_family(change.baseline)} → {_family(change.current)}"
+        elif name == "decay_exponent":
+            note = _family(cur or base) or ""
+        else:
+            note = note.split(";")[0] if name in ("test_error_at_ref", "samples_for_target") else ""
+        label = f"{label} ({note})" if note else label
         if with_base:
             lines.append(f"| {label} | {format_figure(base)} | {format_figure(cur)} | "
                          f"{_fmt(change.worse_by) if change else ''} | "

@@ -381,3 +381,57 @@ def test_two_processes_record_concurrently(tmp_path):
     with Store(path) as s:
         assert sorted(s.series_names()) == ["alpha", "beta", "shared"]
         assert len(s.runs("shared")) == 2 * math.ceil(n / 2)
+
+
+# ----------------------------------------------------------------------------- noise floor
+def test_measurement_interval_matches_scipy_exact_and_t():
+    from scipy import stats
+
+    rows = [{"size": 200, "repeat": r, "test_error": e, "n_test": 50, "n_test_errors": e * 50}
+            for r, e in enumerate([0.04, 0.06, 0.02])]
+    c = Curve.from_table(pd.DataFrame(rows))
+    m = tracking.measurement_interval(c, 180, 0.9)  # nearest measured size is 200
+    assert m.note == 200 and m.estimate == pytest.approx(0.04)
+    # reference: scipy's exact (Clopper-Pearson 1934) interval of 6 errors in 150 rows
+    ci = stats.binomtest(6, 150).proportion_ci(confidence_level=0.9, method="exact")
+    # reference: Student t interval of the three repeats' mean
+    half_t = stats.t.ppf(0.95, 2) * np.std([0.04, 0.06, 0.02], ddof=1) / math.sqrt(3)
+    assert m.low == pytest.approx(min(ci.low, 0.04 - half_t))
+    assert m.high == pytest.approx(max(ci.high, 0.04 + half_t))
+
+
+def test_headline_interval_widened_to_measurement_noise():
+    from curvefit.results import Estimate
+
+    rows = [{"size": s, "repeat": r, "test_error": e, "n_test": 100, "n_test_errors": e * 100}
+            for s, es in [(100, (0.10, 0.14)), (400, (0.05, 0.07))] for r, e in enumerate(es)]
+    c = Curve.from_table(pd.DataFrame(rows))
+
+    class TightFit:  # a fit whose own intervals are far too narrow
+        curve = c
+
+        def predict(self, n, interval=0.9):
+            return Estimate(0.06, 0.0599, 0.0601, interval)
+
+        def exponent(self, interval=0.9):
+            return None
+
+        def asymptote(self, interval=0.9):
+            return Estimate(0.03, 0.0299, 0.0301, interval)
+
+    figs = {f.name: f for f in tracking.headline_figures(TightFit(), reference_size=400)}
+    m = tracking.measurement_interval(c, 400, 0.9)
+    e = figs["test_error_at_ref"]
+    assert e.low == pytest.approx(max(0.0, 0.06 - (m.estimate - m.low)))  # errors are >= 0
+    assert e.high == pytest.approx(0.06 + (m.high - m.estimate))
+    assert "widened" in e.note
+    assert figs["asymptote"].high > 0.0301 and "decay_exponent" not in figs
+
+
+def test_exponents_of_different_families_are_not_gated():
+    a = tracking.decay_figure(tracking.Estimate(0.5, 0.45, 0.55), family="pow3")
+    b = tracking.decay_figure(tracking.Estimate(0.1, 0.05, 0.15), family="mmf4")
+    c = tracking.decay_figure(tracking.Estimate(0.1, 0.05, 0.15), family="pow3")
+    tol = Tolerance(0.2, relative=True)
+    assert compare_figure(b, a, tol).status == "info"
+    assert compare_figure(c, a, tol).status == "regressed"
