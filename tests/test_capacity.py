@@ -161,7 +161,7 @@ def test_capacity_estimate_round_trip_through_json():
 
 
 # ---------------------------------------------------------------------------- gap model
-def _gaussian_linear_curve(d, noise, seed, repeats=6):
+def _gaussian_linear_curve(d, noise, seed, repeats=5):
     """Train/test 0-1 errors of a weakly regularised logistic regression on Gaussian
     inputs whose labels are a linear threshold flipped with probability ``noise``."""
     rng = np.random.default_rng(seed)
@@ -175,7 +175,7 @@ def _gaussian_linear_curve(d, noise, seed, repeats=6):
             y = np.where(rng.random(len(y)) < noise, 1 - y, y)
             if len(np.unique(y[:n])) < 2:
                 y[0] = 1 - y[0]
-            m = LogisticRegression(C=1e3, max_iter=1000).fit(X[:n], y[:n])
+            m = LogisticRegression(C=1e3, solver="newton-cholesky").fit(X[:n], y[:n])
             rows.append({"size": int(n), "repeat": r,
                          "train_error": float(np.mean(m.predict(X[:n]) != y[:n])),
                          "test_error": float(np.mean(m.predict(X[n:]) != y[n:]))})
@@ -231,7 +231,7 @@ def _one_line_error(proc):
 
 
 def test_cli_gap_model_text_and_json(tmp_path):
-    curve = _gaussian_linear_curve(4, 0.1, seed=2, repeats=4)
+    curve = _gaussian_linear_curve(4, 0.1, seed=2, repeats=3)
     run = curve.write(tmp_path / "run.json")
     p = run_cli("capacity", run, "--bootstrap", "40")
     assert p.returncode == 0, p.stderr
@@ -265,11 +265,9 @@ def test_cli_probe_on_normal_inputs_and_on_data(tmp_path):
 
 @pytest.mark.parametrize("args, needle", [
     (["capacity"], "no run file"),
-    (["capacity", "nowhere.json"], "not found"),
     (["capacity", "--probe", "--n-features", "3"], "--model"),
     (["capacity", "--probe", "--model", "sklearn.svm:LinearSVC"], "--n-features"),
     (["capacity", "x.json", "--model", "sklearn.svm:LinearSVC"], "--probe"),
-    (["capacity", "--probe", "--n-features", "3", "--model", "nosuchpkg.mod:Thing"], "nosuchpkg"),
     (["capacity", "--probe", "--n-features", "2", "--model", "sklearn.svm:LinearSVC",
       "--level", "1.5"], "--level"),
 ])

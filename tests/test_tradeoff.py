@@ -139,7 +139,6 @@ def test_cli_invalid_value_fails_before_work(iris_csv):
 
 @pytest.mark.parametrize("extra, needle", [
     (["--vary", "max_depth"], "--vary"),
-    (["--vary", "depth=1,2"], "depth"),
     (["--vary", "max_depth=1,2", "--target", "nope"], "nope"),
     (["--vary", "max_depth=1,2", "--sizes", "0,10"], "sizes"),
     ([], "--vary"),
