@@ -76,8 +76,10 @@ class DemoResult:
 
 
 def choose_target(fit, largest: float) -> float | None:
-    """A target the model reaches a little beyond the data: the forecast at 3× the
-    largest measured size, rounded up to half a percentage point."""
+    """A target the model reaches a little beyond the data: the forecast at 3× (else 2×,
+    1.5×, 1×) the largest measured size, rounded up to half a percentage point; a target
+    whose interval is closed is preferred over one whose upper end is open."""
+    fallback = None
     for mult in (3.0, 2.0, 1.5, 1.0):
         pred = fit.predict(np.array([largest * mult]), interval=0.9)
         est = float(pred["estimate"].iloc[0]) if hasattr(pred, "iloc") else float(pred.estimate)
@@ -89,8 +91,10 @@ def choose_target(fit, largest: float) -> float | None:
         except InputError:
             continue
         if ans.reachable and math.isfinite(ans.n):
-            return target
-    return None
+            if math.isfinite(ans.high):
+                return target
+            fallback = fallback if fallback is not None else target
+    return fallback
 
 
 def run_demo(out_dir: Path, *, n_jobs: int = 2, random_state: int = 0,
