@@ -667,8 +667,12 @@ def _solve_ls(tgt: _Target, starts, lo, hi, max_nfev=100):
     return best
 
 
-def _fit_family(fam: Family, n, y, w, data: _Data, idx=None, starts_extra=()) -> _FamilyFit:
-    """Fit one family to sizes ``n`` (a subset ``idx`` of the data, or all)."""
+def _fit_family(fam: Family, n, y, w, data: _Data, idx=None, starts_extra=(),
+                warm_only: bool = False) -> _FamilyFit:
+    """Fit one family to sizes ``n`` (a subset ``idx`` of the data, or all).
+
+    ``warm_only`` skips the linearised guesses and starts from ``starts_extra`` alone.
+    """
     sel = slice(None) if idx is None else idx
     if fam.baseline:
         return _FamilyFit(fam, np.array([float(y[-1])]), "converged")
@@ -696,7 +700,7 @@ def _fit_family(fam: Family, n, y, w, data: _Data, idx=None, starts_extra=()) ->
                 starts = fam.guesses(n, z, w)
         except Exception:
             starts = []
-    starts = list(starts) + list(starts_extra)
+    starts = list(starts_extra) if warm_only and len(starts_extra) else list(starts) + list(starts_extra)
     if not starts:
         starts = [np.clip(np.ones(p), lo, hi)]
     res = _solve_ls(tgt, starts, lo, hi)
@@ -955,15 +959,18 @@ def _forecast(ff: _FamilyFit, data: _Data, on: str, origins) -> None:
     intervals beyond the measured sizes.
     """
     errs, rates = [], []
-    for c in origins:
+    warm = [ff.theta]
+    for k, c in enumerate(origins):
         idx = np.arange(c)
         try:
+            # the first origin also tries the linearised guesses; later ones start warm
             sub = _fit_family(ff.family, data.sizes[idx], data.y[idx], data.w[idx], data, idx,
-                              starts_extra=[ff.theta])
+                              starts_extra=warm, warm_only=k > 0)
         except Exception:  # one origin that cannot be fitted leaves the others
             continue
         if sub.theta is None:
             continue
+        warm = [sub.theta, ff.theta]
         fc = _predict(ff.family, sub.theta, data.sizes[c:], on, data.sign)
         e = np.abs(fc - data.y[c:])
         if not np.all(np.isfinite(e)):
