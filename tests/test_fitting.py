@@ -327,3 +327,25 @@ def test_odd_finite_curves_give_a_result(table, on):
         if on == "test":
             s = fit.samples_for(test_error=float(np.nanmin(table["test_error"])) * 0.9)
             assert isinstance(s, SampleEstimate) and s.message
+
+
+# ------------------------------------------------------------------ measured extrapolation
+def test_extrapolation_from_a_quarter_of_the_pool():
+    # measured check on scikit-learn's bundled digits and breast cancer data (naive Bayes,
+    # k-NN, decision tree): fit the sizes <= 25% of the pool, predict the measured error at
+    # the full pool. Seen when written: 2 of 3 intervals cover; chosen MAE 0.038 vs last1 0.042.
+    covered, err_fit, err_last = [], [], []
+    for key in ["digits_nb", "digits_knn", "bc_tree"]:
+        c = measured_curve(key).curve
+        ok = c.ok_points()
+        pool = ok["size"].max()
+        measured = ok.loc[ok["size"] == pool, "test_error"].mean()
+        sub = Curve(c.points[c.points["size"] <= 0.25 * pool])
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", FitWarning)
+            e = fit_curve(sub, bootstrap=100, random_state=0).predict(pool)
+        covered.append(e.low <= measured <= e.high)
+        err_fit.append(abs(e.estimate - measured))
+        err_last.append(abs(sub.ok_points().groupby("size")["test_error"].mean().iloc[-1] - measured))
+    assert sum(covered) >= 2, covered
+    assert np.mean(err_fit) < np.mean(err_last), (err_fit, err_last)
