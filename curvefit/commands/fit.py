@@ -62,8 +62,8 @@ def print_fit(fit, level: float) -> None:
     held = fit.to_dict(level)["settings"]["holdout"]
     out.print(f"{quantity} of {len(sizes)} sizes, {sizes.min():,.0f}–{sizes.max():,.0f} "
               "labelled samples", markup=False)
-    out.print(f"ranking (forecast error on the {held} largest size{'s' if held != 1 else ''} "
-              "held out; AICc breaks near-ties):", markup=False)
+    out.print(f"ranking (rolling forecast error over the {held} largest size{'s' if held != 1 else ''}; "
+              "near-ties go to pow3/pow2, then to the lower AICc):", markup=False)
     rows = []
     for r in fit.table.itertuples():
         rows.append(["*" + r.family if r.chosen else " " + r.family, str(r.n_params),
@@ -76,7 +76,10 @@ def print_fit(fit, level: float) -> None:
     prow = [[p.param, number(p.estimate), number(p.low), number(p.high)] for p in params.itertuples()]
     print_table(["parameter", "estimate", f"{level:.0%} low", f"{level:.0%} high"], prow)
     asym, expo = fit.asymptote(level), fit.exponent(level)
-    if asym is not None:
+    if asym is not None and asym.low == asym.high == asym.estimate:
+        out.print(f"levels off at: {format_error(asym.estimate, metric)} (fixed by the family)",
+                  markup=False)
+    elif asym is not None:
         out.print(f"levels off at: {format_error(asym.estimate, metric)} ({level:.0%} interval "
                   f"{format_error(asym.low, metric)}–{format_error(asym.high, metric)})", markup=False)
     if expo is not None:
