@@ -143,7 +143,8 @@ def register(app: typer.Typer) -> None:
                     vc = None
                 doc["vc"] = vc
         caught = list(dict.fromkeys(str(w.message) for w in rec if issubclass(w.category, FitWarning)))
-        notes = list(dict.fromkeys(list(fit.warnings) + list(answer.warnings) + caught))
+        used = fit if error is not None else fit._companion("gap")
+        notes = list(dict.fromkeys(list(used.warnings) + list(answer.warnings) + caught))
         doc["warnings"] = notes
 
         if json_out:
@@ -151,11 +152,12 @@ def register(app: typer.Typer) -> None:
             return
         out.print(answer.message, markup=False)
         asym = answer.asymptote
-        used = fit if error is not None else fit._companion("gap")
         detail = f"Fitted family: {used.best} ({used.formula})"
         if used.runner_up:
             detail += f", runner-up {used.runner_up}"
-        if asym is not None and math.isfinite(asym.estimate):
+        if asym is not None and asym.low == asym.high == asym.estimate:
+            detail += f"; it tends to {format_error(asym.estimate, metric)} (fixed by the family)"
+        elif asym is not None and math.isfinite(asym.estimate):
             detail += (f"; it levels off at {format_error(asym.estimate, metric)} ({level:.0%} interval "
                        f"{format_error(asym.low, metric)}–{format_error(asym.high, metric)})")
         out.print(detail + ".", markup=False)
