@@ -222,6 +222,13 @@ def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: 
     sizes = [int(s) for s in sizes]
     base = as_model_spec(model)
     say = progress or (lambda _m: None)
+    probe_X = None
+    if probe:
+        from curvefit.capacity import _probe_pool
+
+        # Check the probe's inputs before any measuring, so a bad table fails at once.
+        probe_X = X.to_numpy(dtype=float) if hasattr(X, "columns") and _all_numeric(X) else X
+        _probe_pool(probe_X, None)
     rows, capacities, failed_total = [], {}, 0
     for value, label in zip(values, labels):
         spec = base.with_params(**{param: value})
@@ -246,8 +253,7 @@ def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: 
         if probe:
             from curvefit.capacity import probe_capacity
 
-            feats = X.to_numpy(dtype=float) if hasattr(X, "to_numpy") and _all_numeric(X) else X
-            est = probe_capacity(spec, feats, repeats=probe_repeats, n_jobs=n_jobs,
+            est = probe_capacity(spec, probe_X, repeats=probe_repeats, n_jobs=n_jobs,
                                  backend=backend, scheduler=scheduler, random_state=random_state,
                                  max_n=probe_max_n, bootstrap=100)
             capacities[label] = est.to_dict()
