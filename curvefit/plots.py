@@ -348,9 +348,10 @@ def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float 
     if target_error is not None:
         ax.axhline(target_error, color=TARGET_COLOUR, linewidth=1.0, linestyle=(0, (4, 2, 1, 2)),
                    zorder=2)
-        ax.annotate(f"target {target_error:.3g}", (1.0, target_error), xycoords=("axes fraction", "data"),
-                    xytext=(-3, -11), textcoords="offset points", ha="right", fontsize=8.5,
-                    color=TARGET_COLOUR)
+        # at the left end, below the line: the curves sit above the target there
+        ax.annotate(f"target {target_error:.3g}", (0.0, target_error),
+                    xycoords=("axes fraction", "data"), xytext=(4, -11),
+                    textcoords="offset points", ha="left", fontsize=8.5, color=TARGET_COLOUR)
     if not any_data:
         ax.text(0.5, 0.5, "no successful cells to draw", transform=ax.transAxes,
                 ha="center", va="center", color=NEUTRAL)

@@ -281,8 +281,11 @@ def answer_sentence(res: ModelResult, target_error: float, interval: float = INT
                 f"<strong>{esc(fmt_count(n))} labelled samples</strong>{span}.{extra}")
     msg = _get(ans, "message") or ""
     if msg:
+        text = esc(msg)
+        if "not reachable" in text:  # the fit's own sentence says it; just emphasise it
+            return text.replace("not reachable", "<strong>not reachable</strong>", 1)
         return (f"<strong>{esc(target)}</strong> {esc(what)} is <strong>not reachable</strong> "
-                f"by adding labels alone. {esc(msg)}")
+                f"by adding labels alone. {text}")
     asym = _get(ans, "asymptote")
     a = _get(asym, "estimate", asym)
     floor = (f" The fitted curve levels off at about {esc(fmt_error(a, metric))}."
@@ -524,7 +527,7 @@ def _gap_lines(res: ModelResult) -> list:
     h = extra.get("h_fit", _get(c, "vc_dim"))
     s = _get(c, "scale")
     if _finite(h) and _finite(s) and float(h) > 0:
-        lines.append((f"VC-shaped fit s·Φ(n/h), h = {float(h):.3g}", grid,
+        lines.append((f"VC-shaped fit s·Φ(n/h), h = {fmt_capacity(h)}", grid,
                       float(s) * np.asarray(phi(grid / float(h)), float)))
     a, b = extra.get("power_scale"), _get(_get(c, "exponent"), "estimate")
     if _finite(a) and _finite(b):
