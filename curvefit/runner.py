@@ -64,6 +64,34 @@ class _Data:
     X_test: Any
     y_test: np.ndarray
     encode: str
+    # unfitted encoding steps decided once in the parent: () when nothing is needed,
+    # None when each cell must ask `with_encoding` itself
+    encoder_steps: tuple | None = None
+
+
+def _encoded(est, data: _Data):
+    """The cell's fresh estimator wrapped in the run's encoding steps (fresh copies)."""
+    if data.encoder_steps is None:
+        from curvefit.models import with_encoding
+
+        return with_encoding(est, data.X, data.encode)[0]
+    if not data.encoder_steps:
+        return est
+    from sklearn.base import clone
+    from sklearn.pipeline import Pipeline
+
+    steps = [(name, clone(step)) for name, step in data.encoder_steps[:-1]]
+    return Pipeline(steps + [(data.encoder_steps[-1][0], est)])
+
+
+def _encoder_steps(wrapped, probe) -> tuple | None:
+    """What `with_encoding` did to the probe, as steps a cell can copy (None: unknown)."""
+    if wrapped is probe:
+        return ()
+    steps = getattr(wrapped, "steps", None)
+    if isinstance(steps, list) and steps and steps[-1][1] is probe:
+        return tuple((name, step) for name, step in steps[:-1]) + ((steps[-1][0], None),)
+    return None
 
 
 def _take(X, idx):
@@ -130,8 +158,6 @@ class _Alarm:
 
 def _run_cell(data: _Data, spec, metric: Metric, cell: dict) -> dict:
     """Fit and score one (size, repeat) cell; never raises for a failing model."""
-    from curvefit.models import with_encoding
-
     train_idx, test_idx = cell.pop("train_idx"), cell.pop("test_idx")
     timeout = cell.pop("timeout")
     result = dict(cell, train_error=math.nan, test_error=math.nan, n_test=len(test_idx),
@@ -145,7 +171,7 @@ def _run_cell(data: _Data, spec, metric: Metric, cell: dict) -> dict:
             warnings.simplefilter("ignore")
             est = spec.make()
             _seed_model(est, cell["model_seed"])
-            est, _ = with_encoding(est, data.X, data.encode)
+            est = _encoded(est, data)
             with _Alarm(timeout):
                 est.fit(X_tr, y_tr)
                 p_train, p_test = _predict_both(est, X_tr, X_te)
@@ -170,16 +196,44 @@ def _run_cell(data: _Data, spec, metric: Metric, cell: dict) -> dict:
     return result
 
 
+def _run_cells(data: _Data, spec, metric: Metric, cells: list[dict]) -> list[dict]:
+    """Several small cells in one task (one dispatch, one copy of the data)."""
+    return [_run_cell(data, spec, metric, dict(c)) for c in cells]
+
+
+def _bundles(cells: list[dict], one_each: bool) -> list[list[dict]]:
+    """Group cells, largest first, so each task trains about as many rows as the largest
+    cell: per-task costs (dispatch, data copy, thread limits) are paid less often,
+    and the small cells still come last to fill the gaps between workers."""
+    if one_each or not cells:
+        return [[c] for c in cells]
+    budget = max(len(c["train_idx"]) for c in cells)
+    out, current, total = [], [], 0
+    for c in cells:
+        if current and total + len(c["train_idx"]) > budget:
+            out.append(current)
+            current, total = [], 0
+        current.append(c)
+        total += len(c["train_idx"])
+    if current:
+        out.append(current)
+    return out
+
+
 # ---------------------------------------------------------------------- helpers
 def _fingerprint(X, y) -> str:
     """SHA-256 of the features and target as given (for arrays from Python)."""
-    from curvefit.data import table_fingerprint
-
-    frame = X.copy() if isinstance(X, pd.DataFrame) else pd.DataFrame(np.asarray(X))
-    frame.columns = [str(c) for c in frame.columns]
-    frame = frame.reset_index(drop=True)
-    frame["__target__"] = np.asarray(y)
-    return table_fingerprint(frame)
+    h = hashlib.sha256(b"curvefit.arrays/1\n")
+    if isinstance(X, pd.DataFrame):
+        h.update(repr([str(c) for c in X.columns]).encode())
+        h.update(pd.util.hash_pandas_object(X, index=False).to_numpy().tobytes())
+    else:
+        arr = np.ascontiguousarray(X)
+        h.update(f"{arr.dtype.str} {arr.shape}".encode())
+        h.update(arr.tobytes() if arr.dtype != object else repr(arr.tolist()).encode())
+    yy = np.asarray(y)
+    h.update(yy.tobytes() if yy.dtype != object else repr(yy.tolist()).encode())
+    return h.hexdigest()
 
 
 def _versions() -> dict:
@@ -457,7 +511,15 @@ def measure(model, X, y, *, sizes: Sequence[int] | None = None, repeats: int = 5
                              "classifier or a numeric target") from None
     the_metric = resolve_metric(metric, task)
     check_response(the_metric, probe)
-    _, encode_description = with_encoding(probe, X, encode)
+    if isinstance(X, np.ndarray) and X.dtype.kind in "biuf" and not np.isnan(X).any():
+        if encode not in ("auto", "none"):
+            raise InputError(f"unknown encode {encode!r}; use auto or none")
+        # plain numbers without gaps: nothing to encode (what with_encoding would say)
+        wrapped, encode_description = probe, "none needed"
+    else:
+        wrapped, encode_description = with_encoding(probe, X, encode)
+    # decided once here: asking per cell costs a scan of the whole table each time
+    encoder_steps = _encoder_steps(wrapped, probe)
 
     # ------------------------------------------------------------ the split
     if splitter is None:
@@ -513,7 +575,8 @@ def measure(model, X, y, *, sizes: Sequence[int] | None = None, repeats: int = 5
     if X_test is not None:
         identity["test_data"] = _fingerprint(X_test, y_test)
 
-    data = _Data(X, y, X if X_test is None else X_test, y if y_test is None else y_test, encode)
+    data = _Data(X, y, X if X_test is None else X_test, y if y_test is None else y_test, encode,
+                 encoder_steps)
     wanted = [(s, r) for r in range(repeats) for s in sizes]
     done: dict[tuple[int, int], dict] = {}
     jr = None
@@ -527,23 +590,27 @@ def measure(model, X, y, *, sizes: Sequence[int] | None = None, repeats: int = 5
     try:
         # largest fits first: the slowest cells do not end up alone at the end
         todo = sorted((k for k in wanted if k not in done), key=lambda k: (-k[0], k[1]))
-        tasks = []
+        cells = []
         for size, r in todo:
             plan = plans[r]
             cell = {"size": size, "repeat": r, "model_seed": _cell_seed(random_state, r, size),
                     # a trainer program is timed out by its own subprocess limit
-                    "timeout": None if spec.kind == "command" else timeout, "train_idx": plan.train_indices(size),
-                    "test_idx": plan.test}
+                    "timeout": None if spec.kind == "command" else timeout,
+                    "train_idx": plan.train_indices(size), "test_idx": plan.test}
             if splitter.kind not in ("random", "given_test"):
                 cell.update(plan.cell_counts(size))
-            tasks.append((_run_cell, (data, spec, the_metric, cell), {}))
+            cells.append(cell)
+        in_process = backend == "local" and n_jobs == 1
+        tasks = [(_run_cells, (data, spec, the_metric, bundle), {})
+                 for bundle in _bundles(cells, one_each=in_process)]
         bar = _Progress(progress, len(wanted), len(done))
         try:
-            for result in run_tasks(tasks, n_jobs=n_jobs, backend=backend, scheduler=scheduler):
-                if jr is not None:
-                    jr.append(result)
-                done[(int(result["size"]), int(result["repeat"]))] = result
-                bar.advance()
+            for results in run_tasks(tasks, n_jobs=n_jobs, backend=backend, scheduler=scheduler):
+                for result in results:
+                    if jr is not None:
+                        jr.append(result)
+                    done[(int(result["size"]), int(result["repeat"]))] = result
+                    bar.advance()
         finally:
             bar.close()
     finally:
