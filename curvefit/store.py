@@ -25,6 +25,7 @@ import math
 import os
 import sqlite3
 import subprocess
+import time
 from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any, Mapping, Sequence
@@ -182,7 +183,7 @@ class Store:
             self._con.execute(f"PRAGMA busy_timeout = {BUSY_TIMEOUT_MS}")
             self._check_identity()
             self._con.execute("PRAGMA foreign_keys = ON")
-            mode = self._con.execute("PRAGMA journal_mode = WAL").fetchone()[0]
+            mode = self._enable_wal()
             if str(mode).lower() != "wal":
                 raise InputError(f"history store {self.path}: cannot switch to WAL mode "
                                  f"(got {mode}); use a local file system")
@@ -214,6 +215,26 @@ class Store:
         if head and head != SQLITE_HEADER:
             raise InputError(f"{p} is not a curvefit history store (not an SQLite file); "
                              "give the right file or a new path")
+
+    def _enable_wal(self) -> str:
+        """Switch to WAL, retrying while another process holds the lock.
+
+        The first switch of a new file needs an exclusive lock and SQLite may report
+        "database is locked" at once instead of waiting for the busy timeout.
+        """
+        deadline = time.monotonic() + BUSY_TIMEOUT_MS / 1000
+        pause = 0.02
+        while True:
+            try:
+                mode = str(self._con.execute("PRAGMA journal_mode = WAL").fetchone()[0])
+            except sqlite3.OperationalError as exc:
+                if "locked" not in str(exc) and "busy" not in str(exc):
+                    raise
+                mode = "locked"
+            if mode.lower() == "wal" or time.monotonic() > deadline:
+                return mode
+            time.sleep(pause)
+            pause = min(pause * 2, 0.5)
 
     def _check_identity(self) -> None:
         con = self._con

@@ -435,3 +435,31 @@ def test_exponents_of_different_families_are_not_gated():
     tol = Tolerance(0.2, relative=True)
     assert compare_figure(b, a, tol).status == "info"
     assert compare_figure(c, a, tol).status == "regressed"
+
+
+def test_exponent_not_gated_with_two_repeats():
+    from curvefit.results import Estimate
+
+    def fit_on(repeats):
+        rows = [{"size": s, "repeat": r, "test_error": 1 / s} for s in (10, 20, 40) for r in range(repeats)]
+
+        class Fit:
+            best, curve = "pow3", Curve.from_table(pd.DataFrame(rows))
+
+            def predict(self, n, interval=0.9):
+                return Estimate(0.1, 0.09, 0.11, interval)
+
+            def exponent(self, interval=0.9):
+                return Estimate(0.5, 0.45, 0.55, interval)
+
+            def asymptote(self, interval=0.9):
+                return None
+        return Fit()
+
+    two = {f.name: f for f in tracking.headline_figures(fit_on(2), reference_size=40)}
+    three = {f.name: f for f in tracking.headline_figures(fit_on(3), reference_size=40)}
+    assert two["decay_exponent"].better is None and "not gated" in two["decay_exponent"].note
+    assert three["decay_exponent"].better == "higher"
+    slow = tracking.decay_figure(tracking.Estimate(0.1, 0.05, 0.15), family="pow3")
+    assert compare_figure(slow, two["decay_exponent"], Tolerance(0.2, True)).status == "info"
+    assert compare_figure(slow, three["decay_exponent"], Tolerance(0.2, True)).status == "regressed"

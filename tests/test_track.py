@@ -30,7 +30,7 @@ def _job(tmp_path, name, *, C=1.0, data="cancer.csv", extra=""):
         model = "model.py:make_model"
         param = {{C = {C}}}
         sizes = [25, 50, 100, 200]
-        repeats = 2
+        repeats = 3
         seed = 3
         store = "history.db"
         series = "cancer"
