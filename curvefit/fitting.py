@@ -110,6 +110,7 @@ class _FamilyFit:
     aicc: float = math.nan
     drift: float = 0.0        # model error per unit of ln n beyond the data, from validation
     eligible: bool = True     # False when the extrapolation is impossible (e.g. below zero)
+    tied: bool = False        # forecasts about as well as the chosen family
 
 
 class _State:
@@ -345,6 +346,15 @@ class CurveFit:
             extra = z * drift * np.maximum(np.log(sizes / self._state.data.n_max), 0.0)
             lo = est - np.sqrt(np.maximum(est - lo, 0.0) ** 2 + extra ** 2)
             hi = est + np.sqrt(np.maximum(hi - est, 0.0) ** 2 + extra ** 2)
+        if ENVELOPE_TIES:
+            # beyond the data the interval also spans the families that forecast as well
+            beyond = sizes > self._state.data.n_max
+            for name, ff in self._state.fits.items():
+                if ff.tied and name != self.best and ff.theta is not None and beyond.any():
+                    f = _predict(ff.family, ff.theta, sizes, self.on, self._state.data.sign)
+                    ok_f = beyond & np.isfinite(f)
+                    lo = np.where(ok_f, np.minimum(lo, f), lo)
+                    hi = np.where(ok_f, np.maximum(hi, f), hi)
         if self.on != "train" and bool(np.nanmin(self._state.data.y) >= 0):
             lo = np.maximum(lo, 0.0)  # an error or a gap measured >= 0 stays >= 0
         return lo, hi
@@ -873,7 +883,8 @@ def fit_curve(curve, *, families="auto", on: str = "test", bootstrap: int = 500,
     for ff in fits.values():
         if not _plausible(ff, data, on):
             ff.eligible = False
-            ff.message = (ff.message + "; " if ff.message else "") + "not chosen: extrapolates below zero"
+            ff.message = ((ff.message + "; " if ff.message else "")
+                          + "not chosen: extrapolates below zero or above the measured range")
     best, order = _choose(fits, data, cut)
     flat = m >= 1 and float(np.ptp(data.y)) <= 1e-12 * max(1.0, float(np.max(np.abs(data.y))))
     if flat and m >= 2:
@@ -985,7 +996,8 @@ def _forecast(ff: _FamilyFit, data: _Data, on: str, origins) -> None:
 
 
 def _plausible(ff: _FamilyFit, data: _Data, on: str) -> bool:
-    """False when the fitted curve goes where the quantity cannot (an error below 0)."""
+    """False when the extrapolated curve goes where the quantity cannot: below 0 for an
+    error measured >= 0, or above the worst measured value for a test error or gap."""
     if ff.theta is None or ff.family.baseline:
         return True
     far = data.n_max * np.array([1.0, 2.0, 10.0, 100.0, 1e4])
@@ -993,7 +1005,11 @@ def _plausible(ff: _FamilyFit, data: _Data, on: str) -> bool:
     if not np.all(np.isfinite(pred)):
         return False
     nonneg = bool(np.nanmin(data.y) >= 0)
-    if nonneg and on != "train" and np.any(pred < -1e-9 * max(1.0, float(np.nanmax(np.abs(data.y))))):
+    scale = max(1.0, float(np.nanmax(np.abs(data.y))))
+    if nonneg and on != "train" and np.any(pred < -1e-9 * scale):
+        return False
+    # a fitted error that climbs past the worst measured value is not a learning curve
+    if on != "train" and np.any(pred[1:] > float(np.nanmax(data.y)) + 1e-9 * scale):
         return False
     return True
 
@@ -1006,6 +1022,8 @@ DEFAULT_PREFERENCE = ("pow3", "pow2", "joint5")
 # Relative margin of forecast error within which families count as tied (tuned on the
 # bundled-dataset extrapolation benchmark, scripts/bench_extrapolation.py).
 NEAR_TIE = 0.5
+# Whether intervals beyond the data also span the near-tied families' predictions.
+ENVELOPE_TIES = True
 
 
 def _preference(name: str) -> int:
@@ -1036,6 +1054,8 @@ def _choose(fits: dict, data: _Data, cut: int):
         tol = max(NEAR_TIE * best_fe, 0.25 * float(np.median(held)) if len(held) else 0.0)
         near = [k for k, v in pool.items() if v.forecast_error <= best_fe + tol]
         near.sort(key=lambda k: (_preference(k), _finite_or_inf(pool[k].aicc), pool[k].forecast_error))
+        for k in near:
+            pool[k].tied = True
         rest = sorted((k for k in pool if k not in near), key=lambda k: pool[k].forecast_error)
         order = near + rest
     else:
