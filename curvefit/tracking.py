@@ -196,6 +196,7 @@ def headline_figures(fit: Any, *, reference_size: int, target_error: float | Non
         fig = samples_figure(sample, target_error, interval)
         if curve is not None and math.isfinite(fig.estimate) and len(curve.sizes):
             fig = _widen_samples(fig, fit, curve, float(target_error), interval)
+            fig = _check_below_range(fig, curve, float(target_error))
         figs.append(fig)
     if capacity is not None:
         vc = _float(getattr(capacity, "vc_dim", math.nan))
@@ -238,6 +239,23 @@ def _widen_samples(fig: Figure, fit: Any, curve: Any, target: float, interval: f
     if low < _nan_to(fig.low, math.inf) or high > _nan_to(fig.high, -math.inf):
         note += f"; interval widened to the measurement noise at n={int(m.note)}"
     return Figure(fig.name, fig.estimate, low, high, fig.level, fig.better, note)
+
+
+def _check_below_range(fig: Figure, curve: Any, target: float) -> Figure:
+    """Do not gate an answer below the smallest measured size that the data contradict.
+
+    When the fit says the target is met below the smallest measured size but the
+    measured mean error there is still above the target, the fitted curve is
+    extrapolating towards tiny samples where it is not supported.
+    """
+    ok = curve.ok_points()
+    smallest = float(curve.sizes.min())
+    first = float(ok[ok["size"] == smallest]["test_error"].mean())
+    if fig.estimate < smallest and first > target:
+        return Figure(fig.name, fig.estimate, fig.low, fig.high, fig.level, None,
+                      f"{fig.note}; not gated: the fit answers below the smallest measured "
+                      f"size ({int(smallest)}) where the measured error {first:.3g} is above the target")
+    return fig
 
 
 def _fewest_repeats(curve: Any) -> int | None:
@@ -630,6 +648,8 @@ def _figure_table(rows: Iterable[tuple[str, Figure | None, Figure | None, Figure
             note = _family(cur or base) or ""
         else:
             note = note.split(";")[0] if name in ("test_error_at_ref", "samples_for_target") else ""
+        if any("not gated" in f.note for f in (cur, base) if f is not None):
+            note = f"{note}; not gated" if note else "not gated"
         label = f"{label} ({note})" if note else label
         if with_base:
             lines.append(f"| {label} | {format_figure(base)} | {format_figure(cur)} | "

@@ -463,3 +463,15 @@ def test_exponent_not_gated_with_two_repeats():
     slow = tracking.decay_figure(tracking.Estimate(0.1, 0.05, 0.15), family="pow3")
     assert compare_figure(slow, two["decay_exponent"], Tolerance(0.2, True)).status == "info"
     assert compare_figure(slow, three["decay_exponent"], Tolerance(0.2, True)).status == "regressed"
+
+
+def test_samples_answer_below_measured_range_is_not_gated():
+    class Answer:
+        n, low, high, reachable, message = 1.0, 1.0, 1.0, True, ""
+
+    rows = [{"size": s, "repeat": 0, "test_error": e} for s, e in [(25, 0.37), (300, 0.19)]]
+    c = Curve.from_table(pd.DataFrame(rows))
+    fig = tracking._check_below_range(tracking.samples_figure(Answer(), 0.05), c, 0.05)
+    assert fig.better is None and "not gated" in fig.note
+    ok = tracking._check_below_range(tracking.samples_figure(Answer(), 0.5), c, 0.5)
+    assert ok.better == "lower"  # the data agree: already below 0.5 at the smallest size
