@@ -595,6 +595,13 @@ def probe_capacity(model, X=None, *, n_features: int | None = None, sizes=None,
 
     top = groups[n_top]
     above = h >= n_top
+    # The bootstrap sees repeat noise only; widen it when Φ misses the means by more.
+    xi_means = np.array([groups[n].mean() for n in ns_sorted])
+    xi_sems = np.array([groups[n].std(ddof=1) / math.sqrt(len(groups[n])) if len(groups[n]) > 1
+                        else math.nan for n in ns_sorted])
+    misfit = lack_of_fit(xi_means, xi_sems, phi(np.array(ns_sorted, float) / h), n_params=1)
+    if not above and math.isfinite(low):
+        low, high = _widen(h, low, high, misfit)
     notes = [_PROBE_NOTE]
     if pool is None:
         notes.append(f"Inputs were standard normal in {d} dimensions.")
@@ -606,6 +613,9 @@ def probe_capacity(model, X=None, *, n_features: int | None = None, sizes=None,
                          "repeat; a repeated row in both halves cannot be memorised.")
     if n_failed:
         notes.append(f"{n_failed} probe cell(s) failed and were left out.")
+    if not above and math.isfinite(misfit) and misfit > 1:
+        notes.append(f"Φ fits the measured ξ less well than repeat noise explains "
+                     f"(χ²/dof = {misfit:.2g}); the interval was widened by √{misfit:.2g}.")
     if above:
         # Lower bound: the smallest h consistent with a lower confidence bound of ξ at the top n.
         sem_top = float(np.std(top, ddof=1) / math.sqrt(len(top))) if len(top) > 1 else 0.0
@@ -633,10 +643,45 @@ def probe_capacity(model, X=None, *, n_features: int | None = None, sizes=None,
     extra = {"n_features": d, "inputs": "normal" if pool is None else "resampled",
              "max_n": max_n, "seed": seed, "bootstrap": int(bootstrap), "cells": int(len(df)),
              "failed_cells": n_failed, "fit_seconds": float(df["seconds"].sum()),
-             "h_fit": float(h)}
+             "h_fit": float(h), "lack_of_fit": misfit}
     return CapacityEstimate(vc_dim=float(vc), low=float(low), high=float(high),
                             level=float(interval), method="probe", above_range=bool(above),
                             design=design, notes=notes, message=message, extra=extra)
+
+
+def lack_of_fit(means, sems, fitted, n_params: int = 1) -> float:
+    """Reduced chi-square χ²/dof of per-point means against a fitted curve.
+
+    Points with a zero or undefined standard error (e.g. ξ = 1 in every repeat) are
+    left out; NaN when fewer than ``n_params + 1`` points remain.
+
+    References
+    ----------
+    .. [1] R. T. Birge, "The calculation of errors by the method of least squares",
+       Physical Review 40, 207–227, 1932 (the ratio used to scale errors when the
+       scatter exceeds the stated uncertainties).
+
+    Examples
+    --------
+    >>> lack_of_fit([1.0, 2.0, 3.0], [0.5, 0.5, 0.5], [1.0, 2.0, 4.0])
+    2.0
+    """
+    m = np.asarray(means, float)
+    e = np.asarray(sems, float)
+    f = np.asarray(fitted, float)
+    keep = np.isfinite(e) & (e > 0) & np.isfinite(m) & np.isfinite(f)
+    dof = int(keep.sum()) - n_params
+    if dof < 1:
+        return math.nan
+    return float(np.sum(((m[keep] - f[keep]) / e[keep]) ** 2) / dof)
+
+
+def _widen(estimate: float, low: float, high: float, ratio: float) -> tuple[float, float]:
+    """Scale the interval's half-widths on the log scale by sqrt(ratio) when ratio > 1."""
+    if not (math.isfinite(ratio) and ratio > 1 and estimate > 0 and low > 0 and high > 0):
+        return low, high
+    f = math.sqrt(ratio)
+    return estimate * (low / estimate) ** f, estimate * (high / estimate) ** f
 
 
 def _fmt(x: float) -> str:
@@ -786,6 +831,14 @@ def effective_capacity(curve, *, bootstrap: int = 500, random_state: int = 0,
         b_low, b_high = (float(v) for v in np.quantile(boot_b, [alpha, 1 - alpha]))
     else:
         low = high = b_low = b_high = math.nan
+    # Widen both intervals when the curves miss the means by more than their noise.
+    floored = np.maximum(sems, sem_floor)
+    misfit_vc = lack_of_fit(means, floored, s * phi(sizes / h), n_params=2)
+    misfit_pow = lack_of_fit(means, floored, a * sizes ** (-b), n_params=2)
+    if math.isfinite(low):
+        low, high = _widen(h, low, high, misfit_vc)
+    if math.isfinite(b_low) and b > 0 and b_low > 0:
+        b_low, b_high = _widen(b, b_low, b_high, misfit_pow)
     exponent = Estimate(b, b_low, b_high, interval)
     regime = _regime(b)
 
@@ -819,7 +872,11 @@ def effective_capacity(curve, *, bootstrap: int = 500, random_state: int = 0,
         "repeats": [int(len(groups[int(n)])) for n in sizes],
         "gap_fit": s * phi(sizes / h), "gap_power": a * sizes ** (-b),
     })
+    if math.isfinite(misfit_vc) and misfit_vc > 1:
+        notes.insert(1, f"s·Φ(n/h) fits the mean gaps less well than repeat noise explains "
+                        f"(χ²/dof = {misfit_vc:.2g}); the interval was widened by √{misfit_vc:.2g}.")
     extra = {"power_scale": a, "h_fit": float(h), "bootstrap": int(len(boot_h)),
+             "lack_of_fit": misfit_vc, "lack_of_fit_power": misfit_pow,
              "seed": int(random_state), "metric": curve.metric}
     return CapacityEstimate(vc_dim=float(vc), low=float(low), high=float(high),
                             level=float(interval), method="gap", above_range=above,
