@@ -628,8 +628,8 @@ def probe_capacity(model, X=None, *, n_features: int | None = None, sizes=None,
                    "probe larger n (max_n) to resolve it.")
     else:
         vc = h
-        message = (f"Effective VC dimension ≈ {_fmt(h)} ({interval:.0%} interval "
-                   f"{_fmt(low)}–{_fmt(high)}), by the max-deviation probe.")
+        message = (f"Effective VC dimension ≈ {_fmt(h)} ({_interval_text(interval, low, high)}), "
+                   "by the max-deviation probe.")
     notes.append(_STAT_NOTE)
 
     rows = []
@@ -682,6 +682,12 @@ def _widen(estimate: float, low: float, high: float, ratio: float) -> tuple[floa
         return low, high
     f = math.sqrt(ratio)
     return estimate * (low / estimate) ** f, estimate * (high / estimate) ** f
+
+
+def _interval_text(level: float, low: float, high: float) -> str:
+    if not (math.isfinite(low) and math.isfinite(high)):
+        return "no interval"
+    return f"{level:.0%} interval {_fmt(low)}–{_fmt(high)}"
 
 
 def _fmt(x: float) -> str:
@@ -826,7 +832,8 @@ def effective_capacity(curve, *, bootstrap: int = 500, random_state: int = 0,
         boot_h.append(hb)
         boot_b.append(bb)
     alpha = (1.0 - interval) / 2.0
-    if len(boot_h) >= 2:
+    single = all(len(v) < 2 for v in groups.values())
+    if len(boot_h) >= 2 and not single:
         low, high = (float(v) for v in np.quantile(boot_h, [alpha, 1 - alpha]))
         b_low, b_high = (float(v) for v in np.quantile(boot_b, [alpha, 1 - alpha]))
     else:
@@ -843,6 +850,9 @@ def effective_capacity(curve, *, bootstrap: int = 500, random_state: int = 0,
     regime = _regime(b)
 
     notes = [_GAP_NOTE]
+    if single:
+        notes.append("Each size has one repeat, so there is no interval; measure with "
+                     "--repeats 3 or more.")
     above = False
     if h > 2.0 * sizes.max():
         # Φ is flat for n < h/2: the whole curve sits in the flat part and h is only bounded below.
@@ -862,8 +872,8 @@ def effective_capacity(curve, *, bootstrap: int = 500, random_state: int = 0,
                    f"(the gap is still flat at n = {int(sizes.max())}).")
     else:
         vc = h
-        message = (f"Effective capacity on this data ≈ {_fmt(h)} VC units ({interval:.0%} "
-                   f"interval {_fmt(low)}–{_fmt(high)}), from the measured gap; gap exponent "
+        message = (f"Effective capacity on this data ≈ {_fmt(h)} VC units "
+                   f"({_interval_text(interval, low, high)}), from the measured gap; gap exponent "
                    f"b ≈ {b:.2f}, {regime.split(' (')[0]}.")
     design = pd.DataFrame({
         "size": sizes.astype(int), "gap_mean": means,

@@ -215,6 +215,15 @@ def test_gap_model_recovers_planted_shape_and_power_exponent():
     assert est.regime.startswith("noisy/agnostic")
 
 
+def test_gap_model_single_repeat_has_no_interval():
+    rows = [{"size": n, "train_error": 0.1, "test_error": 0.1 + 0.3 * phi(n / 20.0)}
+            for n in [5, 10, 20, 40, 80, 160]]
+    est = effective_capacity(Curve.from_table(pd.DataFrame(rows)), bootstrap=20)
+    assert est.vc_dim == pytest.approx(20.0, rel=0.02)
+    assert math.isnan(est.low) and "no interval" in est.message
+    assert any("one repeat" in n for n in est.notes)
+
+
 def test_gap_model_needs_train_error():
     c = Curve.from_table(pd.DataFrame({"size": [10, 20, 40], "test_error": [0.3, 0.2, 0.1]}))
     with pytest.raises(InputError, match="train_error"):
