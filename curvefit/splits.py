@@ -266,15 +266,19 @@ class GivenTestSplit:
 def _group_codes(groups: Sequence, n: int, what: str = "group") -> tuple[np.ndarray, np.ndarray]:
     import pandas as pd
 
-    g = pd.Series(np.asarray(groups, dtype=object) if not isinstance(groups, pd.Series) else groups)
+    g = groups.reset_index(drop=True) if isinstance(groups, pd.Series) else pd.Series(list(groups))
     if len(g) != n:
         raise InputError(f"the {what} column has {len(g)} values for {n} rows")
     if g.isna().any():
         raise InputError(f"the {what} column has {int(g.isna().sum())} missing values; "
                          f"fill them or drop those rows")
-    uniques, codes = np.unique(g.astype(str).to_numpy() if g.dtype == object else g.to_numpy(),
-                               return_inverse=True)
-    return codes.astype(np.int64), uniques
+    values = g.to_numpy()
+    try:
+        # ids sorted as they compare (numbers numerically), as GroupShuffleSplit does
+        uniques, codes = np.unique(values, return_inverse=True)
+    except TypeError:  # mixed types: compare as text
+        uniques, codes = np.unique(g.astype(str).to_numpy(), return_inverse=True)
+    return codes.astype(np.int64).reshape(-1), uniques
 
 
 @dataclass
