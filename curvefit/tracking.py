@@ -569,6 +569,13 @@ class Comparison:
     changes: list[FigureChange] = field(default_factory=list)
     data_change_allowed: bool = False
 
+    def __repr__(self) -> str:
+        base = "no baseline" if self.baseline_id is None else \
+            f"vs run {self.baseline_id} ({self.baseline_rule})"
+        detail = f": {', '.join(self.regressed)}" if self.regressed else ""
+        return (f"Comparison(series={self.series!r}, run {self.run_id} {base}, "
+                f"{self.verdict}{detail})")
+
     @property
     def regressed(self) -> list[str]:
         """Names of the figures that regressed (empty when not comparable)."""
