@@ -543,6 +543,15 @@ def probe_figure(capacity: Any, *, title: str | None = None) -> Figure:
 
 
 # --------------------------------------------------------------------------- trade-off
+def _value_label(v: Any) -> str:
+    """A parameter value as text: missing → "None", whole floats without ".0"."""
+    if v is None or (isinstance(v, float) and math.isnan(v)):
+        return "None"
+    if isinstance(v, (float, np.floating)) and float(v).is_integer():
+        return str(int(v))
+    return str(v)
+
+
 @_styled
 def tradeoff_figure(tradeoff: Any, *, title: str | None = None) -> Figure:
     """Train and test error against a complexity parameter, one line per sample size.
@@ -568,8 +577,9 @@ def tradeoff_figure(tradeoff: Any, *, title: str | None = None) -> Figure:
     numeric = pd.to_numeric(t["value"], errors="coerce")
     categorical = numeric.isna().any()
     if categorical:
-        order = list(dict.fromkeys(t["value"].astype(str)))
-        t["_x"] = t["value"].astype(str).map({v: k for k, v in enumerate(order)})
+        names = t["value"].map(_value_label)
+        order = list(dict.fromkeys(names))
+        t["_x"] = names.map({v: k for k, v in enumerate(order)})
     else:
         t["_x"] = numeric
     positive = (not categorical) and (t["_x"] > 0).all()

@@ -173,7 +173,7 @@ def run_file(tmp_path_factory, curves):
     return d
 
 
-def test_cli_report_two_runs_probe_and_json(run_file):
+def test_cli_report_two_runs_probe_tradeoff_and_json(run_file):
     from curvefit.capacity import CapacityEstimate, phi
 
     n = np.array([5, 10, 20, 40, 80], float)
@@ -181,16 +181,25 @@ def test_cli_report_two_runs_probe_and_json(run_file):
                            above_range=False,
                            design=pd.DataFrame({"n": n, "xi_mean": phi(n / 20), "xi_sem": .01}))
     (run_file / "probe.json").write_text(json.dumps(cap.to_dict()))
+    from curvefit.tradeoff import Tradeoff
+
+    table = pd.DataFrame({"param": "max_depth", "value": [2, None, 2, None],
+                          "size": [100, 100, 300, 300], "train_mean": [.1, 0, .1, .02],
+                          "test_mean": [.12, .15, .1, .11], "test_sem": .01, "n_repeats": 3,
+                          "n_failed": 0, "train_sem": .01})
+    trade = Tradeoff(table=table, param="max_depth", values=[2, None])
+    (run_file / "trade.json").write_text(json.dumps(trade.to_dict()))
     out = run_file / "rep.html"
     r = run_cli("report", run_file / "logistic.json", run_file / "tree.json", "--out", out,
                 "--target-error", "0.03", "--capacity", run_file / "probe.json",
-                "--bootstrap", "10", "--json")
+                "--tradeoff", run_file / "trade.json", "--bootstrap", "10", "--json")
     assert r.returncode == 0, r.stderr
     doc = json.loads(r.stdout)  # stdout holds only the JSON document
     assert doc["report"] == str(out)
     assert [m["label"] for m in doc["models"]] == ["logistic", "tree"]
     files = {Path(p).name for p in doc["figures"]}
-    assert {"learning-curve.png", "learning-curve.svg", "gap.png", "probe.png"} <= files
+    assert {"learning-curve.png", "learning-curve.svg", "gap.png", "probe.png",
+            "tradeoff.png"} <= files
     page = out.read_text(encoding="utf-8")
     assert "3.0%" in page and "max-deviation" in page
 
