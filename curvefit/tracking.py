@@ -26,6 +26,13 @@ do not overlap. Both conditions are needed: the tolerance stops tiny but well-me
 changes from failing a build, and the interval test stops noise from doing so. This is a
 statistical screen, not a guarantee.
 
+Two safeguards keep the interval test honest. The intervals of ``test_error_at_ref``,
+``asymptote`` and ``samples_for_target`` are never narrower than the measurement noise
+at the nearest measured size (`measurement_interval`). And the parameters of the chosen
+family (``decay_exponent``, ``asymptote``) are compared only when both runs chose the
+same family; the exponent is not gated with fewer than 3 repeats per size. A figure
+recorded as not gated (``better`` None) is shown but never fails a build.
+
 This module is pure: it reads result objects and returns new ones; it performs no I/O.
 """
 
@@ -39,6 +46,8 @@ from curvefit.errors import InputError
 from curvefit.results import Estimate
 
 LOWER, HIGHER = "lower", "higher"
+# Figures that are parameters of the chosen family: compared only within one family.
+FAMILY_BOUND = ("decay_exponent", "asymptote")
 # Below this many repeats per size the exponent is reported but never gated.
 MIN_REPEATS_FOR_EXPONENT = 3
 
@@ -190,6 +199,9 @@ def headline_figures(fit: Any, *, reference_size: int, target_error: float | Non
             # the floor is known no better than the error at the largest measured size
             m = measurement_interval(curve, float(curve.sizes.max()), interval)
             lo, hi, note = _widen(asym.estimate, lo, hi, m)
+        family = getattr(fit, "best", None)
+        if family:
+            note = f"family {family}; {note}" if note else f"family {family}"
         figs.append(make_figure("asymptote", asym.estimate, lo, hi, interval, note=note))
     if target_error is not None:
         sample = fit.samples_for(test_error=float(target_error), interval=interval)
@@ -512,8 +524,9 @@ def compare_figure(current: Figure | None, baseline: Figure | None,
     if current is None or baseline is None or _nan(current.estimate) or _nan(baseline.estimate):
         return FigureChange(name, current, baseline, better, math.nan, tolerance, True, "missing")
     overlap = current.interval.overlaps(baseline.interval)
-    if name == "decay_exponent" and _family(current) != _family(baseline):
-        # another family was chosen: its exponent is another parameter, so report only
+    if name in FAMILY_BOUND and _family(current) != _family(baseline):
+        # another family was chosen: its exponent (or its floor, fixed at 0 by some
+        # families) is another parameter, so report only
         better = None
     if better is None:
         diff = current.estimate - baseline.estimate
@@ -648,10 +661,10 @@ def _figure_table(rows: Iterable[tuple[str, Figure | None, Figure | None, Figure
     for name, cur, base, change in rows:
         label = FIGURES.get(name, (None, name))[1]
         note = (cur or base).note if (cur or base) else ""
-        if name == "decay_exponent" and change and change.current and change.baseline \
+        if name in FAMILY_BOUND and change and change.current and change.baseline \
                 and _family(change.current) != _family(change.baseline):
             note = f"{_family(change.baseline)} → {_family(change.current)}"
-        elif name == "decay_exponent":
+        elif name in FAMILY_BOUND:
             note = _family(cur or base) or ""
         else:
             note = note.split(";")[0] if name in ("test_error_at_ref", "samples_for_target") else ""

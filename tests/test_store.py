@@ -435,6 +435,12 @@ def test_exponents_of_different_families_are_not_gated():
     tol = Tolerance(0.2, relative=True)
     assert compare_figure(b, a, tol).status == "info"
     assert compare_figure(c, a, tol).status == "regressed"
+    # pow2 fixes its floor at 0: comparing it with pow3's fitted floor says nothing
+    fixed = make_figure("asymptote", 0.0, 0.0, 0.0, note="family pow2")
+    free = make_figure("asymptote", 0.09, 0.08, 0.10, note="family pow3")
+    assert compare_figure(free, fixed, Tolerance(0.01)).status == "info"
+    free0 = make_figure("asymptote", 0.0, 0.0, 0.01, note="family pow3")
+    assert compare_figure(free, free0, Tolerance(0.01)).status == "regressed"
 
 
 def test_exponent_not_gated_with_two_repeats():
