@@ -356,8 +356,8 @@ def _probe_cell(spec, pool, n_features: int, n: int, seed: tuple, key: tuple) ->
         X = rng.standard_normal((2 * n, n_features))
     else:
         # Without replacement while the pool allows: a row in both halves cannot be memorised.
-        replace = 2 * n > len(pool)
-        X = pool[rng.choice(len(pool), size=2 * n, replace=replace)]
+        # Without replacement: a row in both halves could not be memorised (n ≤ rows/2 is enforced).
+        X = pool[rng.choice(len(pool), size=2 * n, replace=2 * n > len(pool))]
     y = rng.integers(0, 2, size=2 * n)
     target = y.copy()
     target[n:] = 1 - target[n:]
@@ -513,6 +513,10 @@ def probe_capacity(model, X=None, *, n_features: int | None = None, sizes=None,
         raise InputError(f"max_n must be at least 2, got {max_n}")
     repeats, max_n = int(repeats), int(max_n)
     pool, d = _probe_pool(X, n_features)
+    capped_by_rows = False
+    if pool is not None and 2 * max_n > len(pool):
+        # More rows than the data holds would repeat points and cap ξ below 1 for any learner.
+        max_n, capped_by_rows = max(1, len(pool) // 2), True
     spec = _as_spec(model)
     seed = int(random_state) if random_state is not None else 0
     say = progress or (lambda _msg: None)
@@ -536,6 +540,9 @@ def probe_capacity(model, X=None, *, n_features: int | None = None, sizes=None,
         ns = sorted({int(s) for s in sizes})
         if not ns or ns[0] < 1:
             raise InputError("probe sizes must be positive integers (half-sizes n)")
+        if pool is not None and 2 * ns[-1] > len(pool):
+            raise InputError(f"probe size n = {ns[-1]} needs {2 * ns[-1]} distinct rows but the "
+                             f"data has {len(pool)}; use sizes up to {len(pool) // 2}")
         max_n = max(ns)
         df = run({n: repeats for n in ns})
         h = _fit_probe(df, max_n)
@@ -608,9 +615,9 @@ def probe_capacity(model, X=None, *, n_features: int | None = None, sizes=None,
     else:
         notes.append(f"Inputs were rows resampled from the given data ({len(pool)} rows, "
                      f"{d} columns).")
-        if 2 * n_top > len(pool):
-            notes.append("The largest designs drew more rows than the data has, so some rows "
-                         "repeat; a repeated row in both halves cannot be memorised.")
+        if capped_by_rows:
+            notes.append(f"The data has {len(pool)} rows, so the probe stopped at n = {max_n} "
+                         "(2n distinct rows per trial).")
     if n_failed:
         notes.append(f"{n_failed} probe cell(s) failed and were left out.")
     if not above and math.isfinite(misfit) and misfit > 1:
@@ -625,7 +632,8 @@ def probe_capacity(model, X=None, *, n_features: int | None = None, sizes=None,
         vc, low, high = h_low, h_low, math.inf
         message = (f"Capacity above the probed range: h ≥ {_fmt(h_low)} "
                    f"(ξ stayed at {np.mean(top):.2f} up to n = {n_top}); "
-                   "probe larger n (max_n) to resolve it.")
+                   + ("the data has too few rows to resolve it." if capped_by_rows and n_top >= max_n
+                      else "probe larger n (max_n) to resolve it."))
     else:
         vc = h
         message = (f"Effective VC dimension ≈ {_fmt(h)} ({_interval_text(interval, low, high)}), "

@@ -88,6 +88,18 @@ def test_probe_one_nearest_neighbour_is_above_range():
     assert (est.design["xi_mean"] == 1.0).all()
 
 
+def test_probe_on_a_small_table_never_repeats_rows():
+    # 1-NN on 120 distinct rows: n is capped at 60 so every trial has 2n distinct points
+    # and ξ stays 1 (memorisation, common practice); h ≥ 2·60 is all that can be said.
+    X = np.random.default_rng(2).standard_normal((120, 3))
+    est = probe_capacity(KNeighborsClassifier(n_neighbors=1), X, repeats=3, bootstrap=10)
+    assert est.above_range and est.design["n"].max() == 60
+    assert (est.design["xi_mean"] == 1.0).all()
+    assert "too few rows" in est.message and any("120 rows" in n for n in est.notes)
+    with pytest.raises(InputError, match="distinct rows"):
+        probe_capacity(KNeighborsClassifier(n_neighbors=1), X, sizes=[10, 61])
+
+
 def test_probe_regularisation_lowers_capacity_and_says_so():
     # Strong regularisation keeps the separator from following random labels.
     weak = probe_capacity(LinearSVC(C=100.0, max_iter=20000), n_features=8, repeats=4,
