@@ -59,6 +59,19 @@ def test_json_summary_only_on_stdout_and_config_file(iris_csv, tmp_path):
     assert json.loads(out.read_text())["meta"]["seed"] == 5
 
 
+def test_separate_test_file(iris_csv, tmp_path):
+    frame = pd.read_csv(iris_csv)
+    frame.iloc[::3].to_csv(tmp_path / "test.csv", index=False)
+    frame.drop(index=frame.index[::3]).to_csv(tmp_path / "train.csv", index=False)
+    r = run_cli("measure", tmp_path / "train.csv", "--target", "target", "--model", LOGREG,
+                "--param", "max_iter=300", "--test", tmp_path / "test.csv", "--sizes", "30,100",
+                "--repeats", "2", "--out", tmp_path / "run.json", "--json")
+    assert r.returncode == 0, r.stderr
+    doc = json.loads((tmp_path / "run.json").read_text())
+    assert doc["meta"]["split"]["kind"] == "given_test"
+    assert {p["n_test"] for p in doc["points"]} == {50}
+
+
 def test_failed_cells_give_exit_code_3(iris_csv, tmp_path):
     model = tmp_path / "picky.py"
     model.write_text(

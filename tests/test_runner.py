@@ -190,3 +190,15 @@ def test_single_class_and_nan_target():
     y[3] = np.nan
     with pytest.raises(InputError, match="missing"):
         cf.measure(LogisticRegression(), X, y)
+
+
+def test_group_and_order_columns_by_name_are_not_features():
+    X, y = load_iris(return_X_y=True, as_frame=True)
+    X = X.assign(site=np.arange(len(y)) % 12, day=np.arange(len(y)))
+    grouped = cf.measure(LogisticRegression(max_iter=300), X, y, groups="site", sizes=[40], repeats=1)
+    assert grouped.meta["split"]["kind"] == "groups"
+    assert "site" not in grouped.meta["data"]["features"] and "day" in grouped.meta["data"]["features"]
+    ordered = cf.measure(LogisticRegression(max_iter=300), X.drop(columns="site"), y, order="day",
+                         sizes=[40], repeats=2, metric="balanced_error")
+    assert ordered.meta["split"]["kind"] == "order"
+    assert "day" not in ordered.meta["data"]["features"]
