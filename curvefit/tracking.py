@@ -55,7 +55,7 @@ MIN_REPEATS_FOR_EXPONENT = 3
 FIGURES: dict[str, tuple[str | None, str]] = {
     "test_error_at_ref": (LOWER, "test error at reference size"),
     "decay_exponent": (HIGHER, "decay exponent"),
-    "asymptote": (LOWER, "asymptote (error as n grows)"),
+    "asymptote": (LOWER, "asymptote"),
     "samples_for_target": (LOWER, "samples for target error"),
     "effective_capacity": (None, "effective capacity (VC units)"),
 }
