@@ -481,3 +481,16 @@ def test_samples_answer_below_measured_range_is_not_gated():
     assert fig.better is None and "not gated" in fig.note
     ok = tracking._check_below_range(tracking.samples_figure(Answer(), 0.5), c, 0.5)
     assert ok.better == "lower"  # the data agree: already below 0.5 at the smallest size
+
+
+def test_store_addresses(tmp_path):
+    with Store(f"sqlite:///{tmp_path / 'u.db'}") as s:
+        assert s.path == tmp_path / "u.db" and s.schema_version == SCHEMA_VERSION
+    for bad, words in [("postgres://host/db", "unsupported store address"),
+                       (tmp_path / "no" / "such" / "dir.db", "does not exist"),
+                       (tmp_path, "is a directory")]:
+        with pytest.raises(InputError, match=words):
+            Store(bad)
+    with pytest.raises(InputError, match="not found"):
+        Store(tmp_path / "absent.db", create=False)
+    assert not (tmp_path / "absent.db").exists()
