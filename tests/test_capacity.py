@@ -254,8 +254,10 @@ def _one_line_error(proc):
 def test_cli_gap_model_text_and_json(tmp_path):
     curve = _gaussian_linear_curve(4, 0.1, seed=2, repeats=3)
     run = curve.write(tmp_path / "run.json")
-    p = run_cli("capacity", run, "--bootstrap", "40")
+    p = run_cli("capacity", run, "--bootstrap", "40", "--out", tmp_path / "cap.json")
     assert p.returncode == 0, p.stderr
+    saved = CapacityEstimate.from_dict(json.loads((tmp_path / "cap.json").read_text()))
+    assert saved.method == "gap" and saved.message == p.stdout.splitlines()[0]
     first = p.stdout.splitlines()[0]
     assert first.startswith("Effective capacity on this data ≈") and "90% interval" in first
     assert "size" in p.stdout and "gap" in p.stdout

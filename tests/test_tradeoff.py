@@ -106,13 +106,15 @@ def iris_csv(tmp_path_factory):
     return path
 
 
-def test_cli_text_and_json(iris_csv):
+def test_cli_text_and_json(iris_csv, tmp_path):
     args = ["tradeoff", iris_csv, "--target", "target", "--model",
             "sklearn.neighbors:KNeighborsClassifier", "--vary", "n_neighbors=1,5,25",
             "--sizes", "30,100", "--repeats", "2", "--quiet"]
-    p = run_cli(*args)
+    p = run_cli(*args, "--out", tmp_path / "trade.json")
     assert p.returncode == 0, p.stderr
     assert "best setting per size" in p.stdout and "n_neighbors" in p.stdout
+    saved = Tradeoff.from_dict(json.loads((tmp_path / "trade.json").read_text()))
+    assert saved.param == "n_neighbors" and saved.table["value"].tolist() == [1, 1, 5, 5, 25, 25]
     p = run_cli(*args, "--json")
     assert p.returncode == 0, p.stderr
     doc = json.loads(p.stdout)

@@ -57,6 +57,21 @@ def print_estimate(est) -> None:
         out.print(f"note: {note}", markup=False)
 
 
+def save_json(path: str, doc: dict) -> None:
+    """Write a result document as JSON (inf/NaN as null); a bad path is an input error."""
+    import json
+    from pathlib import Path
+
+    from curvefit.curve import _jsonable
+
+    p = Path(path)
+    try:
+        p.parent.mkdir(parents=True, exist_ok=True)
+        p.write_text(json.dumps(_jsonable(doc), indent=1, allow_nan=False) + "\n", encoding="utf-8")
+    except OSError as exc:
+        raise InputError(f"cannot write {path}: {exc.strerror or exc}") from None
+
+
 def _probe_inputs(data: str | None, target: str | None, features: str | None,
                   n_features: int | None):
     if data is None:
@@ -120,6 +135,7 @@ def register(app: typer.Typer) -> None:
         seed: int = typer.Option(0, "--seed", help="Random seed."),
         quiet: bool = typer.Option(False, "--quiet", help="No progress on stderr."),
         json_out: bool = typer.Option(False, "--json", help="Print the estimate as JSON only."),
+        out_file: Optional[str] = typer.Option(None, "--out", help="Also save the estimate as JSON (for curvefit report --capacity)."),
     ):
         """Effective capacity in VC units: from a run's gap, or by the max-deviation probe."""
         from curvefit import capacity as cap
@@ -170,7 +186,11 @@ def register(app: typer.Typer) -> None:
             curve = Curve.read(source)
             est = cap.effective_capacity(curve, bootstrap=500 if bootstrap is None else bootstrap,
                                          random_state=seed, interval=level)
+        if out_file:
+            save_json(out_file, est.to_dict())
         if json_out:
             emit_json(est.to_dict())
         else:
             print_estimate(est)
+            if out_file:
+                out.print(f"wrote {out_file}", markup=False)

@@ -75,9 +75,11 @@ def register(app: typer.Typer) -> None:
         seed: int = typer.Option(0, "--seed", help="Random seed."),
         quiet: bool = typer.Option(False, "--quiet", help="No progress on stderr."),
         json_out: bool = typer.Option(False, "--json", help="Print the result as JSON only."),
+        out_file: Optional[str] = typer.Option(None, "--out", help="Also save the result as JSON (for curvefit report --tradeoff)."),
     ):
         """Train and test error against a complexity parameter; the best setting per size."""
         from curvefit import data as cfdata
+        from curvefit.commands.capacity import save_json
         from curvefit.models import parse_params, resolve_model
         from curvefit.tradeoff import parse_vary, tradeoff
 
@@ -114,10 +116,14 @@ def register(app: typer.Typer) -> None:
                       scheduler=scheduler, test_size=test_fraction, metric=metric,
                       probe=probe, timeout=timeout,
                       progress=(lambda m: err.print(m, markup=False)) if show else None)
+        if out_file:
+            save_json(out_file, tr.to_dict())
         if json_out:
             emit_json(tr.to_dict())
         else:
             print_tradeoff(tr)
+            if out_file:
+                out.print(f"wrote {out_file}", markup=False)
         if tr.meta.get("failed_cells"):
             if not json_out:
                 err.print(f"{tr.meta['failed_cells']} fit(s) failed and were left out "
