@@ -21,7 +21,7 @@ import pandas as pd
 from curvefit.errors import InputError
 
 TABLE_COLUMNS = ["param", "value", "size", "n_repeats", "n_failed", "train_mean", "train_sem",
-                 "test_mean", "test_sem"]
+                 "test_mean", "test_sem", "gap_mean"]
 CAPACITY_COLUMNS = ["capacity", "capacity_low", "capacity_high", "capacity_above_range"]
 
 
@@ -65,7 +65,8 @@ class Tradeoff:
     ----------
     table : pandas.DataFrame
         One row per (value, size): ``param, value, size, n_repeats, n_failed,
-        train_mean, train_sem, test_mean, test_sem`` and, with the probe,
+        train_mean, train_sem, test_mean, test_sem, gap_mean`` (mean test − train over
+        repeats, the complexity penalty) and, with the probe,
         ``capacity, capacity_low, capacity_high, capacity_above_range``.
     param : str
         The parameter that was varied.
@@ -138,7 +139,7 @@ class Tradeoff:
         if not isinstance(d, dict) or "table" not in d or "param" not in d:
             raise InputError("not a saved trade-off (needs 'param' and 'table')")
         table = pd.DataFrame(d["table"] or [])
-        for col in ("train_mean", "train_sem", "test_mean", "test_sem", "capacity",
+        for col in ("train_mean", "train_sem", "test_mean", "test_sem", "gap_mean", "capacity",
                     "capacity_low", "capacity_high"):
             if col in table:
                 table[col] = pd.to_numeric(table[col], errors="coerce").astype(float)
@@ -244,12 +245,13 @@ def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: 
             if r is None:
                 rows.append({"param": param, "value": value, "size": size, "n_repeats": 0,
                              "n_failed": n_failed, "train_mean": math.nan, "train_sem": math.nan,
-                             "test_mean": math.nan, "test_sem": math.nan})
+                             "test_mean": math.nan, "test_sem": math.nan, "gap_mean": math.nan})
                 continue
             rows.append({"param": param, "value": value, "size": size,
                          "n_repeats": int(r.n_repeats), "n_failed": n_failed,
                          "train_mean": float(r.train_mean), "train_sem": float(r.train_sem),
-                         "test_mean": float(r.test_mean), "test_sem": float(r.test_sem)})
+                         "test_mean": float(r.test_mean), "test_sem": float(r.test_sem),
+                         "gap_mean": float(r.gap_mean)})
         if probe:
             from curvefit.capacity import probe_capacity
 

@@ -37,6 +37,9 @@ def test_best_tree_depth_grows_with_n_on_digits():
     assert len(t) == 10 and (t["n_repeats"] == 3).all()
     big = t[t["size"] == 1000].set_index("value")
     assert big.loc[12, "train_mean"] < big.loc[2, "train_mean"]
+    # The complexity penalty (test − train) grows with depth at the small size.
+    small = t[t["size"] == 40].set_index("value")
+    assert small.loc[12, "gap_mean"] > small.loc[2, "gap_mean"]
 
 
 def test_one_standard_error_set():
