@@ -63,6 +63,7 @@ def history_document(store, series: str | None) -> dict:
         figs = _figure_names(runs)
         entries = []
         for _, r in runs.iterrows():
+            recorded = store.headline(int(r["run_id"]))
             entries.append({
                 "run_id": int(r["run_id"]), "created": r["created"],
                 "model": _model_value(r["model"]),
@@ -72,7 +73,9 @@ def history_document(store, series: str | None) -> dict:
                 "n_points": int(r["n_points"]), "n_failed": int(r["n_failed"]),
                 "figures": {f: {"estimate": _none(r[f]), "low": _none(r[f"{f}_low"]),
                                 "high": _none(r[f"{f}_high"]),
-                                "unbounded": bool(math.isinf(r[f]))}
+                                "unbounded": bool(math.isinf(r[f])),
+                                "better": recorded[f].better if f in recorded else None,
+                                "note": recorded[f].note if f in recorded else ""}
                             for f in figs if not pd.isna(r[f])},
             })
         doc["series"].append({"name": name, "config": store.series_config(name),
@@ -101,7 +104,7 @@ def _none(v):
     return f if math.isfinite(f) else None  # unbounded values are flagged beside it
 
 
-def _print_series(name: str, config: dict, runs: pd.DataFrame) -> None:
+def _print_series(name: str, config: dict, runs: pd.DataFrame, entries: list) -> None:
     ref = config.get("reference_size")
     target = config.get("target_error")
     bits = [f"reference size {ref}" if ref else None,
@@ -111,17 +114,31 @@ def _print_series(name: str, config: dict, runs: pd.DataFrame) -> None:
     if runs.empty:
         return
     figs = _figure_names(runs)
+    entries_by_id = {e["run_id"]: e["figures"] for e in entries}
     headers = ["run", "created", "model"] + [_SHORT.get(f, f) for f in figs] + ["code"]
     rows = []
     for _, r in runs.iterrows():
         code = r["code_version"]
+        marks = {f: _ungated(f, entries_by_id.get(int(r["run_id"]), {})) for f in figs}
         rows.append([str(int(r["run_id"])), str(r["created"]).replace("T", " ")[:16],
-                     _model_short(r["model"])] + [_cell(r, f) for f in figs]
+                     _model_short(r["model"])] + [_cell(r, f) + marks[f] for f in figs]
                     + ["—" if pd.isna(code) else str(code)[:8]])
     widths = [max(len(h), *(len(row[i]) for row in rows)) for i, h in enumerate(headers)]
     out.print("  ".join(h.ljust(w) for h, w in zip(headers, widths)).rstrip(), markup=False)
     for row in rows:
         out.print("  ".join(c.ljust(w) for c, w in zip(row, widths)).rstrip(), markup=False)
+    if any("*" in c for row in rows for c in row[3:]):
+        out.print("* recorded as not gated (see the note in --json)", markup=False)
+
+
+def _ungated(name: str, figures: dict) -> str:
+    """``*`` when a figure that normally gates was recorded as not gated."""
+    from curvefit.tracking import FIGURES
+
+    f = figures.get(name)
+    if f and FIGURES.get(name, (None,))[0] is not None and f.get("better") is None:
+        return "*"
+    return ""
 
 
 def trend_figure(doc: dict):
@@ -214,7 +231,7 @@ def register(app: typer.Typer) -> None:
         for i, s in enumerate(doc["series"]):
             if i:
                 out.print("", markup=False)
-            _print_series(s["name"], s["config"] or {}, frames[s["name"]])
+            _print_series(s["name"], s["config"] or {}, frames[s["name"]], s["runs"])
         if plot is not None:
             out.print(f"trend figure: {plot}", markup=False)
 
