@@ -115,7 +115,7 @@ def register(app: typer.Typer) -> None:
     @app.command("capacity")
     def capacity(
         source: Optional[str] = typer.Argument(
-            None, metavar="[RUN | DATA]",
+            None, metavar="RUN|DATA",
             help="Run file (gap model), or with --probe the data whose feature rows are resampled."),
         probe: bool = typer.Option(False, "--probe",
                                    help="Run the max-deviation probe on --model instead of reading a run."),
