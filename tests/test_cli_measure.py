@@ -281,3 +281,18 @@ def test_ctrl_c_exits_130_with_journal_intact(iris_csv, tmp_path):
     assert "Traceback" not in stderr and "--resume" in stderr
     for line in journal.read_text().splitlines():
         json.loads(line)
+
+
+def test_config_paths_are_relative_to_the_config_file(iris_csv, tmp_path):
+    # A nightly job runs from any working directory: data/out resolve against the file.
+    job = tmp_path / "job"
+    job.mkdir()
+    (job / "iris.csv").write_bytes(iris_csv.read_bytes())
+    (job / "job.toml").write_text(f'data = "iris.csv"\ntarget = "target"\nmodel = "{LOGREG}"\n'
+                                  'param = {max_iter = 300}\nsizes = [20, 110]\nrepeats = 1\n'
+                                  'out = "r.json"\n')
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    r = run_cli("measure", "--config", job / "job.toml", "--quiet", cwd=elsewhere)
+    assert r.returncode == 0, r.stderr
+    assert (job / "r.json").is_file() and not list(elsewhere.iterdir())

@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 import math
 import sys
+from pathlib import Path
 from typing import Any, Callable
 
 import numpy as np
@@ -73,3 +74,29 @@ def parse_list(text: str | None, kind: Callable = float, name: str = "value",
             raise InputError(f"{name} {piece!r} is not finite")
         out_vals.append(v)
     return out_vals
+
+
+def resolve_job_paths(job: dict, config_path: str | Path, source: str | None = None) -> dict:
+    """Resolve a job file's relative paths against the file's own folder.
+
+    So a job runs the same from any working directory (what a nightly CI job needs).
+    Touches the keys ``data``, ``test``, ``store``, ``out`` and the file part of a
+    ``file.py:make_model`` model spec.
+    """
+    source = source or str(config_path)
+    base = Path(config_path).resolve().parent
+
+    def resolve(text: str) -> str:
+        q = Path(text).expanduser()
+        return str(q if q.is_absolute() else base / q)
+
+    for k in ("data", "test", "store", "out"):
+        if job.get(k) is not None:
+            if not isinstance(job[k], str):
+                raise InputError(f"{source}: {k!r} must be a path string, got {job[k]!r}")
+            job[k] = resolve(job[k])
+    model = job.get("model")
+    if isinstance(model, str) and ".py:" in model:
+        file_part, _, attr = model.rpartition(":")
+        job["model"] = f"{resolve(file_part)}:{attr}"
+    return job

@@ -15,7 +15,7 @@ from typing import List, Optional
 
 import typer
 
-from curvefit.commands._common import emit_json, out, parse_list, warn
+from curvefit.commands._common import emit_json, out, parse_list, resolve_job_paths, warn
 from curvefit.errors import InputError
 
 # built-in values of the options a config file may set
@@ -46,7 +46,7 @@ def _read_config(path: str) -> dict:
             raise InputError(f"unknown key {key!r} in config {path}; keys are the long option "
                              f"names of curvefit measure, e.g. target, model, sizes")
         conf[name] = value
-    return conf
+    return resolve_job_paths(conf, p)
 
 
 def _params(config_value, cli_items) -> dict:

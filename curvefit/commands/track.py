@@ -23,7 +23,7 @@ from typing import Any, Optional
 
 import typer
 
-from curvefit.commands._common import emit_json, err, out, parse_list, warn
+from curvefit.commands._common import emit_json, err, out, parse_list, resolve_job_paths, warn
 from curvefit.errors import InputError
 
 # Job-file keys: the `measure` options (dashes or underscores) plus the tracking ones.
@@ -62,21 +62,8 @@ def read_job(path: str | Path) -> dict:
             known = ", ".join(sorted(MEASURE_KEYS | TRACK_KEYS))
             raise InputError(f"{p}: unknown key {key!r}; known keys: {known}")
         job[k] = value
-    base = p.resolve().parent
-    for k in ("data", "test", "store", "out"):
-        if k in job:
-            if not isinstance(job[k], str):
-                raise InputError(f"{p}: {k!r} must be a path string, got {job[k]!r}")
-            job[k] = str(_resolve(base, job[k]))
-    if isinstance(job.get("model"), str) and ".py:" in job["model"]:
-        file_part, _, attr = job["model"].rpartition(":")
-        job["model"] = f"{_resolve(base, file_part)}:{attr}"
+    resolve_job_paths(job, p)
     return job
-
-
-def _resolve(base: Path, text: str) -> Path:
-    q = Path(text).expanduser()
-    return q if q.is_absolute() else base / q
 
 
 def _as_list(value: Any, name: str) -> list | None:
