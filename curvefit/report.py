@@ -754,6 +754,10 @@ def build_report(results: Any, *, target_error: float | None = None, probe: Any 
             except Exception:  # noqa: BLE001 - the table is optional
                 best = None
         if isinstance(best, pd.DataFrame) and len(best):
+            param = getattr(tradeoff, "param", None) or "value"
+            best = best.rename(columns={
+                "best_value": f"best {param}", "test_mean": "test error",
+                "test_sem": "± s.e.", "within_1se": "within one s.e."})
             body.append(html_table(best))
         sections.append(("tradeoff", "Complexity trade-off", "".join(body)))
 
