@@ -731,7 +731,8 @@ def with_encoding(estimator, X, encode: str = "auto"):
         col_ref = list(range(arr.shape[1]))  # positional selectors for array input
         if arr.dtype.kind in "biuf":
             frame = frame.astype("float64")
-    categorical = [i for i, c in enumerate(frame.columns) if c in set(_non_numeric_columns(frame))]
+    non_numeric = set(_non_numeric_columns(frame))  # computed once: it scans every column
+    categorical = [i for i, c in enumerate(frame.columns) if c in non_numeric]
     if encode == "none":
         if categorical:
             cols = ", ".join(names[i] for i in categorical)
