@@ -28,11 +28,11 @@ _EXPORTS = {
     "effective_capacity": "curvefit.capacity",
     "probe_capacity": "curvefit.capacity",
     "CapacityEstimate": "curvefit.capacity",
-    "tradeoff": "curvefit.tradeoff",
-    "Tradeoff": "curvefit.tradeoff",
+    "tradeoff": "curvefit.complexity",
+    "Tradeoff": "curvefit.complexity",
     "Store": "curvefit.store",
 }
-_SUBMODULES = {"bounds", "families", "fitting", "planning", "capacity", "tradeoff",
+_SUBMODULES = {"bounds", "families", "fitting", "planning", "capacity", "complexity",
                "store", "plots", "report", "runner", "data", "models", "splits"}
 
 __all__ = sorted(_EXPORTS) + sorted(_SUBMODULES)

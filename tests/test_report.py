@@ -75,7 +75,7 @@ def analysed(curves):
 
 def test_sections_in_order_and_answer_first(analysed):
     target, results = analysed
-    from curvefit.tradeoff import Tradeoff
+    from curvefit.complexity import Tradeoff
 
     table = pd.DataFrame({"param": "max_depth", "value": [1, 2, 3, 1, 2, 3],
                           "size": [100] * 3 + [300] * 3,
@@ -181,7 +181,7 @@ def test_cli_report_two_runs_probe_tradeoff_and_json(run_file):
                            above_range=False,
                            design=pd.DataFrame({"n": n, "xi_mean": phi(n / 20), "xi_sem": .01}))
     (run_file / "probe.json").write_text(json.dumps(cap.to_dict()))
-    from curvefit.tradeoff import Tradeoff
+    from curvefit.complexity import Tradeoff
 
     table = pd.DataFrame({"param": "max_depth", "value": [2, None, 2, None],
                           "size": [100, 100, 300, 300], "train_mean": [.1, 0, .1, .02],

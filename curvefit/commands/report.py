@@ -35,11 +35,8 @@ def load_probe(path: Path):
 
 def load_tradeoff(path: Path):
     """A saved trade-off result (``curvefit tradeoff ... --json`` output)."""
-    try:
-        from curvefit.tradeoff import Tradeoff
-    except ImportError:
-        raise InputError("this installation cannot read trade-off files (curvefit.tradeoff "
-                         "is missing)") from None
+    from curvefit.complexity import Tradeoff
+
     doc = _read_json(path, "trade-off")
     if isinstance(doc, dict) and "table" not in doc and isinstance(doc.get("tradeoff"), dict):
         doc = doc["tradeoff"]

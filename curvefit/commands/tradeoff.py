@@ -27,7 +27,7 @@ def _table(head: list[str], rows: list[list[str]]) -> None:
 
 def print_tradeoff(tr) -> None:
     """The measured table, then the best setting per size."""
-    from curvefit.tradeoff import _label
+    from curvefit.complexity import _label
 
     t = tr.table
     probe = "capacity" in t.columns
@@ -81,7 +81,7 @@ def register(app: typer.Typer) -> None:
         from curvefit import data as cfdata
         from curvefit.commands.capacity import save_json
         from curvefit.models import parse_params, resolve_model
-        from curvefit.tradeoff import parse_vary, tradeoff
+        from curvefit.complexity import parse_vary, tradeoff
 
         if not target:
             raise InputError("no target column given; pass --target COL")

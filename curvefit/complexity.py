@@ -277,19 +277,3 @@ def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: 
 
 def _all_numeric(X) -> bool:
     return all(pd.api.types.is_numeric_dtype(X[c]) for c in X.columns)
-
-
-class _CallableModule(type(math)):
-    """``curvefit.tradeoff`` names both this module and its main function (INTERFACE.md).
-
-    Importing the submodule makes the package attribute the module, so the module
-    forwards calls to :func:`tradeoff` and ``cf.tradeoff(...)`` works either way.
-    """
-
-    def __call__(self, *args, **kwargs):
-        return tradeoff(*args, **kwargs)
-
-
-import sys as _sys  # noqa: E402
-
-_sys.modules[__name__].__class__ = _CallableModule
