@@ -75,6 +75,10 @@ class Family:
         For a joint family, the train curve and its Jacobian (same ``theta``).
     reference : str
         Published source of the formula.
+    approach : str
+        How the curve nears its asymptote: ``"power"`` (algebraically or faster, so
+        the asymptote is a practical floor) or ``"logarithmic"`` (like 1/ln n, so the
+        asymptote is reached only as ln n → ∞ and is far from any practical size).
     """
 
     name: str
@@ -93,6 +97,7 @@ class Family:
     train_jac: Callable | None = None
     reference: str = ""
     extra: dict = field(default_factory=dict)
+    approach: str = "power"
 
     @property
     def n_params(self) -> int:
@@ -371,7 +376,9 @@ register(Family(
     name="ilog2", formula="c + a/ln n", params=("a", "c"),
     func=_ilog2, jac=_ilog2_jac, lower=(0.0, 0.0), upper=(INF, INF),
     guesses=_ilog2_guess, levels=("c",), asymptote=lambda t: float(t[1]),
-    reference="Viering & Loog 2023; Domhan et al. 2015"))
+    reference="Viering & Loog 2023; Domhan et al. 2015",
+    # a/ln n halves only when n is squared: c is a limit, not a level reached in practice
+    approach="logarithmic"))
 
 
 # --------------------------------------------------------------------- vap3

@@ -46,6 +46,18 @@ MAX_CONDITION = 1e7
 SEARCH_LIMIT = 1e12
 # Beyond this multiple of the largest measured size a prediction is an extrapolation to flag.
 EXTRAPOLATION_FACTOR = 10.0
+# Lack of fit: a family whose reduced chi-square against the per-size standard errors
+# exceeds both this floor and LACK_OF_FIT_RATIO × the best family's does not describe the
+# measured points and is not chosen while another family does (common practice: a
+# reduced chi-square far above 1 rejects the model; the ratio allows for standard errors
+# that are themselves rough with 2–5 repeats).
+LACK_OF_FIT_FLOOR = 4.0
+LACK_OF_FIT_RATIO = 4.0
+# Errors smaller than this print as 0 (below any test set's resolution).
+ZERO_PRINT = 5e-7
+# Practical horizon for the wording of logarithmic families: the value at this multiple
+# of the largest measured size is shown beside their limit.
+LOG_HORIZON = 100.0
 _ERROR_METRICS = {"error", "zero_one", "0-1", "misclassification", "error_rate"}
 
 
@@ -111,6 +123,7 @@ class _FamilyFit:
     drift: float = 0.0        # model error per unit of ln n beyond the data, from validation
     eligible: bool = True     # False when the extrapolation is impossible (e.g. below zero)
     tied: bool = False        # forecasts about as well as the chosen family
+    lack_of_fit: float = math.nan  # reduced chi-square against the per-size standard errors
 
 
 class _State:
@@ -138,7 +151,10 @@ class CurveFit:
         The fitted quantity: ``"test"``, ``"train"`` or ``"gap"`` (test − train).
     table : pandas.DataFrame
         One row per family: ``family, n_params, params, forecast_error, aicc, status,
-        chosen, message``; ranked, the chosen family first.
+        chosen, message, lack_of_fit``; ranked, the chosen family first. ``status`` is
+        "converged", "poorly determined", "poor fit" (misses the measured points:
+        ``lack_of_fit``, the reduced chi-square against the per-size standard errors,
+        is far above the best family's) or "failed".
     warnings : list of str
         Cautions about this fit (few sizes, a curve that does not fall, wide intervals).
     curve : Curve
@@ -213,9 +229,59 @@ class CurveFit:
         return pd.DataFrame(rows, columns=["param", "estimate", "low", "high"])
 
     def asymptote(self, interval: float = 0.9) -> Estimate | None:
-        """The error the chosen family levels off at as n → ∞, or None if it has none."""
-        return self._derived(_asymptote_fn(self._state.fits[self.best].family, self.on,
-                                           self._state.data.sign), interval)
+        """The error the chosen family tends to as n → ∞, or None if it has none.
+
+        Values within rounding of 0 (a floor pinned at its bound) are returned as exactly
+        0. For a family whose ``approach`` is ``"logarithmic"`` this is a limit reached
+        only as ln n → ∞, not a level seen at practical sizes; see ``approach``.
+        """
+        est = self._derived(_asymptote_fn(self._state.fits[self.best].family, self.on,
+                                          self._state.data.sign), interval)
+        if est is None:
+            return None
+        scale = max(1.0, float(np.nanmax(np.abs(self._state.data.y)))) if self._state.data.m else 1.0
+
+        def snap(v):
+            return 0.0 if math.isfinite(v) and abs(v) < 1e-9 * scale else v
+
+        return Estimate(snap(est.estimate), snap(est.low), snap(est.high), est.level)
+
+    @property
+    def approach(self) -> str:
+        """How the chosen family nears its asymptote: "power" or "logarithmic"."""
+        return self._state.fits[self.best].family.approach
+
+    def describe_asymptote(self, interval: float = 0.9) -> str:
+        """The asymptote in plain words, e.g. "levels off at about 13.7% (90% interval
+        13.1%–14.2%)"; "" when the family has none.
+
+        A floor at its lower bound reads "levels off at 0% (the fitted floor is at its
+        lower bound)"; a logarithmic family's limit is stated as approached only as
+        ln n → ∞, beside its value at ``LOG_HORIZON`` × the largest measured size.
+        """
+        asym = self.asymptote(interval)
+        if asym is None or not math.isfinite(asym.estimate):
+            return ""
+        metric = self.curve.metric
+        fmt = lambda v: _fmt_error(v, metric)  # noqa: E731
+        fixed = self._state.fits[self.best].family.levels == ()  # no level parameter
+        if fixed:
+            core = f"tends to {fmt(asym.estimate)} (fixed by the family)"
+        elif asym.estimate == 0.0 and (not math.isfinite(asym.high) or asym.high == 0.0):
+            core = f"levels off at {fmt(0.0)} (the fitted floor is at its lower bound)"
+        else:
+            ai = (f" ({asym.level:.0%} interval {fmt(asym.low)}–{fmt(asym.high)})"
+                  if math.isfinite(asym.low) and not fixed else "")
+            core = f"levels off at about {fmt(asym.estimate)}{ai}"
+        if self.approach == "logarithmic":
+            horizon = LOG_HORIZON * self._state.data.n_max
+            at = float(self._predict_point(np.array([horizon]))[0])
+            core = (f"falls only logarithmically (as 1/ln n): about {fmt(at)} at "
+                    f"{LOG_HORIZON:g}× the largest measured size ({_fmt_count(horizon)}); its limit "
+                    f"{fmt(asym.estimate)}" + (f" ({asym.level:.0%} interval {fmt(asym.low)}–"
+                                               f"{fmt(asym.high)})" if math.isfinite(asym.low) else "")
+                    + " is approached only as ln n → ∞")
+        return core
 
     def exponent(self, interval: float = 0.9) -> Estimate | None:
         """The power-law decay exponent of the chosen family, or None if it has none."""
@@ -385,20 +451,47 @@ class CurveFit:
         return self._state.companions[on]
 
     def _solve(self, target: float, kind: str, level: float) -> SampleEstimate:
+        """Samples needed for ``target``: from the measured means where the target lies
+        within the measured range, from the fitted curve beyond the largest size only.
+
+        The measured answer interpolates the per-size means linearly in ln n; its
+        interval comes from the Student-t intervals of those means. The fitted answer
+        is searched on n ≥ the largest measured size, never below it, so a fitted curve
+        that disagrees with the measured points at small n cannot give an answer there.
+        """
         d = self._state.data
-        grid = np.geomspace(1.0, SEARCH_LIMIT, 2400)
+        grid = np.geomspace(max(d.n_max, 1.0), SEARCH_LIMIT, 2400)
         with np.errstate(all="ignore"):
-            point = _first_crossing(self._predict_point(grid)[None, :], grid, target)[0]
+            fitted = self._predict_point(grid)
+            point_fit = _first_crossing(fitted[None, :], grid, target)[0]
             lo_band, hi_band = self._predict_interval(grid, level)
+        mean_lo, mean_hi = _mean_band(d, level)
+        point_meas = _measured_crossing(d.sizes, d.y, target)
         low = high = math.nan
-        if np.all(np.isfinite(lo_band)):
-            # the band's edges reach the target first and last: the interval on n
+        if math.isfinite(point_meas):
+            point, source = point_meas, "measured"
+        else:
+            point, source = point_fit, "fitted"
+        # each edge of the interval: where the measured band reaches the target, else
+        # where the fitted band does beyond the largest size
+        low = _measured_crossing(d.sizes, mean_lo, target)
+        if not math.isfinite(low) and np.all(np.isfinite(lo_band)):
             low = _first_crossing(lo_band[None, :], grid, target)[0]
+        high = _measured_crossing(d.sizes, mean_hi, target)
+        if not math.isfinite(high) and np.all(np.isfinite(lo_band)):
             high = _first_crossing(np.where(np.isfinite(hi_band), hi_band, np.inf)[None, :],
                                    grid, target)[0]
+        if not np.all(np.isfinite(lo_band)) and source == "fitted":
+            low = high = math.nan
+        if math.isfinite(point):
+            if not math.isnan(low):
+                low = min(low, point)
+            if not math.isnan(high):
+                high = max(high, point)
         asym = self.asymptote(level)
-        reachable = math.isfinite(point) and not (asym is not None and math.isfinite(asym.low)
-                                                  and asym.low > target)
+        reachable = source == "measured" or (
+            math.isfinite(point) and not (asym is not None and math.isfinite(asym.low)
+                                          and asym.low > target))
         metric = self.curve.metric
         what = "test error" if kind == "test_error" else "generalization gap"
         tgt = _fmt_error(target, metric)
@@ -407,28 +500,42 @@ class CurveFit:
             n = math.inf
             low = high = math.inf
             if asym is not None and math.isfinite(asym.estimate):
-                ai = (f" ({level:.0%} interval {_fmt_error(asym.low, metric)}–"
-                      f"{_fmt_error(asym.high, metric)})" if math.isfinite(asym.low) else "")
                 message = (f"A {what} of {tgt} is not reachable by more data with this model: "
-                           f"the {what} levels off at about {_fmt_error(asym.estimate, metric)}{ai}.")
+                           f"the {what} {self.describe_asymptote(level)}.")
             else:
                 message = (f"A {what} of {tgt} is not reachable by more data with this model: "
                            f"the fitted curve does not fall that low within {SEARCH_LIMIT:.0e} samples.")
         else:
             n = float(math.ceil(point))
             interval_text = _fmt_interval(low, high, level)
-            if n <= d.n_max:
+            smallest = float(d.sizes[0])
+            if source == "measured" and n <= smallest:
+                n = smallest
+                message = (f"The measured curve already reaches {tgt} {what} at its smallest "
+                           f"measured size, {_fmt_count(n)} labelled samples (fewer were not "
+                           f"measured).")
+            elif source == "measured":
+                j = int(np.searchsorted(d.sizes, n))
+                between = (f", between the measured sizes {d.sizes[j - 1]:,.0f} and "
+                           f"{d.sizes[j]:,.0f}" if 0 < j < d.m and d.sizes[j] != n else "")
                 message = (f"The measured curve already reaches {tgt} {what} at about "
-                           f"{_fmt_count(n)} labelled samples{interval_text}.")
+                           f"{_fmt_count(n)} labelled samples{between}{interval_text}.")
             elif kind == "test_error":
                 message = (f"To reach {tgt} test error you need about {_fmt_count(n)} "
                            f"labelled samples{interval_text}.")
             else:
                 message = (f"To bring the generalization gap down to {tgt} you need about "
                            f"{_fmt_count(n)} labelled samples{interval_text}.")
+            if source == "fitted" and float(fitted[0]) <= target:
+                cautions.append(f"the fitted curve is already at the target at the largest "
+                                f"measured size ({d.n_max:,.0f}), where the measured mean "
+                                f"({_fmt_error(float(d.y[-1]), metric)}) is not; the answer is rough")
             if n > EXTRAPOLATION_FACTOR * d.n_max:
                 cautions.append(f"this is more than {EXTRAPOLATION_FACTOR:g}× the largest measured "
                                 f"size ({d.n_max:,.0f}), a long extrapolation")
+            if self.approach == "logarithmic" and source == "fitted":
+                cautions.append(f"the {self.best} curve falls only logarithmically, so small "
+                                "changes in its fit move this answer a lot")
             if math.isinf(high):
                 cautions.append("some bootstrap curves never reach the target, so the "
                                 "interval has no upper limit")
@@ -437,6 +544,39 @@ class CurveFit:
         return SampleEstimate(n=n, low=float(low), high=float(high), level=level, target=target,
                               kind=kind, reachable=bool(reachable), asymptote=asym,
                               message=message, warnings=tuple(cautions))
+
+
+def _mean_band(d: "_Data", level: float):
+    """Student-t interval of each measured per-size mean (the mean itself without repeats).
+
+    References
+    ----------
+    .. [1] W. S. Gosset ("Student"), "The probable error of a mean", Biometrika 6(1), 1908.
+    """
+    from scipy.stats import t as student_t
+
+    k = np.array([np.isfinite(c[:, 0] if d.on == "test" else
+                              (c[:, 0] - c[:, 1]) if d.on == "gap" else c[:, 1]).sum()
+                  for c in d.cells], dtype=float)
+    half = np.zeros(d.m)
+    ok = (k >= 2) & np.isfinite(d.sem)
+    half[ok] = student_t.ppf((1 + level) / 2, k[ok] - 1) * d.sem[ok]
+    return d.y - half, d.y + half
+
+
+def _measured_crossing(sizes: np.ndarray, values: np.ndarray, target: float) -> float:
+    """Smallest size where the measured values reach the target, interpolating linearly
+    in ln n between the last size above it and the first at or below it; inf if none."""
+    below = np.nonzero(np.asarray(values) <= target)[0]
+    if not len(below):
+        return math.inf
+    i = int(below[0])
+    if i == 0:
+        return float(sizes[0])
+    v0, v1 = float(values[i - 1]), float(values[i])
+    frac = (v0 - target) / (v0 - v1) if v0 != v1 else 1.0
+    frac = min(max(frac, 0.0), 1.0)
+    return float(math.exp(math.log(sizes[i - 1]) + frac * (math.log(sizes[i]) - math.log(sizes[i - 1]))))
 
 
 # ============================================================== data preparation
@@ -885,6 +1025,7 @@ def fit_curve(curve, *, families="auto", on: str = "test", bootstrap: int = 500,
             ff.eligible = False
             ff.message = ((ff.message + "; " if ff.message else "")
                           + "not chosen: extrapolates below zero or above the measured range")
+    lof = _lack_of_fit(fits, data, on)
     best, order = _choose(fits, data, cut)
     flat = m >= 1 and float(np.ptp(data.y)) <= 1e-12 * max(1.0, float(np.max(np.abs(data.y))))
     if flat and m >= 2:
@@ -892,6 +1033,10 @@ def fit_curve(curve, *, families="auto", on: str = "test", bootstrap: int = 500,
         best, order = "last1", ["last1"] + [k for k in order if k != "last1"]
         notes.append(f"the {on} curve is flat at {data.y[-1]:.4g}; the last value is used")
     chosen = fits[best]
+    if lof is not None and chosen.status == "poor fit" and not flat:
+        notes.append(f"no curve family describes the measured points within their standard "
+                     f"errors (best reduced chi-square {lof[0]:.3g}); {best} is the best "
+                     "forecaster, read its answers as rough")
 
     # ---- bootstrap the chosen family
     rng = np.random.default_rng(random_state)
@@ -995,6 +1140,59 @@ def _forecast(ff: _FamilyFit, data: _Data, on: str, origins) -> None:
         ff.drift = float(np.sqrt(np.mean(rates)))
 
 
+def _noise_scale(data: "_Data"):
+    """Per-size standard errors for judging residuals, floored as for the weights
+    (sizes without repeats get the median); None when no size has repeats."""
+    sem = data.sem
+    good = np.isfinite(sem) & (sem > 0)
+    if not good.any():
+        return None
+    med = float(np.median(sem[good]))
+    return np.maximum(np.where(np.isfinite(sem), sem, med), SEM_FLOOR_FRACTION * med)
+
+
+def _lack_of_fit(fits: dict, data: "_Data", on: str):
+    """Mark families that miss the measured points by many standard errors as "poor fit".
+
+    Each fitted family gets its reduced chi-square χ²/(m − p) with the per-size standard
+    errors of the means. A converged family whose value exceeds both
+    ``LACK_OF_FIT_FLOOR`` and ``LACK_OF_FIT_RATIO`` × the smallest value among the
+    fitted families gets status "poor fit", so the choice passes it over while another
+    family describes the points. Returns (best value, limit), or None without repeats
+    (no noise scale to judge against).
+
+    References
+    ----------
+    .. [1] P. R. Bevington and D. K. Robinson, "Data Reduction and Error Analysis for
+           the Physical Sciences", 3rd ed., McGraw-Hill, 2003, ch. 11 (reduced
+           chi-square as a test of a fitted model against the measurement errors).
+    """
+    scale = _noise_scale(data)
+    if scale is None:
+        return None
+    for ff in fits.values():
+        # the joint family's test (or train) curve uses 3 of its 5 parameters
+        p = 3 if ff.family.joint and on != "gap" else ff.family.n_params
+        if ff.theta is None or ff.family.baseline or data.m - p <= 0:
+            continue
+        pred = _predict(ff.family, ff.theta, data.sizes, on, data.sign)
+        z = (pred - data.y) / scale
+        if np.all(np.isfinite(z)):
+            ff.lack_of_fit = float(np.sum(z ** 2) / (data.m - p))
+    values = [ff.lack_of_fit for ff in fits.values() if math.isfinite(ff.lack_of_fit)]
+    if not values:
+        return None
+    best = min(values)
+    limit = max(LACK_OF_FIT_FLOOR, LACK_OF_FIT_RATIO * best)
+    for ff in fits.values():
+        if ff.status == "converged" and math.isfinite(ff.lack_of_fit) and ff.lack_of_fit > limit:
+            ff.status = "poor fit"
+            ff.message = ((ff.message + "; " if ff.message else "")
+                          + f"misses the measured points (reduced chi-square "
+                            f"{ff.lack_of_fit:.3g}, limit {limit:.3g})")
+    return best, limit
+
+
 def _plausible(ff: _FamilyFit, data: _Data, on: str) -> bool:
     """False when the extrapolated curve goes where the quantity cannot: below 0 for an
     error measured >= 0, or above the worst measured value for a test error or gap."""
@@ -1084,16 +1282,30 @@ def _table(fits: dict, best: str, order: list) -> pd.DataFrame:
                        if ff.theta is not None else {}),
             "forecast_error": float(ff.forecast_error), "aicc": float(ff.aicc),
             "status": ff.status, "chosen": k == best, "message": ff.message,
+            "lack_of_fit": float(ff.lack_of_fit),
         })
     return pd.DataFrame(rows, columns=["family", "n_params", "params", "forecast_error", "aicc",
-                                       "status", "chosen", "message"])
+                                       "status", "chosen", "message", "lack_of_fit"])
 
 
 def _bootstrap(chosen: _FamilyFit, data: _Data, B: int, rng: np.random.Generator):
-    """Parameter replicates of the chosen family from repeats resampled within sizes.
+    """Parameter replicates of the chosen family from a parametric bootstrap of the means.
 
-    Sizes with a single repeat get a normal perturbation with the pooled standard error
-    (or, with no repeats at all, the residual scale of the fit) instead.
+    Each size's mean is redrawn as mean + s·t, t from Student's t with k − 1 degrees of
+    freedom (k repeats at that size) and s its standard error, floored at
+    ``SEM_FLOOR_FRACTION`` × the median one as for the weights. Resampling 2–5 repeats
+    within a size (the plain bootstrap) shrinks the variance by (k − 1)/k and ignores
+    that s itself is estimated from k − 1 degrees of freedom; with 3 repeats its 90%
+    intervals of a single mean are about half as wide as Student's. Sizes with a single
+    repeat get a normal perturbation with the pooled standard error (or, with no
+    repeats at all, the residual scale of the fit).
+
+    References
+    ----------
+    .. [1] B. Efron and R. Tibshirani, "An Introduction to the Bootstrap", Chapman &
+           Hall, 1993, ch. 6 and 9 (parametric bootstrap; the plain bootstrap's
+           (n − 1)/n variance bias in small samples).
+    .. [2] "Student", "The probable error of a mean", Biometrika 6(1), 1908.
     """
     m = data.m
     T = np.empty((B, m))
@@ -1107,19 +1319,37 @@ def _bootstrap(chosen: _FamilyFit, data: _Data, B: int, rng: np.random.Generator
         pred = _predict(fam, chosen.theta, data.sizes, on, sign)
         dof = m - fam.n_params
         pooled = float(np.sqrt(np.sum((pred - data.y) ** 2) / dof)) if dof > 0 else 0.0
+    floor = SEM_FLOOR_FRACTION * pooled if math.isfinite(pooled) else 0.0
+    gap_noise = np.zeros((B, m))
+
+    def draw(k, sem):
+        # Student-t draws, clipped far out in the tails so one replicate cannot derail a refit
+        return sem * np.clip(rng.standard_t(k - 1, size=B), -20.0, 20.0)
+
     for j, c in enumerate(data.cells):
         k = len(c)
         if k >= 2:
-            idx = rng.integers(0, k, size=(B, k))
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore", RuntimeWarning)
-                T[:, j] = c[idx, 0].mean(axis=1)
-                R[:, j] = np.nanmean(c[idx, 1], axis=1)
+                st, sr = _sem(c[:, 0]), _sem(c[:, 1])
+                kr = int(np.isfinite(c[:, 1]).sum())
+                T[:, j] = np.mean(c[:, 0]) + draw(k, max(st, floor) if math.isfinite(st) else floor)
+                R[:, j] = (np.nanmean(c[:, 1]) + draw(max(kr, 2), max(sr, floor))
+                           if math.isfinite(sr) else np.nanmean(c[:, 1]) + 0.0 * T[:, j])
+                if on == "gap":
+                    sg = _sem(c[:, 0] - c[:, 1])
+                    gap_noise[:, j] = draw(k, max(sg, floor)) if math.isfinite(sg) else 0.0
         else:
             noise = rng.normal(0.0, pooled, size=B) if pooled > 0 else np.zeros(B)
             T[:, j] = c[0, 0] + (noise if on == "test" else 0.0)
             R[:, j] = c[0, 1] - (noise if on != "test" else 0.0)
-    Y = {"test": T, "train": R, "gap": T - R}[on]
+            if on == "gap":
+                gap_noise[:, j] = noise
+    if on == "gap":
+        # the gap's own standard error carries the correlation of test and train
+        Y = data.y[None, :] + gap_noise
+    else:
+        Y = {"test": T, "train": R}[on]
     out = np.full((B, fam.n_params), math.nan)
     if fam.baseline:
         out[:, 0] = Y[:, -1]
@@ -1227,6 +1457,8 @@ def _fmt_error(e: float, metric: str = "error") -> str:
     """An error as a percentage for 0–1 error, else as a plain number."""
     if not math.isfinite(e):
         return str(e)
+    if abs(e) < ZERO_PRINT:
+        return "0%" if metric in _ERROR_METRICS else "0"
     if metric in _ERROR_METRICS:
         pct = 100.0 * e
         return f"{pct:.1f}%" if abs(pct) >= 1 else f"{pct:.2g}%"

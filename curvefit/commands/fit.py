@@ -63,12 +63,15 @@ def print_fit(fit, level: float) -> None:
     out.print(f"{quantity} of {len(sizes)} sizes, {sizes.min():,.0f}–{sizes.max():,.0f} "
               "labelled samples", markup=False)
     out.print(f"ranking (rolling forecast error over the {held} largest size{'s' if held != 1 else ''}; "
-              "near-ties go to pow3/pow2, then to the lower AICc):", markup=False)
+              "near-ties go to pow3/pow2, then to the lower AICc; a 'poor fit' misses the "
+              "measured points, lack of fit = reduced chi-square against their standard errors):",
+              markup=False)
     rows = []
     for r in fit.table.itertuples():
         rows.append(["*" + r.family if r.chosen else " " + r.family, str(r.n_params),
-                     number(r.forecast_error), number(r.aicc, 5), r.status])
-    print_table(["family", "params", "forecast error", "AICc", "status"], rows)
+                     number(r.forecast_error), number(r.aicc, 5), number(r.lack_of_fit, 3),
+                     r.status])
+    print_table(["family", "params", "forecast error", "AICc", "lack of fit", "status"], rows)
     out.print("", markup=False)
     out.print(f"chosen: {fit.best}   {fit.formula}"
               + (f"   (runner-up: {fit.runner_up})" if fit.runner_up else ""), markup=False)
@@ -76,12 +79,8 @@ def print_fit(fit, level: float) -> None:
     prow = [[p.param, number(p.estimate), number(p.low), number(p.high)] for p in params.itertuples()]
     print_table(["parameter", "estimate", f"{level:.0%} low", f"{level:.0%} high"], prow)
     asym, expo = fit.asymptote(level), fit.exponent(level)
-    if asym is not None and asym.low == asym.high == asym.estimate:
-        out.print(f"levels off at: {format_error(asym.estimate, metric)} (fixed by the family)",
-                  markup=False)
-    elif asym is not None:
-        out.print(f"levels off at: {format_error(asym.estimate, metric)} ({level:.0%} interval "
-                  f"{format_error(asym.low, metric)}–{format_error(asym.high, metric)})", markup=False)
+    if asym is not None and math.isfinite(asym.estimate):
+        out.print(f"as n grows, the {quantity} {fit.describe_asymptote(level)}", markup=False)
     if expo is not None:
         out.print(f"decay exponent: {expo.estimate:.3g} ({level:.0%} interval "
                   f"{expo.low:.3g}–{expo.high:.3g})", markup=False)

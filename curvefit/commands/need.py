@@ -98,7 +98,8 @@ def register(app: typer.Typer) -> None:
                 lo_extra = max(answer.low - have, 0.0) if math.isfinite(answer.low) else math.nan
                 hi_extra = max(answer.high - have, 0.0) if not math.isnan(answer.high) else math.nan
                 lines.append(f"You have {have:,.0f} labelled samples; that is about "
-                             f"{format_count(n_extra)} more.")
+                             f"{format_count(n_extra)} more." if n_extra > 0 else
+                             f"You have {have:,.0f} labelled samples, already enough.")
                 if label_cost is not None:
                     price = n_extra * label_cost
                     doc["cost"] = {"extra_labels": n_extra, "cost": price,
@@ -155,11 +156,8 @@ def register(app: typer.Typer) -> None:
         detail = f"Fitted family: {used.best} ({used.formula})"
         if used.runner_up:
             detail += f", runner-up {used.runner_up}"
-        if asym is not None and asym.low == asym.high == asym.estimate:
-            detail += f"; it tends to {format_error(asym.estimate, metric)} (fixed by the family)"
-        elif asym is not None and math.isfinite(asym.estimate):
-            detail += (f"; it levels off at {format_error(asym.estimate, metric)} ({level:.0%} interval "
-                       f"{format_error(asym.low, metric)}–{format_error(asym.high, metric)})")
+        if asym is not None and math.isfinite(asym.estimate):
+            detail += f"; it {used.describe_asymptote(level)}"
         out.print(detail + ".", markup=False)
         for line in lines:
             out.print(line, markup=False)
