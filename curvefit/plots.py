@@ -108,6 +108,35 @@ def model_label(curve: Any, index: int = 0) -> str:
     return f"model {index + 1}"
 
 
+def split_label(curve: Any) -> str:
+    """How a curve's train/test splits were made, in a few words (from its metadata).
+
+    Leaky splits give curves a model never reaches, so every figure and report says
+    which split a curve used.
+    """
+    meta = getattr(curve, "meta", None) or {}
+    split = meta.get("split") if isinstance(meta.get("split"), Mapping) else {}
+    data = meta.get("data") if isinstance(meta.get("data"), Mapping) else {}
+    kind = split.get("kind")
+    unit = " (sizes in groups)" if (meta.get("size_unit") or split.get("size_unit")) == "groups" else ""
+    if kind == "groups":
+        col = meta.get("groups_column") or data.get("groups") or split.get("column")
+        return f"grouped split{f' by {col}' if col else ''}{unit}"
+    if kind == "order":
+        col = meta.get("order_column") or data.get("order") or split.get("column")
+        return f"time-ordered split{f' by {col}' if col else ''}"
+    if kind == "given_test":
+        return "given test set"
+    if kind == "random":
+        return "random stratified split"
+    return "split not recorded"
+
+
+def _split_caption(curves: list) -> str:
+    labels = list(dict.fromkeys(split_label(c) for _, c in curves))
+    return "; ".join(labels)
+
+
 def _fmt_count(v: float) -> str:
     if not np.isfinite(v):
         return "–"
@@ -360,7 +389,7 @@ def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float 
         ax.set_xlim(xmin / 1.25, xmax * 1.25)
         ax.xaxis.set_major_formatter(_count_formatter)
         ax.xaxis.set_minor_formatter(FuncFormatter(lambda v, _p: ""))
-    ax.set_xlabel("labelled samples (training-set size, log scale)")
+    ax.set_xlabel(f"labelled samples (training-set size, log scale) · {_split_caption(items)}")
     ax.set_ylabel(metric_label(metric))
     ax.set_title(title or "Learning curve")
     _legend_outside(ax)
@@ -465,7 +494,7 @@ def gap_figure(curves: Any, lines: Any = None, *, title: str | None = None) -> F
         ax.text(0.5, 0.5, "no training error measured: no gap to draw", transform=ax.transAxes,
                 ha="center", va="center", color=NEUTRAL)
     metric = getattr(items[0][1], "metric", None) if items else None
-    ax.set_xlabel("labelled samples (training-set size, log scale)")
+    ax.set_xlabel(f"labelled samples (training-set size, log scale) · {_split_caption(items)}")
     unit = "(0-1)" if metric_label(metric).endswith("(0-1)") else f"({metric})"
     ax.set_ylabel(f"generalization gap, test − train {unit}")
     ax.set_title(title or "Generalization gap")

@@ -701,7 +701,9 @@ def build_report(results: Any, *, target_error: float | None = None, probe: Any 
                    f"(solid, shaded {interval:.0%} band) and the runner-up (dashed), "
                    f"extrapolated.")]
     for r in res:
-        body.append(f"<h3>{esc(r.label)}</h3>{_curve_table(r)}")
+        body.append(f"<h3>{esc(r.label)}</h3>"
+                    f'<p class="note">Split: {esc(plots.split_label(r.curve))}.</p>'
+                    f"{_curve_table(r)}")
         for n in r.notes:
             body.append(f'<p class="note">{esc(n)}</p>')
     sections.append(("curves", "Learning curves", "".join(body)))

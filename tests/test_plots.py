@@ -237,3 +237,23 @@ def test_save_figure_writes_png_and_svg(tmp_path, measured):
     # the same inputs give the same SVG (no timestamp, fixed ids)
     again = plots.figure_bytes(plots.learning_curve_figure(measured["tree"]), "svg")
     assert again == paths["svg"].read_bytes()
+
+
+def test_split_kind_is_named_on_the_figure_and_in_the_report():
+    # Issue 8: figures and the report say which split a curve used.
+    import pandas as pd
+
+    from curvefit import plots, report
+    from curvefit.curve import Curve
+
+    pts = pd.DataFrame({"size": [20, 20, 40, 40, 80, 80], "repeat": [0, 1] * 3,
+                        "train_error": [0.1] * 6,
+                        "test_error": [0.4, 0.42, 0.3, 0.31, 0.25, 0.26]})
+    grouped = Curve(pts, {"split": {"kind": "groups"}, "groups_column": "site"})
+    ordered = Curve(pts, {"split": {"kind": "order"}, "order_column": "day"})
+    assert plots.split_label(grouped) == "grouped split by site"
+    assert plots.split_label(ordered) == "time-ordered split by day"
+    fig = plots.learning_curve_figure({"a": grouped, "b": ordered})
+    assert "grouped split by site; time-ordered split by day" in fig.axes[0].get_xlabel()
+    html = report.build_report(report.analyse({"a": grouped}, bootstrap=20))
+    assert "Split: grouped split by site." in html
