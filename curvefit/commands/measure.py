@@ -110,8 +110,13 @@ def _print_summary(curve, path: Path) -> None:
     out.print(f"wrote {path} ({len(curve.points)} cells, {n_failed} failed)", markup=False)
 
 
-def run_measure(opts: dict) -> int:
-    """Do the work of the command from merged options; return the exit code."""
+def measure_from_options(opts: dict, *, progress: bool | None = None):
+    """Load, validate and measure what merged options (or a job file) describe.
+
+    The one place that turns option values into a `Curve`: used by ``curvefit measure``
+    and by ``curvefit track --config``. Writes the run file when ``opts["out"]`` is set
+    (the journal goes beside it). Returns ``(curve, out_path or None, caught warnings)``.
+    """
     # data problems are reported before scikit-learn is even imported (it is slow to load)
     from curvefit import data as cfdata
     from curvefit.journal import journal_path
@@ -166,36 +171,48 @@ def run_measure(opts: dict) -> int:
         raise InputError(f"a numeric option is not a number: {exc}") from None
     if not 0 < test_fraction < 1:
         raise InputError(f"--test-fraction must be strictly between 0 and 1, got {test_fraction:g}")
-    out_path = Path(opts["out"])
+    out_path = Path(opts["out"]) if opts.get("out") else None
     data_meta = ds.describe()
     data_meta["path"] = str(opts["data"])
     if opts["test"]:
         data_meta["test_path"] = str(opts["test"])
     meta = {"data": data_meta, "target": ds.target, "features": ds.feature_names,
-            "command_line": "curvefit " + " ".join(shlex.quote(a) for a in sys.argv[1:])}
+            "command_line": "curvefit " + " ".join(shlex.quote(str(a)) for a in sys.argv[1:])}
     if opts["groups"]:
         meta["groups_column"] = str(opts["groups"])
     if opts["order"]:
         meta["order_column"] = str(opts["order"])
-    quiet = bool(opts["quiet"]) or bool(opts["json"])
+    if progress is None:
+        progress = not (bool(opts.get("quiet")) or bool(opts.get("json")))
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         curve = measure(
             spec, ds.X, ds.y, sizes=_sizes(opts["sizes"]), repeats=repeats,
             test_size=test_fraction, X_test=X_test, y_test=y_test, metric=str(opts["metric"]),
             n_jobs=jobs, backend=str(opts["backend"]), scheduler=opts["scheduler"],
-            random_state=seed, journal=journal_path(out_path), resume=bool(opts["resume"]),
+            random_state=seed, journal=journal_path(out_path) if out_path else None,
+            resume=bool(opts["resume"]) and out_path is not None,
             timeout=opts["timeout"], encode=str(opts["encode"]),
             groups=special.get("groups"), order=special.get("order"),
-            size_unit=str(opts["size_unit"]), progress=not quiet, meta=meta)
+            size_unit=str(opts["size_unit"]), progress=progress, meta=meta)
+    if out_path is not None:
+        out_path.parent.mkdir(parents=True, exist_ok=True)
+        curve.write(out_path)
+    return curve, out_path, caught
+
+
+def run_measure(opts: dict) -> int:
+    """Do the work of the command from merged options; return the exit code."""
     from curvefit.errors import FitWarning
+    from curvefit.journal import journal_path
     from curvefit.splits import LeakWarning
 
+    if not opts.get("out"):
+        raise InputError("--out must name the run file to write")
+    curve, out_path, caught = measure_from_options(opts)
     for w in caught:
         if issubclass(w.category, (LeakWarning, FitWarning)):
             warn(str(w.message), bool(opts["quiet"]))
-    out_path.parent.mkdir(parents=True, exist_ok=True)
-    curve.write(out_path)
     n_failed = len(curve.failed_points())
     if opts["json"]:
         emit_json({"run_file": str(out_path), "journal": str(journal_path(out_path)),

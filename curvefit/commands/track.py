@@ -23,7 +23,7 @@ from typing import Any, Optional
 
 import typer
 
-from curvefit.commands._common import emit_json, err, out, parse_list, resolve_job_paths, warn
+from curvefit.commands._common import emit_json, err, out, resolve_job_paths, warn
 from curvefit.errors import InputError
 
 # Job-file keys: the `measure` options (dashes or underscores) plus the tracking ones.
@@ -66,30 +66,6 @@ def read_job(path: str | Path) -> dict:
     return job
 
 
-def _as_list(value: Any, name: str) -> list | None:
-    if value is None:
-        return None
-    if isinstance(value, str):
-        return [v.strip() for v in value.split(",") if v.strip()]
-    if isinstance(value, list):
-        return [str(v) for v in value]
-    raise InputError(f"{name!r} must be a list or a comma-separated string, got {value!r}")
-
-
-def _params(value: Any) -> dict:
-    from curvefit.models import parse_params
-
-    if value is None:
-        return {}
-    if isinstance(value, dict):
-        return dict(value)
-    if isinstance(value, str):
-        value = [value]
-    if isinstance(value, list):
-        return parse_params([str(v) for v in value])
-    raise InputError(f"'param' must be a table {{C = 0.5}} or a list of \"KEY=VALUE\"; got {value!r}")
-
-
 def _int(job: dict, key: str, default: int | None, minimum: int = 0) -> int | None:
     v = job.get(key, default)
     if v is None:
@@ -102,14 +78,11 @@ def _int(job: dict, key: str, default: int | None, minimum: int = 0) -> int | No
 def measure_job(job: dict, *, quiet: bool = False):
     """Measure the learning curve a job file describes (the `measure` step of `track`).
 
-    Same meaning of the keys as ``curvefit measure``; when ``out`` is set the run file
-    is written there with its journal beside it, so ``resume = true`` continues an
-    interrupted nightly run.
+    Same meaning of the keys as ``curvefit measure`` (the same code does the work); when
+    ``out`` is set the run file is written there with its journal beside it, so
+    ``resume = true`` continues an interrupted nightly run.
     """
-    from curvefit import data as cfdata
-    from curvefit import runner
-    from curvefit.journal import journal_path
-    from curvefit.models import resolve_model
+    from curvefit.commands.measure import DEFAULTS, measure_from_options
 
     for key in ("data", "target"):
         if not job.get(key):
@@ -119,75 +92,11 @@ def measure_job(job: dict, *, quiet: bool = False):
         raise InputError("the job file needs 'model' (e.g. \"sklearn.linear_model:LogisticRegression\")")
     if not isinstance(job["target"], str):
         raise InputError(f"'target' must name the label column, got {job['target']!r}")
-    encode = str(job.get("encode", "auto"))
-    if encode not in ("auto", "none"):
-        raise InputError(f"unknown encode {encode!r}; use auto or none")
-    df = cfdata.load_table(job["data"])
-    columns = [str(c) for c in df.columns]
-    special = {}
-    for option in ("groups", "order"):
-        col = job.get(option)
-        if col is None:
-            continue
-        col = str(col)
-        if col == job["target"]:
-            raise InputError(f"the {option!r} column {col!r} is the target; pick another column")
-        if col not in columns:
-            raise InputError(f"{option!r} column {col!r} not in the table; available columns: "
-                             f"{', '.join(columns[:25])}")
-        if df[col].isna().any():
-            raise InputError(f"the {option!r} column {col!r} has missing values; fill them or drop those rows")
-        special[option] = df[col].reset_index(drop=True)
-    ds = cfdata.prepare(df, job["target"], _as_list(job.get("features"), "features"),
-                        drop=tuple(str(job[o]) for o in special))
-    X_test = y_test = None
-    if job.get("test"):
-        tdf = cfdata.load_table(job["test"])
-        missing = [c for c in ds.feature_names + [ds.target] if c not in tdf.columns]
-        if missing:
-            raise InputError(f"the test file {job['test']} lacks the columns "
-                             f"{', '.join(missing[:10])}; it needs the same features and target")
-        tds = cfdata.prepare(tdf, ds.target, ds.feature_names, task=ds.task)
-        X_test, y_test = tds.X, tds.y
-    spec = resolve_model(job.get("model"), _params(job.get("param")), command=job.get("command"),
-                         timeout=job.get("timeout"))
-    sizes = job.get("sizes")
-    if isinstance(sizes, list):
-        sizes = ",".join(str(v) for v in sizes)
-    if sizes is not None:
-        sizes = parse_list(str(sizes), float, name="size", integer_range=True)
-        if any(float(v) != int(v) or v < 1 for v in sizes):
-            raise InputError(f"'sizes' must be whole numbers >= 1, got {job.get('sizes')!r}")
-        sizes = [int(v) for v in sizes]
-    test_fraction = job.get("test_fraction", 0.25)
-    if isinstance(test_fraction, bool) or not isinstance(test_fraction, (int, float)) \
-            or not 0 < test_fraction < 1:
-        raise InputError(f"'test_fraction' must be a number strictly between 0 and 1, got {test_fraction!r}")
-    out_path = Path(job["out"]) if job.get("out") else None
-    data_meta = ds.describe()
-    data_meta["path"] = str(job["data"])
-    if job.get("test"):
-        data_meta["test_path"] = str(job["test"])
-    meta = {"data": data_meta, "target": ds.target, "features": ds.feature_names}
-    for option in special:
-        meta[f"{option}_column"] = str(job[option])
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
-        curve = runner.measure(
-            spec, ds.X, ds.y, sizes=sizes, repeats=_int(job, "repeats", 5, 1),
-            test_size=test_fraction, X_test=X_test, y_test=y_test,
-            metric=str(job.get("metric", "error")), n_jobs=_int(job, "jobs", 1, 1),
-            backend=str(job.get("backend", "local")), scheduler=job.get("scheduler"),
-            random_state=_int(job, "seed", 0),
-            journal=journal_path(out_path) if out_path else None,
-            resume=bool(job.get("resume", False)) and out_path is not None,
-            timeout=job.get("timeout"), encode=encode, groups=special.get("groups"),
-            order=special.get("order"), size_unit=str(job.get("size_unit", "rows")),
-            progress=not quiet and sys.stderr.isatty(), meta=meta)
+    opts = {k: job.get(k, default) for k, default in DEFAULTS.items()}
+    opts.update(param=None, param_config=job.get("param"), out=job.get("out"),
+                quiet=quiet, json=False)
+    curve, _path, caught = measure_from_options(opts, progress=not quiet and sys.stderr.isatty())
     _relay(caught, quiet)
-    if out_path is not None:
-        out_path.parent.mkdir(parents=True, exist_ok=True)
-        curve.write(out_path)
     return curve
 
 
