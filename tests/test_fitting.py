@@ -180,7 +180,9 @@ def test_same_seed_same_numbers(nb):
     c = fit_curve(nb.curve, families="pow3,exp3", bootstrap=40, random_state=8)
     assert a.predict(5000) == b.predict(5000)
     assert a.predict(5000).estimate == c.predict(5000).estimate
-    assert a.predict(5000).low != c.predict(5000).low
+    assert a.parameters().equals(b.parameters())
+    # the prediction band may sit on the measurement-noise floor; the parameters do not
+    assert not np.allclose(a.parameters()["low"], c.parameters()["low"])
 
 
 def test_weights_choices_change_the_fit(nb):
@@ -452,3 +454,16 @@ def test_asymptote_wording_is_clean_and_honest(nb):
     assert pow2.approach == "power" and pow2.describe_asymptote() == "tends to 0% (fixed by the family)"
     a = fit_curve(nb.curve, families="pow3", bootstrap=40).asymptote()
     assert a.estimate == 0.0 or abs(a.estimate) > 1e-9
+
+
+def test_prediction_band_is_no_narrower_than_the_measured_mean(nb_fit):
+    from scipy import stats
+
+    d = nb_fit._state.data
+    scale = np.maximum(np.where(np.isfinite(d.sem), d.sem, np.median(d.sem)), 0.2 * np.median(d.sem))
+    band = nb_fit.predict(d.sizes)
+    for j, row in enumerate(band.itertuples()):
+        k = len(d.cells[j])
+        half = stats.t.ppf(0.95, k - 1) * scale[j]  # Student-t interval of a mean (scipy.stats)
+        assert row.high - row.estimate >= half * (1 - 1e-9)
+        assert row.estimate - row.low >= min(half, row.estimate) * (1 - 1e-9)
