@@ -92,3 +92,17 @@ def test_bad_input_exits_2_with_one_line(files, args):
     assert r.returncode == 2, (args, r.stdout, r.stderr)
     assert "Traceback" not in r.stderr
     assert len(r.stderr.strip().splitlines()) == 1, r.stderr
+
+
+def test_fit_shows_lack_of_fit_and_need_answers_from_measured_means(tmp_path):
+    from test_fitting import plateau_curve
+
+    run = plateau_curve().write(tmp_path / "plateau.json")
+    r = run_cli("fit", run, "--bootstrap", "30")
+    assert r.returncode == 0, r.stderr
+    assert "lack of fit" in r.stdout and "poor fit" in r.stdout
+    r = run_cli("need", run, "--error", "0.3", "--bootstrap", "30")
+    assert r.returncode == 0, r.stderr
+    first = r.stdout.splitlines()[0]
+    assert first.startswith("The measured curve already reaches 30.0% test error at about")
+    assert "between the measured sizes" in first
