@@ -507,6 +507,10 @@ class CurveFit:
             if asym is not None and math.isfinite(asym.estimate):
                 message = (f"A {what} of {tgt} is not reachable by more data with this model: "
                            f"the {what} {self.describe_asymptote(level)}.")
+                if math.isfinite(asym.low) and asym.low <= target:
+                    cautions.append(f"the {level:.0%} interval of that level reaches below the "
+                                    "target, so this is uncertain; larger measured sizes would settle it")
+                    message += " Note: " + cautions[-1] + "."
             else:
                 message = (f"A {what} of {tgt} is not reachable by more data with this model: "
                            f"the fitted curve does not fall that low within {SEARCH_LIMIT:.0e} samples.")
@@ -1513,7 +1517,7 @@ def _fmt_error(e: float, metric: str = "error") -> str:
         return "0%" if metric in _ERROR_METRICS else "0"
     if metric in _ERROR_METRICS:
         pct = 100.0 * e
-        return f"{pct:.1f}%" if abs(pct) >= 1 else f"{pct:.2g}%"
+        return f"{pct:.1f}%" if abs(pct) >= 0.995 else f"{pct:.2g}%"
     return f"{e:.4g}"
 
 
