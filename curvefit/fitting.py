@@ -1059,7 +1059,8 @@ def fit_curve(curve, *, families="auto", on: str = "test", bootstrap: int = 500,
             rss = float(np.sum(data.w * (pred - data.y) ** 2))
             ff.aicc = _aicc(rss, m, ff.family.n_params + 1) if np.isfinite(rss) else math.nan
         if h and ff.status != "failed":
-            _forecast(ff, data, on, range(cut, m))
+            _forecast(ff, data, on, range(cut, m),
+                      drift_from=m - (h if holdout is not None else min(h, max(1, math.ceil(m / 4)))))
 
     for ff in fits.values():
         if not _plausible(ff, data, on):
@@ -1146,14 +1147,16 @@ def _family_list(families, has_train: bool) -> list[str]:
     return list(dict.fromkeys(names))
 
 
-def _forecast(ff: _FamilyFit, data: _Data, on: str, origins) -> None:
+def _forecast(ff: _FamilyFit, data: _Data, on: str, origins, drift_from: int = 0) -> None:
     """Rolling-origin forecast validation of one family.
 
     For each origin c, the family is fitted to the c smallest sizes and forecasts the
     rest; the forecast error is the mean absolute error, averaged over origins. The
     squared errors in excess of the held-out means' own noise, per unit of squared
     log-distance from the origin, give ``drift``: the model error that later widens
-    intervals beyond the measured sizes.
+    intervals beyond the measured sizes. Only origins ``c >= drift_from`` feed ``drift``:
+    an origin fitted on a few sizes forecasts worse than the full fit will, so using it
+    would overstate the full fit's model error.
     """
     errs, rates = [], []
     warm = [ff.theta]
@@ -1175,10 +1178,11 @@ def _forecast(ff: _FamilyFit, data: _Data, on: str, origins) -> None:
         errs.append(float(np.mean(e)))
         dist = np.log(data.sizes[c:] / data.sizes[c - 1])
         noise = np.nan_to_num(data.sem[c:], nan=0.0)
-        rates.extend(np.maximum(e ** 2 - noise ** 2, 0.0) / dist ** 2)
+        if c >= drift_from:
+            rates.extend(np.maximum(e ** 2 - noise ** 2, 0.0) / dist ** 2)
     if errs:
         ff.forecast_error = float(np.mean(errs))
-        ff.drift = float(np.sqrt(np.mean(rates)))
+        ff.drift = float(np.sqrt(np.mean(rates))) if rates else 0.0
 
 
 def _noise_scale(data: "_Data"):
