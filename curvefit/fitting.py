@@ -5,12 +5,19 @@ The engine works on per-size means over repeats:
 1. every family in ``curvefit.families`` is fitted by weighted nonlinear least squares
    (``scipy.optimize.least_squares``, box bounds, analytic Jacobian, several starts
    from linearised guesses);
-2. the family is chosen by forecast validation: the largest quarter of the sizes is
-   held out, each family is fitted to the rest and scored by its mean absolute
-   forecast error; families within a small tolerance of the best are separated by AICc;
-3. the chosen family is refitted to bootstrap resamples (repeats are resampled within
-   each size, each refit warm-started at the full-data solution) and percentile
-   intervals are read off for parameters, predictions and derived quantities.
+2. families that miss the measured points by many standard errors (reduced chi-square
+   far above the best family's) are marked "poor fit" and passed over;
+3. the family is chosen by forecast validation: rolling origins over the largest
+   sizes (a quarter, at least 3 when 4 sizes stay before them), each family fitted to
+   the sizes before the origin and scored by its mean absolute forecast error; families
+   within a small tolerance of the best go to pow3/pow2, then to the lower AICc;
+4. the chosen family is refitted to a parametric bootstrap (each size's mean redrawn
+   with Student-t noise of its standard error, each refit warm-started at the
+   full-data solution) and percentile intervals are read off for parameters,
+   predictions and derived quantities; prediction bands are never narrower than the
+   Student-t interval of the measured mean;
+5. answers inside the measured range come from the measured means; the fitted curve
+   answers only beyond the largest measured size.
 
 Estimates are statistical, not guarantees: they assume the chosen family keeps
 describing the curve beyond the measured sizes.
@@ -69,7 +76,9 @@ class SampleEstimate:
     Attributes
     ----------
     n : float
-        Point estimate of the samples needed (``inf`` when not reachable).
+        Point estimate of the samples needed (``inf`` when not reachable): from the
+        measured means when the target lies within the measured range, else from the
+        fitted curve beyond the largest measured size.
     low, high : float
         Bootstrap percentile interval (``high`` is ``inf`` when some bootstrap curves
         never reach the target; NaN without bootstrap).
