@@ -100,3 +100,21 @@ def resolve_job_paths(job: dict, config_path: str | Path, source: str | None = N
         file_part, _, attr = model.rpartition(":")
         job["model"] = f"{resolve(file_part)}:{attr}"
     return job
+
+
+def print_table(head: list[str], rows: list[list[str]], *, align: str = "right",
+                indent: str = "") -> None:
+    """A plain aligned text table on stdout (no box drawing, so it pastes into logs).
+
+    ``align``: "right" (every column), "left" (every column) or "first-left" (the first
+    column left-aligned, the rest right-aligned, for a label column).
+    """
+    widths = [max([len(h)] + [len(r[i]) for r in rows]) for i, h in enumerate(head)]
+
+    def cell(i: int, c: str, w: int) -> str:
+        left = align == "left" or (align == "first-left" and i == 0)
+        return c.ljust(w) if left else c.rjust(w)
+
+    for r in [head, *rows]:
+        out.print((indent + "  ".join(cell(i, c, w) for i, (c, w) in enumerate(zip(r, widths)))).rstrip(),
+                  markup=False)

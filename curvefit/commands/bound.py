@@ -15,7 +15,7 @@ from typing import Optional
 
 import typer
 
-from curvefit.commands._common import emit_json, out, parse_list
+from curvefit.commands._common import emit_json, out, parse_list, print_table
 from curvefit.errors import InputError
 
 WORST_CASE_NOTE = ("Worst-case bounds: they hold for every data distribution and are "
@@ -64,11 +64,8 @@ def _num(value, digits: int = 4) -> str:
 
 def _print_table(title: str, headers: list[str], rows: list[list[str]], notes: list[str]) -> None:
     """Plain aligned text, every column right-aligned, then the notes."""
-    widths = [max(len(h), *(len(r[i]) for r in rows)) for i, h in enumerate(headers)]
     out.print(title, markup=False)
-    out.print("  ".join(h.rjust(w) for h, w in zip(headers, widths)), markup=False)
-    for r in rows:
-        out.print("  ".join(c.rjust(w) for c, w in zip(r, widths)), markup=False)
+    print_table(headers, rows)
     for note in notes:
         out.print(note, markup=False)
 

@@ -16,7 +16,7 @@ from typing import List, Optional
 
 import typer
 
-from curvefit.commands._common import emit_json, err, out, parse_list
+from curvefit.commands._common import emit_json, err, out, parse_list, print_table
 from curvefit.errors import InputError
 
 
@@ -24,15 +24,6 @@ def _fmt(v, digits: int = 3) -> str:
     if v is None or (isinstance(v, float) and not math.isfinite(v)):
         return "-"
     return f"{v:.{digits}f}" if isinstance(v, float) else str(v)
-
-
-def print_table(head: list[str], rows: list[list[str]]) -> None:
-    """Right-aligned plain table on stdout."""
-    widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h)
-              for i, h in enumerate(head)]
-    out.print("  ".join(h.rjust(w) for h, w in zip(head, widths)), markup=False)
-    for r in rows:
-        out.print("  ".join(c.rjust(w) for c, w in zip(r, widths)), markup=False)
 
 
 def print_estimate(est) -> None:

@@ -10,6 +10,7 @@ from typing import Optional
 import typer
 
 from curvefit.commands._common import emit_json, out, warn
+from curvefit.commands._common import print_table as _print_table
 from curvefit.errors import InputError
 
 ON_HELP = "Quantity to fit: test, train or gap (test − train)."
@@ -17,16 +18,8 @@ WEIGHTS_HELP = "Least-squares weights: sem (inverse variance, floored), index (b
 
 
 def print_table(head: list[str], rows: list[list[str]], indent: str = "  ") -> None:
-    """A plain table on stdout: first column left-aligned, the rest right-aligned."""
-    widths = [max([len(h)] + [len(r[i]) for r in rows]) for i, h in enumerate(head)]
-
-    def line(cells):
-        return indent + "  ".join(c.ljust(w) if i == 0 else c.rjust(w)
-                                  for i, (c, w) in enumerate(zip(cells, widths)))
-
-    out.print(line(head).rstrip(), markup=False)
-    for r in rows:
-        out.print(line(r).rstrip(), markup=False)
+    """The fit tables: first column left-aligned, the rest right-aligned, indented."""
+    _print_table(head, rows, align="first-left", indent=indent)
 
 
 def number(v, digits: int = 4) -> str:

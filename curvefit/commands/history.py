@@ -15,7 +15,7 @@ from typing import Optional
 import pandas as pd
 import typer
 
-from curvefit.commands._common import emit_json, out
+from curvefit.commands._common import emit_json, out, print_table
 from curvefit.errors import InputError
 
 _SHORT = {"test_error_at_ref": "error@ref", "decay_exponent": "decay exp.",
@@ -123,10 +123,7 @@ def _print_series(name: str, config: dict, runs: pd.DataFrame, entries: list) ->
         rows.append([str(int(r["run_id"])), str(r["created"]).replace("T", " ")[:16],
                      _model_short(r["model"])] + [_cell(r, f) + marks[f] for f in figs]
                     + ["—" if pd.isna(code) else str(code)[:8]])
-    widths = [max(len(h), *(len(row[i]) for row in rows)) for i, h in enumerate(headers)]
-    out.print("  ".join(h.ljust(w) for h, w in zip(headers, widths)).rstrip(), markup=False)
-    for row in rows:
-        out.print("  ".join(c.ljust(w) for c, w in zip(row, widths)).rstrip(), markup=False)
+    print_table(headers, rows, align="left")
     if any("*" in c for row in rows for c in row[3:]):
         out.print("* recorded as not gated (see the note in --json)", markup=False)
 

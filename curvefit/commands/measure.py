@@ -15,7 +15,7 @@ from typing import List, Optional
 
 import typer
 
-from curvefit.commands._common import emit_json, out, parse_list, resolve_job_paths, warn
+from curvefit.commands._common import emit_json, out, parse_list, print_table, resolve_job_paths, warn
 from curvefit.errors import InputError
 
 # built-in values of the options a config file may set
@@ -102,10 +102,7 @@ def _print_summary(curve, path: Path) -> None:
     failed_sizes = set(curve.failed_points()["size"]) - {r["size"] for r in rows}
     for s in sorted(failed_sizes):
         table.append([str(s), "-", "-", "-", "-", "all"])
-    widths = [max(len(h), *(len(t[i]) for t in table)) if table else len(h) for i, h in enumerate(head)]
-    out.print("  ".join(h.rjust(w) for h, w in zip(head, widths)), markup=False)
-    for t in table:
-        out.print("  ".join(c.rjust(w) for c, w in zip(t, widths)), markup=False)
+    print_table(head, table)
     n_failed = len(curve.failed_points())
     out.print(f"wrote {path} ({len(curve.points)} cells, {n_failed} failed)", markup=False)
 

@@ -7,7 +7,7 @@ from typing import List, Optional
 
 import typer
 
-from curvefit.commands._common import emit_json, err, out, parse_list
+from curvefit.commands._common import emit_json, err, out, parse_list, print_table
 from curvefit.errors import InputError
 
 
@@ -15,14 +15,6 @@ def _f(v, digits: int = 4) -> str:
     if v is None or (isinstance(v, float) and not math.isfinite(v)):
         return "-"
     return f"{v:.{digits}f}"
-
-
-def _table(head: list[str], rows: list[list[str]]) -> None:
-    widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h)
-              for i, h in enumerate(head)]
-    out.print("  ".join(h.rjust(w) for h, w in zip(head, widths)), markup=False)
-    for r in rows:
-        out.print("  ".join(c.rjust(w) for c, w in zip(r, widths)), markup=False)
 
 
 def print_tradeoff(tr) -> None:
@@ -45,11 +37,11 @@ def print_tradeoff(tr) -> None:
             row.append(("≥ " if r.capacity_above_range else "≈ ") + _f(cap, 1)
                        if cap is not None and math.isfinite(cap) else "-")
         rows.append(row)
-    _table(head, rows)
+    print_table(head, rows)
     out.print("best setting per size (lowest mean test error; values within one standard "
               "error of it):", markup=False)
     best = tr.best_per_size()
-    _table(["size", f"best {tr.param}", "test", "± sem", "within 1 se"],
+    print_table(["size", f"best {tr.param}", "test", "± sem", "within 1 se"],
            [[str(int(b.size)), _label(b.best_value), _f(b.test_mean), _f(b.test_sem),
              ", ".join(_label(v) for v in b.within_1se) or "-"] for b in best.itertuples()])
 
