@@ -554,7 +554,10 @@ class CurveFit:
             if self.approach == "logarithmic" and source == "fitted":
                 cautions.append(f"the {self.best} curve falls only logarithmically, so small "
                                 "changes in its fit move this answer a lot")
-            if math.isinf(high):
+            if math.isinf(high) and source == "measured":
+                cautions.append("within the measured sizes the intervals of the means never "
+                                "fall wholly below the target, so the interval has no upper limit")
+            elif math.isinf(high):
                 cautions.append("some bootstrap curves never reach the target, so the "
                                 "interval has no upper limit")
             if cautions:
