@@ -683,11 +683,18 @@ def _figure_table(rows: Iterable[tuple[str, Figure | None, Figure | None, Figure
 
 def format_figure(f: Figure | None) -> str:
     """``0.0812 [0.0791, 0.0833]`` style text; ``—`` when absent."""
-    if f is None or _nan(f.estimate):
+    if f is None:
         return "—"
-    if _nan(f.low) and _nan(f.high):
-        return _fmt(f.estimate)
-    return f"{_fmt(f.estimate)} [{_fmt(f.low)}, {_fmt(f.high)}]"
+    return format_interval(f.estimate, f.low, f.high)
+
+
+def format_interval(estimate, low, high) -> str:
+    """``estimate [low, high]``; the interval is left out when unknown, ``—`` for no estimate."""
+    if estimate is None or _nan(estimate):
+        return "—"
+    if (low is None or _nan(low)) and (high is None or _nan(high)):
+        return _fmt(estimate)
+    return f"{_fmt(estimate)} [{_fmt(low)}, {_fmt(high)}]"
 
 
 def _fmt(v: float) -> str:
@@ -695,6 +702,6 @@ def _fmt(v: float) -> str:
         return "—"
     if math.isinf(v):
         return "∞" if v > 0 else "−∞"
-    if abs(v) >= 1000:
+    if abs(v) >= 100:  # sample counts and capacities: whole numbers read best
         return f"{v:,.0f}"
     return f"{v:.4g}"

@@ -28,15 +28,11 @@ def _figure_names(runs: pd.DataFrame) -> list[str]:
 
 
 def _cell(row, name: str) -> str:
-    from curvefit.tracking import _fmt
+    from curvefit.tracking import format_interval
 
-    est = row[name]
-    if pd.isna(est):
-        return "—"
-    lo, hi = row[f"{name}_low"], row[f"{name}_high"]
-    if pd.isna(lo) and pd.isna(hi):
-        return _fmt(float(est))
-    return f"{_fmt(float(est))} [{_fmt(float(lo))}, {_fmt(float(hi))}]"
+    est, lo, hi = row[name], row[f"{name}_low"], row[f"{name}_high"]
+    return format_interval(None if pd.isna(est) else float(est),
+                           None if pd.isna(lo) else float(lo), None if pd.isna(hi) else float(hi))
 
 
 def _model_short(text) -> str:
