@@ -59,7 +59,7 @@ def test_fit_vc_curve_recovers_h_and_scale():
 def test_probe_linear_svm_lands_near_d_plus_1(d):
     # VC dimension of linear threshold classifiers with a bias in R^d is d+1
     # (Vapnik & Chervonenkis 1971; Cover 1965). Weak regularisation: C = 100.
-    # Over 8 seeds the estimate spread is about ±10% (notes/capacity.md); seed 0 is fixed.
+    # Over 8 seeds the estimate spread is about ±10% (docs/capacity.md); seed 0 is fixed.
     est = probe_capacity(LinearSVC(C=100.0, max_iter=20000), n_features=d, repeats=8,
                          bootstrap=150, random_state=0)
     assert est.method == "probe" and not est.above_range
