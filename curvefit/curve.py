@@ -109,7 +109,13 @@ class Curve:
 
     @property
     def metric(self) -> str:
-        return str(self.meta.get("metric", "error"))
+        """The loss the curve holds. ``"error"`` is 0-1 error for classifiers; for a
+        regressor the runner resolves it to mean squared error, reported as ``"mse"``."""
+        name = str(self.meta.get("metric", "error"))
+        info = self.meta.get("metric_info")
+        if name == "error" and isinstance(info, dict) and info.get("kind") == "mse":
+            return "mse"
+        return name
 
     @property
     def has_train(self) -> bool:

@@ -99,3 +99,11 @@ def test_numpy_values_in_meta_serialise(tmp_path):
     c = Curve(_curve().points, {"sizes": np.array([20, 40]), "x": np.float64("nan")})
     back = Curve.read(c.write(tmp_path / "r.json"))
     assert back.meta == {"sizes": [20, 40], "x": None}
+
+
+def test_error_of_a_regressor_is_reported_as_mse():
+    # The runner resolves metric "error" to mean squared error for regressors.
+    pts = _curve().points
+    reg = Curve(pts, {"metric": "error", "metric_info": {"name": "error", "kind": "mse"}})
+    clf = Curve(pts, {"metric": "error", "metric_info": {"name": "error", "kind": "zero_one"}})
+    assert reg.metric == "mse" and clf.metric == "error"

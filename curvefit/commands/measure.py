@@ -86,7 +86,7 @@ def _summary_rows(curve) -> list[dict]:
 
 def _print_summary(curve, path: Path) -> None:
     rows = _summary_rows(curve)
-    metric = curve.meta.get("metric", "error")
+    metric = curve.metric
     unit = curve.meta.get("size_unit", "rows")
     out.print(f"learning curve: {curve.meta['model'].get('name', 'model')}, metric {metric} "
               f"(lower is better), split {curve.meta['split']['kind']}, "
