@@ -608,7 +608,7 @@ def probe_capacity(model, X=None, *, n_features: int | None = None, sizes=None,
                         else math.nan for n in ns_sorted])
     misfit = lack_of_fit(xi_means, xi_sems, phi(np.array(ns_sorted, float) / h), n_params=1)
     if not above and math.isfinite(low):
-        low, high = _widen(h, low, high, misfit)
+        low, high = _widen(h, low, high, misfit, bounds=(0.25, 4.0 * max_n))
     notes = [_PROBE_NOTE]
     if pool is None:
         notes.append(f"Inputs were standard normal in {d} dimensions.")
@@ -684,15 +684,26 @@ def lack_of_fit(means, sems, fitted, n_params: int = 1) -> float:
     return float(np.sum(((m[keep] - f[keep]) / e[keep]) ** 2) / dof)
 
 
-def _widen(estimate: float, low: float, high: float, ratio: float) -> tuple[float, float]:
-    """Scale the interval's half-widths on the log scale by sqrt(ratio) when ratio > 1."""
-    if not (math.isfinite(ratio) and ratio > 1 and estimate > 0 and low > 0 and high > 0):
-        return low, high
-    f = math.sqrt(ratio)
-    return estimate * (low / estimate) ** f, estimate * (high / estimate) ** f
+def _widen(estimate: float, low: float, high: float, ratio: float,
+           bounds: tuple[float, float] | None = None) -> tuple[float, float]:
+    """Scale the interval's half-widths on the log scale by sqrt(ratio) when ratio > 1.
+
+    With ``bounds`` (the range h was searched in) the result is clipped to it, and an
+    upper end that reaches the top of the range becomes infinite: the data cannot
+    bound h from above there, and a figure beyond the search range would be invented.
+    """
+    if math.isfinite(ratio) and ratio > 1 and estimate > 0 and low > 0 and high > 0:
+        f = math.sqrt(ratio)
+        low, high = estimate * (low / estimate) ** f, estimate * (high / estimate) ** f
+    if bounds is not None and math.isfinite(low) and math.isfinite(high):
+        low = max(low, bounds[0])
+        high = math.inf if high >= bounds[1] * (1 - 1e-9) else high
+    return low, high
 
 
 def _interval_text(level: float, low: float, high: float) -> str:
+    if math.isfinite(low) and high == math.inf:
+        return f"{level:.0%} interval {_fmt(low)} to no upper limit"
     if not (math.isfinite(low) and math.isfinite(high)):
         return "no interval"
     return f"{level:.0%} interval {_fmt(low)}–{_fmt(high)}"
@@ -851,7 +862,7 @@ def effective_capacity(curve, *, bootstrap: int = 500, random_state: int = 0,
     misfit_vc = lack_of_fit(means, floored, s * phi(sizes / h), n_params=2)
     misfit_pow = lack_of_fit(means, floored, a * sizes ** (-b), n_params=2)
     if math.isfinite(low):
-        low, high = _widen(h, low, high, misfit_vc)
+        low, high = _widen(h, low, high, misfit_vc, bounds=(0.25, h_hi))
     if math.isfinite(b_low) and b > 0 and b_low > 0:
         b_low, b_high = _widen(b, b_low, b_high, misfit_pow)
     exponent = Estimate(b, b_low, b_high, interval)

@@ -307,3 +307,13 @@ def test_cli_bad_files_exit_2(tmp_path):
     pd.DataFrame({"a": [1.0, 2.0, 3.0], "colour": ["r", "g", "b"]}).to_csv(text, index=False)
     line = _one_line_error(run_cli("capacity", "--probe", text, "--model", "sklearn.svm:LinearSVC"))
     assert "colour" in line
+
+
+def test_widened_interval_stays_inside_the_searched_range():
+    # A lack-of-fit widening must not invent capacities outside the range h was searched in.
+    from curvefit.capacity import _widen
+
+    low, high = _widen(10.0, 5.0, 40.0, ratio=25.0, bounds=(0.25, 400.0))
+    assert low >= 0.25 and high == float("inf")
+    low, high = _widen(10.0, 8.0, 12.0, ratio=4.0, bounds=(0.25, 400.0))
+    assert low == pytest.approx(6.4) and high == pytest.approx(14.4)
