@@ -32,3 +32,14 @@ def test_parse_list_forms():
     for bad in ["", "1:2", "a,b", "0:10:3", "10:1:3"]:
         with pytest.raises(InputError):
             parse_list(bad, int)
+
+
+@pytest.mark.parametrize("content, match", [(None, "config file not found"),
+                                            ("target = [unclosed", "not valid TOML")])
+def test_measure_config_problems_are_one_line(cli, tmp_path, content, match):
+    cfg = tmp_path / "job.toml"
+    if content is not None:
+        cfg.write_text(content)
+    r = cli("measure", "--config", cfg)
+    assert r.returncode == 2 and "Traceback" not in r.stderr
+    assert len(r.stderr.strip().splitlines()) == 1 and match in r.stderr

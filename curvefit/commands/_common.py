@@ -118,3 +118,17 @@ def print_table(head: list[str], rows: list[list[str]], *, align: str = "right",
     for r in [head, *rows]:
         out.print((indent + "  ".join(cell(i, c, w) for i, (c, w) in enumerate(zip(r, widths)))).rstrip(),
                   markup=False)
+
+
+def read_toml(path: str | Path, what: str = "config file") -> dict:
+    """Read a TOML job/config file; a missing or malformed file is an `InputError`."""
+    import tomllib
+
+    p = Path(path)
+    if not p.is_file():
+        raise InputError(f"{what} not found: {p}")
+    try:
+        with open(p, "rb") as fh:
+            return tomllib.load(fh)
+    except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError) as exc:
+        raise InputError(f"{p} is not valid TOML: {' '.join(str(exc).split())}") from None

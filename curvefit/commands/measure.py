@@ -15,7 +15,7 @@ from typing import List, Optional
 
 import typer
 
-from curvefit.commands._common import emit_json, out, parse_list, print_table, resolve_job_paths, warn
+from curvefit.commands._common import emit_json, out, parse_list, print_table, read_toml, resolve_job_paths, warn
 from curvefit.errors import InputError
 
 # built-in values of the options a config file may set
@@ -29,16 +29,8 @@ DEFAULTS = {
 
 
 def _read_config(path: str) -> dict:
-    import tomllib
-
     p = Path(path)
-    if not p.is_file():
-        raise InputError(f"config file not found: {path}")
-    try:
-        with open(p, "rb") as fh:
-            doc = tomllib.load(fh)
-    except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError) as exc:
-        raise InputError(f"cannot read config {path}: {' '.join(str(exc).split())}") from None
+    doc = read_toml(p, "config file")
     conf = {}
     for key, value in doc.items():
         name = str(key).replace("-", "_")

@@ -23,7 +23,7 @@ from typing import Any, Optional
 
 import typer
 
-from curvefit.commands._common import emit_json, err, out, resolve_job_paths, warn
+from curvefit.commands._common import emit_json, err, out, read_toml, resolve_job_paths, warn
 from curvefit.errors import InputError
 
 # Job-file keys: the `measure` options (dashes or underscores) plus the tracking ones.
@@ -43,16 +43,8 @@ def read_job(path: str | Path) -> dict:
     A numeric ``target`` is taken as the target error (``target_error``); a string
     ``target`` names the label column, as with ``measure --target``.
     """
-    import tomllib
-
     p = Path(path)
-    if not p.is_file():
-        raise InputError(f"job file not found: {p}")
-    try:
-        with open(p, "rb") as fh:
-            raw = tomllib.load(fh)
-    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
-        raise InputError(f"{p} is not valid TOML: {str(exc).splitlines()[0]}") from None
+    raw = read_toml(p, "job file")
     job: dict[str, Any] = {}
     for key, value in raw.items():
         k = key.replace("-", "_")
