@@ -18,6 +18,7 @@ import numpy as np
 import pandas as pd
 
 from curvefit.errors import InputError
+from curvefit.families import rename_legacy
 
 RUN_FORMAT = "curvefit.run/1"
 
@@ -223,7 +224,8 @@ class Curve:
         if not isinstance(points, list):
             raise InputError(f"{source}: 'points' must be a list of cells")
         df = pd.DataFrame(points) if points else _empty_points()
-        return cls(df, dict(doc.get("meta") or {}))
+        # files written before the families were renamed are read with the new names
+        return cls(df, rename_legacy(dict(doc.get("meta") or {})))
 
     @classmethod
     def from_table(cls, table: "pd.DataFrame | str | os.PathLike", meta: dict | None = None) -> "Curve":

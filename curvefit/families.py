@@ -6,9 +6,9 @@ only uses the attributes defined here, so adding a family is a call to
 :func:`register` in this file and nothing else::
 
     register(Family(
-        name="pow2", formula="a·n^(−b)", params=("a", "b"),
+        name="power-law", formula="a·n^(−b)", params=("a", "b"),
         func=lambda n, t: t[0] * np.exp(-t[1] * np.log(n)),
-        jac=..., lower=(0, 0), upper=(inf, 10), guesses=_guess_pow2,
+        jac=..., lower=(0, 0), upper=(inf, 10), guesses=_power_law_guess,
         asymptote=lambda t: 0.0, exponent=lambda t: t[1]))
 
 This module is pure numerics: it imports neither the command line nor any I/O.
@@ -16,19 +16,20 @@ This module is pure numerics: it imports neither the command line nor any I/O.
 References
 ----------
 .. [1] T. Viering and M. Loog, "The Shape of Learning Curves: A Review", IEEE TPAMI
-       45(6), 2023 (the family catalogue pow2 … wbl4, last1).
+       45(6), 2023 (the family catalogue power-law … weibull, last-value).
 .. [2] T. Domhan, J. T. Springenberg and F. Hutter, "Speeding up automatic
        hyperparameter optimization of deep neural networks by extrapolation of
-       learning curves", IJCAI 2015 (vap3, mmf4, wbl4, pow4, ilog2, log2).
+       learning curves", IJCAI 2015 (vapor-pressure, morgan-mercer-flodin, weibull, shifted-power-law, inverse-log, log-decline).
 .. [3] J. Hestness et al., "Deep Learning Scaling is Predictable, Empirically",
-       arXiv:1712.00409, 2017 (power law with a floor, pow3).
+       arXiv:1712.00409, 2017 (power law with a floor, power-law-floor).
 .. [4] C. Cortes, L. D. Jackel, S. A. Solla, V. Vapnik and J. S. Denker, "Learning
-       curves: asymptotic values and rate of convergence", NIPS 6, 1994 (joint5).
+       curves: asymptotic values and rate of convergence", NIPS 6, 1994 (joint-train-test).
 """
 
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import dataclass, field
 from typing import Callable, Sequence
 
@@ -47,7 +48,7 @@ class Family:
     Attributes
     ----------
     name : str
-        Short name used on the command line (``pow3``).
+        Short name used on the command line (``power-law-floor``).
     formula : str
         The formula in plain text, for tables and reports.
     params : tuple of str
@@ -69,7 +70,7 @@ class Family:
     exponent : callable ``theta -> float`` or None
         The power-law decay exponent where the family has one.
     baseline : bool
-        True for ``last1``: not fitted by least squares, never chosen while a real
+        True for ``last-value``: not fitted by least squares, never chosen while a real
         family converges.
     train_func, train_jac : callable or None
         For a joint family, the train curve and its Jacobian (same ``theta``).
@@ -148,6 +149,75 @@ def family_names() -> list[str]:
     return list(FAMILIES)
 
 
+# Names used by files written before the families got descriptive names (format 0.1).
+# The one place that knows them: readers of run, fit, capacity and history files pass
+# names through `current_name`; `--families` refuses them with the new name.
+LEGACY_NAMES: dict[str, str] = {
+    "last1": "last-value",
+    "pow2": "power-law",
+    "pow3": "power-law-floor",
+    "pow4": "shifted-power-law",
+    "exp3": "exponential-floor",
+    "log2": "log-decline",
+    "ilog2": "inverse-log",
+    "vap3": "vapor-pressure",
+    "mmf4": "morgan-mercer-flodin",
+    "wbl4": "weibull",
+    "joint5": "joint-train-test",
+}
+
+
+def current_name(name):
+    """The family's current name for a name read from a file (old names are mapped).
+
+    Examples
+    --------
+    >>> current_name("pow3"), current_name("weibull"), current_name(None)
+    ('power-law-floor', 'weibull', None)
+    """
+    if isinstance(name, str):
+        return LEGACY_NAMES.get(name, name)
+    return name
+
+
+_NAME_KEYS = ("best", "runner_up", "family", "chosen", "chosen_family")
+
+
+def rename_legacy(doc):
+    """A copy of a JSON document with every old family name replaced by its new one.
+
+    Rewrites the values of the keys that hold a family name (``best``, ``runner_up``,
+    ``family`` …), lists of names under ``families``, and ``family NAME`` inside notes.
+
+    Examples
+    --------
+    >>> rename_legacy({"best": "pow3", "note": "family mmf4; 3 repeats"})
+    {'best': 'power-law-floor', 'note': 'family morgan-mercer-flodin; 3 repeats'}
+    """
+    if isinstance(doc, dict):
+        out = {}
+        for key, value in doc.items():
+            if key in _NAME_KEYS and isinstance(value, str):
+                out[key] = current_name(value)
+            elif key == "families" and isinstance(value, list) \
+                    and all(isinstance(v, str) for v in value):
+                out[key] = [current_name(v) for v in value]
+            else:
+                out[key] = rename_legacy(value)
+        return out
+    if isinstance(doc, list):
+        return [rename_legacy(v) for v in doc]
+    if isinstance(doc, str) and "family " in doc:
+        return _rename_in_text(doc)
+    return doc
+
+
+def _rename_in_text(text: str) -> str:
+    """``family pow3`` (as notes store it) becomes ``family power-law-floor``."""
+    return re.sub(r"\bfamily (\w+)\b",
+                  lambda m: "family " + current_name(m.group(1)), text)
+
+
 # --------------------------------------------------------------------- helpers
 def _ln(n):
     return np.log(np.maximum(n, 1.0))
@@ -208,30 +278,30 @@ def _power_guesses(n, y, w):
     return out
 
 
-# --------------------------------------------------------------------- last1
-def _last1(n, t):
+# --------------------------------------------------------------------- last-value
+def _last_value(n, t):
     return t[0] + 0.0 * np.asarray(n, dtype=float)
 
 
 register(Family(
-    name="last1", formula="the last observed value", params=("value",),
-    func=_last1, jac=lambda n, t: _stack([np.ones_like(_last1(n, t))]),
+    name="last-value", formula="the last observed value", params=("value",),
+    func=_last_value, jac=lambda n, t: _stack([np.ones_like(_last_value(n, t))]),
     lower=(-INF,), upper=(INF,), guesses=lambda n, y, w: [np.array([y[-1]])],
     asymptote=lambda t: float(t[0]), baseline=True,
     reference="Viering & Loog 2023 (baseline)"))
 
 
-# --------------------------------------------------------------------- pow2
-def _pow2(n, t):
+# --------------------------------------------------------------------- power-law
+def _power_law(n, t):
     return t[0] * _npow(n, t[1])
 
 
-def _pow2_jac(n, t):
+def _power_law_jac(n, t):
     e = _npow(n, t[1])
     return _stack([e, -t[0] * _ln(n) * e])
 
 
-def _pow2_guess(n, y, w):
+def _power_law_guess(n, y, w):
     L = _ln(n)
     coef = _linfit([np.ones_like(L), L], np.log(np.maximum(y, _TINY)), w)
     if coef is None:
@@ -240,45 +310,45 @@ def _pow2_guess(n, y, w):
 
 
 register(Family(
-    name="pow2", formula="a·n^(−b)", params=("a", "b"),
-    func=_pow2, jac=_pow2_jac, lower=(0.0, 0.0), upper=(INF, MAX_EXPONENT),
-    guesses=_pow2_guess, asymptote=lambda t: 0.0, exponent=lambda t: float(t[1]),
+    name="power-law", formula="a·n^(−b)", params=("a", "b"),
+    func=_power_law, jac=_power_law_jac, lower=(0.0, 0.0), upper=(INF, MAX_EXPONENT),
+    guesses=_power_law_guess, asymptote=lambda t: 0.0, exponent=lambda t: float(t[1]),
     reference="Viering & Loog 2023"))
 
 
-# --------------------------------------------------------------------- pow3
-def _pow3(n, t):
+# --------------------------------------------------------------------- power-law-floor
+def _power_law_floor(n, t):
     return t[2] + t[0] * _npow(n, t[1])
 
 
-def _pow3_jac(n, t):
+def _power_law_floor_jac(n, t):
     e = _npow(n, t[1])
     return _stack([e, -t[0] * _ln(n) * e, np.ones_like(e)])
 
 
 register(Family(
-    name="pow3", formula="c + a·n^(−b)", params=("a", "b", "c"),
-    func=_pow3, jac=_pow3_jac, lower=(0.0, 0.0, 0.0), upper=(INF, MAX_EXPONENT, INF),
+    name="power-law-floor", formula="c + a·n^(−b)", params=("a", "b", "c"),
+    func=_power_law_floor, jac=_power_law_floor_jac, lower=(0.0, 0.0, 0.0), upper=(INF, MAX_EXPONENT, INF),
     guesses=_power_guesses, levels=("c",),
     asymptote=lambda t: float(t[2]), exponent=lambda t: float(t[1]),
     reference="Hestness et al. 2017; Viering & Loog 2023"))
 
 
-# --------------------------------------------------------------------- pow4
-def _pow4(n, t):
+# --------------------------------------------------------------------- shifted-power-law
+def _shifted_power_law(n, t):
     a, b, alpha, c = t
     u = np.maximum(a * n + b, 1e-300)
     return c + np.exp(np.clip(-alpha * np.log(u), -700.0, 700.0))
 
 
-def _pow4_jac(n, t):
+def _shifted_power_law_jac(n, t):
     a, b, alpha, c = t
     u = np.maximum(a * n + b, 1e-300)
     g = np.exp(np.clip(-alpha * np.log(u), -700.0, 700.0))
     return _stack([-alpha * n * g / u, -alpha * g / u, -np.log(u) * g, np.ones_like(g)])
 
 
-def _pow4_guess(n, y, w):
+def _shifted_power_law_guess(n, y, w):
     out = []
     for A, B, C in _power_guesses(n, y, w):
         # (a·n)^(−α) = A·n^(−B)  ⇒  α = B, a = A^(−1/B)
@@ -290,24 +360,24 @@ def _pow4_guess(n, y, w):
 
 
 register(Family(
-    name="pow4", formula="c + (a·n + b)^(−α)", params=("a", "b", "alpha", "c"),
-    func=_pow4, jac=_pow4_jac, lower=(1e-300, 0.0, 0.0, 0.0),
-    upper=(INF, INF, MAX_EXPONENT, INF), guesses=_pow4_guess, levels=("c",),
+    name="shifted-power-law", formula="c + (a·n + b)^(−α)", params=("a", "b", "alpha", "c"),
+    func=_shifted_power_law, jac=_shifted_power_law_jac, lower=(1e-300, 0.0, 0.0, 0.0),
+    upper=(INF, INF, MAX_EXPONENT, INF), guesses=_shifted_power_law_guess, levels=("c",),
     asymptote=lambda t: float(t[3]), exponent=lambda t: float(t[2]),
     reference="Viering & Loog 2023; Domhan et al. 2015"))
 
 
-# --------------------------------------------------------------------- exp3
-def _exp3(n, t):
+# --------------------------------------------------------------------- exponential-floor
+def _exponential_floor(n, t):
     return t[2] + t[0] * np.exp(np.clip(-t[1] * n, -700.0, 700.0))
 
 
-def _exp3_jac(n, t):
+def _exponential_floor_jac(n, t):
     e = np.exp(np.clip(-t[1] * n, -700.0, 700.0))
     return _stack([e, -t[0] * n * e, np.ones_like(e)])
 
 
-def _exp3_guess(n, y, w):
+def _exponential_floor_guess(n, y, w):
     out = []
     for c in _floor_candidates(y):
         coef = _linfit([np.ones_like(n), n], np.log(np.maximum(y - c, _TINY)), w)
@@ -319,23 +389,23 @@ def _exp3_guess(n, y, w):
 
 
 register(Family(
-    name="exp3", formula="c + a·e^(−b·n)", params=("a", "b", "c"),
-    func=_exp3, jac=_exp3_jac, lower=(0.0, 0.0, 0.0), upper=(INF, INF, INF),
-    guesses=_exp3_guess, levels=("c",), asymptote=lambda t: float(t[2]),
+    name="exponential-floor", formula="c + a·e^(−b·n)", params=("a", "b", "c"),
+    func=_exponential_floor, jac=_exponential_floor_jac, lower=(0.0, 0.0, 0.0), upper=(INF, INF, INF),
+    guesses=_exponential_floor_guess, levels=("c",), asymptote=lambda t: float(t[2]),
     reference="Viering & Loog 2023"))
 
 
-# --------------------------------------------------------------------- log2
-def _log2(n, t):
+# --------------------------------------------------------------------- log-decline
+def _log_decline(n, t):
     return t[1] - t[0] * _ln(n)
 
 
-def _log2_jac(n, t):
+def _log_decline_jac(n, t):
     L = _ln(n)
     return _stack([-L, np.ones_like(L)])
 
 
-def _log2_guess(n, y, w):
+def _log_decline_guess(n, y, w):
     L = _ln(n)
     coef = _linfit([np.ones_like(L), L], y, w)
     if coef is None:
@@ -344,27 +414,27 @@ def _log2_guess(n, y, w):
 
 
 register(Family(
-    name="log2", formula="c − a·ln n", params=("a", "c"),
-    func=_log2, jac=_log2_jac, lower=(0.0, -INF), upper=(INF, INF),
-    guesses=_log2_guess, reference="Viering & Loog 2023; Domhan et al. 2015"))
+    name="log-decline", formula="c − a·ln n", params=("a", "c"),
+    func=_log_decline, jac=_log_decline_jac, lower=(0.0, -INF), upper=(INF, INF),
+    guesses=_log_decline_guess, reference="Viering & Loog 2023; Domhan et al. 2015"))
 
 
-# --------------------------------------------------------------------- ilog2
+# --------------------------------------------------------------------- inverse-log
 def _inv_ln(n):
     # ln 1 = 0 would divide by zero; sizes of one sample are treated as ln 2
     return 1.0 / np.log(np.maximum(n, 2.0))
 
 
-def _ilog2(n, t):
+def _inverse_log(n, t):
     return t[1] + t[0] * _inv_ln(n)
 
 
-def _ilog2_jac(n, t):
+def _inverse_log_jac(n, t):
     q = _inv_ln(n)
     return _stack([q, np.ones_like(q)])
 
 
-def _ilog2_guess(n, y, w):
+def _inverse_log_guess(n, y, w):
     q = _inv_ln(n)
     coef = _linfit([np.ones_like(q), q], y, w)
     if coef is None:
@@ -373,25 +443,25 @@ def _ilog2_guess(n, y, w):
 
 
 register(Family(
-    name="ilog2", formula="c + a/ln n", params=("a", "c"),
-    func=_ilog2, jac=_ilog2_jac, lower=(0.0, 0.0), upper=(INF, INF),
-    guesses=_ilog2_guess, levels=("c",), asymptote=lambda t: float(t[1]),
+    name="inverse-log", formula="c + a/ln n", params=("a", "c"),
+    func=_inverse_log, jac=_inverse_log_jac, lower=(0.0, 0.0), upper=(INF, INF),
+    guesses=_inverse_log_guess, levels=("c",), asymptote=lambda t: float(t[1]),
     reference="Viering & Loog 2023; Domhan et al. 2015",
     # a/ln n halves only when n is squared: c is a limit, not a level reached in practice
     approach="logarithmic"))
 
 
-# --------------------------------------------------------------------- vap3
-def _vap3(n, t):
+# --------------------------------------------------------------------- vapor-pressure
+def _vapor_pressure(n, t):
     return np.exp(np.clip(t[0] + t[1] / n + t[2] * _ln(n), -700.0, 700.0))
 
 
-def _vap3_jac(n, t):
-    f = _vap3(n, t)
+def _vapor_pressure_jac(n, t):
+    f = _vapor_pressure(n, t)
     return _stack([f, f / n, f * _ln(n)])
 
 
-def _vap3_guess(n, y, w):
+def _vapor_pressure_guess(n, y, w):
     L = _ln(n)
     coef = _linfit([np.ones_like(L), 1.0 / n, L], np.log(np.maximum(y, _TINY)), w)
     if coef is None:
@@ -399,27 +469,27 @@ def _vap3_guess(n, y, w):
     return [np.asarray(coef, dtype=float)]
 
 
-def _vap3_asymptote(t):
+def _vapor_pressure_asymptote(t):
     if t[2] < 0:
         return 0.0
     return math.exp(t[0]) if t[2] == 0 else INF
 
 
 register(Family(
-    name="vap3", formula="exp(a + b/n + c·ln n)", params=("a", "b", "c"),
-    func=_vap3, jac=_vap3_jac, lower=(-INF, -INF, -MAX_EXPONENT), upper=(INF, INF, MAX_EXPONENT),
-    guesses=_vap3_guess, asymptote=_vap3_asymptote, exponent=lambda t: float(-t[2]),
+    name="vapor-pressure", formula="exp(a + b/n + c·ln n)", params=("a", "b", "c"),
+    func=_vapor_pressure, jac=_vapor_pressure_jac, lower=(-INF, -INF, -MAX_EXPONENT), upper=(INF, INF, MAX_EXPONENT),
+    guesses=_vapor_pressure_guess, asymptote=_vapor_pressure_asymptote, exponent=lambda t: float(-t[2]),
     reference="Domhan et al. 2015; Viering & Loog 2023"))
 
 
-# --------------------------------------------------------------------- mmf4
-def _mmf4(n, t):
+# --------------------------------------------------------------------- morgan-mercer-flodin
+def _mmf(n, t):
     a, b, c, d = t
     p = np.exp(np.clip(d * _ln(n), -700.0, 700.0))
     return (a * b + c * p) / (b + p)
 
 
-def _mmf4_jac(n, t):
+def _mmf_jac(n, t):
     a, b, c, d = t
     L = _ln(n)
     p = np.exp(np.clip(d * L, -700.0, 700.0))
@@ -428,7 +498,7 @@ def _mmf4_jac(n, t):
     return _stack([b / D, (a - f) / D, p / D, p * L * (c - f) / D])
 
 
-def _mmf4_guess(n, y, w):
+def _mmf_guess(n, y, w):
     out = []
     top = float(np.max(y))
     for A, B, C in _power_guesses(n, y, w)[:3]:
@@ -440,21 +510,21 @@ def _mmf4_guess(n, y, w):
 
 
 register(Family(
-    name="mmf4", formula="(a·b + c·n^d)/(b + n^d)", params=("a", "b", "c", "d"),
-    func=_mmf4, jac=_mmf4_jac, lower=(0.0, 1e-300, 0.0, 0.0),
-    upper=(INF, INF, INF, MAX_EXPONENT), guesses=_mmf4_guess, levels=("a", "c"),
+    name="morgan-mercer-flodin", formula="(a·b + c·n^d)/(b + n^d)", params=("a", "b", "c", "d"),
+    func=_mmf, jac=_mmf_jac, lower=(0.0, 1e-300, 0.0, 0.0),
+    upper=(INF, INF, INF, MAX_EXPONENT), guesses=_mmf_guess, levels=("a", "c"),
     asymptote=lambda t: float(t[2]), exponent=lambda t: float(t[3]),
     reference="Domhan et al. 2015; Viering & Loog 2023"))
 
 
-# --------------------------------------------------------------------- wbl4
-def _wbl4(n, t):
+# --------------------------------------------------------------------- weibull
+def _weibull(n, t):
     a, b, c, d = t
     p = np.exp(np.clip(d * _ln(n), -700.0, 700.0))
     return c - b * np.exp(np.clip(-a * p, -700.0, 700.0))
 
 
-def _wbl4_jac(n, t):
+def _weibull_jac(n, t):
     a, b, c, d = t
     L = _ln(n)
     p = np.exp(np.clip(d * L, -700.0, 700.0))
@@ -462,7 +532,7 @@ def _wbl4_jac(n, t):
     return _stack([b * p * q, -q, np.ones_like(q), b * q * a * p * L])
 
 
-def _wbl4_guess(n, y, w):
+def _weibull_guess(n, y, w):
     out = []
     L = _ln(n)
     for c in _floor_candidates(y)[:3]:
@@ -481,13 +551,13 @@ def _wbl4_guess(n, y, w):
 
 
 register(Family(
-    name="wbl4", formula="c − b·e^(−a·n^d)", params=("a", "b", "c", "d"),
-    func=_wbl4, jac=_wbl4_jac, lower=(0.0, -INF, 0.0, 0.0), upper=(INF, INF, INF, 5.0),
-    guesses=_wbl4_guess, levels=("c",), asymptote=lambda t: float(t[2]),
+    name="weibull", formula="c − b·e^(−a·n^d)", params=("a", "b", "c", "d"),
+    func=_weibull, jac=_weibull_jac, lower=(0.0, -INF, 0.0, 0.0), upper=(INF, INF, INF, 5.0),
+    guesses=_weibull_guess, levels=("c",), asymptote=lambda t: float(t[2]),
     reference="Domhan et al. 2015; Viering & Loog 2023"))
 
 
-# --------------------------------------------------------------------- joint5
+# --------------------------------------------------------------------- joint-train-test
 def _joint_test(n, t):
     a, b, alpha, c, beta = t
     return a + b * _npow(n, alpha)
@@ -531,7 +601,7 @@ def _joint_guess(n, y_test, y_train, w_test=None, w_train=None):
 
 
 register(Family(
-    name="joint5", formula="test = a + b·n^(−α), train = a − c·n^(−β)",
+    name="joint-train-test", formula="test = a + b·n^(−α), train = a − c·n^(−β)",
     params=("a", "b", "alpha", "c", "beta"),
     func=_joint_test, jac=_joint_test_jac, train_func=_joint_train, train_jac=_joint_train_jac,
     lower=(0.0, 0.0, 0.0, 0.0, 0.0), upper=(INF, INF, MAX_EXPONENT, INF, MAX_EXPONENT),

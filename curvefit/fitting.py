@@ -10,7 +10,7 @@ The engine works on per-size means over repeats:
 3. the family is chosen by forecast validation: rolling origins over the largest
    sizes (a quarter, at least 3 when 4 sizes stay before them), each family fitted to
    the sizes before the origin and scored by its mean absolute forecast error; families
-   within a small tolerance of the best go to pow3/pow2, then to the lower AICc;
+   within a small tolerance of the best go to power-law-floor/power-law, then to the lower AICc;
 4. the chosen family is refitted to a parametric bootstrap (each size's mean redrawn
    with Student-t noise of its standard error, each refit warm-started at the
    full-data solution) and percentile intervals are read off for parameters,
@@ -39,7 +39,7 @@ from scipy.special import ndtri
 
 from curvefit.curve import Curve
 from curvefit.errors import FitWarning, InputError
-from curvefit.families import FAMILIES, Family, get_family
+from curvefit.families import FAMILIES, LEGACY_NAMES, Family, current_name, get_family
 from curvefit.results import Estimate
 
 ON_CHOICES = ("test", "train", "gap")
@@ -987,8 +987,8 @@ def fit_curve(curve, *, families="auto", on: str = "test", bootstrap: int = 500,
     curve : Curve or pandas.DataFrame
         The measured curve (a table needs ``size`` and ``test_error``).
     families : "auto", str or list of str
-        Families to try: ``"auto"`` (all registered; ``joint5`` only when the curve has
-        train error), a comma-separated string or a list of names. ``last1`` is always
+        Families to try: ``"auto"`` (all registered; ``joint-train-test`` only when the curve has
+        train error), a comma-separated string or a list of names. ``last-value`` is always
         fitted as the baseline.
     on : {"test", "train", "gap"}
         The quantity fitted: test error, train error, or the gap test − train.
@@ -1009,7 +1009,7 @@ def fit_curve(curve, *, families="auto", on: str = "test", bootstrap: int = 500,
     References
     ----------
     .. [1] T. Viering and M. Loog, "The Shape of Learning Curves: A Review", IEEE TPAMI
-           45(6), 2023 (families; last1 as the baseline).
+           45(6), 2023 (families; last-value as the baseline).
     .. [2] R. L. Figueroa, Q. Zeng-Treitler, S. Kandula and L. H. Ngo, "Predicting
            sample size required for classification performance", BMC Medical
            Informatics and Decision Making 12:8, 2012 (weighted nonlinear least squares
@@ -1025,9 +1025,9 @@ def fit_curve(curve, *, families="auto", on: str = "test", bootstrap: int = 500,
     >>> noise = np.tile([-0.002, 0.0, 0.002], 6)
     >>> curve = Curve.from_table(pd.DataFrame({"size": n,
     ...                          "test_error": 0.05 + 2.0 * n ** -0.6 + noise}))
-    >>> fit = fit_curve(curve, families="pow3", bootstrap=50)
+    >>> fit = fit_curve(curve, families="power-law-floor", bootstrap=50)
     >>> fit.best
-    'pow3'
+    'power-law-floor'
     >>> round(fit.asymptote().estimate, 2)
     0.05
     """
@@ -1084,7 +1084,7 @@ def fit_curve(curve, *, families="auto", on: str = "test", bootstrap: int = 500,
     flat = m >= 1 and float(np.ptp(data.y)) <= 1e-12 * max(1.0, float(np.max(np.abs(data.y))))
     if flat and m >= 2:
         # an exactly constant curve carries no shape; any family would fit rounding noise
-        best, order = "last1", ["last1"] + [k for k in order if k != "last1"]
+        best, order = "last-value", ["last-value"] + [k for k in order if k != "last-value"]
         notes.append(f"the {on} curve is flat at {data.y[-1]:.4g}; the last value is used")
     chosen = fits[best]
     if lof is not None and chosen.status == "poor fit" and not flat:
@@ -1145,7 +1145,12 @@ def _family_list(families, has_train: bool) -> list[str]:
         else:
             names = [str(s).strip() for s in families]
         if not names:
-            raise InputError("empty family list; give names like pow3,exp3 or 'auto'")
+            raise InputError("empty family list; give names like power-law-floor,exponential-floor or 'auto'")
+        renamed = [n for n in names if n in LEGACY_NAMES]
+        if renamed:
+            raise InputError("; ".join(f"family {n!r} is now called {LEGACY_NAMES[n]!r}"
+                                       for n in renamed)
+                             + f"; use --families {','.join(current_name(n) for n in names)}")
         unknown = [n for n in names if n not in FAMILIES]
         if unknown:
             raise InputError(f"unknown curve famil{'y' if len(unknown) == 1 else 'ies'} "
@@ -1154,8 +1159,8 @@ def _family_list(families, has_train: bool) -> list[str]:
             if FAMILIES[n].joint and not has_train:
                 raise InputError(f"family {n} fits train and test error together, but the "
                                  "curve has no train_error; leave it out")
-    if "last1" not in names:
-        names.append("last1")
+    if "last-value" not in names:
+        names.append("last-value")
     return list(dict.fromkeys(names))
 
 
@@ -1273,7 +1278,7 @@ def _plausible(ff: _FamilyFit, data: _Data, on: str) -> bool:
 # compare 3- and 4-parameter families, and the 3-parameter power law is the strong default
 # (Viering & Loog 2023).
 MIN_VALIDATION_POINTS = 4
-DEFAULT_PREFERENCE = ("pow3", "pow2", "joint5")
+DEFAULT_PREFERENCE = ("power-law-floor", "power-law", "joint-train-test")
 # Relative margin of forecast error within which families count as tied (tuned on the
 # bundled-dataset extrapolation benchmark, scripts/bench_extrapolation.py).
 NEAR_TIE = 0.5
@@ -1340,7 +1345,7 @@ def _table(fits: dict, best: str, order: list) -> pd.DataFrame:
     for k in ranked:
         ff = fits[k]
         rows.append({
-            "family": k, "n_params": ff.family.n_params,
+            "family": k, "formula": ff.family.formula, "n_params": ff.family.n_params,
             "params": ({p: float(v) for p, v in zip(ff.family.params, ff.theta)}
                        if ff.theta is not None else {}),
             "forecast_error": float(ff.forecast_error), "aicc": float(ff.aicc),
@@ -1348,7 +1353,7 @@ def _table(fits: dict, best: str, order: list) -> pd.DataFrame:
             "lack_of_fit": float(ff.lack_of_fit),
         })
     return pd.DataFrame(rows, columns=["family", "n_params", "params", "forecast_error", "aicc",
-                                       "status", "chosen", "message", "lack_of_fit"])
+                                       "status", "chosen", "message", "lack_of_fit", "formula"])
 
 
 def _bootstrap(chosen: _FamilyFit, data: _Data, B: int, rng: np.random.Generator):

@@ -61,7 +61,7 @@ def plan_purchase(fit, *, current_n, extra: Iterable[float], cost_per_label=None
     >>> n = np.repeat([100, 200, 400, 800, 1600], 3)
     >>> e = 0.1 + 3 * n ** -0.5 + np.tile([-0.003, 0.0, 0.003], 5)
     >>> fit = fit_curve(Curve.from_table(pd.DataFrame({"size": n, "test_error": e})),
-    ...                 families="pow3", bootstrap=50)
+    ...                 families="power-law-floor", bootstrap=50)
     >>> plan = plan_purchase(fit, current_n=1600, extra=[1000, 5000], cost_per_label=0.5)
     >>> plan["cost"].tolist()
     [500.0, 2500.0]

@@ -35,6 +35,7 @@ import pandas as pd
 from curvefit import tracking
 from curvefit.curve import POINT_COLUMNS, Curve, _jsonable
 from curvefit.errors import InputError
+from curvefit.families import rename_legacy
 
 # "cfhs" (curvefit history store) as a 32-bit integer: marks the file as ours.
 APPLICATION_ID = 0x63666873
@@ -468,7 +469,8 @@ class Store:
         rows = self._query("SELECT name, estimate, low, high, level, better, note FROM headline"
                            " WHERE run_id = ? ORDER BY rowid", (int(run_id),))
         return {r[0]: tracking.Figure(r[0], _unnull(r[1]), _unnull(r[2]), _unnull(r[3]),
-                                      float(r[4] if r[4] is not None else 0.9), r[5], r[6] or "")
+                                      float(r[4] if r[4] is not None else 0.9), r[5],
+                                      rename_legacy(r[6] or ""))
                 for r in rows}
 
     def curve(self, run_id: int) -> Curve:
@@ -485,13 +487,13 @@ class Store:
                 rec.update(json.loads(p[9]))
             records.append(rec)
         df = pd.DataFrame(records) if records else pd.DataFrame(columns=POINT_COLUMNS)
-        return Curve(df, json.loads(row["meta"]))
+        return Curve(df, rename_legacy(json.loads(row["meta"])))
 
     def fit_summary(self, run_id: int) -> dict | None:
         """The stored fit summary (``fit.to_dict()``) of one run, or None."""
         self._run_row(run_id)
         rows = self._query("SELECT summary FROM fits WHERE run_id = ?", (int(run_id),))
-        return json.loads(rows[0][0]) if rows else None
+        return rename_legacy(json.loads(rows[0][0])) if rows else None
 
     def _run_row(self, run_id: Any) -> dict:
         try:

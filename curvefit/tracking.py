@@ -357,7 +357,7 @@ def decay_figure(exponent: Estimate, interval: float = 0.9, family: str | None =
     `CurveFit.exponent` already reports the decay rate ``b`` of ``a·n^(−b)`` (``b > 0``
     for a falling curve), which is ``−β`` in Hestness et al.'s ``α·n^β``; it is kept
     as is, so a rising curve shows up as a negative (and therefore worse) value.
-    The chosen family is kept in the note (``family pow3``): exponents of different
+    The chosen family is kept in the note (``family power-law-floor``): exponents of different
     families are different parameters, and are not gated against each other.
 
     Examples

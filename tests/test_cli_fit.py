@@ -28,7 +28,7 @@ def test_fit_prints_ranking_and_predictions(files):
     assert r.returncode == 0, r.stderr
     assert "ranking" in r.stdout and "chosen:" in r.stdout
     assert "(2×)" in r.stdout and "(10×)" in r.stdout
-    for fam in ["pow3", "last1", "joint5"]:
+    for fam in ["power-law-floor", "last-value", "joint-train-test"]:
         assert fam in r.stdout
 
 
@@ -44,12 +44,12 @@ def test_fit_json_on_a_run_file(files):
 
 
 def test_fit_gap_with_chosen_families(files):
-    r = run_cli("fit", files["csv"], "--on", "gap", "--families", "pow2,pow3", "--bootstrap", "20",
+    r = run_cli("fit", files["csv"], "--on", "gap", "--families", "power-law,power-law-floor", "--bootstrap", "20",
                 "--weights", "index", "--json")
     assert r.returncode == 0, r.stderr
     doc = json.loads(r.stdout)
     assert doc["on"] == "gap"
-    assert {f["family"] for f in doc["families"]} == {"pow2", "pow3", "last1"}
+    assert {f["family"] for f in doc["families"]} == {"power-law", "power-law-floor", "last-value"}
 
 
 def test_need_answers_first_then_prices(files):
@@ -77,7 +77,7 @@ def test_need_json_with_vc_dimension(files):
     ["fit", "{dir}/missing.csv"],
     ["fit", "{broken}"],
     ["fit", "{csv}", "--on", "middle"],
-    ["fit", "{csv}", "--families", "pow3,nope"],
+    ["fit", "{csv}", "--families", "power-law-floor,nope"],
     ["fit", "{csv}", "--weights", "heavy"],
     ["fit", "{test_only}", "--on", "gap"],
     ["need", "{csv}"],

@@ -15,24 +15,24 @@ N = np.array([20.0, 50.0, 130.0, 400.0, 1500.0, 6000.0])
 
 # parameter vectors inside each family's bounds, shaped like decreasing error curves
 THETAS = {
-    "last1": [0.12],
-    "pow2": [1.3, 0.45],
-    "pow3": [2.0, 0.6, 0.05],
-    "pow4": [0.02, 0.3, 0.7, 0.04],
-    "exp3": [0.3, 0.004, 0.06],
-    "log2": [0.02, 0.3],
-    "ilog2": [0.5, 0.02],
-    "vap3": [-0.5, 8.0, -0.3],
-    "mmf4": [0.5, 30.0, 0.05, 0.8],
-    "wbl4": [0.2, -0.4, 0.05, 0.5],
-    "joint5": [0.05, 1.5, 0.5, 0.8, 0.6],
+    "last-value": [0.12],
+    "power-law": [1.3, 0.45],
+    "power-law-floor": [2.0, 0.6, 0.05],
+    "shifted-power-law": [0.02, 0.3, 0.7, 0.04],
+    "exponential-floor": [0.3, 0.004, 0.06],
+    "log-decline": [0.02, 0.3],
+    "inverse-log": [0.5, 0.02],
+    "vapor-pressure": [-0.5, 8.0, -0.3],
+    "morgan-mercer-flodin": [0.5, 30.0, 0.05, 0.8],
+    "weibull": [0.2, -0.4, 0.05, 0.5],
+    "joint-train-test": [0.05, 1.5, 0.5, 0.8, 0.6],
 }
 
 
 def test_catalogue_has_the_published_families():
-    # Viering & Loog 2023 (IEEE TPAMI 45(6)) list these; joint5 is Cortes et al. 1994
-    for name in ["last1", "pow2", "pow3", "pow4", "exp3", "log2", "ilog2", "vap3", "mmf4",
-                 "wbl4", "joint5"]:
+    # Viering & Loog 2023 (IEEE TPAMI 45(6)) list these; joint-train-test is Cortes et al. 1994
+    for name in ["last-value", "power-law", "power-law-floor", "shifted-power-law", "exponential-floor", "log-decline", "inverse-log", "vapor-pressure", "morgan-mercer-flodin",
+                 "weibull", "joint-train-test"]:
         fam = F.get_family(name)
         assert fam.n_params == len(fam.lower) == len(fam.upper) == len(THETAS[name])
     with pytest.raises(KeyError):
@@ -70,31 +70,31 @@ def test_batched_evaluation_equals_one_at_a_time(name):
 def test_formulas_match_the_written_forms():
     # the formulas as written in Viering & Loog 2023 / Domhan et al. 2015 (from memory)
     n = 250.0
-    a, b, c = THETAS["pow3"]
-    assert F.get_family("pow3")(n, THETAS["pow3"]) == pytest.approx(c + a * n ** -b)
-    a, b, al, c = THETAS["pow4"]
-    assert F.get_family("pow4")(n, THETAS["pow4"]) == pytest.approx(c + (a * n + b) ** -al)
-    a, b, c = THETAS["exp3"]
-    assert F.get_family("exp3")(n, THETAS["exp3"]) == pytest.approx(c + a * math.exp(-b * n))
-    a, b, c = THETAS["vap3"]
-    assert F.get_family("vap3")(n, THETAS["vap3"]) == pytest.approx(math.exp(a + b / n + c * math.log(n)))
-    a, b, c, d = THETAS["mmf4"]
-    assert F.get_family("mmf4")(n, THETAS["mmf4"]) == pytest.approx((a * b + c * n ** d) / (b + n ** d))
-    a, b, c, d = THETAS["wbl4"]
-    assert F.get_family("wbl4")(n, THETAS["wbl4"]) == pytest.approx(c - b * math.exp(-a * n ** d))
-    a, c = THETAS["ilog2"]
-    assert F.get_family("ilog2")(n, THETAS["ilog2"]) == pytest.approx(c + a / math.log(n))
+    a, b, c = THETAS["power-law-floor"]
+    assert F.get_family("power-law-floor")(n, THETAS["power-law-floor"]) == pytest.approx(c + a * n ** -b)
+    a, b, al, c = THETAS["shifted-power-law"]
+    assert F.get_family("shifted-power-law")(n, THETAS["shifted-power-law"]) == pytest.approx(c + (a * n + b) ** -al)
+    a, b, c = THETAS["exponential-floor"]
+    assert F.get_family("exponential-floor")(n, THETAS["exponential-floor"]) == pytest.approx(c + a * math.exp(-b * n))
+    a, b, c = THETAS["vapor-pressure"]
+    assert F.get_family("vapor-pressure")(n, THETAS["vapor-pressure"]) == pytest.approx(math.exp(a + b / n + c * math.log(n)))
+    a, b, c, d = THETAS["morgan-mercer-flodin"]
+    assert F.get_family("morgan-mercer-flodin")(n, THETAS["morgan-mercer-flodin"]) == pytest.approx((a * b + c * n ** d) / (b + n ** d))
+    a, b, c, d = THETAS["weibull"]
+    assert F.get_family("weibull")(n, THETAS["weibull"]) == pytest.approx(c - b * math.exp(-a * n ** d))
+    a, c = THETAS["inverse-log"]
+    assert F.get_family("inverse-log")(n, THETAS["inverse-log"]) == pytest.approx(c + a / math.log(n))
     # Cortes et al. 1994: test = a + b/n^α, train = a − c/n^β share the asymptote a
-    fam = F.get_family("joint5")
-    a, b, al, cc, be = THETAS["joint5"]
-    assert fam.func(np.array([n]), THETAS["joint5"])[0] == pytest.approx(a + b * n ** -al)
-    assert fam.train_func(np.array([n]), THETAS["joint5"])[0] == pytest.approx(a - cc * n ** -be)
+    fam = F.get_family("joint-train-test")
+    a, b, al, cc, be = THETAS["joint-train-test"]
+    assert fam.func(np.array([n]), THETAS["joint-train-test"])[0] == pytest.approx(a + b * n ** -al)
+    assert fam.train_func(np.array([n]), THETAS["joint-train-test"])[0] == pytest.approx(a - cc * n ** -be)
     big = np.array([1e12])
-    assert fam.func(big, THETAS["joint5"])[0] == pytest.approx(a, abs=1e-4)
-    assert fam.train_func(big, THETAS["joint5"])[0] == pytest.approx(a, abs=1e-4)
+    assert fam.func(big, THETAS["joint-train-test"])[0] == pytest.approx(a, abs=1e-4)
+    assert fam.train_func(big, THETAS["joint-train-test"])[0] == pytest.approx(a, abs=1e-4)
 
 
-@pytest.mark.parametrize("name", [k for k in THETAS if k != "joint5"])
+@pytest.mark.parametrize("name", [k for k in THETAS if k != "joint-train-test"])
 def test_guesses_are_finite_on_a_measured_curve(name):
     from test_fitting import measured_curve
 
@@ -122,7 +122,7 @@ def test_adding_a_family_needs_no_change_elsewhere():
     try:
         from test_fitting import measured_curve
 
-        fit = fit_curve(measured_curve("digits_nb").curve, families="hyp2,pow3", bootstrap=20)
+        fit = fit_curve(measured_curve("digits_nb").curve, families="hyp2,power-law-floor", bootstrap=20)
         assert "hyp2" in set(fit.table["family"])
         row = fit.table.set_index("family").loc["hyp2"]
         assert row["status"] in ("converged", "poorly determined")

@@ -74,7 +74,7 @@ def nb_fit(nb):
 
 
 # ------------------------------------------------------------------ outside checks
-@pytest.mark.parametrize("family", ["pow3", "exp3", "vap3", "pow2"])
+@pytest.mark.parametrize("family", ["power-law-floor", "exponential-floor", "vapor-pressure", "power-law"])
 def test_weighted_least_squares_agrees_with_scipy_curve_fit(nb, family):
     # reference: scipy.optimize.curve_fit on the same weighted problem (sigma = 1/√w)
     fit = fit_curve(nb.curve, families=family, bootstrap=0)
@@ -96,7 +96,7 @@ def test_weighted_least_squares_agrees_with_scipy_curve_fit(nb, family):
 def test_index_weights_follow_figueroa(nb):
     # Figueroa et al. 2012 (BMC Med. Inform. Decis. Mak. 12:8): weights grow with the
     # point's index (proportional to index: from memory)
-    fit = fit_curve(nb.curve, families="pow3", weights="index", bootstrap=0)
+    fit = fit_curve(nb.curve, families="power-law-floor", weights="index", bootstrap=0)
     w = fit._state.data.w
     np.testing.assert_allclose(w / w[0], np.arange(1, len(w) + 1))
 
@@ -105,16 +105,16 @@ def test_joint_family_puts_the_shared_asymptote_between_train_and_test():
     # Cortes et al. 1994 (NIPS 6): train error rises and test error falls to one
     # asymptote a, so a lies between the two curves at the largest size
     bc = measured_curve("bc_tree")
-    fit = fit_curve(bc.curve, families="joint5", bootstrap=30)
-    row = fit.table.set_index("family").loc["joint5"]
+    fit = fit_curve(bc.curve, families="joint-train-test", bootstrap=30)
+    row = fit.table.set_index("family").loc["joint-train-test"]
     a = row["params"]["a"]
     last = bc.summary_frame.iloc[-1]
     assert last["train_mean"] - 1e-9 <= a <= last["test_mean"] + 0.02
     # naive Bayes has a rising train error: the train component stays below the asymptote
     nb = measured_curve("digits_nb")
-    train_fit = fit_curve(nb.curve, families="joint5", on="train", bootstrap=0)
-    assert train_fit.best == "joint5"
-    a_nb = train_fit.table.set_index("family").loc["joint5", "params"]["a"]
+    train_fit = fit_curve(nb.curve, families="joint-train-test", on="train", bootstrap=0)
+    assert train_fit.best == "joint-train-test"
+    a_nb = train_fit.table.set_index("family").loc["joint-train-test", "params"]["a"]
     assert train_fit.predict(10 * train_fit.largest_size).estimate <= a_nb + 1e-9
 
 
@@ -128,9 +128,9 @@ def test_curvefit_contract(nb_fit):
     assert fit.table["chosen"].sum() == 1
     assert fit.table.iloc[0]["family"] == fit.best
     assert set(fit.table["status"]) <= {"converged", "poorly determined", "poor fit", "failed"}
-    assert {"last1", "pow3", "joint5"} <= set(fit.table["family"])
+    assert {"last-value", "power-law-floor", "joint-train-test"} <= set(fit.table["family"])
     assert fit.runner_up is None or fit.runner_up in set(fit.table["family"])
-    assert fit.best != "last1"
+    assert fit.best != "last-value"
     assert "CurveFit(" in repr(fit) and fit.best in repr(fit)
     json.dumps(_jsonable(fit.to_dict()), allow_nan=False)
 
@@ -159,12 +159,12 @@ def test_parameters_asymptote_exponent(nb_fit):
     a = nb_fit.asymptote()
     if a is not None:
         assert a.low <= a.high
-    for name in ["pow3", "pow2", "exp3", "log2"]:
+    for name in ["power-law-floor", "power-law", "exponential-floor", "log-decline"]:
         f = fit_curve(measured_curve("digits_nb").curve, families=name, bootstrap=10)
         if f.best != name:
             continue
-        assert (f.exponent() is not None) == (name in ("pow3", "pow2"))
-        assert (f.asymptote() is None) == (name == "log2")
+        assert (f.exponent() is not None) == (name in ("power-law-floor", "power-law"))
+        assert (f.asymptote() is None) == (name == "log-decline")
 
 
 def test_predict_family_draws_any_fitted_family(nb_fit):
@@ -175,9 +175,9 @@ def test_predict_family_draws_any_fitted_family(nb_fit):
 
 
 def test_same_seed_same_numbers(nb):
-    a = fit_curve(nb.curve, families="pow3,exp3", bootstrap=40, random_state=7)
-    b = fit_curve(nb.curve, families="pow3,exp3", bootstrap=40, random_state=7)
-    c = fit_curve(nb.curve, families="pow3,exp3", bootstrap=40, random_state=8)
+    a = fit_curve(nb.curve, families="power-law-floor,exponential-floor", bootstrap=40, random_state=7)
+    b = fit_curve(nb.curve, families="power-law-floor,exponential-floor", bootstrap=40, random_state=7)
+    c = fit_curve(nb.curve, families="power-law-floor,exponential-floor", bootstrap=40, random_state=8)
     assert a.predict(5000) == b.predict(5000)
     assert a.predict(5000).estimate == c.predict(5000).estimate
     assert a.parameters().equals(b.parameters())
@@ -186,9 +186,9 @@ def test_same_seed_same_numbers(nb):
 
 
 def test_weights_choices_change_the_fit(nb):
-    fits = {w: fit_curve(nb.curve, families="pow3", weights=w, bootstrap=0) for w in
+    fits = {w: fit_curve(nb.curve, families="power-law-floor", weights=w, bootstrap=0) for w in
             ["sem", "index", "none"]}
-    vals = {w: tuple(np.round(f._state.fits["pow3"].theta, 8)) for w, f in fits.items()}
+    vals = {w: tuple(np.round(f._state.fits["power-law-floor"].theta, 8)) for w, f in fits.items()}
     assert len(set(vals.values())) == 3
 
 
@@ -205,8 +205,8 @@ def test_gap_and_train_fits(nb):
 
 # ------------------------------------------------------------------ answers
 def test_samples_for_inverts_predict(nb):
-    # pow2 tends to 0; a target below every measured mean is answered from the fitted curve
-    nb_fit = fit_curve(nb.curve, families="pow2", bootstrap=60, random_state=1)
+    # power-law tends to 0; a target below every measured mean is answered from the fitted curve
+    nb_fit = fit_curve(nb.curve, families="power-law", bootstrap=60, random_state=1)
     target = 0.6 * min(nb_fit.predict(nb_fit.largest_size).estimate,
                        float(nb_fit.curve.summary()["test_mean"].min()))
     s = nb_fit.samples_for(test_error=target)
@@ -218,7 +218,7 @@ def test_samples_for_inverts_predict(nb):
 
 
 def test_target_below_the_asymptote_is_not_reachable(nb):
-    fit = fit_curve(nb.curve, families="pow3", bootstrap=60)
+    fit = fit_curve(nb.curve, families="power-law-floor", bootstrap=60)
     asym = fit.asymptote()
     assert asym is not None and asym.low > 0.01, asym  # naive Bayes levels off well above 1%
     s = fit.samples_for(test_error=0.5 * asym.low)
@@ -265,14 +265,14 @@ def test_warning_wide_interval_and_long_extrapolation():
     # 3 sizes of the tree curve: an interval wider than the estimate at 10×
     bc = measured_curve("bc_tree").table
     few = bc[bc["size"].isin(sorted(bc["size"].unique())[:4])]
-    fit = fit_curve(Curve.from_table(few), families="pow3", bootstrap=60)
+    fit = fit_curve(Curve.from_table(few), families="power-law-floor", bootstrap=60)
     s = fit.samples_for(test_error=0.01)
     assert (not s.reachable) or s.warnings or any("wider" in w for w in fit.warnings)
 
 
 def test_bad_arguments_raise_input_error(nb):
     for kwargs in [{"on": "middle"}, {"weights": "heavy"}, {"bootstrap": -1},
-                   {"families": "pow3,nope"}, {"families": ""}]:
+                   {"families": "power-law-floor,nope"}, {"families": ""}]:
         with pytest.raises(InputError):
             fit_curve(nb.curve, **kwargs)
     with pytest.raises(InputError):
@@ -337,7 +337,7 @@ def test_odd_finite_curves_give_a_result(table, on):
 def test_extrapolation_from_a_quarter_of_the_pool():
     # measured check on scikit-learn's bundled digits and breast cancer data (naive Bayes,
     # k-NN, decision tree): fit the sizes <= 25% of the pool, predict the measured error at
-    # the full pool. Seen when written: 2 of 3 intervals cover; chosen MAE 0.038 vs last1 0.042.
+    # the full pool. Seen when written: 2 of 3 intervals cover; chosen MAE 0.038 vs last-value 0.042.
     covered, err_fit, err_last = [], [], []
     for key in ["digits_nb", "digits_knn", "bc_tree"]:
         c = measured_curve(key).curve
@@ -384,11 +384,11 @@ def test_lack_of_fit_keeps_families_that_miss_the_points_out(plateau_fit, nb_fit
         assert (poor["lack_of_fit"] > max(LACK_OF_FIT_FLOOR, LACK_OF_FIT_RATIO * best)).all()
         assert all("misses the measured points" in m for m in poor["message"])
         row = t[t["chosen"]].iloc[0]
-        fine = t[(t["status"] == "converged") & (t["family"] != "last1")]
+        fine = t[(t["status"] == "converged") & (t["family"] != "last-value")]
         if len(fine):
             assert row["status"] != "poor fit", t
     # the sharp drop at ~50 samples is missed by the smooth 2- and 3-parameter laws
-    assert (plateau_fit.table.set_index("family").loc[["pow2", "pow3"], "status"] == "poor fit").all()
+    assert (plateau_fit.table.set_index("family").loc[["power-law", "power-law-floor"], "status"] == "poor fit").all()
 
 
 def test_lack_of_fit_is_reduced_chi_square(nb_fit):
@@ -396,8 +396,8 @@ def test_lack_of_fit_is_reduced_chi_square(nb_fit):
 
     d = nb_fit._state.data
     scale = _noise_scale(d)
-    row = nb_fit.table[nb_fit.table["family"] == "pow3"].iloc[0]
-    pred = nb_fit.predict_family("pow3", d.sizes)
+    row = nb_fit.table[nb_fit.table["family"] == "power-law-floor"].iloc[0]
+    pred = nb_fit.predict_family("power-law-floor", d.sizes)
     chi2 = float(np.sum(((pred - d.y) / scale) ** 2))
     # reduced chi-square χ²/(m − p) (Bevington & Robinson 2003, ch. 11)
     assert row["lack_of_fit"] == pytest.approx(chi2 / (d.m - 3), rel=1e-9)
@@ -429,9 +429,9 @@ def test_fitted_answers_start_beyond_the_largest_size(plateau_fit):
 def test_parametric_bootstrap_matches_student_t_for_one_mean(nb):
     from scipy import stats
 
-    # last1 is the last mean; its bootstrap interval should be Student's t interval of
+    # last-value is the last mean; its bootstrap interval should be Student's t interval of
     # that mean (scipy.stats.t), not the narrower resampled-repeats one
-    fit = fit_curve(nb.curve, families="last1", bootstrap=3000, random_state=3)
+    fit = fit_curve(nb.curve, families="last-value", bootstrap=3000, random_state=3)
     d = fit._state.data
     k = len(d.cells[-1])
     lo, hi = stats.t.interval(0.9, k - 1, loc=d.y[-1], scale=max(d.sem[-1], 0.2 * np.median(d.sem)))
@@ -444,15 +444,15 @@ def test_asymptote_wording_is_clean_and_honest(nb):
 
     assert format_error(2.6e-13) == "0%" and format_error(-1e-12) == "0%"
     assert format_error(0.0123) == "1.2%"
-    fit = fit_curve(nb.curve, families="ilog2", bootstrap=40)
+    fit = fit_curve(nb.curve, families="inverse-log", bootstrap=40)
     assert fit.approach == "logarithmic"
     text = fit.describe_asymptote()
     assert "only logarithmically" in text and "ln n → ∞" in text and "levels off" not in text
     s = fit.samples_for(test_error=0.5 * fit.asymptote().estimate)
     assert not s.reachable and "only logarithmically" in s.message
-    pow2 = fit_curve(nb.curve, families="pow2", bootstrap=0)
-    assert pow2.approach == "power" and pow2.describe_asymptote() == "tends to 0% (fixed by the family)"
-    a = fit_curve(nb.curve, families="pow3", bootstrap=40).asymptote()
+    plain = fit_curve(nb.curve, families="power-law", bootstrap=0)
+    assert plain.approach == "power" and plain.describe_asymptote() == "tends to 0% (fixed by the family)"
+    a = fit_curve(nb.curve, families="power-law-floor", bootstrap=40).asymptote()
     assert a.estimate == 0.0 or abs(a.estimate) > 1e-9
 
 

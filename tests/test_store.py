@@ -248,7 +248,7 @@ def test_migration_from_v1_keeps_data(tmp_path):
     for s, e in [(50, 0.2), (200, 0.1)]:
         con.execute("INSERT INTO points (run_id, size, repeat, test_error, status)"
                     " VALUES (1, ?, 0, ?, 'ok')", (s, e))
-    con.execute("INSERT INTO fits VALUES (1, ?)", (json.dumps({"best": "pow3"}),))
+    con.execute("INSERT INTO fits VALUES (1, ?)", (json.dumps({"best": "power-law-floor"}),))
     con.execute("INSERT INTO headline VALUES (1, 'test_error_at_ref', 0.1, 0.09, 0.11, 0.9)")
     con.execute("INSERT INTO headline VALUES (1, 'decay_exponent', 0.4, 0.3, 0.5, 0.9)")
     con.execute(f"PRAGMA application_id = {APPLICATION_ID}")
@@ -265,7 +265,7 @@ def test_migration_from_v1_keeps_data(tmp_path):
         h = s.headline(1)
         assert h["decay_exponent"].better == "higher"      # filled by the migration
         assert h["test_error_at_ref"].better == "lower"
-        assert s.fit_summary(1) == {"best": "pow3"}
+        assert s.fit_summary(1) == {"best": "power-law-floor"}
         assert s.curve(1).points["test_error"].tolist() == [0.2, 0.1]
         r2 = s.record(_curve(fingerprint="fp1"), None, series="old",
                       headline=[make_figure("test_error_at_ref", 0.2, 0.19, 0.21)])
@@ -429,17 +429,17 @@ def test_headline_interval_widened_to_measurement_noise():
 
 
 def test_exponents_of_different_families_are_not_gated():
-    a = tracking.decay_figure(tracking.Estimate(0.5, 0.45, 0.55), family="pow3")
-    b = tracking.decay_figure(tracking.Estimate(0.1, 0.05, 0.15), family="mmf4")
-    c = tracking.decay_figure(tracking.Estimate(0.1, 0.05, 0.15), family="pow3")
+    a = tracking.decay_figure(tracking.Estimate(0.5, 0.45, 0.55), family="power-law-floor")
+    b = tracking.decay_figure(tracking.Estimate(0.1, 0.05, 0.15), family="morgan-mercer-flodin")
+    c = tracking.decay_figure(tracking.Estimate(0.1, 0.05, 0.15), family="power-law-floor")
     tol = Tolerance(0.2, relative=True)
     assert compare_figure(b, a, tol).status == "info"
     assert compare_figure(c, a, tol).status == "regressed"
-    # pow2 fixes its floor at 0: comparing it with pow3's fitted floor says nothing
-    fixed = make_figure("asymptote", 0.0, 0.0, 0.0, note="family pow2")
-    free = make_figure("asymptote", 0.09, 0.08, 0.10, note="family pow3")
+    # power-law fixes its floor at 0: comparing it with power-law-floor's fitted floor says nothing
+    fixed = make_figure("asymptote", 0.0, 0.0, 0.0, note="family power-law")
+    free = make_figure("asymptote", 0.09, 0.08, 0.10, note="family power-law-floor")
     assert compare_figure(free, fixed, Tolerance(0.01)).status == "info"
-    free0 = make_figure("asymptote", 0.0, 0.0, 0.01, note="family pow3")
+    free0 = make_figure("asymptote", 0.0, 0.0, 0.01, note="family power-law-floor")
     assert compare_figure(free, free0, Tolerance(0.01)).status == "regressed"
 
 
@@ -450,7 +450,7 @@ def test_exponent_not_gated_with_two_repeats():
         rows = [{"size": s, "repeat": r, "test_error": 1 / s} for s in (10, 20, 40) for r in range(repeats)]
 
         class Fit:
-            best, curve = "pow3", Curve.from_table(pd.DataFrame(rows))
+            best, curve = "power-law-floor", Curve.from_table(pd.DataFrame(rows))
 
             def predict(self, n, interval=0.9):
                 return Estimate(0.1, 0.09, 0.11, interval)
@@ -466,7 +466,7 @@ def test_exponent_not_gated_with_two_repeats():
     three = {f.name: f for f in tracking.headline_figures(fit_on(3), reference_size=40)}
     assert two["decay_exponent"].better is None and "not gated" in two["decay_exponent"].note
     assert three["decay_exponent"].better == "higher"
-    slow = tracking.decay_figure(tracking.Estimate(0.1, 0.05, 0.15), family="pow3")
+    slow = tracking.decay_figure(tracking.Estimate(0.1, 0.05, 0.15), family="power-law-floor")
     assert compare_figure(slow, two["decay_exponent"], Tolerance(0.2, True)).status == "info"
     assert compare_figure(slow, three["decay_exponent"], Tolerance(0.2, True)).status == "regressed"
 

@@ -56,15 +56,16 @@ def print_fit(fit, level: float) -> None:
     out.print(f"{quantity} of {len(sizes)} sizes, {sizes.min():,.0f}–{sizes.max():,.0f} "
               "labelled samples", markup=False)
     out.print(f"ranking (rolling forecast error over the {held} largest size{'s' if held != 1 else ''}; "
-              "near-ties go to pow3/pow2, then to the lower AICc; a 'poor fit' misses the "
+              "near-ties go to power-law-floor/power-law, then to the lower AICc; a 'poor fit' misses the "
               "measured points, lack of fit = reduced chi-square against their standard errors):",
               markup=False)
     rows = []
-    for r in fit.table.itertuples():
-        rows.append(["*" + r.family if r.chosen else " " + r.family, str(r.n_params),
-                     number(r.forecast_error), number(r.aicc, 5), number(r.lack_of_fit, 3),
-                     r.status])
-    print_table(["family", "params", "forecast error", "AICc", "lack of fit", "status"], rows)
+    for rank, r in enumerate(fit.table.itertuples(), start=1):
+        role = "chosen" if r.chosen else ("runner-up" if r.family == fit.runner_up else "")
+        rows.append([str(rank), r.family, r.formula, number(r.forecast_error),
+                     number(r.aicc, 5), number(r.lack_of_fit, 3), r.status, role])
+    print_table(["rank", "family", "formula", "forecast error", "AICc", "lack of fit",
+                 "status", ""], rows)
     out.print("", markup=False)
     out.print(f"chosen: {fit.best}   {fit.formula}"
               + (f"   (runner-up: {fit.runner_up})" if fit.runner_up else ""), markup=False)

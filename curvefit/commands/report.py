@@ -10,6 +10,7 @@ from typing import List, Optional
 import typer
 
 from curvefit.commands._common import emit_json, err, out
+from curvefit.families import rename_legacy
 from curvefit.errors import InputError
 
 
@@ -18,7 +19,7 @@ def _read_json(path: Path, what: str) -> dict:
         raise InputError(f"{what} file not found: {path}")
     try:
         with open(path, encoding="utf-8") as fh:
-            return json.load(fh)
+            return rename_legacy(json.load(fh))
     except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise InputError(f"{path} is not a saved {what} (not valid JSON: {exc})") from None
 
