@@ -17,23 +17,23 @@ __version__ = "0.1.0"
 
 # public name -> module that defines it
 _EXPORTS = {
-    "InputError": "curvefit.errors",
-    "Estimate": "curvefit.results",
-    "Curve": "curvefit.curve",
-    "measure": "curvefit.runner",
-    "fit_curve": "curvefit.fitting",
-    "CurveFit": "curvefit.fitting",
-    "SampleEstimate": "curvefit.fitting",
-    "plan_purchase": "curvefit.planning",
-    "effective_capacity": "curvefit.capacity",
-    "probe_capacity": "curvefit.capacity",
-    "CapacityEstimate": "curvefit.capacity",
-    "tradeoff": "curvefit.complexity",
-    "Tradeoff": "curvefit.complexity",
-    "Store": "curvefit.store",
+    "InputError": "curvefit.core.errors",
+    "Estimate": "curvefit.core.estimate",
+    "Curve": "curvefit.core.curve",
+    "measure": "curvefit.measuring.runner",
+    "fit_curve": "curvefit.fitting.engine",
+    "CurveFit": "curvefit.fitting.engine",
+    "SampleEstimate": "curvefit.fitting.engine",
+    "plan_purchase": "curvefit.fitting.planning",
+    "effective_capacity": "curvefit.capacity.vc_model",
+    "probe_capacity": "curvefit.capacity.vc_model",
+    "CapacityEstimate": "curvefit.capacity.vc_model",
+    "tradeoff": "curvefit.capacity.tradeoff",
+    "Tradeoff": "curvefit.capacity.tradeoff",
+    "Store": "curvefit.history.store",
 }
-_SUBMODULES = {"bounds", "families", "fitting", "planning", "capacity", "complexity",
-               "store", "plots", "report", "runner", "data", "models", "splits"}
+# the parts of the package, reachable as attributes (``cf.fitting.families`` …)
+_SUBMODULES = {"bounds", "core", "measuring", "fitting", "capacity", "history", "report"}
 
 __all__ = sorted(_EXPORTS) + sorted(_SUBMODULES)
 

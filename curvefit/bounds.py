@@ -26,7 +26,8 @@ from typing import Any
 import numpy as np
 from scipy import special
 
-from curvefit.errors import InputError
+from curvefit.core.errors import InputError
+from curvefit.core.stats import binomial_limits
 
 GROWTH_KINDS = ("polynomial", "sauer")
 TEST_METHODS = ("hoeffding", "exact")
@@ -488,10 +489,7 @@ def clopper_pearson(errors, n_test, delta=0.05) -> ConfidenceInterval:
     if np.any(k_a < 0) or np.any(k_a > n_a):
         raise InputError(f"errors must lie between 0 and n_test, got errors={_show(errors)} "
                          f"for n_test={_show(n_test)}")
-    k, n, dl = np.broadcast_arrays(k_a, n_a, d_a)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        low = np.where(k > 0, special.betaincinv(np.where(k > 0, k, 1.0), n - k + 1, dl / 2), 0.0)
-        high = np.where(k < n, special.betaincinv(k + 1, np.where(k < n, n - k, 1.0), 1 - dl / 2), 1.0)
+    low, high = binomial_limits(k_a, n_a, d_a)
     return ConfidenceInterval(low=_like(low, errors, n_test, delta),
                               high=_like(high, errors, n_test, delta))
 

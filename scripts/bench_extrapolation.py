@@ -34,9 +34,9 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 import curvefit as cf  # noqa: E402
-from curvefit.curve import Curve  # noqa: E402
+from curvefit.core.curve import Curve  # noqa: E402
 from curvefit import fitting  # noqa: E402
-from curvefit.errors import FitWarning  # noqa: E402
+from curvefit.core.errors import FitWarning  # noqa: E402
 
 FIT_FRACTION = 0.25
 

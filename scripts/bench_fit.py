@@ -22,8 +22,8 @@ import pandas as pd
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from curvefit.curve import Curve  # noqa: E402
-from curvefit.fitting import _bootstrap, _solve_ls, _Target, fit_curve  # noqa: E402
+from curvefit.core.curve import Curve  # noqa: E402
+from curvefit.fitting.engine import _bootstrap, _solve_ls, _Target, fit_curve  # noqa: E402
 
 TARGET_SECONDS = 2.0
 

@@ -36,7 +36,7 @@ def main() -> None:
     from threadpoolctl import threadpool_limits
 
     import curvefit as cf
-    from curvefit.splits import RandomSplit
+    from curvefit.measuring.splits import RandomSplit
 
     X, y = load_digits(return_X_y=True)
     repeats, seed = 5, 0

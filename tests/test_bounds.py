@@ -11,7 +11,7 @@ from hypothesis import strategies as st
 from scipy import optimize, stats
 
 from curvefit import bounds
-from curvefit.errors import InputError
+from curvefit.core.errors import InputError
 
 # ---------------------------------------------------------------- VC sample size
 
@@ -226,11 +226,11 @@ def test_intervals_cover_at_the_stated_level_by_simulation():
 
 def test_curve_summary_carries_both_intervals():
     # Integration with Curve.summary(): exact interval at the mean error count, Hoeffding width.
-    from curvefit.curve import Curve
+    from curvefit.core.curve import Curve
     table = {"size": [50, 50, 100, 100], "repeat": [0, 1, 0, 1],
              "test_error": [0.2, 0.22, 0.1, 0.12], "train_error": [0.1, 0.1, 0.05, 0.06],
              "n_test": [200, 200, 200, 200], "n_test_errors": [40, 44, 20, 24]}
-    s = Curve.from_table(pd.DataFrame(table)).summary(confidence=0.95)
+    s = Curve.from_table(pd.DataFrame(table)).summary(interval=0.95)
     row = s[s["size"] == 100].iloc[0]
     ref = stats.binomtest(22, 200).proportion_ci(method="exact")
     assert row["test_low"] == pytest.approx(ref.low)

@@ -24,7 +24,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from curvefit.curve import Curve
+from curvefit.core.curve import Curve
 
 BROWSER_FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
                  "--disable-background-networking", "--disable-component-update",
@@ -128,7 +128,7 @@ def _report_file(tmp_path: Path) -> Path:
     from sklearn.tree import DecisionTreeClassifier
 
     import curvefit as cf
-    from curvefit import report
+    from curvefit.report import html as report
 
     X, y = load_breast_cancer(return_X_y=True)
     curves = {}
@@ -212,7 +212,7 @@ def test_screenshot_flag_renders_offline(tmp_path):
     browser = _browser()
     if browser is None:
         pytest.skip("no chromium browser installed (CI installs Debian's chromium via .ci/run)")
-    from curvefit import report
+    from curvefit.report import html as report
 
     c = Curve.from_table(pd.DataFrame({"size": [20, 20, 40, 40, 80, 80],
                                        "test_error": [.3, .32, .22, .2, .15, .16]}),

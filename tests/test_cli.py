@@ -1,7 +1,7 @@
 """The command-line shell: help, version, and usage errors as one line with exit 2."""
 
-from curvefit.commands._common import parse_list
-from curvefit.errors import InputError
+from curvefit.cli.common import parse_list
+from curvefit.core.errors import InputError
 
 import pytest
 

@@ -225,7 +225,7 @@ def test_kill_9_then_resume_gives_the_uninterrupted_points(iris_csv, tmp_path):
             "--sizes", "20,50,110", "--repeats", "3", "--seed", "3", "--quiet"]
     out = tmp_path / "run.json"
     journal = tmp_path / "run.json.journal"
-    proc = subprocess.Popen([sys.executable, "-m", "curvefit.cli", *args, "--out", str(out)],
+    proc = subprocess.Popen([sys.executable, "-m", "curvefit.cli.main", *args, "--out", str(out)],
                             stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, cwd=ROOT)
     deadline = time.time() + 120
     while time.time() < deadline:
@@ -243,8 +243,8 @@ def test_kill_9_then_resume_gives_the_uninterrupted_points(iris_csv, tmp_path):
     assert resumed.returncode == 0, resumed.stderr
     # the uninterrupted run, in process (same data preparation as the command)
     import curvefit as cf
-    from curvefit import data as cfdata
-    from curvefit.models import resolve_model
+    from curvefit.measuring import data as cfdata
+    from curvefit.measuring.models import resolve_model
 
     ds = cfdata.prepare(cfdata.load_table(iris_csv), "target")
     whole = cf.measure(resolve_model(f"{model}:make_model"), ds.X, ds.y, sizes=[20, 50, 110],
@@ -268,7 +268,7 @@ def test_ctrl_c_exits_130_with_journal_intact(iris_csv, tmp_path):
         "def make_model():\n    return Slow(max_iter=300)\n")
     out = tmp_path / "run.json"
     journal = tmp_path / "run.json.journal"
-    proc = subprocess.Popen([sys.executable, "-m", "curvefit.cli", "measure", str(iris_csv), "--target",
+    proc = subprocess.Popen([sys.executable, "-m", "curvefit.cli.main", "measure", str(iris_csv), "--target",
                              "target", "--model", f"{model}:make_model", "--sizes", "20,50,110",
                              "--repeats", "3", "--quiet", "--out", str(out)],
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, cwd=ROOT)

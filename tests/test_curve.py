@@ -8,8 +8,8 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from curvefit.curve import RUN_FORMAT, Curve
-from curvefit.errors import InputError
+from curvefit.core.curve import RUN_FORMAT, Curve
+from curvefit.core.errors import InputError
 
 
 def _curve():
@@ -47,7 +47,7 @@ def test_failed_cells_are_kept_but_not_summarised():
 
 def test_summary_statistics_match_pandas_and_scipy():
     c = _curve()
-    s = c.summary(confidence=0.95).set_index("size")
+    s = c.summary(interval=0.95).set_index("size")
     g = c.ok_points()[c.ok_points()["size"] == 40]["test_error"]
     assert s.loc[40, "test_mean"] == pytest.approx(g.mean())
     # Reference library: scipy.stats.sem is the standard error with ddof=1.

@@ -1,4 +1,4 @@
-"""Tests for curvefit.data: loading tables, preparing features/target, fingerprints."""
+"""Tests for curvefit.measuring.data: loading tables, preparing features/target, fingerprints."""
 
 import importlib.util
 from pathlib import Path
@@ -10,9 +10,9 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from sklearn.datasets import load_breast_cancer, load_diabetes, load_digits, load_iris, load_wine
 
-from curvefit.data import (MAX_INTEGER_CLASSES, Dataset, dataset_from_arrays, infer_task,
+from curvefit.measuring.data import (MAX_INTEGER_CLASSES, Dataset, dataset_from_arrays, infer_task,
                            load_table, prepare, table_fingerprint)
-from curvefit.errors import InputError
+from curvefit.core.errors import InputError
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "datasets_demo" / "packhouse.csv"

@@ -9,7 +9,7 @@ import pandas as pd
 import pytest
 
 from conftest import ROOT, run_cli
-from curvefit.curve import Curve
+from curvefit.core.curve import Curve
 
 
 @pytest.mark.slow

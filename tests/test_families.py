@@ -7,9 +7,9 @@ import pandas as pd
 import pytest
 from scipy.optimize import approx_fprime
 
-from curvefit import families as F
-from curvefit.curve import Curve
-from curvefit.fitting import fit_curve
+from curvefit.fitting import families as F
+from curvefit.core.curve import Curve
+from curvefit.fitting.engine import fit_curve
 
 N = np.array([20.0, 50.0, 130.0, 400.0, 1500.0, 6000.0])
 

@@ -1,7 +1,7 @@
 """Family names: every output uses the descriptive names; files with the old codes load.
 
 The old scheme (a short code with a parameter count, such as ``pow3``) is mapped in one
-place, ``curvefit.families.LEGACY_NAMES``; these checks run the real command line.
+place, ``curvefit.fitting.families.LEGACY_NAMES``; these checks run the real command line.
 """
 
 import json
@@ -11,7 +11,7 @@ import sqlite3
 import pytest
 
 from conftest import run_cli
-from curvefit.families import FAMILIES, LEGACY_NAMES, current_name, rename_legacy
+from curvefit.fitting.families import FAMILIES, LEGACY_NAMES, current_name, rename_legacy
 from test_fitting import measured_curve
 
 OLD_CODE = re.compile(r"(?<![\w.\-])(?:last1|pow[234]|exp3|i?log2(?!\()|vap3|mmf4|wbl4|joint5)\b")
@@ -110,6 +110,6 @@ def test_old_run_file_and_saved_capacity_load(work, tmp_path):
     doc["meta"]["note"] = "fitted with family pow3"
     old = tmp_path / "old.json"
     old.write_text(json.dumps(doc))
-    from curvefit.curve import Curve
+    from curvefit.core.curve import Curve
 
     assert Curve.read(old).meta["note"] == "fitted with family power-law-floor"

@@ -17,11 +17,13 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from scipy.optimize import curve_fit
 
-from curvefit.curve import Curve, _jsonable
-from curvefit.errors import FitWarning, InputError
-from curvefit.families import get_family
-from curvefit.fitting import CurveFit, SampleEstimate, fit_curve
-from curvefit.results import Estimate
+from curvefit.core.curve import Curve
+
+from curvefit.core.jsonio import jsonable
+from curvefit.core.errors import FitWarning, InputError
+from curvefit.fitting.families import get_family
+from curvefit.fitting.engine import CurveFit, SampleEstimate, fit_curve
+from curvefit.core.estimate import Estimate
 
 
 # ------------------------------------------------------------------ measured curves
@@ -132,7 +134,7 @@ def test_curvefit_contract(nb_fit):
     assert fit.runner_up is None or fit.runner_up in set(fit.table["family"])
     assert fit.best != "last-value"
     assert "CurveFit(" in repr(fit) and fit.best in repr(fit)
-    json.dumps(_jsonable(fit.to_dict()), allow_nan=False)
+    json.dumps(jsonable(fit.to_dict()), allow_nan=False)
 
 
 def test_predict_scalar_and_array(nb_fit):
@@ -214,7 +216,7 @@ def test_samples_for_inverts_predict(nb):
     assert nb_fit.predict(s.n).estimate == pytest.approx(target, abs=2e-4)
     assert s.low <= s.n <= s.high
     assert s.message.startswith("To reach ") and "labelled samples" in s.message
-    json.dumps(_jsonable(s.to_dict()))
+    json.dumps(jsonable(s.to_dict()))
 
 
 def test_target_below_the_asymptote_is_not_reachable(nb):
@@ -373,7 +375,7 @@ def plateau_fit():
 
 
 def test_lack_of_fit_keeps_families_that_miss_the_points_out(plateau_fit, nb_fit):
-    from curvefit.fitting import LACK_OF_FIT_FLOOR, LACK_OF_FIT_RATIO
+    from curvefit.fitting.engine import LACK_OF_FIT_FLOOR, LACK_OF_FIT_RATIO
 
     for fit in (plateau_fit, nb_fit):
         t = fit.table
@@ -392,7 +394,7 @@ def test_lack_of_fit_keeps_families_that_miss_the_points_out(plateau_fit, nb_fit
 
 
 def test_lack_of_fit_is_reduced_chi_square(nb_fit):
-    from curvefit.fitting import _noise_scale
+    from curvefit.fitting.engine import _noise_scale
 
     d = nb_fit._state.data
     scale = _noise_scale(d)
@@ -440,7 +442,7 @@ def test_parametric_bootstrap_matches_student_t_for_one_mean(nb):
 
 
 def test_asymptote_wording_is_clean_and_honest(nb):
-    from curvefit.fitting import format_error
+    from curvefit.fitting.engine import format_error
 
     assert format_error(2.6e-13) == "0%" and format_error(-1e-12) == "0%"
     assert format_error(0.0123) == "1.2%"

@@ -4,8 +4,8 @@ import json
 
 import pytest
 
-from curvefit.errors import InputError
-from curvefit.journal import JOURNAL_FORMAT, Journal, journal_path
+from curvefit.core.errors import InputError
+from curvefit.measuring.journal import JOURNAL_FORMAT, Journal, journal_path
 
 ID = {"data": "abc", "seed": 0, "sizes": [10, 20], "repeats": 2}
 

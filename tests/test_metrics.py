@@ -8,8 +8,8 @@ from sklearn.metrics import (balanced_accuracy_score, f1_score, log_loss, mean_a
                              mean_squared_error, r2_score, roc_auc_score)
 from sklearn.svm import SVC
 
-from curvefit.errors import InputError
-from curvefit.metrics import check_response, resolve_metric
+from curvefit.core.errors import InputError
+from curvefit.measuring.metrics import check_response, resolve_metric
 
 
 @pytest.fixture(scope="module")

@@ -1,4 +1,4 @@
-"""Tests for curvefit.models: specs, parameters, the command trainer, encoding."""
+"""Tests for curvefit.measuring.models: specs, parameters, the command trainer, encoding."""
 
 import os
 import pickle
@@ -18,8 +18,8 @@ from sklearn.model_selection import train_test_split
 from sklearn.neighbors import NearestCentroid
 from sklearn.tree import DecisionTreeClassifier
 
-from curvefit.errors import InputError
-from curvefit.models import (CommandError, CommandModel, CommandTimeout, ModelSpec,
+from curvefit.core.errors import InputError
+from curvefit.measuring.models import (CommandError, CommandModel, CommandTimeout, ModelSpec,
                              as_model_spec, check_command, parse_params, resolve_model,
                              with_encoding)
 
@@ -460,8 +460,8 @@ def test_cli_file_spec_in_parallel_workers(wine_csv, tmp_path, model_file):
     import json
 
     from conftest import run_cli
-    from curvefit.data import load_table, prepare
-    from curvefit.runner import measure
+    from curvefit.measuring.data import load_table, prepare
+    from curvefit.measuring.runner import measure
 
     out = tmp_path / "run.json"
     r = run_cli("measure", wine_csv, "--target", "target", "--model", f"{model_file}:make_model",

@@ -3,8 +3,8 @@
 import numpy as np
 import pytest
 
-from curvefit.errors import InputError
-from curvefit.parallel import run_tasks
+from curvefit.core.errors import InputError
+from curvefit.measuring.parallel import run_tasks
 
 
 def _cell(seed):

@@ -5,9 +5,9 @@ import math
 import numpy as np
 import pytest
 
-from curvefit.errors import InputError
-from curvefit.fitting import fit_curve
-from curvefit.planning import labels_for_budget, plan_purchase
+from curvefit.core.errors import InputError
+from curvefit.fitting.engine import fit_curve
+from curvefit.fitting.planning import labels_for_budget, plan_purchase
 from test_fitting import measured_curve
 
 

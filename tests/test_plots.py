@@ -15,10 +15,10 @@ from sklearn.base import BaseEstimator, ClassifierMixin
 from sklearn.linear_model import LogisticRegression
 
 import curvefit as cf
-from curvefit import plots
-from curvefit.capacity import CapacityEstimate, phi
-from curvefit.curve import Curve
-from curvefit.errors import FitWarning
+from curvefit.report import plots
+from curvefit.capacity.vc_model import CapacityEstimate, phi
+from curvefit.core.curve import Curve
+from curvefit.core.errors import FitWarning
 
 
 class FailsWhenSmall(ClassifierMixin, BaseEstimator):
@@ -131,7 +131,7 @@ def test_learning_curve_all_failed_and_unreachable(measured, fitted):
     _png_ok(fig)
     # an answer marked unreachable (as fit.samples_for gives below a fitted floor): the
     # figure draws the fit and the target but marks no n
-    from curvefit.fitting import SampleEstimate
+    from curvefit.fitting.engine import SampleEstimate
 
     fit = fitted["tree"]
     unreachable = SampleEstimate(n=math.inf, low=math.nan, high=math.nan, level=0.9,
@@ -243,8 +243,9 @@ def test_split_kind_is_named_on_the_figure_and_in_the_report():
     # Issue 8: figures and the report say which split a curve used.
     import pandas as pd
 
-    from curvefit import plots, report
-    from curvefit.curve import Curve
+    from curvefit.report import plots
+    from curvefit.report import html as report
+    from curvefit.core.curve import Curve
 
     pts = pd.DataFrame({"size": [20, 20, 40, 40, 80, 80], "repeat": [0, 1] * 3,
                         "train_error": [0.1] * 6,

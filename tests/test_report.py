@@ -13,8 +13,8 @@ import pandas as pd
 import pytest
 
 import curvefit as cf
-from curvefit import report
-from curvefit.curve import Curve
+from curvefit.report import html as report
+from curvefit.core.curve import Curve
 from conftest import run_cli
 
 # Every element and attribute the report is allowed to contain; anything else in the DOM
@@ -75,7 +75,7 @@ def analysed(curves):
 
 def test_sections_in_order_and_answer_first(analysed):
     target, results = analysed
-    from curvefit.complexity import Tradeoff
+    from curvefit.capacity.tradeoff import Tradeoff
 
     table = pd.DataFrame({"param": "max_depth", "value": [1, 2, 3, 1, 2, 3],
                           "size": [100] * 3 + [300] * 3,
@@ -174,14 +174,14 @@ def run_file(tmp_path_factory, curves):
 
 
 def test_cli_report_two_runs_probe_tradeoff_and_json(run_file):
-    from curvefit.capacity import CapacityEstimate, phi
+    from curvefit.capacity.vc_model import CapacityEstimate, phi
 
     n = np.array([5, 10, 20, 40, 80], float)
     cap = CapacityEstimate(vc_dim=20.0, low=15.0, high=26.0, level=0.9, method="probe",
                            above_range=False,
                            design=pd.DataFrame({"n": n, "xi_mean": phi(n / 20), "xi_sem": .01}))
     (run_file / "probe.json").write_text(json.dumps(cap.to_dict()))
-    from curvefit.complexity import Tradeoff
+    from curvefit.capacity.tradeoff import Tradeoff
 
     table = pd.DataFrame({"param": "max_depth", "value": [2, None, 2, None],
                           "size": [100, 100, 300, 300], "train_mean": [.1, 0, .1, .02],

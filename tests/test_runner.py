@@ -15,8 +15,8 @@ from sklearn.svm import SVC
 from sklearn.tree import DecisionTreeClassifier
 
 import curvefit as cf
-from curvefit.errors import InputError
-from curvefit.splits import RandomSplit
+from curvefit.core.errors import InputError
+from curvefit.measuring.splits import RandomSplit
 
 COMPARE = ["size", "repeat", "train_error", "test_error", "n_test", "n_test_errors", "status", "message"]
 

@@ -12,8 +12,8 @@ from sklearn.model_selection import GroupShuffleSplit, TimeSeriesSplit
 from sklearn.neighbors import KNeighborsClassifier
 
 import curvefit as cf
-from curvefit.errors import InputError
-from curvefit.splits import (GroupSplit, LeakWarning, OrderSplit, RandomSplit, default_floor,
+from curvefit.core.errors import InputError
+from curvefit.measuring.splits import (GroupSplit, LeakWarning, OrderSplit, RandomSplit, default_floor,
                              stratified_order)
 
 

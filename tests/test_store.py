@@ -13,11 +13,11 @@ import pandas as pd
 import pytest
 
 from conftest import ROOT, run_cli
-from curvefit import tracking
-from curvefit.curve import Curve
-from curvefit.errors import InputError
-from curvefit.store import APPLICATION_ID, SCHEMA_VERSION, Store
-from curvefit.tracking import Tolerance, compare_figure, make_figure
+from curvefit.history import figures as tracking
+from curvefit.core.curve import Curve
+from curvefit.core.errors import InputError
+from curvefit.history.store import APPLICATION_ID, SCHEMA_VERSION, Store
+from curvefit.history.figures import Tolerance, compare_figure, make_figure
 
 
 def _curve(fingerprint="abc123", metric="error", shift=0.0, sizes=(50, 100, 200), repeats=2):
@@ -343,9 +343,9 @@ WRITER = textwrap.dedent("""
     import sys, time, math
     from pathlib import Path
     import pandas as pd
-    from curvefit.curve import Curve
-    from curvefit.store import Store
-    from curvefit.tracking import make_figure
+    from curvefit.core.curve import Curve
+    from curvefit.history.store import Store
+    from curvefit.history.figures import make_figure
     path, tag, n, go = sys.argv[1], sys.argv[2], int(sys.argv[3]), Path(sys.argv[4])
     while not go.exists():
         time.sleep(0.005)
@@ -401,7 +401,7 @@ def test_measurement_interval_matches_scipy_exact_and_t():
 
 
 def test_headline_interval_widened_to_measurement_noise():
-    from curvefit.results import Estimate
+    from curvefit.core.estimate import Estimate
 
     rows = [{"size": s, "repeat": r, "test_error": e, "n_test": 100, "n_test_errors": e * 100}
             for s, es in [(100, (0.10, 0.14)), (400, (0.05, 0.07))] for r, e in enumerate(es)]
@@ -444,7 +444,7 @@ def test_exponents_of_different_families_are_not_gated():
 
 
 def test_exponent_not_gated_with_two_repeats():
-    from curvefit.results import Estimate
+    from curvefit.core.estimate import Estimate
 
     def fit_on(repeats):
         rows = [{"size": s, "repeat": r, "test_error": 1 / s} for s in (10, 20, 40) for r in range(repeats)]

@@ -176,7 +176,7 @@ def test_history_bad_input_exit_2(tmp_path):
         if "--series" in args:
             # an empty but valid store: the series is unknown
             run_cli("history", "--store", tmp_path / "plain.db")  # (does not create)
-            from curvefit.store import Store
+            from curvefit.history.store import Store
             Store(tmp_path / "h.db").close()
         res = run_cli("history", *args)
         assert res.returncode == 2, res.stderr

@@ -1,4 +1,4 @@
-"""Tests of curvefit.complexity (the trade-off) and `curvefit tradeoff`.
+"""Tests of curvefit.capacity.tradeoff (the trade-off) and `curvefit tradeoff`.
 
 Outside references:
 - Bundled scikit-learn datasets (digits, iris).
@@ -19,8 +19,8 @@ from sklearn.tree import DecisionTreeClassifier
 
 import curvefit as cf
 from conftest import run_cli
-from curvefit.errors import InputError
-from curvefit.complexity import Tradeoff, parse_vary, tradeoff
+from curvefit.core.errors import InputError
+from curvefit.capacity.tradeoff import Tradeoff, parse_vary, tradeoff
 
 
 def test_best_tree_depth_grows_with_n_on_digits():

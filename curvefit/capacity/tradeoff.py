@@ -1,0 +1,278 @@
+"""The complexity trade-off: train and test error against a complexity parameter.
+
+For each value of one complexity parameter (tree depth, k of k-NN, polynomial degree,
+regularisation strength) and each sample size, :func:`tradeoff` measures train and
+test error with repeats through :func:`curvefit.measuring.runner.measure` (one measuring code
+path for the whole project), and reports the best value per size with the set of
+values within one standard error of it. With ``probe=True`` each value is also placed
+on a VC axis by :func:`curvefit.capacity.vc_model.probe_capacity`.
+"""
+
+from __future__ import annotations
+
+import ast
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from curvefit.core.errors import InputError
+
+TABLE_COLUMNS = ["param", "value", "size", "n_repeats", "n_failed", "train_mean", "train_sem",
+                 "test_mean", "test_sem", "gap_mean"]
+CAPACITY_COLUMNS = ["capacity", "capacity_low", "capacity_high", "capacity_above_range"]
+
+
+def _label(value: Any) -> str:
+    return "None" if value is None else str(value)
+
+
+def parse_vary(text: str) -> dict[str, list]:
+    """Parse ``"PARAM=V1,V2,..."``; values are Python literals when possible.
+
+    Examples
+    --------
+    >>> parse_vary("max_depth=1,2,None")
+    {'max_depth': [1, 2, None]}
+    >>> parse_vary("kernel=linear,rbf")
+    {'kernel': ['linear', 'rbf']}
+    """
+    if text is None or "=" not in str(text):
+        raise InputError(f"malformed --vary {text!r}; use PARAM=V1,V2,..., e.g. max_depth=1,2,4,8")
+    name, _, rest = str(text).partition("=")
+    name = name.strip()
+    if not name.isidentifier():
+        raise InputError(f"--vary parameter name {name!r} is not a valid name; use PARAM=V1,V2,...")
+    pieces = [p.strip() for p in rest.split(",")]
+    if not pieces or any(p == "" for p in pieces):
+        raise InputError(f"--vary {text!r} has an empty value; list values like {name}=1,2,4")
+    values = []
+    for p in pieces:
+        try:
+            values.append(ast.literal_eval(p))
+        except (ValueError, SyntaxError):
+            values.append(p)
+    return {name: values}
+
+
+@dataclass(frozen=True)
+class Tradeoff:
+    """Measured train/test error per (complexity value, size).
+
+    Attributes
+    ----------
+    table : pandas.DataFrame
+        One row per (value, size): ``param, value, size, n_repeats, n_failed,
+        train_mean, train_sem, test_mean, test_sem, gap_mean`` (mean test − train over
+        repeats, the complexity penalty) and, with the probe,
+        ``capacity, capacity_low, capacity_high, capacity_above_range``.
+    param : str
+        The parameter that was varied.
+    values : list
+        Its values, in the order given.
+    metric : str
+        The loss measured (lower is better).
+    capacities : dict
+        ``value label -> CapacityEstimate.to_dict()`` when probed.
+    meta : dict
+        Model, sizes, repeats, seed.
+    """
+
+    table: pd.DataFrame = field(repr=False)
+    param: str
+    values: list
+    metric: str = "error"
+    capacities: dict = field(default_factory=dict, repr=False)
+    meta: dict = field(default_factory=dict, repr=False)
+
+    def best_per_size(self) -> pd.DataFrame:
+        """The best value per size and the values within one standard error of it.
+
+        The best value has the lowest mean test error; the set ``within_1se`` holds
+        every value whose mean test error is at most the best mean plus the best's
+        standard error (the one-standard-error rule, Breiman, Friedman, Olshen & Stone
+        1984, "Classification and Regression Trees", section 3.4.3).
+
+        Returns
+        -------
+        pandas.DataFrame
+            ``size, best_value, test_mean, test_sem, within_1se`` (a list of values
+            in the given order).
+        """
+        rows = []
+        for size, g in self.table.groupby("size", sort=True):
+            g = g[np.isfinite(g["test_mean"].astype(float))]
+            if not len(g):
+                rows.append({"size": int(size), "best_value": None, "test_mean": math.nan,
+                             "test_sem": math.nan, "within_1se": []})
+                continue
+            i = g["test_mean"].astype(float).to_numpy().argmin()
+            best = g.iloc[i]
+            sem = float(best["test_sem"]) if np.isfinite(best["test_sem"]) else 0.0
+            limit = float(best["test_mean"]) + sem
+            within = [v for v, m in zip(g["value"], g["test_mean"]) if float(m) <= limit + 1e-12]
+            rows.append({"size": int(size), "best_value": best["value"],
+                         "test_mean": float(best["test_mean"]),
+                         "test_sem": float(best["test_sem"]), "within_1se": within})
+        out = pd.DataFrame(rows, columns=["size", "best_value", "test_mean", "test_sem",
+                                          "within_1se"])
+        out["best_value"] = pd.Series([r["best_value"] for r in rows], dtype=object,
+                                      index=out.index)
+        return out
+
+    def to_dict(self) -> dict:
+        from curvefit.core.jsonio import jsonable
+        t = self.table.astype(object).where(self.table.notna(), None)
+        best = self.best_per_size()
+        best = best.astype(object).where(best.notna(), None)
+        return jsonable({"format": "curvefit.tradeoff/1", "param": self.param,
+                          "values": list(self.values), "metric": self.metric,
+                          "table": t.to_dict(orient="records"),
+                          "best_per_size": best.to_dict(orient="records"),
+                          "capacities": self.capacities, "meta": self.meta})
+
+    @classmethod
+    def from_dict(cls, d: dict) -> "Tradeoff":
+        if not isinstance(d, dict) or "table" not in d or "param" not in d:
+            raise InputError("not a saved trade-off (needs 'param' and 'table')")
+        table = pd.DataFrame(d["table"] or [])
+        for col in ("train_mean", "train_sem", "test_mean", "test_sem", "gap_mean", "capacity",
+                    "capacity_low", "capacity_high"):
+            if col in table:
+                table[col] = pd.to_numeric(table[col], errors="coerce").astype(float)
+        if "value" in table:
+            table["value"] = pd.Series([r.get("value") for r in d["table"]], dtype=object,
+                                       index=table.index)
+        return cls(table=table, param=str(d["param"]), values=list(d.get("values") or []),
+                   metric=str(d.get("metric") or "error"),
+                   capacities=dict(d.get("capacities") or {}), meta=dict(d.get("meta") or {}))
+
+
+def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: int = 0,
+             n_jobs: int = 1, backend: str = "local", scheduler: str | None = None,
+             test_size: float = 0.25, metric: str = "error", probe: bool = False,
+             probe_repeats: int = 6, probe_max_n: int = 1000, timeout: float | None = None,
+             progress=None) -> Tradeoff:
+    """Train and test error against one complexity parameter at several sample sizes.
+
+    Every value is measured with the same seed, hence on the same splits and
+    subsamples (common random numbers), so differences between values are not
+    split noise.
+
+    Parameters
+    ----------
+    model : estimator, factory, spec string or ModelSpec
+        The base model; the varied parameter is set on fresh copies.
+    X, y : array-like or DataFrame, array-like
+        Labelled data.
+    vary : dict
+        Exactly one ``{"param": [values...]}``.
+    sizes : list of int
+        Training sizes.
+    repeats : int
+        Repeats (splits) per size.
+    random_state : int
+        The one seed.
+    n_jobs, backend, scheduler, test_size, metric, timeout
+        Passed to :func:`curvefit.measuring.runner.measure`.
+    probe : bool
+        Also probe each setting's effective VC dimension (numeric features only).
+    probe_repeats, probe_max_n
+        Probe budget per setting.
+    progress : callable, optional
+        Called with one line of text per value.
+
+    Returns
+    -------
+    Tradeoff
+
+    References
+    ----------
+    .. [1] V. Vapnik, "The Nature of Statistical Learning Theory", Springer, 1995
+       (structural risk minimisation: the best capacity grows with the sample size).
+    .. [2] L. Breiman, J. Friedman, R. Olshen, C. Stone, "Classification and Regression
+       Trees", Wadsworth, 1984 (the one-standard-error rule).
+
+    Examples
+    --------
+    >>> from sklearn.datasets import load_iris
+    >>> from sklearn.tree import DecisionTreeClassifier
+    >>> X, y = load_iris(return_X_y=True)
+    >>> t = tradeoff(DecisionTreeClassifier(random_state=0), X, y,
+    ...              vary={"max_depth": [1, 3]}, sizes=[30, 90], repeats=2)
+    >>> t.table[["value", "size"]].values.tolist()
+    [[1, 30], [1, 90], [3, 30], [3, 90]]
+    """
+    from curvefit.measuring.models import as_model_spec
+    from curvefit.measuring.runner import measure
+
+    if not isinstance(vary, dict) or len(vary) != 1:
+        raise InputError("vary one parameter at a time: vary={'max_depth': [1, 2, 4]}")
+    (param, values), = vary.items()
+    values = list(values) if isinstance(values, (list, tuple, np.ndarray)) else [values]
+    if len(values) < 2:
+        raise InputError(f"give at least two values of {param} to compare")
+    labels = [_label(v) for v in values]
+    if len(set(labels)) != len(labels):
+        raise InputError(f"a value of {param} is listed twice; list each once")
+    if sizes is None or len(list(sizes)) == 0:
+        raise InputError("give the sample sizes to compare at, e.g. sizes=[50, 200, 800]")
+    sizes = [int(s) for s in sizes]
+    base = as_model_spec(model)
+    say = progress or (lambda _m: None)
+    probe_X = None
+    if probe:
+        from curvefit.capacity.vc_model import _probe_pool
+
+        # Check the probe's inputs before any measuring, so a bad table fails at once.
+        probe_X = X.to_numpy(dtype=float) if hasattr(X, "columns") and _all_numeric(X) else X
+        _probe_pool(probe_X, None)
+    rows, capacities, failed_total = [], {}, 0
+    for value, label in zip(values, labels):
+        spec = base.with_params(**{param: value})
+        curve = measure(spec, X, y, sizes=sizes, repeats=repeats, test_size=test_size,
+                        metric=metric, n_jobs=n_jobs, backend=backend, scheduler=scheduler,
+                        random_state=random_state, timeout=timeout)
+        summary = curve.summary()
+        failed_total += len(curve.failed_points())
+        by_size = {int(r.size): r for r in summary.itertuples()}
+        for size in sizes:
+            r = by_size.get(size)
+            n_failed = int((curve.failed_points()["size"] == size).sum())
+            if r is None:
+                rows.append({"param": param, "value": value, "size": size, "n_repeats": 0,
+                             "n_failed": n_failed, "train_mean": math.nan, "train_sem": math.nan,
+                             "test_mean": math.nan, "test_sem": math.nan, "gap_mean": math.nan})
+                continue
+            rows.append({"param": param, "value": value, "size": size,
+                         "n_repeats": int(r.n_repeats), "n_failed": n_failed,
+                         "train_mean": float(r.train_mean), "train_sem": float(r.train_sem),
+                         "test_mean": float(r.test_mean), "test_sem": float(r.test_sem),
+                         "gap_mean": float(r.gap_mean)})
+        if probe:
+            from curvefit.capacity.vc_model import probe_capacity
+
+            est = probe_capacity(spec, probe_X, repeats=probe_repeats, n_jobs=n_jobs,
+                                 backend=backend, scheduler=scheduler, random_state=random_state,
+                                 max_n=probe_max_n, bootstrap=100)
+            capacities[label] = est.to_dict()
+            for row in rows[-len(sizes):]:
+                row.update({"capacity": est.vc_dim, "capacity_low": est.low,
+                            "capacity_high": est.high, "capacity_above_range": est.above_range})
+        say(f"{param}={label}: measured {len(sizes)} sizes")
+    cols = TABLE_COLUMNS + (CAPACITY_COLUMNS if probe else [])
+    table = pd.DataFrame(rows, columns=cols)
+    # Object dtype keeps ints as ints and None as None (pandas would make them floats/NaN).
+    table["value"] = pd.Series([r["value"] for r in rows], dtype=object, index=table.index)
+    table["param"] = pd.Series([r["param"] for r in rows], dtype=object, index=table.index)
+    meta = {"model": base.describe() if hasattr(base, "describe") else repr(base),
+            "sizes": sizes, "repeats": int(repeats), "seed": int(random_state),
+            "test_size": test_size, "failed_cells": int(failed_total)}
+    return Tradeoff(table=table, param=str(param), values=values, metric=str(metric),
+                    capacities=capacities, meta=meta)
+
+
+def _all_numeric(X) -> bool:
+    return all(pd.api.types.is_numeric_dtype(X[c]) for c in X.columns)

@@ -1,0 +1,123 @@
+"""`curvefit tradeoff`: train/test error against a complexity parameter at several sizes."""
+
+from __future__ import annotations
+
+import math
+from typing import List, Optional
+
+import typer
+
+from curvefit.cli.common import emit_json, err, out, parse_list, print_table
+from curvefit.core.errors import InputError
+
+
+def _f(v, digits: int = 4) -> str:
+    if v is None or (isinstance(v, float) and not math.isfinite(v)):
+        return "-"
+    return f"{v:.{digits}f}"
+
+
+def print_tradeoff(tr) -> None:
+    """The measured table, then the best setting per size."""
+    from curvefit.capacity.tradeoff import _label
+
+    t = tr.table
+    probe = "capacity" in t.columns
+    out.print(f"trade-off over {tr.param} (metric {tr.metric}, lower is better; "
+              f"{tr.meta.get('repeats', '?')} repeats per cell):", markup=False)
+    head = [tr.param, "size", "train", "± sem", "test", "± sem", "failed"]
+    if probe:
+        head.append("VC dim (probe)")
+    rows = []
+    for r in t.itertuples():
+        row = [_label(r.value), str(int(r.size)), _f(r.train_mean), _f(r.train_sem),
+               _f(r.test_mean), _f(r.test_sem), str(int(r.n_failed))]
+        if probe:
+            cap = r.capacity
+            row.append(("≥ " if r.capacity_above_range else "≈ ") + _f(cap, 1)
+                       if cap is not None and math.isfinite(cap) else "-")
+        rows.append(row)
+    print_table(head, rows)
+    out.print("best setting per size (lowest mean test error; values within one standard "
+              "error of it):", markup=False)
+    best = tr.best_per_size()
+    print_table(["size", f"best {tr.param}", "test", "± sem", "within 1 se"],
+           [[str(int(b.size)), _label(b.best_value), _f(b.test_mean), _f(b.test_sem),
+             ", ".join(_label(v) for v in b.within_1se) or "-"] for b in best.itertuples()])
+
+
+def register(app: typer.Typer) -> None:
+    @app.command("tradeoff")
+    def tradeoff_cmd(
+        data: str = typer.Argument(..., metavar="DATA", help="Data table (CSV, TSV, Parquet, NPZ)."),
+        target: Optional[str] = typer.Option(None, "--target", help="Label column."),
+        model: Optional[str] = typer.Option(None, "--model", help="Model spec (package.module:Name or file.py:func)."),
+        param: Optional[List[str]] = typer.Option(None, "--param", help="Fixed model parameter KEY=VALUE (repeatable)."),
+        vary: Optional[str] = typer.Option(None, "--vary", help="The complexity parameter and its values: PARAM=V1,V2,..."),
+        features: Optional[str] = typer.Option(None, "--features", help="Feature columns a,b,c (default: all but the target)."),
+        sizes: Optional[str] = typer.Option(None, "--sizes", help="Sample sizes (list or START:STOP:COUNT)."),
+        repeats: int = typer.Option(3, "--repeats", help="Repeats per (value, size)."),
+        test_fraction: float = typer.Option(0.25, "--test-fraction", help="Share of rows held out per repeat."),
+        metric: str = typer.Option("error", "--metric", help="Loss to measure (lower is better)."),
+        probe: bool = typer.Option(False, "--probe", help="Also probe each setting's effective VC dimension."),
+        timeout: Optional[float] = typer.Option(None, "--timeout", help="Seconds allowed per fit."),
+        jobs: int = typer.Option(1, "--jobs", help="Parallel cells."),
+        backend: str = typer.Option("local", "--backend", help="local or dask."),
+        scheduler: Optional[str] = typer.Option(None, "--scheduler", help="Dask scheduler address."),
+        seed: int = typer.Option(0, "--seed", help="Random seed."),
+        quiet: bool = typer.Option(False, "--quiet", help="No progress on stderr."),
+        json_out: bool = typer.Option(False, "--json", help="Print the result as JSON only."),
+        out_file: Optional[str] = typer.Option(None, "--out", help="Also save the result as JSON (for curvefit report --tradeoff)."),
+    ):
+        """Train and test error against a complexity parameter; the best setting per size."""
+        from curvefit.measuring import data as cfdata
+        from curvefit.cli.capacity import save_json
+        from curvefit.measuring.models import parse_params, resolve_model
+        from curvefit.capacity.tradeoff import parse_vary, tradeoff
+
+        if not target:
+            raise InputError("no target column given; pass --target COL")
+        if not model:
+            raise InputError("no model given; pass --model SPEC (e.g. sklearn.tree:DecisionTreeClassifier)")
+        if not vary:
+            raise InputError("nothing to vary; pass --vary PARAM=V1,V2,... (e.g. max_depth=1,2,4,8)")
+        if not sizes:
+            raise InputError("no sizes given; pass --sizes, e.g. 50,200,800 or 50:1000:4")
+        if repeats < 1:
+            raise InputError(f"--repeats must be at least 1, got {repeats}")
+        if not 0 < test_fraction < 1:
+            raise InputError(f"--test-fraction must be strictly between 0 and 1, got {test_fraction:g}")
+        varied = parse_vary(vary)
+        fixed = parse_params(param or [])
+        name = next(iter(varied))
+        if name in fixed:
+            raise InputError(f"{name} is both fixed with --param and varied with --vary; drop one")
+        size_list = parse_list(sizes, float, name="size", integer_range=True)
+        if any(s < 1 or float(s) != int(s) for s in size_list):
+            raise InputError("sizes must be whole numbers >= 1 (training rows)")
+        spec = resolve_model(model, fixed, timeout=timeout)
+        # Fail on a parameter or value the model does not take before any work starts.
+        for value in varied[name]:
+            spec.with_params(**{name: value})
+        df = cfdata.load_table(data)
+        feats = [f.strip() for f in features.split(",") if f.strip()] if features else None
+        ds = cfdata.prepare(df, target, feats)
+        show = not (quiet or json_out)
+        tr = tradeoff(spec, ds.X, ds.y, vary=varied, sizes=[int(s) for s in size_list],
+                      repeats=repeats, random_state=seed, n_jobs=jobs, backend=backend,
+                      scheduler=scheduler, test_size=test_fraction, metric=metric,
+                      probe=probe, timeout=timeout,
+                      progress=(lambda m: err.print(m, markup=False)) if show else None)
+        if out_file:
+            save_json(out_file, tr.to_dict())
+        if json_out:
+            emit_json(tr.to_dict())
+        else:
+            print_tradeoff(tr)
+            if out_file:
+                out.print(f"wrote {out_file}", markup=False)
+        if tr.meta.get("failed_cells"):
+            if not json_out:
+                err.print(f"{tr.meta['failed_cells']} fit(s) failed and were left out "
+                          "(recorded in the table's failed column)", markup=False)
+            raise typer.Exit(3)

@@ -1,0 +1,242 @@
+"""The measured learning curve: one row per (size, repeat) cell, plus run metadata.
+
+A `Curve` is what the runner produces and what every later step (fitting, capacity,
+reports, history) reads. It is stored as a run file, JSON whose first key is
+``"format": "curvefit.run/1"``, followed by ``meta`` and ``points``.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from curvefit.core.defaults import INTERVAL
+from curvefit.core.errors import InputError
+from curvefit.core.jsonio import jsonable, write_json
+from curvefit.core.stats import clopper_pearson, hoeffding_half_width, sem
+from curvefit.core.validate import check_level
+from curvefit.core.legacy import rename_legacy
+
+RUN_FORMAT = "curvefit.run/1"
+
+# Columns every Curve has, in this order; runners may add more (split counts, ...).
+POINT_COLUMNS = [
+    "size",           # labelled training samples in the subsample (rows, or groups)
+    "repeat",         # repeat index; each repeat has its own train/test split
+    "train_error",    # loss on the training subsample
+    "test_error",     # loss on the repeat's test set
+    "n_test",         # test-set size (rows), for exact intervals
+    "n_test_errors",  # count of misclassified test rows (0-1 error only; else NaN)
+    "fit_seconds",    # wall time of fit + predict
+    "status",         # "ok" or "failed"
+    "message",        # error text of a failed cell, else ""
+]
+
+
+def _empty_points() -> pd.DataFrame:
+    return pd.DataFrame({c: pd.Series(dtype=t) for c, t in [
+        ("size", "int64"), ("repeat", "int64"), ("train_error", "float64"),
+        ("test_error", "float64"), ("n_test", "float64"), ("n_test_errors", "float64"),
+        ("fit_seconds", "float64"), ("status", "object"), ("message", "object")]})
+
+
+def _normalise_points(points: pd.DataFrame) -> pd.DataFrame:
+    """Fill optional columns, fix dtypes, sort by (size, repeat)."""
+    df = points.copy()
+    if "size" not in df.columns or "test_error" not in df.columns:
+        raise InputError("a curve table needs the columns 'size' and 'test_error' "
+                         f"(found: {', '.join(map(str, df.columns)) or 'none'})")
+    if "repeat" not in df.columns:
+        df["repeat"] = df.groupby("size").cumcount()
+    for col, default in [("train_error", math.nan), ("n_test", math.nan),
+                         ("n_test_errors", math.nan), ("fit_seconds", math.nan)]:
+        if col not in df.columns:
+            df[col] = default
+    if "status" not in df.columns:
+        df["status"] = np.where(df["test_error"].notna(), "ok", "failed")
+    if "message" not in df.columns:
+        df["message"] = ""
+    try:
+        df["size"] = pd.to_numeric(df["size"]).astype("int64")
+        df["repeat"] = pd.to_numeric(df["repeat"]).astype("int64")
+        for col in ["train_error", "test_error", "n_test", "n_test_errors", "fit_seconds"]:
+            df[col] = pd.to_numeric(df[col], errors="raise").astype("float64")
+    except (ValueError, TypeError) as exc:
+        raise InputError(f"curve table has a non-numeric value: {exc}") from None
+    if (df["size"] <= 0).any():
+        raise InputError("curve table has a size <= 0; sizes count labelled samples")
+    df["status"] = df["status"].fillna("ok").astype(str)
+    df["message"] = df["message"].fillna("").astype(str)
+    extra = [c for c in df.columns if c not in POINT_COLUMNS]
+    df = df[POINT_COLUMNS + extra]
+    return df.sort_values(["size", "repeat"], kind="stable").reset_index(drop=True)
+
+
+@dataclass(frozen=True, eq=False)
+class Curve:
+    """A measured learning curve.
+
+    Attributes
+    ----------
+    points : pandas.DataFrame
+        One row per (size, repeat) cell with the columns in ``POINT_COLUMNS``
+        (and possibly more, e.g. split counts).
+    meta : dict
+        Run metadata: model spec, data fingerprint, sizes, repeats, seed, metric, ...
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> c = Curve.from_table(pd.DataFrame({"size": [10, 10, 20, 20],
+    ...                                    "test_error": [0.3, 0.32, 0.2, 0.22]}))
+    >>> c.sizes.tolist()
+    [10, 20]
+    """
+
+    points: pd.DataFrame
+    meta: dict = field(default_factory=dict)
+
+    def __post_init__(self):
+        object.__setattr__(self, "points", _normalise_points(self.points))
+
+    # ------------------------------------------------------------------ views
+    @property
+    def sizes(self) -> np.ndarray:
+        """Distinct sizes with at least one successful cell, ascending."""
+        return np.sort(self.ok_points()["size"].unique())
+
+    @property
+    def metric(self) -> str:
+        """The loss the curve holds. ``"error"`` is 0-1 error for classifiers; for a
+        regressor the runner resolves it to mean squared error, reported as ``"mse"``."""
+        name = str(self.meta.get("metric", "error"))
+        info = self.meta.get("metric_info")
+        if name == "error" and isinstance(info, dict) and info.get("kind") == "mse":
+            return "mse"
+        return name
+
+    @property
+    def has_train(self) -> bool:
+        return bool(self.ok_points()["train_error"].notna().any())
+
+    def ok_points(self) -> pd.DataFrame:
+        """Cells that finished and have a finite test error."""
+        p = self.points
+        return p[(p["status"] == "ok") & np.isfinite(p["test_error"])]
+
+    def failed_points(self) -> pd.DataFrame:
+        return self.points[self.points["status"] != "ok"]
+
+    def summary(self, interval: float = INTERVAL) -> pd.DataFrame:
+        """Per-size statistics over repeats.
+
+        Columns: ``size, n_repeats, n_failed, test_mean, test_std, test_sem,
+        train_mean, train_std, train_sem, gap_mean, gap_sem, n_test``, and, as the
+        uncertainty of one repeat's finite test set at the mean error,
+        ``test_low, test_high`` (exact Clopper–Pearson interval, 0-1 error only) and
+        ``test_hoeffding`` (Hoeffding half-width), both at level ``interval``.
+        """
+        level = check_level(interval)
+        ok = self.ok_points().copy()
+        ok["gap"] = ok["test_error"] - ok["train_error"]
+        failed = self.failed_points().groupby("size").size()
+        rows = []
+        for size, g in ok.groupby("size"):
+            n_test = float(g["n_test"].mean()) if g["n_test"].notna().any() else math.nan
+            row = {
+                "size": int(size), "n_repeats": len(g), "n_failed": int(failed.get(size, 0)),
+                "test_mean": float(g["test_error"].mean()), "test_std": _std(g["test_error"]),
+                "test_sem": sem(g["test_error"]),
+                "train_mean": float(g["train_error"].mean()) if g["train_error"].notna().any() else math.nan,
+                "train_std": _std(g["train_error"]), "train_sem": sem(g["train_error"]),
+                "gap_mean": float(g["gap"].mean()) if g["gap"].notna().any() else math.nan,
+                "gap_sem": sem(g["gap"]), "n_test": n_test,
+                "test_low": math.nan, "test_high": math.nan, "test_hoeffding": math.nan,
+            }
+            if np.isfinite(n_test) and n_test >= 1:
+                n_int = int(round(n_test))
+                row["test_hoeffding"] = float(hoeffding_half_width(n_int, level))
+                if g["n_test_errors"].notna().all():
+                    k = min(int(round(float(g["n_test_errors"].mean()))), n_int)
+                    row["test_low"], row["test_high"] = clopper_pearson(k, n_int, level)
+            rows.append(row)
+        cols = ["size", "n_repeats", "n_failed", "test_mean", "test_std", "test_sem",
+                "train_mean", "train_std", "train_sem", "gap_mean", "gap_sem", "n_test",
+                "test_low", "test_high", "test_hoeffding"]
+        return pd.DataFrame(rows, columns=cols)
+
+    # ------------------------------------------------------------------ I/O
+    def to_dict(self) -> dict:
+        pts = self.points.astype(object).where(self.points.notna(), None)
+        return {"format": RUN_FORMAT, "meta": jsonable(self.meta),
+                "points": [jsonable(r) for r in pts.to_dict(orient="records")]}
+
+    def write(self, path: str | os.PathLike) -> Path:
+        """Write the run file atomically (temporary file, fsync, rename)."""
+        return write_json(path, self.to_dict(), what="run file")
+
+    @classmethod
+    def read(cls, path: str | os.PathLike) -> "Curve":
+        """Read a run file, or a plain curve table if the file is a CSV."""
+        path = Path(path)
+        if not path.is_file():
+            raise InputError(f"run file not found: {path}")
+        if path.suffix.lower() in (".csv", ".tsv", ".txt"):
+            return cls.from_table(path)
+        try:
+            with open(path, encoding="utf-8") as fh:
+                doc = json.load(fh)
+        except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+            raise InputError(f"{path} is not a curvefit run file (not valid JSON: {exc})") from None
+        return cls.from_dict(doc, source=str(path))
+
+    @classmethod
+    def from_dict(cls, doc: Any, source: str = "input") -> "Curve":
+        if not isinstance(doc, dict) or doc.get("format") != RUN_FORMAT:
+            found = doc.get("format") if isinstance(doc, dict) else type(doc).__name__
+            raise InputError(f"{source} is not a curvefit run file "
+                             f"(expected format {RUN_FORMAT!r}, found {found!r})")
+        points = doc.get("points")
+        if not isinstance(points, list):
+            raise InputError(f"{source}: 'points' must be a list of cells")
+        df = pd.DataFrame(points) if points else _empty_points()
+        # files written before the families were renamed are read with the new names
+        return cls(df, rename_legacy(dict(doc.get("meta") or {})))
+
+    @classmethod
+    def from_table(cls, table: "pd.DataFrame | str | os.PathLike", meta: dict | None = None) -> "Curve":
+        """A curve measured elsewhere: columns ``size, test_error[, train_error, repeat]``.
+
+        Accepts a DataFrame or the path of a CSV file.
+        """
+        if isinstance(table, pd.DataFrame):
+            df, source = table, "table"
+        else:
+            source = str(table)
+            if not Path(table).is_file():
+                raise InputError(f"curve table not found: {table}")
+            try:
+                df = pd.read_csv(table, sep=None, engine="python")
+            except (OSError, UnicodeDecodeError, pd.errors.ParserError, pd.errors.EmptyDataError) as exc:
+                raise InputError(f"cannot read curve table {table}: {exc}") from None
+        m = {"source": source, "metric": "error"}
+        m.update(meta or {})
+        return cls(df, m)
+
+    def __repr__(self) -> str:
+        ok = self.ok_points()
+        return (f"Curve({len(self.sizes)} sizes {self.sizes.min() if len(ok) else '-'}–"
+                f"{self.sizes.max() if len(ok) else '-'}, {len(self.points)} cells, "
+                f"{len(self.failed_points())} failed, metric={self.metric!r})")
+
+
+def _std(values) -> float:
+    v = values.dropna()
+    return float(v.std(ddof=1)) if len(v) > 1 else math.nan

@@ -1,0 +1,707 @@
+"""Headline figures of a run and the rule that says whether a run regressed.
+
+A nightly job retrains a model and measures its learning curve; what matters for a
+team is whether the model became less data-efficient. Each run is summarised by a few
+*headline figures*, each a point estimate with a bootstrap interval and a direction:
+
+============================  =========  ===============================================
+name                          better     meaning
+============================  =========  ===============================================
+``test_error_at_ref``         lower      fitted test error at the series' reference size
+``decay_exponent``            higher     rate at which test error falls with more data
+``asymptote``                 lower      fitted irreducible error (error as n → ∞)
+``samples_for_target``        lower      labelled samples needed for the target error
+``effective_capacity``        (none)     effective VC dimension from the measured gap;
+                                         reported, never gates
+============================  =========  ===============================================
+
+Sign of the exponent. With the power law ``e(n) = γ + α·n^β`` (Hestness et al. 2017),
+``β`` is negative for a falling curve. ``decay_exponent`` is ``b = −β ≥ 0`` so that a
+larger value always means "error falls faster as labels are added". A *smaller*
+``decay_exponent`` is a slower decay and therefore worse: its direction is "higher".
+
+Regression rule: a figure regressed when it is worse than the baseline's by more than
+its tolerance (absolute, or relative to the baseline's value) **and** the two intervals
+do not overlap. Both conditions are needed: the tolerance stops tiny but well-measured
+changes from failing a build, and the interval test stops noise from doing so. This is a
+statistical screen, not a guarantee.
+
+Two safeguards keep the interval test honest. The intervals of ``test_error_at_ref``,
+``asymptote`` and ``samples_for_target`` are never narrower than the measurement noise
+at the nearest measured size (`measurement_interval`). And the parameters of the chosen
+family (``decay_exponent``, ``asymptote``) are compared only when both runs chose the
+same family; the exponent is not gated with fewer than 3 repeats per size. A figure
+recorded as not gated (``better`` None) is shown but never fails a build.
+
+This module is pure: it reads result objects and returns new ones; it performs no I/O.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass, field
+from typing import Any, Iterable, Mapping
+
+from curvefit.core.errors import InputError
+from curvefit.core.estimate import Estimate
+
+LOWER, HIGHER = "lower", "higher"
+# Figures that are parameters of the chosen family: compared only within one family.
+FAMILY_BOUND = ("decay_exponent", "asymptote")
+# Below this many repeats per size the exponent is reported but never gated.
+MIN_REPEATS_FOR_EXPONENT = 3
+
+# name -> (direction, one-line label for tables)
+FIGURES: dict[str, tuple[str | None, str]] = {
+    "test_error_at_ref": (LOWER, "test error at reference size"),
+    "decay_exponent": (HIGHER, "decay exponent"),
+    "asymptote": (LOWER, "asymptote"),
+    "samples_for_target": (LOWER, "samples for target error"),
+    "effective_capacity": (None, "effective capacity (VC units)"),
+}
+
+# Defaults chosen as common practice: one percentage point of error, a fifth of the
+# exponent, a quarter of the labels. Numbers are absolute, strings "N%" relative.
+DEFAULT_TOLERANCES: dict[str, "Tolerance"] = {}
+
+
+@dataclass(frozen=True)
+class Tolerance:
+    """How much worse a figure may get before it counts: ``value`` absolute, or
+    ``value`` × |baseline| when ``relative``."""
+
+    value: float
+    relative: bool = False
+
+    def threshold(self, baseline: float) -> float:
+        return self.value * abs(baseline) if self.relative else self.value
+
+    def __str__(self) -> str:
+        return f"{self.value * 100:g}%" if self.relative else f"{self.value:g}"
+
+
+DEFAULT_TOLERANCES.update({
+    "test_error_at_ref": Tolerance(0.01),
+    "decay_exponent": Tolerance(0.20, relative=True),
+    "asymptote": Tolerance(0.01),
+    "samples_for_target": Tolerance(0.25, relative=True),
+    "effective_capacity": Tolerance(0.25, relative=True),
+})
+
+
+@dataclass(frozen=True)
+class Figure:
+    """One headline figure of a run: estimate, interval, level and direction.
+
+    ``better`` is ``"lower"``, ``"higher"`` or ``None`` (informational, never gates).
+    ``estimate`` may be ``inf`` for ``samples_for_target`` when the fitted curve never
+    reaches the target.
+    """
+
+    name: str
+    estimate: float
+    low: float = math.nan
+    high: float = math.nan
+    level: float = 0.9
+    better: str | None = None
+    note: str = ""
+
+    @property
+    def interval(self) -> Estimate:
+        return Estimate(self.estimate, self.low, self.high, self.level)
+
+    def to_dict(self) -> dict:
+        return asdict(self)
+
+    def __repr__(self) -> str:
+        return (f"Figure({self.name}={self.estimate:.6g}, {self.level:.0%} interval "
+                f"{self.low:.6g}–{self.high:.6g}, better={self.better})")
+
+
+def make_figure(name: str, estimate: float, low: float = math.nan, high: float = math.nan,
+                level: float = 0.9, note: str = "") -> Figure:
+    """A `Figure` with the direction registered for ``name`` (None for unknown names)."""
+    better = FIGURES.get(name, (None, ""))[0]
+    return Figure(name, _float(estimate), _float(low), _float(high), float(level), better, note)
+
+
+def _float(v: Any) -> float:
+    try:
+        return math.nan if v is None else float(v)
+    except (TypeError, ValueError):
+        return math.nan
+
+
+# --------------------------------------------------------------------- figures from a fit
+def headline_figures(fit: Any, *, reference_size: int, target_error: float | None = None,
+                     capacity: Any = None, interval: float = 0.9,
+                     curve: Any = None) -> list[Figure]:
+    """Headline figures of one run, read from its curve fit.
+
+    Parameters
+    ----------
+    fit : CurveFit
+        Result of `curvefit.fitting.engine.fit_curve`; uses ``.predict``, ``.exponent``,
+        ``.asymptote`` and ``.samples_for``, each with bootstrap intervals.
+    reference_size : int
+        Sample size at which the test error is read off the fitted curve (fixed per
+        series so that runs are compared at the same size).
+    target_error : float, optional
+        Test error the series aims for; gives ``samples_for_target``.
+    capacity : CapacityEstimate, optional
+        Effective capacity of the run (``vc_dim``, ``low``, ``high``); omitted if None.
+    interval : float
+        Level of every interval, e.g. 0.9.
+    curve : Curve, optional
+        The measured curve (default: ``fit.curve``). The interval of
+        ``test_error_at_ref`` is widened to at least the measurement noise at the
+        measured size nearest the reference (see `measurement_interval`): a fit that
+        borrows strength across sizes can report an interval narrower than what the
+        repeats at that size support, and the gate would then fire on seed noise.
+
+    Returns
+    -------
+    list of Figure
+        Figures that the fit can give; a family without an asymptote or exponent simply
+        yields fewer figures.
+
+    References
+    ----------
+    .. [1] J. Hestness et al., "Deep Learning Scaling is Predictable, Empirically",
+       arXiv:1712.00409, 2017 (power law with a floor, exponent β < 0).
+    .. [2] C. Cortes, L. D. Jackel, S. A. Solla, V. Vapnik, J. S. Denker, "Learning
+       curves: asymptotic values and rate of convergence", NIPS 6, 1994.
+    """
+    figs: list[Figure] = []
+    est = fit.predict(reference_size, interval=interval)
+    low, high, note = est.low, est.high, f"n={int(reference_size)}"
+    curve = curve if curve is not None else getattr(fit, "curve", None)
+    if curve is not None and math.isfinite(_float(est.estimate)):
+        low, high, widened = _widen(est.estimate, low, high,
+                                    measurement_interval(curve, reference_size, interval))
+        note += f"; {widened}" if widened else ""
+    figs.append(make_figure("test_error_at_ref", est.estimate, low, high, interval, note=note))
+    expo = _call_optional(fit, "exponent", interval)
+    if expo is not None and math.isfinite(_float(expo.estimate)):
+        fig = decay_figure(expo, interval, family=getattr(fit, "best", None))
+        fewest = _fewest_repeats(curve)
+        if fewest is not None and fewest < MIN_REPEATS_FOR_EXPONENT:
+            # measured here (same model, data and sizes, seeds 0-7): with 2 repeats the
+            # bootstrap interval of the exponent misses seed-to-seed changes of 10x
+            fig = Figure(fig.name, fig.estimate, fig.low, fig.high, fig.level, None,
+                         f"{fig.note}; not gated: fewer than {MIN_REPEATS_FOR_EXPONENT} "
+                         "repeats at some size")
+        figs.append(fig)
+    asym = _call_optional(fit, "asymptote", interval)
+    if asym is not None and math.isfinite(_float(asym.estimate)):
+        lo, hi, note = asym.low, asym.high, ""
+        if curve is not None and len(curve.sizes):
+            # the floor is known no better than the error at the largest measured size
+            m = measurement_interval(curve, float(curve.sizes.max()), interval)
+            lo, hi, note = _widen(asym.estimate, lo, hi, m)
+        family = getattr(fit, "best", None)
+        if family:
+            note = f"family {family}; {note}" if note else f"family {family}"
+        figs.append(make_figure("asymptote", asym.estimate, lo, hi, interval, note=note))
+    if target_error is not None:
+        sample = fit.samples_for(test_error=float(target_error), interval=interval)
+        fig = samples_figure(sample, target_error, interval)
+        if curve is not None and math.isfinite(fig.estimate) and len(curve.sizes):
+            fig = _widen_samples(fig, fit, curve, float(target_error), interval)
+            fig = _check_below_range(fig, curve, float(target_error))
+        figs.append(fig)
+    if capacity is not None:
+        vc = _float(getattr(capacity, "vc_dim", math.nan))
+        if math.isfinite(vc):
+            note = "lower bound (above probed range)" if getattr(capacity, "above_range", False) else ""
+            figs.append(make_figure("effective_capacity", vc, getattr(capacity, "low", math.nan),
+                                    getattr(capacity, "high", math.nan), interval, note=note))
+    return figs
+
+
+def _widen(est: float, low: float, high: float, m: "_Measured | None") -> tuple[float, float, str]:
+    """Envelope of an interval and ``est`` ± the measurement noise ``m``."""
+    if m is None:
+        return low, high, ""
+    new_low = min(_nan_to(low, math.inf), est - (m.estimate - m.low))
+    new_high = max(_nan_to(high, -math.inf), est + (m.high - m.estimate))
+    widened = new_low < _nan_to(low, math.inf) or new_high > _nan_to(high, -math.inf)
+    return (max(new_low, 0.0) if est >= 0 else new_low, new_high,
+            f"interval widened to the measurement noise at n={int(m.note)}" if widened else "")
+
+
+def _widen_samples(fig: Figure, fit: Any, curve: Any, target: float, interval: float) -> Figure:
+    """Widen ``samples_for_target`` by the error-level noise carried through the curve.
+
+    If the error near the answer is known only to ± the measurement noise there, the
+    fitted curve reaches the target somewhere between where it reaches
+    ``target + down`` and ``target − up``; both are read off the same fit.
+    """
+    m = measurement_interval(curve, min(max(fig.estimate, 1.0), float(curve.sizes.max())), interval)
+    if m is None:
+        return fig
+    down, up = m.estimate - m.low, m.high - m.estimate
+    n_low = fit.samples_for(test_error=target + down, interval=interval).n if down > 0 else fig.estimate
+    n_high = fit.samples_for(test_error=max(target - up, 0.0), interval=interval).n if up > 0 else fig.estimate
+    n_low = _nan_to(n_low, fig.estimate)
+    n_high = math.inf if not math.isfinite(_float(n_high)) else float(n_high)
+    low = min(_nan_to(fig.low, math.inf), n_low)
+    high = max(_nan_to(fig.high, -math.inf), n_high)
+    note = fig.note
+    if low < _nan_to(fig.low, math.inf) or high > _nan_to(fig.high, -math.inf):
+        note += f"; interval widened to the measurement noise at n={int(m.note)}"
+    return Figure(fig.name, fig.estimate, low, high, fig.level, fig.better, note)
+
+
+def _check_below_range(fig: Figure, curve: Any, target: float) -> Figure:
+    """Do not gate an answer below the smallest measured size that the data contradict.
+
+    When the fit says the target is met below the smallest measured size but the
+    measured mean error there is still above the target, the fitted curve is
+    extrapolating towards tiny samples where it is not supported.
+    """
+    ok = curve.ok_points()
+    smallest = float(curve.sizes.min())
+    first = float(ok[ok["size"] == smallest]["test_error"].mean())
+    if fig.estimate < smallest and first > target:
+        return Figure(fig.name, fig.estimate, fig.low, fig.high, fig.level, None,
+                      f"{fig.note}; not gated: the fit answers below the smallest measured "
+                      f"size ({int(smallest)}) where the measured error {first:.3g} is above the target")
+    return fig
+
+
+def _fewest_repeats(curve: Any) -> int | None:
+    if curve is None:
+        return None
+    ok = curve.ok_points()
+    return int(ok.groupby("size").size().min()) if not ok.empty else None
+
+
+def _nan_to(v: float, default: float) -> float:
+    v = _float(v)
+    return default if math.isnan(v) else v
+
+
+@dataclass(frozen=True)
+class _Measured:
+    estimate: float
+    low: float
+    high: float
+    note: float  # the measured size used
+
+
+def measurement_interval(curve: Any, size: float, interval: float = 0.9) -> _Measured | None:
+    """How well the mean test error is known at the measured size nearest ``size``.
+
+    Two lower limits on the uncertainty of the mean over the ``R`` repeats there, and
+    the wider of the two is returned: the Student-t interval of the repeats' mean
+    (``t_{R−1} · s / √R``), and, for 0-1 error, the exact Clopper–Pearson interval of
+    the pooled test mistakes ``K`` out of ``N`` test rows. The pooled interval
+    treats the repeats' test sets as independent, so it is a floor, not an estimate
+    of all the noise (training-set variation adds to it).
+
+    Returns None when the curve has no successful cell.
+
+    References
+    ----------
+    .. [1] C. J. Clopper and E. S. Pearson, "The use of confidence or fiducial limits
+       illustrated in the case of the binomial", Biometrika 26(4), 1934.
+    .. [2] "Student" (W. S. Gosset), "The probable error of a mean", Biometrika 6(1), 1908.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> from curvefit.core.curve import Curve
+    >>> c = Curve.from_table(pd.DataFrame({"size": [100, 100], "test_error": [0.1, 0.1],
+    ...                                    "n_test": [100, 100], "n_test_errors": [10, 10]}))
+    >>> m = measurement_interval(c, 100, 0.95)  # 20 of 200 wrong, exact interval
+    >>> round(m.low, 4), round(m.high, 4)
+    (0.0622, 0.1502)
+    """
+    import numpy as np
+    from scipy import stats
+
+    ok = curve.ok_points()
+    if ok.empty:
+        return None
+    sizes = np.sort(ok["size"].unique()).astype(float)
+    nearest = sizes[int(np.argmin(np.abs(np.log(sizes) - math.log(max(float(size), 1e-12)))))]
+    g = ok[ok["size"] == nearest]
+    r = len(g)
+    mean = float(g["test_error"].mean())
+    lo, hi = mean, mean
+    if r >= 2:
+        sd = float(g["test_error"].std(ddof=1))
+        half = float(stats.t.ppf(0.5 + interval / 2, r - 1)) * sd / math.sqrt(r)
+        lo, hi = mean - half, mean + half
+    if g["n_test_errors"].notna().all() and g["n_test"].notna().all():
+        k, n = int(round(g["n_test_errors"].sum())), int(round(g["n_test"].sum()))
+        if n >= 1 and 0 <= k <= n:
+            ci = stats.binomtest(k, n).proportion_ci(confidence_level=interval, method="exact")
+            p = k / n
+            # centre the exact interval on the repeats' mean (equal to k/n for equal n_test)
+            lo, hi = min(lo, mean - (p - ci.low)), max(hi, mean + (ci.high - p))
+    return _Measured(mean, lo, hi, nearest)
+
+
+def _call_optional(fit: Any, method: str, interval: float):
+    fn = getattr(fit, method, None)
+    if fn is None:
+        return None
+    return fn(interval=interval)
+
+
+def decay_figure(exponent: Estimate, interval: float = 0.9, family: str | None = None) -> Figure:
+    """``decay_exponent`` from `CurveFit.exponent`.
+
+    `CurveFit.exponent` already reports the decay rate ``b`` of ``a·n^(−b)`` (``b > 0``
+    for a falling curve), which is ``−β`` in Hestness et al.'s ``α·n^β``; it is kept
+    as is, so a rising curve shows up as a negative (and therefore worse) value.
+    The chosen family is kept in the note (``family power-law-floor``): exponents of different
+    families are different parameters, and are not gated against each other.
+
+    Examples
+    --------
+    >>> decay_figure(Estimate(0.3, 0.2, 0.4)).better
+    'higher'
+    """
+    note = f"family {family}" if family else ""
+    return make_figure("decay_exponent", exponent.estimate, exponent.low, exponent.high,
+                       interval, note=note)
+
+
+def _family(fig: Figure) -> str | None:
+    for part in fig.note.split(";"):
+        part = part.strip()
+        if part.startswith("family "):
+            return part[len("family "):]
+    return None
+
+
+def samples_figure(sample_estimate: Any, target_error: float, interval: float = 0.9) -> Figure:
+    """``samples_for_target`` from a `SampleEstimate`; ``inf`` when unreachable."""
+    reachable = bool(getattr(sample_estimate, "reachable", True))
+    n = _float(getattr(sample_estimate, "n", math.nan))
+    lo = _float(getattr(sample_estimate, "low", math.nan))
+    hi = _float(getattr(sample_estimate, "high", math.nan))
+    note = f"target {target_error:g}"
+    if not reachable or not math.isfinite(n):
+        # Unreachable: the need is unbounded; keep the lower end if the fit gave one.
+        n, hi = math.inf, math.inf
+        note += "; not reachable (the fitted curve levels off above it)"
+    elif not math.isfinite(hi):
+        hi = math.inf
+    return make_figure("samples_for_target", n, lo, hi, interval, note=note)
+
+
+def check_baseline(baseline: Any) -> str | int:
+    """``"previous"``, ``"best"`` or a run id (int); anything else is an `InputError`.
+
+    Examples
+    --------
+    >>> check_baseline("Best"), check_baseline("12")
+    ('best', 12)
+    """
+    text = str(baseline).strip().lower()
+    if text in ("previous", "best"):
+        return text
+    try:
+        rid = int(text)
+    except ValueError:
+        rid = 0
+    if rid <= 0 or isinstance(baseline, bool):
+        raise InputError(f"baseline must be 'previous', 'best' or a run id; got {baseline!r}")
+    return rid
+
+
+# --------------------------------------------------------------------- tolerances
+def parse_tolerance(name: str, value: Any) -> Tolerance:
+    """A number is absolute; a string ``"20%"`` is relative; ``{"relative": 0.2}`` or
+    ``{"absolute": 0.01}`` are spelled out.
+
+    Examples
+    --------
+    >>> parse_tolerance("asymptote", 0.02)
+    Tolerance(value=0.02, relative=False)
+    >>> parse_tolerance("samples_for_target", "30%")
+    Tolerance(value=0.3, relative=True)
+    """
+    if isinstance(value, Tolerance):
+        return value
+    bad = InputError(f"tolerance for {name!r} must be a number (absolute), a string like "
+                     f"'20%' (relative) or {{relative = 0.2}}; got {value!r}")
+    if isinstance(value, bool):
+        raise bad
+    if isinstance(value, (int, float)):
+        v, rel = float(value), False
+    elif isinstance(value, str):
+        s = value.strip()
+        try:
+            v, rel = (float(s[:-1]) / 100.0, True) if s.endswith("%") else (float(s), False)
+        except ValueError:
+            raise bad from None
+    elif isinstance(value, Mapping) and len(value) == 1 and set(value) <= {"relative", "absolute"}:
+        key = next(iter(value))
+        try:
+            v, rel = float(value[key]), key == "relative"
+        except (TypeError, ValueError):
+            raise bad from None
+    else:
+        raise bad
+    if not math.isfinite(v) or v < 0:
+        raise InputError(f"tolerance for {name!r} must be finite and >= 0; got {value!r}")
+    return Tolerance(v, rel)
+
+
+def resolve_tolerances(*layers: Mapping[str, Any] | None) -> dict[str, Tolerance]:
+    """Defaults overridden by each layer in turn (series config, then the caller)."""
+    tol = dict(DEFAULT_TOLERANCES)
+    for layer in layers:
+        for name, value in (layer or {}).items():
+            if name not in FIGURES:
+                raise InputError(f"unknown figure {name!r} in tolerances; "
+                                 f"known: {', '.join(FIGURES)}")
+            tol[name] = parse_tolerance(name, value)
+    return tol
+
+
+def tolerances_to_config(tol: Mapping[str, Any] | None) -> dict[str, Any]:
+    """Tolerances as plain JSON values (numbers absolute, "N%" relative)."""
+    outd: dict[str, Any] = {}
+    for name, value in (tol or {}).items():
+        t = parse_tolerance(name, value)
+        outd[name] = f"{t.value * 100:g}%" if t.relative else t.value
+    return outd
+
+
+# --------------------------------------------------------------------- comparison
+@dataclass(frozen=True)
+class FigureChange:
+    """One figure compared with the baseline's.
+
+    ``worse_by`` is positive when the current run is worse (in the figure's direction);
+    ``status`` is ``"regressed"``, ``"improved"``, ``"same"`` (within tolerance or
+    overlapping intervals), ``"info"`` (no direction, or exponents of two different
+    fitted families) or ``"missing"`` (absent on one side).
+    """
+
+    name: str
+    current: Figure | None
+    baseline: Figure | None
+    better: str | None
+    worse_by: float
+    tolerance: Tolerance | None
+    overlap: bool
+    status: str
+
+    def to_dict(self) -> dict:
+        return {"name": self.name,
+                "current": self.current.to_dict() if self.current else None,
+                "baseline": self.baseline.to_dict() if self.baseline else None,
+                "better": self.better, "worse_by": self.worse_by,
+                "tolerance": str(self.tolerance) if self.tolerance else None,
+                "overlap": self.overlap, "status": self.status}
+
+
+def compare_figure(current: Figure | None, baseline: Figure | None,
+                   tolerance: Tolerance | None) -> FigureChange:
+    """Apply the regression rule to one figure (see the module docstring).
+
+    Examples
+    --------
+    >>> a = make_figure("test_error_at_ref", 0.10, 0.09, 0.11)
+    >>> b = make_figure("test_error_at_ref", 0.15, 0.14, 0.16)
+    >>> compare_figure(b, a, Tolerance(0.01)).status
+    'regressed'
+    >>> compare_figure(a, b, Tolerance(0.01)).status
+    'improved'
+    """
+    ref = current or baseline
+    name = ref.name if ref else "?"
+    better = ref.better if ref else None
+    if current is not None and baseline is not None and current.better != baseline.better:
+        better = None  # one side was recorded as not gated
+    if current is None or baseline is None or _nan(current.estimate) or _nan(baseline.estimate):
+        return FigureChange(name, current, baseline, better, math.nan, tolerance, True, "missing")
+    overlap = current.interval.overlaps(baseline.interval)
+    if name in FAMILY_BOUND and _family(current) != _family(baseline):
+        # another family was chosen: its exponent (or its floor, fixed at 0 by some
+        # families) is another parameter, so report only
+        better = None
+    if better is None:
+        diff = current.estimate - baseline.estimate
+        return FigureChange(name, current, baseline, None, diff, tolerance, overlap, "info")
+    if current.estimate == baseline.estimate:
+        worse_by = 0.0  # also covers inf == inf (both unreachable)
+    elif better == LOWER:
+        worse_by = current.estimate - baseline.estimate
+    else:
+        worse_by = baseline.estimate - current.estimate
+    threshold = tolerance.threshold(baseline.estimate) if tolerance else 0.0
+    if _nan(threshold):
+        threshold = math.inf  # relative tolerance of an unbounded baseline: nothing exceeds it
+    if not overlap and worse_by > threshold:
+        status = "regressed"
+    elif not overlap and -worse_by > threshold:
+        status = "improved"
+    else:
+        status = "same"
+    return FigureChange(name, current, baseline, better, worse_by, tolerance, overlap, status)
+
+
+def _nan(v: float) -> bool:
+    return isinstance(v, float) and math.isnan(v)
+
+
+@dataclass(frozen=True)
+class Comparison:
+    """A run compared with its baseline.
+
+    Attributes
+    ----------
+    series : str
+    run_id : int
+    baseline_id : int or None
+        None when the series has no earlier run to compare with.
+    baseline_rule : str
+        ``"previous"``, ``"best"`` or ``"run"`` (an explicit id).
+    comparable : bool
+        False when the data fingerprint or metric differ from the baseline's and the
+        change was not allowed.
+    reasons : list of str
+        Why the runs differ in data or metric (also filled when the change was allowed).
+    changes : list of FigureChange
+    """
+
+    series: str
+    run_id: int
+    baseline_id: int | None
+    baseline_rule: str
+    comparable: bool
+    reasons: list[str] = field(default_factory=list)
+    changes: list[FigureChange] = field(default_factory=list)
+    data_change_allowed: bool = False
+
+    def __repr__(self) -> str:
+        base = "no baseline" if self.baseline_id is None else \
+            f"vs run {self.baseline_id} ({self.baseline_rule})"
+        detail = f": {', '.join(self.regressed)}" if self.regressed else ""
+        return (f"Comparison(series={self.series!r}, run {self.run_id} {base}, "
+                f"{self.verdict}{detail})")
+
+    @property
+    def regressed(self) -> list[str]:
+        """Names of the figures that regressed (empty when not comparable)."""
+        if not self.comparable:
+            return []
+        return [c.name for c in self.changes if c.status == "regressed"]
+
+    @property
+    def improved(self) -> list[str]:
+        if not self.comparable:
+            return []
+        return [c.name for c in self.changes if c.status == "improved"]
+
+    @property
+    def exit_code(self) -> int:
+        """CI gate: 2 not comparable, 1 a regression, 0 otherwise."""
+        if not self.comparable:
+            return 2
+        return 1 if self.regressed else 0
+
+    @property
+    def verdict(self) -> str:
+        if not self.comparable:
+            return "not comparable"
+        if self.baseline_id is None:
+            return "first run"
+        return "regressed" if self.regressed else "ok"
+
+    def to_dict(self) -> dict:
+        return {"series": self.series, "run_id": self.run_id,
+                "baseline_id": self.baseline_id, "baseline_rule": self.baseline_rule,
+                "comparable": self.comparable, "data_change_allowed": self.data_change_allowed,
+                "reasons": list(self.reasons), "verdict": self.verdict,
+                "regressed": self.regressed, "improved": self.improved,
+                "figures": [c.to_dict() for c in self.changes]}
+
+    def to_markdown(self) -> str:
+        """A short markdown summary for CI logs."""
+        head = f"### curvefit track: series `{self.series}`, run {self.run_id}"
+        if self.baseline_id is None:
+            lines = [head, "", "First run of the series: recorded as the baseline; nothing to compare.", ""]
+            lines += _figure_table([(c.name, c.current, None, None) for c in self.changes])
+            return "\n".join(lines) + "\n"
+        lines = [f"{head} vs run {self.baseline_id} ({self.baseline_rule})", ""]
+        for r in self.reasons:
+            lines.append(f"- {'allowed: ' if self.data_change_allowed else ''}{r}")
+        if self.reasons:
+            lines.append("")
+        lines += _figure_table([(c.name, c.current, c.baseline, c) for c in self.changes])
+        lines.append("")
+        if not self.comparable:
+            lines.append("**Result: not comparable** (data or metric changed; "
+                         "pass --allow-data-change to compare anyway)")
+        elif self.regressed:
+            lines.append(f"**Result: REGRESSED** — {', '.join(self.regressed)}")
+        else:
+            better = f" (improved: {', '.join(self.improved)})" if self.improved else ""
+            lines.append(f"**Result: no regression**{better}")
+        return "\n".join(lines) + "\n"
+
+
+def _figure_table(rows: Iterable[tuple[str, Figure | None, Figure | None, FigureChange | None]]) -> list[str]:
+    rows = list(rows)
+    with_base = any(b is not None for _, _, b, _ in rows)
+    if with_base:
+        lines = ["| figure | baseline | current | worse by | tolerance | verdict |",
+                 "|---|---|---|---|---|---|"]
+    else:
+        lines = ["| figure | current |", "|---|---|"]
+    for name, cur, base, change in rows:
+        label = FIGURES.get(name, (None, name))[1]
+        note = (cur or base).note if (cur or base) else ""
+        if name in FAMILY_BOUND and change and change.current and change.baseline \
+                and _family(change.current) != _family(change.baseline):
+            note = f"{_family(change.baseline)} → {_family(change.current)}"
+        elif name in FAMILY_BOUND:
+            note = _family(cur or base) or ""
+        else:
+            note = note.split(";")[0] if name in ("test_error_at_ref", "samples_for_target") else ""
+        if any("not gated" in f.note for f in (cur, base) if f is not None):
+            note = f"{note}; not gated" if note else "not gated"
+        label = f"{label} ({note})" if note else label
+        if with_base:
+            lines.append(f"| {label} | {format_figure(base)} | {format_figure(cur)} | "
+                         f"{_fmt(change.worse_by) if change else ''} | "
+                         f"{change.tolerance if change and change.tolerance and change.better else ''} | "
+                         f"{change.status if change else ''} |")
+        else:
+            lines.append(f"| {label} | {format_figure(cur)} |")
+    return lines
+
+
+def format_figure(f: Figure | None) -> str:
+    """``0.0812 [0.0791, 0.0833]`` style text; ``—`` when absent."""
+    if f is None:
+        return "—"
+    return format_interval(f.estimate, f.low, f.high)
+
+
+def format_interval(estimate, low, high) -> str:
+    """``estimate [low, high]``; the interval is left out when unknown, ``—`` for no estimate."""
+    if estimate is None or _nan(estimate):
+        return "—"
+    if (low is None or _nan(low)) and (high is None or _nan(high)):
+        return _fmt(estimate)
+    return f"{_fmt(estimate)} [{_fmt(low)}, {_fmt(high)}]"
+
+
+def _fmt(v: float) -> str:
+    if v is None or _nan(v):
+        return "—"
+    if math.isinf(v):
+        return "∞" if v > 0 else "−∞"
+    if abs(v) >= 100:  # sample counts and capacities: whole numbers read best
+        return f"{v:,.0f}"
+    return f"{v:.4g}"

@@ -1,0 +1,626 @@
+"""The history store: measured runs of named series in one SQLite file.
+
+A *series* is one thing tracked over time (a nightly model on a fixed data set). Each
+recorded *run* keeps its metadata (as JSON text), data fingerprint, model spec, metric,
+the code version (``git rev-parse HEAD`` when recorded inside a git checkout), its
+points, the summary of its curve fit and its headline figures (see `curvefit.history.figures`).
+
+Storage choices, and why:
+
+- SQLite from the standard library, WAL journal, a busy timeout and ``BEGIN
+  IMMEDIATE`` write transactions, so several processes can record at once without
+  losing or corrupting anything.
+- The schema is versioned with ``PRAGMA user_version`` and upgraded by forward
+  migrations; a new store is built by running every migration from version 0, so the
+  upgrade path is exercised on every new file.
+- The file is marked with ``PRAGMA application_id``; a file that is not a curvefit store
+  (another SQLite database, random bytes, text) is refused with `InputError`.
+- Only parameterised queries, and only JSON text columns: nothing is ever unpickled.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import sqlite3
+import subprocess
+import time
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Any, Mapping, Sequence
+
+import pandas as pd
+
+from curvefit.history import figures as tracking
+from curvefit.core.curve import POINT_COLUMNS, Curve
+from curvefit.core.jsonio import jsonable
+from curvefit.core.errors import InputError
+from curvefit.core.legacy import rename_legacy
+
+# "cfhs" (curvefit history store) as a 32-bit integer: marks the file as ours.
+APPLICATION_ID = 0x63666873
+SQLITE_HEADER = b"SQLite format 3\x00"
+BUSY_TIMEOUT_MS = 60_000
+
+# Forward migrations: MIGRATIONS[k] takes the schema from version k to k+1.
+_V1 = """
+CREATE TABLE series (
+    id INTEGER PRIMARY KEY,
+    name TEXT NOT NULL UNIQUE,
+    config TEXT NOT NULL DEFAULT '{}',
+    created TEXT NOT NULL
+);
+CREATE TABLE runs (
+    id INTEGER PRIMARY KEY,
+    series_id INTEGER NOT NULL REFERENCES series(id) ON DELETE CASCADE,
+    created TEXT NOT NULL,
+    meta TEXT NOT NULL DEFAULT '{}',
+    data_fingerprint TEXT,
+    model TEXT,
+    metric TEXT
+);
+CREATE TABLE points (
+    run_id INTEGER NOT NULL REFERENCES runs(id) ON DELETE CASCADE,
+    size INTEGER NOT NULL,
+    repeat INTEGER NOT NULL,
+    train_error REAL,
+    test_error REAL,
+    n_test REAL,
+    n_test_errors REAL,
+    fit_seconds REAL,
+    status TEXT NOT NULL,
+    message TEXT NOT NULL DEFAULT '',
+    PRIMARY KEY (run_id, size, repeat)
+);
+CREATE TABLE fits (
+    run_id INTEGER PRIMARY KEY REFERENCES runs(id) ON DELETE CASCADE,
+    summary TEXT NOT NULL
+);
+CREATE TABLE headline (
+    run_id INTEGER NOT NULL REFERENCES runs(id) ON DELETE CASCADE,
+    name TEXT NOT NULL,
+    estimate REAL,
+    low REAL,
+    high REAL,
+    level REAL,
+    PRIMARY KEY (run_id, name)
+);
+"""
+
+
+def _migrate_1_to_2(con: sqlite3.Connection) -> None:
+    """v2: code version per run, direction and note per figure, extra point columns."""
+    con.execute("ALTER TABLE runs ADD COLUMN code_version TEXT")
+    con.execute("ALTER TABLE headline ADD COLUMN better TEXT")
+    con.execute("ALTER TABLE headline ADD COLUMN note TEXT NOT NULL DEFAULT ''")
+    con.execute("ALTER TABLE points ADD COLUMN extra TEXT")
+    con.execute("CREATE INDEX runs_by_series ON runs(series_id, id)")
+    # v1 rows had no direction: fill it from the names the figures are known by.
+    for name, (better, _) in tracking.FIGURES.items():
+        con.execute("UPDATE headline SET better = ? WHERE name = ?", (better, name))
+
+
+def _create_v1(con: sqlite3.Connection) -> None:
+    # Statement by statement: executescript would commit the open write transaction.
+    for statement in _V1.split(";"):
+        if statement.strip():
+            con.execute(statement)
+
+
+MIGRATIONS = [_create_v1, _migrate_1_to_2]
+SCHEMA_VERSION = len(MIGRATIONS)
+
+
+def _now() -> str:
+    return datetime.now(timezone.utc).isoformat(timespec="seconds")
+
+
+def git_head(cwd: str | os.PathLike | None = None) -> str | None:
+    """``git rev-parse HEAD`` of the checkout containing ``cwd``; None outside one."""
+    try:
+        res = subprocess.run(["git", "rev-parse", "HEAD"], cwd=cwd, capture_output=True,
+                             text=True, timeout=10)
+    except (OSError, subprocess.SubprocessError):
+        return None
+    sha = res.stdout.strip()
+    return sha if res.returncode == 0 and sha else None
+
+
+def _json(obj: Any) -> str:
+    return json.dumps(jsonable(obj), allow_nan=False, sort_keys=True)
+
+
+def _model_text(model: Any) -> str | None:
+    if model is None:
+        return None
+    return model if isinstance(model, str) else _json(model)
+
+
+class Store:
+    """A history store in one SQLite file.
+
+    Parameters
+    ----------
+    path : str or path-like
+        File path, or ``sqlite:///path``. Created (with its schema) if absent.
+    create : bool
+        When False, a missing file is an `InputError` instead of a new store.
+
+    Raises
+    ------
+    InputError
+        The file is not a curvefit store (random bytes, a text file, a foreign SQLite
+        database), is corrupt, or was written by a newer curvefit.
+
+    Examples
+    --------
+    >>> import tempfile, os, pandas as pd
+    >>> from curvefit.core.curve import Curve
+    >>> from curvefit.history.figures import make_figure
+    >>> d = tempfile.mkdtemp()
+    >>> s = Store(os.path.join(d, "history.db"))
+    >>> c = Curve.from_table(pd.DataFrame({"size": [50, 100], "test_error": [0.2, 0.1]}))
+    >>> rid = s.record(c, None, series="demo",
+    ...                headline=[make_figure("test_error_at_ref", 0.1, 0.09, 0.11)])
+    >>> s.runs("demo")["test_error_at_ref"].tolist()
+    [0.1]
+    >>> s.close()
+    """
+
+    def __init__(self, path: str | os.PathLike, *, create: bool = True):
+        text = str(path)
+        if text.startswith("sqlite:///"):
+            text = text[len("sqlite:///"):]
+        elif "://" in text:
+            raise InputError(f"unsupported store address {text!r}; give a file path or sqlite:///PATH")
+        self.path = Path(text)
+        self._check_file(create)
+        try:
+            self._con = sqlite3.connect(self.path, timeout=BUSY_TIMEOUT_MS / 1000,
+                                        isolation_level=None)
+        except sqlite3.Error as exc:
+            raise InputError(f"cannot open history store {self.path}: {exc}") from None
+        try:
+            self._con.execute(f"PRAGMA busy_timeout = {BUSY_TIMEOUT_MS}")
+            self._check_identity()
+            self._con.execute("PRAGMA foreign_keys = ON")
+            mode = self._enable_wal()
+            if str(mode).lower() != "wal":
+                raise InputError(f"history store {self.path}: cannot switch to WAL mode "
+                                 f"(got {mode}); use a local file system")
+            self._con.execute("PRAGMA synchronous = NORMAL")
+            self._upgrade()
+        except sqlite3.DatabaseError as exc:
+            self._con.close()
+            raise InputError(f"{self.path} is not a usable curvefit history store ({exc})") from None
+        except InputError:
+            self._con.close()
+            raise
+
+    # ------------------------------------------------------------------ opening
+    def _check_file(self, create: bool) -> None:
+        p = self.path
+        if p.is_dir():
+            raise InputError(f"history store {p} is a directory; give a file path such as {p / 'history.db'}")
+        if not p.exists():
+            if not create:
+                raise InputError(f"history store not found: {p}")
+            if not p.parent.is_dir():
+                raise InputError(f"cannot create history store {p}: directory {p.parent} does not exist")
+            return
+        try:
+            with open(p, "rb") as fh:
+                head = fh.read(len(SQLITE_HEADER))
+        except OSError as exc:
+            raise InputError(f"cannot read history store {p}: {exc.strerror}") from None
+        if head and head != SQLITE_HEADER:
+            raise InputError(f"{p} is not a curvefit history store (not an SQLite file); "
+                             "give the right file or a new path")
+
+    def _enable_wal(self) -> str:
+        """Switch to WAL, retrying while another process holds the lock.
+
+        The first switch of a new file needs an exclusive lock and SQLite may report
+        "database is locked" at once instead of waiting for the busy timeout.
+        """
+        deadline = time.monotonic() + BUSY_TIMEOUT_MS / 1000
+        pause = 0.02
+        while True:
+            try:
+                mode = str(self._con.execute("PRAGMA journal_mode = WAL").fetchone()[0])
+            except sqlite3.OperationalError as exc:
+                if "locked" not in str(exc) and "busy" not in str(exc):
+                    raise
+                mode = "locked"
+            if mode.lower() == "wal" or time.monotonic() > deadline:
+                return mode
+            time.sleep(pause)
+            pause = min(pause * 2, 0.5)
+
+    def _check_identity(self) -> None:
+        con = self._con
+        app_id = con.execute("PRAGMA application_id").fetchone()[0]
+        n_objects = con.execute("SELECT count(*) FROM sqlite_master").fetchone()[0]
+        if app_id != APPLICATION_ID and (n_objects or app_id):
+            raise InputError(f"{self.path} is an SQLite database but not a curvefit history "
+                             "store; give another path for the store")
+        version = con.execute("PRAGMA user_version").fetchone()[0]
+        if version > SCHEMA_VERSION:
+            raise InputError(f"{self.path} has store schema v{version}, newer than this "
+                             f"curvefit understands (v{SCHEMA_VERSION}); upgrade curvefit")
+
+    def _upgrade(self) -> None:
+        con = self._con
+        if con.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION:
+            return
+        con.execute("BEGIN IMMEDIATE")
+        try:
+            # Re-read under the write lock: another process may have upgraded meanwhile.
+            version = con.execute("PRAGMA user_version").fetchone()[0]
+            for step in range(version, SCHEMA_VERSION):
+                MIGRATIONS[step](con)
+            con.execute(f"PRAGMA application_id = {APPLICATION_ID}")
+            con.execute(f"PRAGMA user_version = {SCHEMA_VERSION}")
+            con.execute("COMMIT")
+        except BaseException:
+            if con.in_transaction:
+                con.execute("ROLLBACK")
+            raise
+
+    @property
+    def schema_version(self) -> int:
+        return int(self._con.execute("PRAGMA user_version").fetchone()[0])
+
+    def close(self) -> None:
+        self._con.close()
+
+    def __enter__(self) -> "Store":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    def __repr__(self) -> str:
+        return f"Store({str(self.path)!r})"
+
+    # ------------------------------------------------------------------ helpers
+    def _query(self, sql: str, params: Sequence[Any] = ()) -> list[sqlite3.Row]:
+        try:
+            cur = self._con.execute(sql, params)
+            return cur.fetchall()
+        except sqlite3.DatabaseError as exc:
+            raise InputError(f"history store {self.path}: {exc}") from None
+
+    def series_names(self) -> list[str]:
+        """Names of the stored series, in order of creation."""
+        return [r[0] for r in self._query("SELECT name FROM series ORDER BY id")]
+
+    def series_config(self, series: str) -> dict | None:
+        """The stored config of ``series`` (reference size, target, tolerances), or None."""
+        rows = self._query("SELECT config FROM series WHERE name = ?", (series,))
+        return json.loads(rows[0][0]) if rows else None
+
+    # ------------------------------------------------------------------ writing
+    def record(self, curve: Curve, fit: Any = None, *, series: str,
+               headline: Sequence[tracking.Figure] | None = None,
+               target_error: float | None = None, reference_size: int | None = None,
+               tolerances: Mapping[str, Any] | None = None, capacity: Any = None,
+               interval: float = 0.9, code_version: str | None | bool = True,
+               created: str | None = None) -> int:
+        """Record one run of ``series`` and return its run id.
+
+        Parameters
+        ----------
+        curve : Curve
+            The measured curve (points and meta are stored).
+        fit : CurveFit, optional
+            Its fit; the summary (``fit.to_dict()``) is stored and, unless ``headline``
+            is given, the headline figures are computed from it.
+        series : str
+            Series name; created on first use.
+        headline : list of Figure, optional
+            Headline figures given directly (skips computing them from ``fit``).
+        target_error, reference_size, tolerances
+            Series settings. The first run fixes the reference size (default: its
+            largest measured size) so all runs are read at the same size; a target or
+            tolerances given here replace the stored ones.
+        capacity : CapacityEstimate, optional
+            Effective capacity of the run, stored as a figure.
+        interval : float
+            Level of the headline intervals.
+        code_version : str, None or True
+            Code version to store; True looks it up with ``git rev-parse HEAD``.
+        created : str, optional
+            ISO timestamp; defaults to now (UTC).
+        """
+        if not isinstance(series, str) or not series.strip():
+            raise InputError("a series name is needed, e.g. --series nightly")
+        if target_error is not None and not (0 <= float(target_error) < math.inf):
+            raise InputError(f"target error must be a finite number >= 0; got {target_error}")
+        config = dict(self.series_config(series) or {})
+        is_new = not config and series not in self.series_names()
+        if reference_size is not None:
+            ref = int(reference_size)
+            if ref <= 0:
+                raise InputError(f"reference size must be a positive integer; got {reference_size}")
+            if config.get("reference_size") not in (None, ref):
+                raise InputError(f"series {series!r} reads errors at reference size "
+                                 f"{config['reference_size']}, not {ref}; start a new series "
+                                 "to change it")
+            config["reference_size"] = ref
+        if "reference_size" not in config:
+            if len(curve.sizes) == 0:
+                raise InputError("the run has no successful cell; nothing to record")
+            config["reference_size"] = int(curve.sizes.max())
+        if target_error is not None:
+            config["target_error"] = float(target_error)
+        if tolerances is not None:
+            tracking.resolve_tolerances(tolerances)  # validate names and values
+            merged = dict(config.get("tolerances") or {})
+            merged.update(tracking.tolerances_to_config(tolerances))
+            config["tolerances"] = merged
+        if headline is None:
+            headline = []
+            if fit is not None:
+                headline = tracking.headline_figures(
+                    fit, reference_size=config["reference_size"],
+                    target_error=config.get("target_error"), capacity=capacity,
+                    interval=interval)
+        meta = dict(curve.meta)
+        meta["tracking"] = {"reference_size": config["reference_size"],
+                            "target_error": config.get("target_error"),
+                            "interval": interval}
+        fit_summary = _fit_summary(fit)
+        version = git_head() if code_version is True else (code_version or None)
+        points = curve.points
+        extra_cols = [c for c in points.columns if c not in POINT_COLUMNS]
+        rows = []
+        for rec in points.astype(object).where(points.notna(), None).to_dict(orient="records"):
+            extra = {c: rec[c] for c in extra_cols}
+            rows.append((int(rec["size"]), int(rec["repeat"]),
+                         *(_num(rec[c]) for c in ("train_error", "test_error", "n_test",
+                                                   "n_test_errors", "fit_seconds")),
+                         str(rec["status"]), str(rec["message"] or ""),
+                         _json(extra) if extra else None))
+        now = created or _now()
+        con = self._con
+        try:
+            con.execute("BEGIN IMMEDIATE")
+            try:
+                con.execute("INSERT OR IGNORE INTO series (name, config, created) VALUES (?, ?, ?)",
+                            (series, _json(config), now))
+                if not is_new:
+                    con.execute("UPDATE series SET config = ? WHERE name = ?", (_json(config), series))
+                sid = con.execute("SELECT id FROM series WHERE name = ?", (series,)).fetchone()[0]
+                cur = con.execute(
+                    "INSERT INTO runs (series_id, created, meta, data_fingerprint, model, metric,"
+                    " code_version) VALUES (?, ?, ?, ?, ?, ?, ?)",
+                    (sid, now, _json(meta), _fingerprint(meta), _model_text(meta.get("model")),
+                     str(meta.get("metric", "error")), version))
+                run_id = int(cur.lastrowid)
+                con.executemany(
+                    "INSERT INTO points (run_id, size, repeat, train_error, test_error, n_test,"
+                    " n_test_errors, fit_seconds, status, message, extra)"
+                    " VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                    [(run_id, *r) for r in rows])
+                if fit_summary is not None:
+                    con.execute("INSERT INTO fits (run_id, summary) VALUES (?, ?)",
+                                (run_id, fit_summary))
+                con.executemany(
+                    "INSERT INTO headline (run_id, name, estimate, low, high, level, better, note)"
+                    " VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
+                    [(run_id, f.name, _num(f.estimate, keep_inf=True), _num(f.low, keep_inf=True),
+                      _num(f.high, keep_inf=True), float(f.level), f.better, f.note or "")
+                     for f in headline])
+                con.execute("COMMIT")
+            except BaseException:
+                if con.in_transaction:
+                    con.execute("ROLLBACK")
+                raise
+        except sqlite3.IntegrityError as exc:
+            raise InputError(f"cannot record the run: {exc} (duplicate size/repeat cells "
+                             "or figure names?)") from None
+        except sqlite3.DatabaseError as exc:
+            raise InputError(f"history store {self.path}: {exc}") from None
+        return run_id
+
+    # ------------------------------------------------------------------ reading
+    def runs(self, series: str | None = None) -> pd.DataFrame:
+        """One row per run (oldest first) with its headline figures.
+
+        Columns: ``run_id, series, created, model, metric, data_fingerprint,
+        code_version, n_points, n_failed`` and, for each figure, ``<name>``,
+        ``<name>_low``, ``<name>_high``.
+        """
+        if series is not None and series not in self.series_names():
+            known = ", ".join(self.series_names()) or "none"
+            raise InputError(f"series {series!r} not found in {self.path} (known: {known})")
+        where, params = ("WHERE s.name = ?", (series,)) if series is not None else ("", ())
+        rows = self._query(
+            "SELECT r.id, s.name, r.created, r.model, r.metric, r.data_fingerprint,"
+            " r.code_version,"
+            " (SELECT count(*) FROM points p WHERE p.run_id = r.id),"
+            " (SELECT count(*) FROM points p WHERE p.run_id = r.id AND p.status != 'ok')"
+            f" FROM runs r JOIN series s ON s.id = r.series_id {where} ORDER BY r.id", params)
+        cols = ["run_id", "series", "created", "model", "metric", "data_fingerprint",
+                "code_version", "n_points", "n_failed"]
+        df = pd.DataFrame([tuple(r) for r in rows], columns=cols)
+        if df.empty:
+            return df
+        figs = self._query(
+            "SELECT h.run_id, h.name, h.estimate, h.low, h.high FROM headline h"
+            " JOIN runs r ON r.id = h.run_id JOIN series s ON s.id = r.series_id"
+            f" {where} ORDER BY h.run_id", params)
+        names = [n for n in tracking.FIGURES if any(f[1] == n for f in figs)]
+        names += sorted({f[1] for f in figs} - set(names))
+        for n in names:
+            for suffix in ("", "_low", "_high"):
+                df[n + suffix] = math.nan
+        index = {rid: i for i, rid in enumerate(df["run_id"])}
+        for rid, name, est, lo, hi in figs:
+            i = index[rid]
+            for suffix, v in (("", est), ("_low", lo), ("_high", hi)):
+                df.loc[i, name + suffix] = math.nan if v is None else float(v)
+        return df
+
+    def headline(self, run_id: int) -> dict[str, tracking.Figure]:
+        """The headline figures of one run, by name."""
+        self._run_row(run_id)
+        rows = self._query("SELECT name, estimate, low, high, level, better, note FROM headline"
+                           " WHERE run_id = ? ORDER BY rowid", (int(run_id),))
+        return {r[0]: tracking.Figure(r[0], _unnull(r[1]), _unnull(r[2]), _unnull(r[3]),
+                                      float(r[4] if r[4] is not None else 0.9), r[5],
+                                      rename_legacy(r[6] or ""))
+                for r in rows}
+
+    def curve(self, run_id: int) -> Curve:
+        """The stored curve of one run (points and meta), as recorded."""
+        row = self._run_row(run_id)
+        pts = self._query(
+            "SELECT size, repeat, train_error, test_error, n_test, n_test_errors, fit_seconds,"
+            " status, message, extra FROM points WHERE run_id = ? ORDER BY size, repeat",
+            (int(run_id),))
+        records = []
+        for p in pts:
+            rec = dict(zip(POINT_COLUMNS, p[:9]))
+            if p[9]:
+                rec.update(json.loads(p[9]))
+            records.append(rec)
+        df = pd.DataFrame(records) if records else pd.DataFrame(columns=POINT_COLUMNS)
+        return Curve(df, rename_legacy(json.loads(row["meta"])))
+
+    def fit_summary(self, run_id: int) -> dict | None:
+        """The stored fit summary (``fit.to_dict()``) of one run, or None."""
+        self._run_row(run_id)
+        rows = self._query("SELECT summary FROM fits WHERE run_id = ?", (int(run_id),))
+        return rename_legacy(json.loads(rows[0][0])) if rows else None
+
+    def _run_row(self, run_id: Any) -> dict:
+        try:
+            rid = int(run_id)
+        except (TypeError, ValueError):
+            raise InputError(f"run id must be an integer; got {run_id!r}") from None
+        rows = self._query(
+            "SELECT r.id, s.name, r.created, r.meta, r.data_fingerprint, r.model, r.metric,"
+            " r.code_version FROM runs r JOIN series s ON s.id = r.series_id WHERE r.id = ?",
+            (rid,))
+        if not rows:
+            raise InputError(f"run {rid} not found in {self.path}")
+        keys = ["id", "series", "created", "meta", "data_fingerprint", "model", "metric",
+                "code_version"]
+        return dict(zip(keys, rows[0]))
+
+    # ------------------------------------------------------------------ comparing
+    def baseline_for(self, run_id: int, baseline: str | int = "previous") -> int | None:
+        """Run id of the baseline of ``run_id``: ``"previous"`` (latest earlier run of
+        the series), ``"best"`` (earlier run with the lowest test error at the
+        reference size) or an explicit run id. None when the series has no earlier run."""
+        row = self._run_row(run_id)
+        rule = tracking.check_baseline(baseline)
+        if rule == "previous":
+            r = self._query("SELECT r.id FROM runs r JOIN series s ON s.id = r.series_id"
+                            " WHERE s.name = ? AND r.id < ? ORDER BY r.id DESC LIMIT 1",
+                            (row["series"], row["id"]))
+            return int(r[0][0]) if r else None
+        if rule == "best":
+            r = self._query(
+                "SELECT r.id FROM runs r JOIN series s ON s.id = r.series_id"
+                " JOIN headline h ON h.run_id = r.id AND h.name = 'test_error_at_ref'"
+                " WHERE s.name = ? AND r.id < ? AND h.estimate IS NOT NULL"
+                " ORDER BY h.estimate ASC, r.id DESC LIMIT 1", (row["series"], row["id"]))
+            if r:
+                return int(r[0][0])
+            return self.baseline_for(run_id, "previous")
+        bid = rule
+        if bid == row["id"]:
+            raise InputError(f"run {bid} cannot be its own baseline")
+        self._run_row(bid)
+        return bid
+
+    def compare(self, run_id: int, baseline: str | int = "previous", *,
+                tolerances: Mapping[str, Any] | None = None,
+                allow_data_change: bool = False) -> tracking.Comparison:
+        """Compare a stored run with its baseline.
+
+        Parameters
+        ----------
+        run_id : int
+        baseline : "previous", "best" or int
+        tolerances : mapping, optional
+            Per-figure tolerances overriding the series' stored ones and the defaults
+            (`curvefit.history.figures.DEFAULT_TOLERANCES`); numbers are absolute, ``"N%"``
+            relative.
+        allow_data_change : bool
+            Compare even when the data fingerprint or the metric differ.
+
+        Returns
+        -------
+        Comparison
+            ``.regressed`` names the regressed figures, ``.comparable`` is False when
+            the data or metric changed and that was not allowed.
+        """
+        row = self._run_row(run_id)
+        rule = tracking.check_baseline(baseline)
+        rule_name = rule if rule in ("previous", "best") else "run"
+        bid = self.baseline_for(run_id, baseline)
+        config = self.series_config(row["series"]) or {}
+        tol = tracking.resolve_tolerances(config.get("tolerances"), tolerances)
+        current = self.headline(row["id"])
+        if bid is None:
+            changes = [tracking.compare_figure(f, None, tol.get(n)) for n, f in current.items()]
+            return tracking.Comparison(row["series"], row["id"], None, rule_name, True, [], changes)
+        brow = self._run_row(bid)
+        base = self.headline(bid)
+        reasons = []
+        if (row["data_fingerprint"] or None) != (brow["data_fingerprint"] or None):
+            reasons.append(f"data fingerprint differs from run {bid}'s "
+                           f"({_short(brow['data_fingerprint'])} → {_short(row['data_fingerprint'])})")
+        if (row["metric"] or "error") != (brow["metric"] or "error"):
+            reasons.append(f"metric differs from run {bid}'s ({brow['metric']} → {row['metric']})")
+        names = list(current) + [n for n in base if n not in current]
+        changes = [tracking.compare_figure(current.get(n), base.get(n), tol.get(n)) for n in names]
+        comparable = not reasons or allow_data_change
+        return tracking.Comparison(row["series"], row["id"], bid, rule_name, comparable,
+                                   reasons, changes, data_change_allowed=bool(reasons) and allow_data_change)
+
+
+def _short(fp: str | None) -> str:
+    return "none" if not fp else str(fp)[:12]
+
+
+def _fingerprint(meta: Mapping[str, Any]) -> str | None:
+    """The run's data fingerprint: ``meta["data_fingerprint"]`` or, as the runner
+    writes it, ``meta["data"]["fingerprint"]`` (plus a separate test set's, if any)."""
+    fp = meta.get("data_fingerprint")
+    data = meta.get("data")
+    if fp is None and isinstance(data, Mapping):
+        fp = data.get("fingerprint")
+        test_fp = (meta.get("test_data") or {}).get("fingerprint") if isinstance(meta.get("test_data"), Mapping) else None
+        if fp is not None and test_fp:
+            fp = f"{fp}+{test_fp}"
+    if isinstance(fp, Mapping):  # a runner may keep several hashes; store them all
+        return _json(fp)
+    return None if fp is None else str(fp)
+
+
+def _num(v: Any, keep_inf: bool = False) -> float | None:
+    if v is None:
+        return None
+    f = float(v)
+    if math.isnan(f) or (math.isinf(f) and not keep_inf):
+        return None
+    return f
+
+
+def _unnull(v: Any) -> float:
+    return math.nan if v is None else float(v)
+
+
+def _fit_summary(fit: Any) -> str | None:
+    if fit is None:
+        return None
+    to_dict = getattr(fit, "to_dict", None)
+    if to_dict is None:
+        return None
+    return _json(to_dict())

@@ -1,0 +1,501 @@
+"""Loading tables and preparing them for measurement.
+
+`load_table` reads CSV/TSV/TXT, Parquet or NPZ into a pandas DataFrame; `prepare`
+splits it into features and target, decides the task, and fingerprints the content so
+that a run file says exactly which data it was measured on. Everything here raises
+`InputError` with one line naming the problem and the fix.
+
+Task rule (documented, used by `prepare`):
+
+* a non-numeric or boolean target is **classification**;
+* a numeric target (integer or float) whose values are all whole numbers and that has
+  at most ``MAX_INTEGER_CLASSES`` (20) distinct values is **classification** (labels
+  such as 0/1 or the digits 0..9 stored as ``1.0, 2.0``, ...);
+* any other numeric target is **regression**.
+
+Pass ``task="classification"`` or ``task="regression"`` to override it.
+
+Fingerprint (`table_fingerprint`): SHA-256 over a canonical text form of the table,
+column by column: the column name, its kind (``n`` numeric including booleans stored as
+numbers, ``s`` everything else: strings, categories, dates, booleans), then the JSON list
+of its values in row order, where numbers are written as exact integers when they are
+whole (``3.0`` and ``3`` agree) and otherwise with 12 significant digits, strings as
+themselves, dates as pandas prints them, and missing values as ``null``. Twelve digits
+absorb the last-bit differences of decimal parsing, so the same data saved as CSV and as
+Parquet give the same fingerprint; row order and column order count.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from curvefit.core.errors import InputError
+
+MAX_INTEGER_CLASSES = 20
+TASKS = ("classification", "regression")
+
+_CSV_SUFFIXES = {".csv"}
+_SNIFF_SUFFIXES = {".tsv", ".txt", ".tab"}
+_PARQUET_SUFFIXES = {".parquet", ".pq"}
+_NPZ_SUFFIXES = {".npz"}
+_COMPRESSION = {".gz", ".bz2", ".xz", ".zst", ".zip"}
+
+
+def _list_names(names, limit: int = 25) -> str:
+    names = [str(n) for n in names]
+    if len(names) > limit:
+        return ", ".join(names[:limit]) + f", ... ({len(names) - limit} more)"
+    return ", ".join(names) or "none"
+
+
+def _data_suffix(path: Path) -> str:
+    """The format suffix, looking through a compression suffix (``a.csv.gz`` → ``.csv``)."""
+    suffixes = [s.lower() for s in path.suffixes]
+    if len(suffixes) >= 2 and suffixes[-1] in _COMPRESSION:
+        return suffixes[-2]
+    return suffixes[-1] if suffixes else ""
+
+
+def load_table(path: str | os.PathLike) -> pd.DataFrame:
+    """Read a data table from CSV, TSV/TXT (separator sniffed), Parquet or NPZ.
+
+    Parameters
+    ----------
+    path : str or path-like
+        ``.csv`` (comma separated, header row; a file whose header only splits on
+        ``;``, tab or ``|`` is re-read with that separator), ``.tsv``/``.txt``/``.tab`` (separator
+        detected from the file), ``.parquet``/``.pq`` (via pyarrow), or ``.npz`` with
+        arrays ``X`` (2-D) and ``y`` (1-D) and optionally ``feature_names``. Text
+        formats may be compressed (``.csv.gz``).
+
+    Returns
+    -------
+    pandas.DataFrame
+        For NPZ: one column per feature (named from ``feature_names`` or ``x0..x{k-1}``),
+        a ``y`` column, and any other 1-D array of the same length as a column.
+
+    Raises
+    ------
+    InputError
+        Missing or unreadable file, unknown format, empty table.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> d = pathlib.Path(tempfile.mkdtemp())
+    >>> _ = (d / "t.csv").write_text("a,b,y\\n1,2,0\\n3,4,1\\n")
+    >>> load_table(d / "t.csv").shape
+    (2, 3)
+    """
+    path = Path(path)
+    if not path.exists():
+        raise InputError(f"data file not found: {path}; check the path")
+    if path.is_dir():
+        raise InputError(f"{path} is a directory; give the path of a CSV, Parquet or NPZ file")
+    suffix = _data_suffix(path)
+    try:
+        if suffix in _CSV_SUFFIXES:
+            df = pd.read_csv(path, low_memory=False)  # one dtype per column, not per chunk
+            if df.shape[1] == 1 and any(sep in str(df.columns[0]) for sep in ";\t|"):
+                # a ".csv" written with semicolons or tabs (common with decimal commas)
+                df = pd.read_csv(path, sep=None, engine="python")
+        elif suffix in _SNIFF_SUFFIXES:
+            df = pd.read_csv(path, sep=None, engine="python")
+        elif suffix in _PARQUET_SUFFIXES:
+            df = pd.read_parquet(path)
+        elif suffix in _NPZ_SUFFIXES:
+            df = _read_npz(path)
+        else:
+            raise InputError(f"unknown data format {suffix or '(no extension)'!r} for {path}; "
+                             "use .csv, .tsv, .txt, .parquet or .npz")
+    except InputError:
+        raise
+    except pd.errors.EmptyDataError:
+        raise InputError(f"data file {path} is empty; it needs a header row and data rows") from None
+    except (OSError, UnicodeDecodeError, ValueError, pd.errors.ParserError, ImportError) as exc:
+        raise InputError(f"cannot read {path} as {suffix.lstrip('.').upper()}: "
+                         f"{_one_line(exc)}; check the file is complete and in that format") from None
+    except Exception as exc:  # pyarrow raises its own error classes for corrupt files
+        raise InputError(f"cannot read {path} as {suffix.lstrip('.').upper()}: "
+                         f"{type(exc).__name__}: {_one_line(exc)}") from None
+    if df.shape[1] == 0:
+        raise InputError(f"data file {path} has no columns; it needs a header row")
+    if df.shape[0] == 0:
+        raise InputError(f"data file {path} has no data rows (columns: {_list_names(df.columns)})")
+    dupes = pd.Index(df.columns)[pd.Index(df.columns).duplicated()].unique()
+    if len(dupes):
+        raise InputError(f"data file {path} has duplicate column names: {_list_names(dupes)}; rename them")
+    df.columns = [str(c) for c in df.columns]
+    return df
+
+
+def _one_line(exc: BaseException) -> str:
+    text = " ".join(str(exc).split())
+    return text[:300] if text else type(exc).__name__
+
+
+def _read_npz(path: Path) -> pd.DataFrame:
+    try:
+        archive = np.load(path, allow_pickle=False)
+    except ValueError as exc:
+        raise InputError(f"cannot read {path} as NPZ: {_one_line(exc)} "
+                         "(object arrays are not loaded; save plain numeric or string arrays)") from None
+    with archive:
+        names = list(archive.files)
+        if "X" not in names or "y" not in names:
+            raise InputError(f"NPZ file {path} needs arrays 'X' and 'y' (found: {_list_names(names)}); "
+                             "save with numpy.savez(path, X=X, y=y)")
+        X = np.asarray(archive["X"])
+        y = np.asarray(archive["y"])
+        if X.ndim == 1:
+            X = X.reshape(-1, 1)
+        if X.ndim != 2:
+            raise InputError(f"NPZ file {path}: 'X' must be 2-D (rows x features), got shape {X.shape}")
+        if y.ndim != 1:
+            y = y.reshape(-1) if y.ndim == 2 and 1 in y.shape else y
+        if y.ndim != 1 or len(y) != X.shape[0]:
+            raise InputError(f"NPZ file {path}: 'y' must be 1-D with one value per row of X "
+                             f"(X has {X.shape[0]} rows, y has shape {y.shape})")
+        if "feature_names" in names:
+            feature_names = [str(v) for v in np.asarray(archive["feature_names"]).reshape(-1)]
+            if len(feature_names) != X.shape[1]:
+                raise InputError(f"NPZ file {path}: 'feature_names' has {len(feature_names)} names "
+                                 f"for {X.shape[1]} columns of X")
+        else:
+            feature_names = [f"x{i}" for i in range(X.shape[1])]
+        columns = {name: X[:, i] for i, name in enumerate(feature_names)}
+        if "y" in columns:
+            raise InputError(f"NPZ file {path}: a feature is named 'y', which is the target's column name")
+        columns["y"] = y
+        for name in names:
+            if name in ("X", "y", "feature_names") or name in columns:
+                continue
+            arr = np.asarray(archive[name])
+            if arr.ndim == 1 and len(arr) == X.shape[0]:
+                columns[name] = arr
+    return pd.DataFrame(columns)
+
+
+# ---------------------------------------------------------------------- fingerprint
+def _is_numeric(series: pd.Series) -> bool:
+    return (pd.api.types.is_numeric_dtype(series.dtype)
+            and not pd.api.types.is_bool_dtype(series.dtype))
+
+
+def _canonical_numbers(series: pd.Series) -> list:
+    values = pd.to_numeric(series, errors="coerce").to_numpy(dtype="float64", na_value=np.nan)
+    out = []
+    for v in values.tolist():
+        if math.isnan(v):
+            out.append(None)
+        elif math.isfinite(v) and v == int(v) and abs(v) < 2 ** 53:
+            out.append(str(int(v)))
+        else:
+            out.append(format(v, ".12g"))
+    return out
+
+
+def _canonical_text(series: pd.Series) -> list:
+    missing = series.isna().to_numpy()
+    text = series.astype(str).tolist()
+    return [None if m else t for m, t in zip(missing.tolist(), text)]
+
+
+def table_fingerprint(df: pd.DataFrame) -> str:
+    """SHA-256 (hex) of a table's content, stable across CSV and Parquet copies.
+
+    The canonical form is described in the module docstring: per column, its name, its
+    kind (numeric or not) and its values in row order (whole numbers exact, others to
+    12 significant digits, missing as null).
+
+    References
+    ----------
+    .. [1] National Institute of Standards and Technology, "Secure Hash Standard (SHS)",
+       FIPS PUB 180-4, 2015 (SHA-256).
+
+    Examples
+    --------
+    >>> a = pd.DataFrame({"x": [1, 2], "y": ["a", "b"]})
+    >>> b = pd.DataFrame({"x": [1.0, 2.0], "y": ["a", "b"]})
+    >>> table_fingerprint(a) == table_fingerprint(b)
+    True
+    >>> len(table_fingerprint(a))
+    64
+    """
+    h = hashlib.sha256()
+    h.update(f"curvefit.table/1 rows={len(df)} cols={df.shape[1]}\n".encode())
+    for name in df.columns:
+        col = df[name]
+        if _is_numeric(col):
+            kind, values = "n", _canonical_numbers(col)
+        else:
+            kind, values = "s", _canonical_text(col)
+        h.update(json.dumps([str(name), kind], ensure_ascii=False).encode("utf-8"))
+        h.update(b"\n")
+        h.update(json.dumps(values, ensure_ascii=False, separators=(",", ":")).encode("utf-8"))
+        h.update(b"\n")
+    return h.hexdigest()
+
+
+# ---------------------------------------------------------------------- prepare
+@dataclass(frozen=True, eq=False)
+class Dataset:
+    """Features and target ready for measurement.
+
+    Attributes
+    ----------
+    X : pandas.DataFrame
+        The feature columns with their original dtypes.
+    y : numpy.ndarray
+        The target, 1-D. Whole-number float labels of a classification task become
+        integers.
+    feature_names : list of str
+    task : {"classification", "regression"}
+        Decided by the rule in the module docstring unless overridden.
+    categorical : list of str
+        Non-numeric feature columns (strings, categories, dates, booleans with gaps).
+    has_missing : bool
+        True when any feature value is missing.
+    classes : numpy.ndarray or None
+        Sorted distinct labels (classification only).
+    fingerprint : str
+        `table_fingerprint` of the whole table given to `prepare`.
+    """
+
+    X: pd.DataFrame
+    y: np.ndarray
+    feature_names: list
+    task: str
+    categorical: list = field(default_factory=list)
+    has_missing: bool = False
+    classes: np.ndarray | None = None
+    fingerprint: str = ""
+    target: str = "y"
+
+    @property
+    def n_rows(self) -> int:
+        return int(len(self.y))
+
+    def describe(self) -> dict:
+        """Plain-JSON summary for run metadata."""
+        d = {"target": self.target, "task": self.task, "n_rows": self.n_rows,
+             "n_features": len(self.feature_names), "feature_names": list(self.feature_names),
+             "categorical": list(self.categorical), "has_missing": bool(self.has_missing),
+             "fingerprint": self.fingerprint}
+        if self.classes is not None:
+            d["classes"] = [c.item() if hasattr(c, "item") else c for c in self.classes]
+            d["class_counts"] = {str(k): int(v) for k, v in
+                                 zip(*np.unique(self.y, return_counts=True))}
+        return d
+
+    def __repr__(self) -> str:
+        extra = f", {len(self.classes)} classes" if self.classes is not None else ""
+        return (f"Dataset({self.n_rows} rows, {len(self.feature_names)} features, "
+                f"{self.task}{extra}, {len(self.categorical)} categorical, "
+                f"missing={self.has_missing})")
+
+
+def infer_task(y: pd.Series | np.ndarray) -> str:
+    """Classification or regression by the rule in the module docstring.
+
+    Examples
+    --------
+    >>> infer_task(np.array([0, 1, 1, 0]))
+    'classification'
+    >>> infer_task(np.array([0.5, 1.25, 3.0]))
+    'regression'
+    >>> infer_task(np.array(["cat", "dog"], dtype=object))
+    'classification'
+    """
+    s = pd.Series(y)
+    if pd.api.types.is_bool_dtype(s.dtype) or not pd.api.types.is_numeric_dtype(s.dtype):
+        return "classification"
+    values = pd.to_numeric(s, errors="coerce").dropna().to_numpy(dtype="float64")
+    if len(values) == 0:
+        return "regression"
+    whole = bool(np.all(np.isfinite(values)) and np.all(values == np.round(values)))
+    if whole and len(np.unique(values)) <= MAX_INTEGER_CLASSES:
+        return "classification"
+    return "regression"
+
+
+def _is_categorical_feature(series: pd.Series) -> bool:
+    dtype = series.dtype
+    if pd.api.types.is_bool_dtype(dtype):
+        return False
+    return not pd.api.types.is_numeric_dtype(dtype)
+
+
+def prepare(df: pd.DataFrame, target: str, features=None, *, drop=(),
+            task: str | None = None) -> Dataset:
+    """Split a table into features and target, decide the task, fingerprint it.
+
+    Parameters
+    ----------
+    df : pandas.DataFrame
+        The whole table (as from `load_table`).
+    target : str
+        Name of the target column.
+    features : list of str, optional
+        Feature columns to use (default: every column except the target and ``drop``).
+    drop : sequence of str, keyword-only
+        Columns that are never features (e.g. a group id or a time-order column),
+        even if listed in ``features``. Names not in the table are ignored; the caller
+        validates its own columns.
+    task : {"classification", "regression"}, optional
+        Override the inferred task.
+
+    Returns
+    -------
+    Dataset
+
+    Raises
+    ------
+    InputError
+        Target absent (lists the columns), a listed feature absent, the target listed
+        as a feature, missing values in the target, a single class, no feature left.
+
+    Examples
+    --------
+    >>> t = pd.DataFrame({"a": [1.0, 2.0, 3.0, 4.0], "c": ["u", "v", "u", "v"],
+    ...                   "y": [0, 1, 0, 1]})
+    >>> ds = prepare(t, "y")
+    >>> ds.task, ds.feature_names, ds.categorical
+    ('classification', ['a', 'c'], ['c'])
+    """
+    if not isinstance(df, pd.DataFrame):
+        raise InputError(f"expected a table (pandas DataFrame), got {type(df).__name__}")
+    if len(df) == 0:
+        raise InputError("the table has no rows")
+    columns = [str(c) for c in df.columns]
+    if len(set(columns)) != len(columns):
+        raise InputError("the table has duplicate column names; rename them")
+    df = df.copy()
+    df.columns = columns
+    target = str(target)
+    if target not in columns:
+        raise InputError(f"target column {target!r} not in the table; available columns: "
+                         f"{_list_names(columns)}")
+    drop_set = {str(c) for c in (drop or ())}
+    if features is not None:
+        if isinstance(features, str):
+            features = [f.strip() for f in features.split(",") if f.strip()]
+        features = [str(f) for f in features]
+        absent = [f for f in features if f not in columns]
+        if absent:
+            raise InputError(f"feature column{'s' if len(absent) > 1 else ''} "
+                             f"{_list_names(absent)} not in the table; available columns: "
+                             f"{_list_names(columns)}")
+        if target in features:
+            raise InputError(f"the target {target!r} is also listed as a feature; remove it from the features")
+        if len(set(features)) != len(features):
+            raise InputError("a feature column is listed twice; list each once")
+        feature_names = [f for f in features if f not in drop_set]
+    else:
+        feature_names = [c for c in columns if c != target and c not in drop_set]
+    if not feature_names:
+        raise InputError(f"no feature columns left (target {target!r}"
+                         + (f", excluded {_list_names(sorted(drop_set & set(columns)))}" if drop_set & set(columns) else "")
+                         + "); the table needs at least one other column")
+
+    y_series = df[target]
+    n_missing = int(y_series.isna().sum())
+    if n_missing:
+        rows = np.flatnonzero(y_series.isna().to_numpy())[:5].tolist()
+        raise InputError(f"target column {target!r} has {n_missing} missing value"
+                         f"{'s' if n_missing > 1 else ''} (first at row index "
+                         f"{', '.join(map(str, rows))}); drop or fill those rows")
+    if task is None:
+        task = infer_task(y_series)
+    elif task not in TASKS:
+        raise InputError(f"unknown task {task!r}; use classification or regression")
+
+    classes = None
+    if task == "classification":
+        y = _label_array(y_series)
+        try:
+            classes = np.unique(y)
+        except TypeError:
+            raise InputError(f"target column {target!r} mixes value types; "
+                             "store the labels as one type (all text or all numbers)") from None
+        if len(classes) < 2:
+            only = classes[0].item() if hasattr(classes[0], "item") else classes[0]
+            raise InputError(f"target column {target!r} has a single class ({only!r}); "
+                             "classification needs at least two classes")
+    else:
+        try:
+            y = pd.to_numeric(y_series).to_numpy(dtype="float64")
+        except (ValueError, TypeError):
+            raise InputError(f"target column {target!r} is not numeric; it cannot be a regression "
+                             "target (use task classification)") from None
+        if not np.all(np.isfinite(y)):
+            raise InputError(f"target column {target!r} has infinite values; drop or fix those rows")
+
+    X = df[feature_names]
+    categorical = [c for c in feature_names if _is_categorical_feature(X[c])]
+    has_missing = bool(X.isna().to_numpy().any())
+    return Dataset(X=X, y=y, feature_names=list(feature_names), task=task,
+                   categorical=categorical, has_missing=has_missing, classes=classes,
+                   fingerprint=table_fingerprint(df), target=target)
+
+
+def _label_array(y_series: pd.Series) -> np.ndarray:
+    """Class labels as a plain ndarray: whole-number floats become int64, text stays text."""
+    s = y_series
+    if pd.api.types.is_bool_dtype(s.dtype):
+        return s.to_numpy(dtype=bool)
+    if pd.api.types.is_numeric_dtype(s.dtype):
+        values = s.to_numpy(dtype="float64")
+        if np.all(values == np.round(values)):
+            return values.astype("int64")
+        return values
+    if isinstance(s.dtype, pd.CategoricalDtype):
+        s = s.astype(object)
+    return s.to_numpy(dtype=object)
+
+
+def dataset_from_arrays(X, y, feature_names=None, *, task: str | None = None,
+                        target: str = "y") -> Dataset:
+    """Wrap in-memory ``X`` (array or DataFrame) and ``y`` as a `Dataset`.
+
+    Used by the Python API when the user passes arrays instead of a file; the
+    fingerprint covers ``X`` and ``y`` together.
+
+    Examples
+    --------
+    >>> ds = dataset_from_arrays(np.arange(8.0).reshape(4, 2), [0, 1, 0, 1])
+    >>> ds.feature_names
+    ['x0', 'x1']
+    """
+    if isinstance(X, pd.DataFrame):
+        frame = X.copy()
+        frame.columns = [str(c) for c in frame.columns]
+    else:
+        arr = np.asarray(X)
+        if arr.ndim == 1:
+            arr = arr.reshape(-1, 1)
+        if arr.ndim != 2:
+            raise InputError(f"X must be 2-D (rows x features), got shape {arr.shape}")
+        names = list(feature_names) if feature_names is not None else [f"x{i}" for i in range(arr.shape[1])]
+        if len(names) != arr.shape[1]:
+            raise InputError(f"{len(names)} feature names for {arr.shape[1]} columns of X")
+        frame = pd.DataFrame(arr, columns=[str(n) for n in names])
+    y_arr = np.asarray(y)
+    if y_arr.ndim == 2 and 1 in y_arr.shape:
+        y_arr = y_arr.reshape(-1)
+    if y_arr.ndim != 1 or len(y_arr) != len(frame):
+        raise InputError(f"y must be 1-D with one value per row of X (X has {len(frame)} rows, "
+                         f"y has shape {y_arr.shape})")
+    if target in frame.columns:
+        raise InputError(f"a feature column is named {target!r}, the target's name; rename it")
+    frame = frame.reset_index(drop=True)
+    frame[target] = y_arr
+    return prepare(frame, target, task=task)

@@ -1,0 +1,140 @@
+"""The run journal: finished cells, appended one per line, safe against a crash.
+
+The runner talks to a journal through three calls — `Journal.open`, `append`,
+`close` — so the storage can change without touching the runner. This version writes
+JSON lines beside the run file (``run.json.journal``):
+
+* line 1, the header: ``{"format": "curvefit.measuring.journal/1", "run": {...}}``, where
+  ``run`` identifies the run (data fingerprint, model, sizes, repeats, seed, metric,
+  split). Resuming with a journal whose identity differs is refused, so cells of a
+  different run are never mixed in.
+* then one JSON object per finished cell, written, flushed and ``os.fsync``-ed before
+  the runner reports the cell.
+
+A crash (kill -9, power loss) can leave the last line torn; `open` drops it and
+truncates the file to the last complete line. Any other damage is an `InputError`.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+from pathlib import Path
+from typing import Any
+
+from curvefit.core.jsonio import jsonable
+from curvefit.core.errors import InputError
+
+JOURNAL_FORMAT = "curvefit.measuring.journal/1"
+
+
+def journal_path(run_path: str | os.PathLike) -> Path:
+    """Where the journal of a run file lives: ``<run file>.journal``."""
+    run_path = Path(run_path)
+    return run_path.with_name(run_path.name + ".journal")
+
+
+def _canonical(obj: Any) -> str:
+    return json.dumps(jsonable(obj), sort_keys=True, allow_nan=False)
+
+
+class Journal:
+    """Append-only record of finished cells.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "run.json.journal"
+    >>> j, done = Journal.open(path, {"seed": 0}, resume=False)
+    >>> j.append({"size": 10, "repeat": 0, "test_error": 0.2})
+    >>> j.close()
+    >>> j, done = Journal.open(path, {"seed": 0}, resume=True)
+    >>> [(c["size"], c["repeat"]) for c in done]
+    [(10, 0)]
+    >>> j.close()
+    """
+
+    def __init__(self, path: Path, fh):
+        self.path = path
+        self._fh = fh
+
+    @classmethod
+    def open(cls, path: str | os.PathLike, identity: dict, *, resume: bool) -> tuple["Journal", list[dict]]:
+        """Open (or start) the journal at ``path`` for the run ``identity``.
+
+        Returns the journal, ready to append, and the cells it already holds (empty
+        unless ``resume``). Without ``resume`` an existing journal is replaced.
+        """
+        path = Path(path)
+        done: list[dict] = []
+        if resume and path.exists():
+            done, good_bytes = cls._read(path, identity)
+            fh = open(path, "r+b")
+            fh.truncate(good_bytes)
+            fh.seek(good_bytes)
+            return cls(path, fh), done
+        path.parent.mkdir(parents=True, exist_ok=True)
+        fh = open(path, "wb")
+        j = cls(path, fh)
+        j._write({"format": JOURNAL_FORMAT, "run": identity})
+        return j, done
+
+    @staticmethod
+    def _read(path: Path, identity: dict) -> tuple[list[dict], int]:
+        try:
+            data = path.read_bytes()
+        except OSError as exc:
+            raise InputError(f"cannot read the journal {path}: {exc}") from None
+        lines = data.split(b"\n")
+        # a complete file ends with "\n", so the last piece is empty; anything else is torn
+        complete, tail = lines[:-1], lines[-1]
+        records, good = [], 0
+        for i, raw in enumerate(complete):
+            try:
+                rec = json.loads(raw.decode("utf-8"))
+                if not isinstance(rec, dict):
+                    raise ValueError("not an object")
+            except (UnicodeDecodeError, ValueError):
+                if i == len(complete) - 1 and not tail:
+                    break  # torn last line that happened to end in a newline
+                raise InputError(f"the journal {path} is corrupt at line {i + 1}; "
+                                 "delete it to start over, or run without --resume") from None
+            records.append(rec)
+            good += len(raw) + 1
+        if not records:
+            raise InputError(f"the journal {path} has no header; delete it to start over, "
+                             "or run without --resume")
+        header, cells = records[0], records[1:]
+        if header.get("format") != JOURNAL_FORMAT or not isinstance(header.get("run"), dict):
+            raise InputError(f"{path} is not a curvefit journal (expected format "
+                             f"{JOURNAL_FORMAT!r}); delete it or run without --resume")
+        theirs, ours = header["run"], json.loads(_canonical(identity))
+        if _canonical(theirs) != _canonical(ours):
+            keys = sorted(k for k in set(theirs) | set(ours) if _canonical(theirs.get(k)) != _canonical(ours.get(k)))
+            raise InputError(f"the journal {path} belongs to a different run (differs in: "
+                             f"{', '.join(keys)}); run without --resume to start over")
+        for c in cells:
+            if "size" not in c or "repeat" not in c:
+                raise InputError(f"the journal {path} has a cell without size/repeat; "
+                                 "delete it to start over")
+        return cells, good
+
+    def _write(self, record: dict) -> None:
+        line = (_canonical(record) + "\n").encode("utf-8")
+        self._fh.write(line)
+        self._fh.flush()
+        os.fsync(self._fh.fileno())
+
+    def append(self, cell: dict) -> None:
+        """Record one finished cell durably (returns after fsync)."""
+        self._write(cell)
+
+    def close(self) -> None:
+        if self._fh is not None and not self._fh.closed:
+            self._fh.close()
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()

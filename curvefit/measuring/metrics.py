@@ -1,0 +1,180 @@
+"""Losses for learning curves: every metric is turned into a loss where larger is worse.
+
+Built-in names:
+
+* ``"error"`` — 0-1 error (misclassified fraction) for classifiers, mean squared
+  error for regressors. For classifiers the count of test errors is kept too, so
+  exact binomial intervals can be computed later.
+* ``"mse"``, ``"mae"`` — mean squared / mean absolute error.
+* ``"balanced_error"`` — 1 − balanced accuracy (mean per-class recall).
+
+Any scikit-learn scorer name (``sklearn.metrics.get_scorers()``) is accepted too and
+turned into a loss as follows:
+
+* scorers named ``neg_*`` report a negated error; the loss is ``−score``
+  (e.g. ``neg_log_loss`` → log loss, ``neg_mean_absolute_error`` → MAE);
+* every other scorer is a score with best value 1 (accuracy, f1, roc_auc, r2, ...);
+  the loss is ``1 − score``.
+
+The metric's name, the transform and the direction are recorded in the run metadata.
+"""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass
+from typing import Any
+
+import numpy as np
+
+from curvefit.core.errors import InputError
+
+BUILTIN = ("error", "mse", "mae", "balanced_error")
+
+
+@dataclass(frozen=True)
+class Metric:
+    """A loss computed from a fitted estimator on (X, y); larger is worse.
+
+    Attributes
+    ----------
+    name : str
+        The name the user gave (``"error"``, ``"f1_macro"``, ...).
+    kind : str
+        ``"zero_one"``, ``"mse"``, ``"mae"``, ``"balanced_error"`` or ``"scorer"``.
+    transform : str
+        How the loss relates to the underlying quantity, e.g. ``"1 - accuracy"``.
+    response : str
+        What the loss needs from the model: ``"predict"``, ``"predict_proba"`` or
+        ``"decision_function|predict_proba"``.
+    counts_errors : bool
+        True for the 0-1 error, whose per-row error count is recorded.
+    """
+
+    name: str
+    kind: str
+    transform: str
+    response: str = "predict"
+    counts_errors: bool = False
+    direction: str = "lower is better"
+
+    def to_dict(self) -> dict:
+        return asdict(self)
+
+    # ------------------------------------------------------------------ loss
+    def loss(self, estimator: Any, X: Any, y: np.ndarray,
+             predictions: np.ndarray | None = None) -> tuple[float, int | None]:
+        """Loss of ``estimator`` on ``(X, y)`` and, for the 0-1 error, the error count.
+
+        ``predictions`` (from ``estimator.predict(X)``) may be passed in when the
+        caller already has them (programs run once for train and test); metrics that
+        need scores or probabilities ignore them.
+        """
+        y = np.asarray(y)
+        if self.kind == "scorer":
+            from sklearn.metrics import get_scorer
+
+            scorer = get_scorer(self.name)
+            if predictions is not None and self.response == "predict":
+                # a program's predictions: score them without calling predict again
+                score = scorer._sign * scorer._score_func(y, predictions, **scorer._kwargs)
+            else:
+                score = scorer(estimator, X, y)
+            value = -float(score) if self.name.startswith("neg_") else 1.0 - float(score)
+            return value, None
+        pred = np.asarray(estimator.predict(X) if predictions is None else predictions)
+        if self.kind == "zero_one":
+            pred = pred.reshape(y.shape)
+            same = pred == y
+            # 1 - mean(...) is exactly how scikit-learn's accuracy scorer would read
+            return 1.0 - float(np.mean(same)), int(np.count_nonzero(~same))
+        if self.kind == "balanced_error":
+            from sklearn.metrics import balanced_accuracy_score
+
+            return 1.0 - float(balanced_accuracy_score(y, pred)), None
+        pred = pred.astype(float).reshape(y.shape)
+        diff = pred - y.astype(float)
+        if self.kind == "mse":
+            return float(np.mean(diff ** 2)), None
+        return float(np.mean(np.abs(diff))), None
+
+
+def resolve_metric(name: str, task: str) -> Metric:
+    """Turn a metric name into a `Metric` for a ``"classification"`` or ``"regression"`` task.
+
+    Parameters
+    ----------
+    name : str
+        ``"error"``, ``"mse"``, ``"mae"``, ``"balanced_error"`` or a scikit-learn
+        scorer name.
+    task : str
+        ``"classification"`` or ``"regression"``.
+
+    Returns
+    -------
+    Metric
+
+    Raises
+    ------
+    InputError
+        Unknown name, or a metric that does not fit the task.
+
+    References
+    ----------
+    .. [1] Pedregosa et al., "Scikit-learn: Machine Learning in Python", JMLR 12,
+       2011 (the scorer conventions: greater is better, ``neg_*`` for errors).
+    .. [2] Brodersen, Ong, Stephan, Buhmann, "The balanced accuracy and its posterior
+       distribution", ICPR 2010 (balanced accuracy = mean per-class recall).
+
+    Examples
+    --------
+    >>> resolve_metric("error", "classification").transform
+    '1 - accuracy (0-1 error)'
+    >>> resolve_metric("neg_log_loss", "classification").transform
+    '-neg_log_loss'
+    >>> resolve_metric("f1_macro", "classification").transform
+    '1 - f1_macro'
+    """
+    name = str(name).strip()
+    classification = task == "classification"
+    if name == "error":
+        if classification:
+            return Metric("error", "zero_one", "1 - accuracy (0-1 error)", counts_errors=True)
+        return Metric("error", "mse", "mean squared error")
+    if name in ("mse", "mae"):
+        label = "mean squared error" if name == "mse" else "mean absolute error"
+        return Metric(name, name, label)
+    if name == "balanced_error":
+        if not classification:
+            raise InputError("metric 'balanced_error' needs a classification target; "
+                             "use --metric mse or mae for a numeric target")
+        return Metric(name, "balanced_error", "1 - balanced accuracy")
+    from sklearn.metrics import get_scorer, get_scorer_names
+
+    if name not in get_scorer_names():
+        known = ", ".join(BUILTIN)
+        raise InputError(f"unknown metric {name!r}; use one of {known} or a scikit-learn "
+                         "scorer name such as f1_macro, roc_auc, neg_log_loss")
+    scorer = get_scorer(name)
+    response = getattr(scorer, "_response_method", "predict")
+    if isinstance(response, (tuple, list)):
+        response = "|".join(response)
+    transform = f"-{name}" if name.startswith("neg_") else f"1 - {name}"
+    return Metric(name, "scorer", transform, response=str(response))
+
+
+def check_response(metric: Metric, estimator: Any) -> None:
+    """Raise `InputError` before any fit when the model cannot give what the metric needs.
+
+    Examples
+    --------
+    >>> from sklearn.svm import SVC
+    >>> m = resolve_metric("neg_log_loss", "classification")
+    >>> check_response(m, SVC(probability=True))
+    """
+    needed = metric.response.split("|")
+    if any(hasattr(estimator, method) for method in needed):
+        return
+    label = " or ".join(needed)
+    raise InputError(f"metric {metric.name!r} needs {label} but the model "
+                     f"{type(estimator).__name__} has none; pick a metric based on "
+                     "predictions (error, balanced_error, f1_macro) or a model that has it")

@@ -1,0 +1,725 @@
+"""Figures: learning curves, the generalization gap, the capacity probe, the trade-off,
+and worst-case bounds against the measured answer.
+
+Every function reads results that other modules computed (a `Curve`, a `CurveFit`, a
+`CapacityEstimate`, a `Tradeoff`, plain numbers) and returns a matplotlib ``Figure``;
+nothing here estimates anything new. Figures use the Agg backend, so they work without a
+display. The look is our own: a short palette whose colours differ in lightness as well
+as hue, and every series also has its own marker and line style, so the figures stay
+readable in greyscale and for colour-blind readers.
+
+Missing pieces are skipped, not fatal: a curve whose cells all failed, a fit that could
+not reach the target, or a result object without some field still gives a figure.
+
+Examples
+--------
+>>> import pandas as pd
+>>> from curvefit.core.curve import Curve
+>>> c = Curve.from_table(pd.DataFrame({"size": [50, 50, 100, 100, 200, 200],
+...                                    "test_error": [.30, .28, .22, .24, .18, .19]}))
+>>> fig = learning_curve_figure(c)
+>>> len(fig.axes)
+1
+"""
+
+from __future__ import annotations
+
+import io
+import math
+import os
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Iterable, Mapping, Sequence
+
+import matplotlib
+
+matplotlib.use("Agg")  # no display needed; must run before pyplot is imported
+import matplotlib.pyplot as plt  # noqa: E402
+import numpy as np  # noqa: E402
+import pandas as pd  # noqa: E402
+from matplotlib.figure import Figure  # noqa: E402
+from matplotlib.ticker import FuncFormatter  # noqa: E402
+
+# Our palette: ink blue, ember orange, heather violet, lagoon teal, moss olive. Ordered
+# so that neighbours differ in lightness (greyscale) and in the blue/yellow axis that
+# red-green colour-blind readers keep.
+PALETTE = ["#1f3b57", "#d47a1e", "#7d4f9e", "#3c9a8f", "#8a8a2e"]
+MARKERS = ["o", "s", "^", "D", "v"]
+LINESTYLES = ["-", (0, (5, 2)), (0, (1, 1.5)), (0, (6, 2, 1, 2)), (0, (3, 1, 1, 1, 1, 1))]
+TARGET_COLOUR = "#b0213c"
+NEUTRAL = "#5b6570"
+FIGSIZE = (8.6, 5.4)
+DPI = 110
+
+_RC = {
+    "font.family": "DejaVu Sans",
+    "font.size": 9.5,
+    "axes.titlesize": 11,
+    "axes.titleweight": "bold",
+    "axes.titlelocation": "left",
+    "axes.labelsize": 9.5,
+    "axes.edgecolor": "#8e969e",
+    "axes.linewidth": 0.8,
+    "axes.spines.top": False,
+    "axes.spines.right": False,
+    "axes.grid": True,
+    "axes.grid.which": "major",
+    "grid.color": "#e2e5e8",
+    "grid.linewidth": 0.7,
+    "xtick.color": "#3a444d",
+    "ytick.color": "#3a444d",
+    "legend.frameon": False,
+    "legend.fontsize": 8.5,
+    "svg.hashsalt": "curvefit",  # stable ids, so the same inputs give the same SVG
+    "svg.fonttype": "path",
+}
+
+
+def style(i: int) -> dict:
+    """Colour, marker and line style of the ``i``-th series (cycles after five)."""
+    return {"color": PALETTE[i % len(PALETTE)], "marker": MARKERS[i % len(MARKERS)],
+            "linestyle": LINESTYLES[i % len(LINESTYLES)]}
+
+
+def metric_label(metric: str | None, what: str = "test") -> str:
+    """Axis label with units: ``"test error (0-1)"`` for 0-1 error, else the metric name."""
+    m = (metric or "error").strip()
+    if m.lower() in ("error", "0-1", "zero_one", "misclassification", "error_rate"):
+        return f"{what} error (0-1)"
+    return f"{what} {m}"
+
+
+def model_label(curve: Any, index: int = 0) -> str:
+    """A short name for the model behind a curve, from its run metadata."""
+    meta = getattr(curve, "meta", None) or {}
+    for key in ("label", "name"):
+        if meta.get(key):
+            return str(meta[key])
+    model = meta.get("model")
+    if isinstance(model, Mapping):
+        for key in ("label", "name", "spec", "class"):
+            if model.get(key):
+                return str(model[key])
+    elif model:
+        return str(model)
+    for key in ("model_spec", "spec"):
+        if meta.get(key):
+            return str(meta[key])
+    return f"model {index + 1}"
+
+
+def split_label(curve: Any) -> str:
+    """How a curve's train/test splits were made, in a few words (from its metadata).
+
+    Leaky splits give curves a model never reaches, so every figure and report says
+    which split a curve used.
+    """
+    meta = getattr(curve, "meta", None) or {}
+    split = meta.get("split") if isinstance(meta.get("split"), Mapping) else {}
+    data = meta.get("data") if isinstance(meta.get("data"), Mapping) else {}
+    kind = split.get("kind")
+    unit = " (sizes in groups)" if (meta.get("size_unit") or split.get("size_unit")) == "groups" else ""
+    if kind == "groups":
+        col = meta.get("groups_column") or data.get("groups") or split.get("column")
+        return f"grouped split{f' by {col}' if col else ''}{unit}"
+    if kind == "order":
+        col = meta.get("order_column") or data.get("order") or split.get("column")
+        return f"time-ordered split{f' by {col}' if col else ''}"
+    if kind == "given_test":
+        return "given test set"
+    if kind == "random":
+        return "random stratified split"
+    return "split not recorded"
+
+
+def _split_caption(curves: list) -> str:
+    labels = list(dict.fromkeys(split_label(c) for _, c in curves))
+    return "; ".join(labels)
+
+
+def _fmt_count(v: float) -> str:
+    if not np.isfinite(v):
+        return "–"
+    if v >= 1e6:
+        return f"{v / 1e6:.3g}M"
+    if v >= 1e4:
+        return f"{v / 1e3:.3g}k"
+    return f"{int(round(v)):,}"
+
+
+_count_formatter = FuncFormatter(lambda v, _pos: _fmt_count(v) if v > 0 else "")
+
+
+def _new_axes(figsize=FIGSIZE):
+    fig = Figure(figsize=figsize, dpi=DPI, layout="constrained")
+    ax = fig.add_subplot()
+    return fig, ax
+
+
+def _styled(fn):
+    """Run a figure function under our rc settings (they are read while drawing)."""
+    import functools
+
+    @functools.wraps(fn)
+    def wrapper(*args, **kwargs):
+        with plt.rc_context(_RC):
+            return fn(*args, **kwargs)
+
+    return wrapper
+
+
+def _as_list(obj: Any) -> list:
+    """Normalise one item / a list / a dict of items into a list of (label, item)."""
+    if obj is None:
+        return []
+    if isinstance(obj, Mapping):
+        return list(obj.items())
+    if isinstance(obj, (list, tuple)):
+        return [(None, o) for o in obj]
+    return [(None, obj)]
+
+
+def _family_name(f: Any) -> str | None:
+    if f is None:
+        return None
+    if isinstance(f, str):
+        return f
+    for key in ("name", "family"):
+        v = getattr(f, key, None)
+        if isinstance(v, str):
+            return v
+    return str(f)
+
+
+def _get(obj: Any, name: str, default=None):
+    if obj is None:
+        return default
+    if isinstance(obj, Mapping):
+        return obj.get(name, default)
+    return getattr(obj, name, default)
+
+
+def _finite(v) -> bool:
+    try:
+        return v is not None and math.isfinite(float(v))
+    except (TypeError, ValueError):
+        return False
+
+
+# --------------------------------------------------------------------------- curves
+@dataclass(frozen=True)
+class _FitLines:
+    size: np.ndarray
+    estimate: np.ndarray
+    low: np.ndarray
+    high: np.ndarray
+    best: str | None
+    runner_up: str | None
+    runner_up_estimate: np.ndarray | None
+
+
+def _fit_lines(fit: Any, grid: np.ndarray, interval: float) -> _FitLines | None:
+    """Read the chosen family's forecast band and the runner-up's line from a fit."""
+    if fit is None or not hasattr(fit, "predict"):
+        return None
+    import warnings
+
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # extrapolation warnings belong in the report text
+            pred = fit.predict(grid, interval=interval)
+    except Exception:  # an unusable fit still leaves the measured points to draw
+        return None
+    if isinstance(pred, pd.DataFrame):
+        est = pred["estimate"].to_numpy(float)
+        low = pred["low"].to_numpy(float) if "low" in pred else np.full_like(est, np.nan)
+        high = pred["high"].to_numpy(float) if "high" in pred else np.full_like(est, np.nan)
+        size = pred["size"].to_numpy(float) if "size" in pred else grid
+    else:
+        est = np.asarray(_get(pred, "estimate", pred), float).reshape(-1)
+        low = np.asarray(_get(pred, "low", np.nan), float) * np.ones_like(est)
+        high = np.asarray(_get(pred, "high", np.nan), float) * np.ones_like(est)
+        size = grid
+    best = _family_name(getattr(fit, "best", None))
+    runner = _family_name(getattr(fit, "runner_up", None))
+    runner_est = None
+    if runner and runner != best and hasattr(fit, "predict_family"):
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                runner_est = np.asarray(fit.predict_family(runner, grid), float).reshape(-1)
+        except Exception:  # the runner-up line is optional
+            runner_est = None
+    return _FitLines(size, est, low, high, best, runner, runner_est)
+
+
+def _answer_of(answer: Any) -> dict | None:
+    if answer is None:
+        return None
+    n = _get(answer, "n", _get(answer, "estimate"))
+    return {"n": float(n) if _finite(n) else math.nan,
+            "low": float(_get(answer, "low")) if _finite(_get(answer, "low")) else math.nan,
+            "high": float(_get(answer, "high")) if _finite(_get(answer, "high")) else math.nan,
+            "reachable": bool(_get(answer, "reachable", _finite(n)))}
+
+
+@_styled
+def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float | None = None,
+                          answers: Any = None, interval: float = 0.9, confidence: float = 0.9,
+                          show_train: bool = True, title: str | None = None) -> Figure:
+    """Train and test error against training-set size, with fits extrapolated to a target.
+
+    Parameters
+    ----------
+    curves : Curve, list of Curve, or dict label -> Curve
+        One or several measured curves (one per model).
+    fits : CurveFit or None, or a list/dict matching ``curves``
+        The fitted families. The chosen family is drawn as a solid line with a shaded
+        ``interval`` band, the runner-up as a thinner dashed line.
+    target_error : float, optional
+        Drawn as a horizontal line.
+    answers : SampleEstimate or None, list/dict matching ``curves``
+        The labelled samples needed for the target; marked on the target line with its
+        interval.
+    interval : float
+        Level of the forecast band (read from ``fit.predict``).
+    confidence : float
+        Level of the exact test-set interval drawn at each measured size.
+    show_train : bool
+        Also draw the training error (hollow markers, dotted).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Notes
+    -----
+    At each size the filled marker is the mean test error over repeats, the thick bar
+    one standard error of that mean across repeats, and the thin capped bar the exact
+    (Clopper–Pearson) interval of a single repeat's finite test set.
+    """
+    items = _as_list(curves)
+    fit_items = [f for _, f in _as_list(fits)] if not isinstance(fits, Mapping) else None
+    ans_items = [a for _, a in _as_list(answers)] if not isinstance(answers, Mapping) else None
+    fig, ax = _new_axes()
+    metric = None
+    xmin, xmax = math.inf, 0.0
+    any_data = False
+    for i, (label, curve) in enumerate(items):
+        label = label or model_label(curve, i)
+        metric = metric or getattr(curve, "metric", None)
+        st = style(i)
+        summ = curve.summary(confidence) if len(curve.ok_points()) else pd.DataFrame()
+        fit = (fits.get(label) if isinstance(fits, Mapping)
+               else (fit_items[i] if fit_items and i < len(fit_items) else None))
+        ans = (answers.get(label) if isinstance(answers, Mapping)
+               else (ans_items[i] if ans_items and i < len(ans_items) else None))
+        if len(summ):
+            any_data = True
+            x = summ["size"].to_numpy(float)
+            xmin, xmax = min(xmin, x.min()), max(xmax, x.max())
+            y = summ["test_mean"].to_numpy(float)
+            sem = summ["test_sem"].to_numpy(float)
+            lo, hi = summ["test_low"].to_numpy(float), summ["test_high"].to_numpy(float)
+            has_exact = np.isfinite(lo) & np.isfinite(hi)
+            if has_exact.any():
+                ax.errorbar(x[has_exact], y[has_exact],
+                            yerr=[np.clip(y - lo, 0, None)[has_exact],
+                                  np.clip(hi - y, 0, None)[has_exact]],
+                            fmt="none", ecolor=st["color"], elinewidth=0.8, capsize=2.5,
+                            alpha=0.75, zorder=3)
+            semv = np.where(np.isfinite(sem), sem, 0.0)
+            ax.errorbar(x, y, yerr=semv, fmt=st["marker"], color=st["color"], ms=5.5,
+                        elinewidth=2.6, capsize=0, zorder=4, label=f"{label}: test")
+            if show_train and summ["train_mean"].notna().any():
+                t = summ["train_mean"].to_numpy(float)
+                ax.plot(x, t, marker=st["marker"], ms=5, mfc="white", mec=st["color"],
+                        color=st["color"], linestyle=(0, (1, 1.5)), linewidth=1.1,
+                        label=f"{label}: train", zorder=4)
+        # fitted families, extrapolated far enough to show the answer
+        a = _answer_of(ans)
+        if fit is not None and len(summ):
+            top = float(summ["size"].max())  # this model's own largest size, not the running max
+            right = top * 4
+            if a and _finite(a["high"]):
+                right = max(right, a["high"] * 1.3)
+            elif a and _finite(a["n"]):
+                right = max(right, a["n"] * 1.5)
+            right = min(right, top * 1e3)
+            left = float(summ["size"].min()) if len(summ) else xmin
+            grid = np.geomspace(left, right, 160)
+            lines = _fit_lines(fit, grid, interval)
+            if lines is not None:
+                xmax = max(xmax, right)
+                name = lines.best or "fit"
+                band = np.isfinite(lines.low) & np.isfinite(lines.high)
+                if band.any():
+                    ax.fill_between(lines.size, lines.low, lines.high, where=band,
+                                    color=st["color"], alpha=0.14, linewidth=0, zorder=1,
+                                    label=f"{label}: {interval:.0%} band ({name})")
+                ax.plot(lines.size, lines.estimate, color=st["color"], linewidth=1.8,
+                        linestyle="-", zorder=2, label=f"{label}: fit, {name}")
+                if lines.runner_up_estimate is not None:
+                    ax.plot(lines.size, lines.runner_up_estimate, color=st["color"],
+                            linewidth=1.1, linestyle=(0, (5, 2)), alpha=0.9, zorder=2,
+                            label=f"{label}: runner-up, {lines.runner_up}")
+        if a and target_error is not None and a["reachable"] and _finite(a["n"]):
+            n = a["n"]
+            if _finite(a["low"]) and _finite(a["high"]):
+                ax.plot([a["low"], a["high"]], [target_error, target_error], color=st["color"],
+                        linewidth=4.5, alpha=0.45, solid_capstyle="butt", zorder=5)
+            ax.plot([n], [target_error], marker=st["marker"], ms=9, mfc=st["color"],
+                    mec="white", mew=1.2, linestyle="none", zorder=6)
+            ax.annotate(f"n ≈ {_fmt_count(n)}", (n, target_error), xytext=(0, 9 + 11 * i),
+                        textcoords="offset points", ha="center", fontsize=8.5,
+                        color=st["color"], fontweight="bold")
+            xmax = max(xmax, a["high"] if _finite(a["high"]) else n)
+    if target_error is not None:
+        ax.axhline(target_error, color=TARGET_COLOUR, linewidth=1.0, linestyle=(0, (4, 2, 1, 2)),
+                   zorder=2)
+        # at the left end, below the line: the curves sit above the target there
+        ax.annotate(f"target {target_error:.3g}", (0.0, target_error),
+                    xycoords=("axes fraction", "data"), xytext=(4, -11),
+                    textcoords="offset points", ha="left", fontsize=8.5, color=TARGET_COLOUR)
+    if not any_data:
+        ax.text(0.5, 0.5, "no successful cells to draw", transform=ax.transAxes,
+                ha="center", va="center", color=NEUTRAL)
+    else:
+        ax.set_xscale("log")
+        ax.set_xlim(xmin / 1.25, xmax * 1.25)
+        ax.xaxis.set_major_formatter(_count_formatter)
+        ax.xaxis.set_minor_formatter(FuncFormatter(lambda v, _p: ""))
+    ax.set_xlabel(f"labelled samples (training-set size, log scale) · {_split_caption(items)}")
+    ax.set_ylabel(metric_label(metric))
+    ax.set_title(title or "Learning curve")
+    _legend_outside(ax)
+    return fig
+
+
+_KIND_ORDER = ["test", "train", "measured", "fit", "runner-up", "VC", "power", "band"]
+
+
+def _legend_outside(ax) -> None:
+    """Legend below the axes: one column per model, measured entries before fitted ones.
+
+    Entries are labelled ``"<model>: <kind>"``; a label without ``": "`` stands alone.
+    """
+    from matplotlib.patches import Rectangle
+
+    handles, labels = ax.get_legend_handles_labels()
+    if not handles:
+        return
+    groups: dict[str, list] = {}
+    loose = []
+    for h, lab in zip(handles, labels):
+        if ": " in lab:
+            g, kind = lab.split(": ", 1)
+            rank = next((r for r, k in enumerate(_KIND_ORDER) if kind.startswith(k)),
+                        len(_KIND_ORDER))
+            groups.setdefault(g, []).append((rank, h, lab))
+        else:
+            loose.append((h, lab))
+    cols = [sorted(v, key=lambda t: t[0]) for v in groups.values()]
+    if len(cols) <= 1:
+        entries = [(h, lab) for col in cols for _, h, lab in col] + loose
+        ncols = min(3, len(entries))
+    else:
+        depth = max(len(c) for c in cols)
+        blank = Rectangle((0, 0), 0, 0, visible=False)
+        entries = []
+        for col in cols:  # column-major fill: pad each model's column to the same depth
+            entries += [(h, lab) for _, h, lab in col] + [(blank, "")] * (depth - len(col))
+        for h, lab in loose:
+            entries.append((h, lab))
+        ncols = len(cols)
+    hs, ls = zip(*entries)
+    ax.figure.legend(hs, ls, loc="outside lower center", ncols=ncols, handlelength=2.6,
+                     columnspacing=1.6)
+
+
+# --------------------------------------------------------------------------- gap
+@_styled
+def gap_figure(curves: Any, lines: Any = None, *, title: str | None = None) -> Figure:
+    """Generalization gap (test − train) against size, with fitted gap curves.
+
+    Parameters
+    ----------
+    curves : Curve, list or dict of Curve
+    lines : dict label -> list of (name, size_array, gap_array), or a list matching
+        ``curves``. Typically the VC-shaped fit ``s·Φ(n/h)`` and a power-law fit, as
+        read from a capacity estimate.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    items = _as_list(curves)
+    line_items = None if isinstance(lines, Mapping) else [v for _, v in _as_list(lines)]
+    fig, ax = _new_axes()
+    any_data = False
+    xs = []
+    for i, (label, curve) in enumerate(items):
+        label = label or model_label(curve, i)
+        st = style(i)
+        if not len(curve.ok_points()) or not curve.has_train:
+            continue
+        summ = curve.summary()
+        summ = summ[np.isfinite(summ["gap_mean"])]
+        if not len(summ):
+            continue
+        any_data = True
+        x = summ["size"].to_numpy(float)
+        xs.extend([x.min(), x.max()])
+        sem = np.nan_to_num(summ["gap_sem"].to_numpy(float))
+        ax.errorbar(x, summ["gap_mean"].to_numpy(float), yerr=sem, fmt=st["marker"], color=st["color"], ms=5.5,
+                    elinewidth=2.2, capsize=0, zorder=4, label=f"{label}: measured gap")
+        these = (lines.get(label) if isinstance(lines, Mapping)
+                 else (line_items[i] if line_items and i < len(line_items) else None)) or []
+        for j, (name, sx, sy) in enumerate(these):
+            sx = np.asarray(sx, float)
+            sy = np.asarray(sy, float)
+            if not len(sx) or not np.isfinite(sy).any():
+                continue
+            xs.extend([np.nanmin(sx), np.nanmax(sx)])
+            ax.plot(sx, sy, color=st["color"], linewidth=1.7 if j == 0 else 1.1,
+                    linestyle=LINESTYLES[j % len(LINESTYLES)], zorder=3,
+                    label=f"{label}: {name}")
+    if any_data:
+        ax.set_xscale("log")
+        ax.set_xlim(min(xs) / 1.25, max(xs) * 1.25)
+        ax.xaxis.set_major_formatter(_count_formatter)
+        ax.xaxis.set_minor_formatter(FuncFormatter(lambda v, _p: ""))
+        ax.axhline(0.0, color=NEUTRAL, linewidth=0.8)
+    else:
+        ax.text(0.5, 0.5, "no training error measured: no gap to draw", transform=ax.transAxes,
+                ha="center", va="center", color=NEUTRAL)
+    metric = getattr(items[0][1], "metric", None) if items else None
+    ax.set_xlabel(f"labelled samples (training-set size, log scale) · {_split_caption(items)}")
+    unit = "(0-1)" if metric_label(metric).endswith("(0-1)") else f"({metric})"
+    ax.set_ylabel(f"generalization gap, test − train {unit}")
+    ax.set_title(title or "Generalization gap")
+    _legend_outside(ax)
+    return fig
+
+
+# --------------------------------------------------------------------------- probe
+def _design_columns(design: pd.DataFrame) -> tuple[str | None, str | None, str | None]:
+    cols = {c.lower(): c for c in design.columns}
+    x = next((cols[c] for c in ("n", "half_size", "size", "n_points") if c in cols), None)
+    y = next((cols[c] for c in ("xi", "xi_mean", "deviation", "mean_deviation") if c in cols), None)
+    e = next((cols[c] for c in ("xi_sem", "sem", "deviation_sem") if c in cols), None)
+    return x, y, e
+
+
+@_styled
+def probe_figure(capacity: Any, *, title: str | None = None) -> Figure:
+    """Max-deviation probe: measured ξ(n) with the fitted Φ(n/h) and h's interval.
+
+    Parameters
+    ----------
+    capacity : CapacityEstimate
+        From ``probe_capacity``; its ``design`` table holds n and the mean deviation ξ.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    References
+    ----------
+    .. [1] V. Vapnik, E. Levin, Y. LeCun, "Measuring the VC-dimension of a learning
+       machine", Neural Computation 6(5), 1994.
+    """
+    from curvefit.capacity.vc_model import phi
+
+    fig, ax = _new_axes()
+    design = _get(capacity, "design")
+    h = _get(capacity, "vc_dim")
+    st = style(0)
+    drawn = False
+    if isinstance(design, pd.DataFrame) and len(design):
+        xc, yc, ec = _design_columns(design)
+        if xc and yc:
+            d = design[np.isfinite(pd.to_numeric(design[yc], errors="coerce"))]
+            x = d[xc].to_numpy(float)
+            y = d[yc].to_numpy(float)
+            yerr = np.nan_to_num(d[ec].to_numpy(float)) if ec else None
+            ax.errorbar(x, y, yerr=yerr, fmt=st["marker"], color=st["color"], ms=5.5,
+                        elinewidth=2.0, capsize=0, zorder=4, label="measured ξ(n)")
+            drawn = len(x) > 0
+            if drawn and _finite(h) and float(h) > 0:
+                grid = np.geomspace(max(x.min() / 1.5, 1e-9), x.max() * 1.5, 200)
+                ax.plot(grid, phi(grid / float(h)), color=PALETTE[1], linewidth=1.8,
+                        label=f"Φ(n/h), h = {float(h):.3g}")
+                lo, hi = _get(capacity, "low"), _get(capacity, "high")
+                if _finite(lo) and _finite(hi) and float(lo) > 0:
+                    level = _get(capacity, "level", 0.9) or 0.9
+                    ax.fill_between(grid, phi(grid / float(lo)), phi(grid / float(hi)),
+                                    color=PALETTE[1], alpha=0.16, linewidth=0,
+                                    label=f"{float(level):.0%} interval of h: "
+                                          f"{float(lo):.3g}–{float(hi):.3g}")
+            if drawn:
+                ax.set_xscale("log")
+                ax.xaxis.set_major_formatter(_count_formatter)
+                ax.xaxis.set_minor_formatter(FuncFormatter(lambda v, _p: ""))
+    if not drawn:
+        ax.text(0.5, 0.5, "no probe measurements to draw", transform=ax.transAxes,
+                ha="center", va="center", color=NEUTRAL)
+    ax.set_xlabel("n, points in each half of the probe sample (log scale)")
+    ax.set_ylabel("max deviation ξ(n) (0-1)")
+    ax.set_title(title or "Capacity probe")
+    _legend_outside(ax)
+    return fig
+
+
+# --------------------------------------------------------------------------- trade-off
+def _value_label(v: Any) -> str:
+    """A parameter value as text: missing → "None", whole floats without ".0"."""
+    if v is None or (isinstance(v, float) and math.isnan(v)):
+        return "None"
+    if isinstance(v, (float, np.floating)) and float(v).is_integer():
+        return str(int(v))
+    return str(v)
+
+
+@_styled
+def tradeoff_figure(tradeoff: Any, *, title: str | None = None) -> Figure:
+    """Train and test error against a complexity parameter, one line per sample size.
+
+    Parameters
+    ----------
+    tradeoff : Tradeoff, or a DataFrame with columns
+        ``param, value, size, train_mean, test_mean[, test_sem]``.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    table = tradeoff if isinstance(tradeoff, pd.DataFrame) else _get(tradeoff, "table")
+    fig, ax = _new_axes()
+    if not isinstance(table, pd.DataFrame) or not len(table):
+        ax.text(0.5, 0.5, "no trade-off measurements to draw", transform=ax.transAxes,
+                ha="center", va="center", color=NEUTRAL)
+        ax.set_title(title or "Complexity trade-off")
+        return fig
+    t = table.copy()
+    param = str(t["param"].iloc[0]) if "param" in t else "complexity"
+    numeric = pd.to_numeric(t["value"], errors="coerce")
+    categorical = numeric.isna().any()
+    if categorical:
+        names = t["value"].map(_value_label)
+        order = list(dict.fromkeys(names))
+        t["_x"] = names.map({v: k for k, v in enumerate(order)})
+    else:
+        t["_x"] = numeric
+    positive = (not categorical) and (t["_x"] > 0).all()
+    spread = (t["_x"].max() / t["_x"].min()) if positive and t["_x"].min() > 0 else 1
+    for i, (size, g) in enumerate(t.groupby("size", sort=True)):
+        st = style(i)
+        g = g.sort_values("_x")
+        yerr = np.nan_to_num(g["test_sem"].to_numpy(float)) if "test_sem" in g else None
+        ax.errorbar(g["_x"], g["test_mean"], yerr=yerr, marker=st["marker"], color=st["color"],
+                    ms=5.5, linestyle=st["linestyle"], linewidth=1.6, elinewidth=1.6,
+                    capsize=0, label=f"n = {_fmt_count(size)}: test", zorder=4)
+        if "train_mean" in g and g["train_mean"].notna().any():
+            ax.plot(g["_x"], g["train_mean"], marker=st["marker"], ms=4.5, mfc="white",
+                    mec=st["color"], color=st["color"], linestyle=(0, (1, 1.5)), linewidth=1.0,
+                    label=f"n = {_fmt_count(size)}: train", zorder=3)
+        ok = g[np.isfinite(g["test_mean"])]
+        if len(ok):
+            b = ok.loc[ok["test_mean"].idxmin()]
+            ax.plot([b["_x"]], [b["test_mean"]], marker="*", ms=15, mfc=st["color"],
+                    mec="black", mew=0.7, linestyle="none", zorder=6)
+    ax.plot([], [], marker="*", ms=12, mfc="white", mec="black", linestyle="none",
+            label="best setting at that size")
+    if categorical:
+        ax.set_xticks(range(len(order)), order)
+    elif positive and spread >= 20:
+        ax.set_xscale("log")
+    metric = _get(tradeoff, "metric", None) if not isinstance(tradeoff, pd.DataFrame) else None
+    ax.set_xlabel(f"{param} (model complexity{', log scale' if ax.get_xscale() == 'log' else ''})")
+    ax.set_ylabel(metric_label(metric, "train / test"))
+    ax.set_title(title or f"Complexity trade-off: {param}")
+    _legend_outside(ax)
+    return fig
+
+
+# --------------------------------------------------------------------------- worst case
+@_styled
+def worst_case_figure(rows: Sequence[Mapping], *, title: str | None = None,
+                      measured_max: float | None = None) -> Figure:
+    """Sample sizes side by side on a log axis: worst-case bound, rule of thumb, measured.
+
+    Parameters
+    ----------
+    rows : sequence of dict
+        Each with ``label`` and ``n`` and optionally ``low``, ``high`` (an interval),
+        ``kind`` ("bound", "rule" or "measured") and ``note`` (drawn after the bar).
+    measured_max : float, optional
+        Largest size actually measured, drawn as a vertical reference line.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    rows = [r for r in rows if _finite(r.get("n")) and float(r["n"]) > 0]
+    height = 1.4 + 0.55 * max(len(rows), 1)
+    fig, ax = _new_axes(figsize=(FIGSIZE[0], height))
+    if not rows:
+        ax.text(0.5, 0.5, "no sample sizes to compare", transform=ax.transAxes,
+                ha="center", va="center", color=NEUTRAL)
+        ax.set_title(title or "Worst case against measured")
+        return fig
+    kind_style = {"bound": (PALETTE[0], "//"), "rule": (PALETTE[4], ".."),
+                  "measured": (PALETTE[1], "")}
+    ys = np.arange(len(rows))[::-1]
+    vals = []
+    for y, r in zip(ys, rows):
+        colour, hatch = kind_style.get(r.get("kind", "bound"), (NEUTRAL, ""))
+        n = float(r["n"])
+        vals.append(n)
+        ax.barh(y, n, left=0, height=0.58, color=colour, alpha=0.85, hatch=hatch,
+                edgecolor="white", linewidth=0.5, zorder=3)
+        lo, hi = r.get("low"), r.get("high")
+        if _finite(lo) and _finite(hi) and float(lo) > 0:
+            ax.errorbar([n], [y], xerr=[[n - float(lo)], [float(hi) - n]], fmt="none",
+                        ecolor="black", elinewidth=1.0, capsize=3, zorder=4)
+            vals.append(float(hi))
+        ax.text(max(n, float(hi) if _finite(hi) else n) * 1.15, y,
+                f"{_fmt_count(n)}" + (f"  {r['note']}" if r.get("note") else ""),
+                va="center", fontsize=8.5, color="#1d2329")
+    ax.set_yticks(ys, [str(r["label"]) for r in rows])
+    ax.set_xscale("log")
+    ax.set_xlim(min(vals) / 3, max(vals) * 12)
+    ax.xaxis.set_major_formatter(_count_formatter)
+    ax.grid(axis="y", visible=False)
+    if measured_max:
+        ax.axvline(float(measured_max), color=NEUTRAL, linestyle=(0, (2, 2)), linewidth=0.9)
+        ax.set_ylim(-0.6, ys.max() + 0.95)
+        ax.text(float(measured_max), ys.max() + 0.5, " largest size measured", fontsize=8,
+                color=NEUTRAL, va="bottom")
+    ax.set_xlabel("labelled samples (log scale)")
+    ax.set_title(title or "Worst case against measured")
+    return fig
+
+
+# --------------------------------------------------------------------------- output
+def figure_bytes(fig: Figure, fmt: str = "png") -> bytes:
+    """Render a figure to PNG or SVG bytes (SVG without a timestamp, so it is stable)."""
+    buf = io.BytesIO()
+    meta = {"Date": None} if fmt == "svg" else {"Software": None}
+    with plt.rc_context(_RC):
+        fig.savefig(buf, format=fmt, dpi=DPI if fmt == "png" else None, metadata=meta,
+                    facecolor="white")
+    return buf.getvalue()
+
+
+def save_figure(fig: Figure, stem: str | os.PathLike, formats: Iterable[str] = ("png", "svg")) -> dict:
+    """Write ``stem.png`` and ``stem.svg``; returns ``{format: Path}``."""
+    stem = Path(stem)
+    stem.parent.mkdir(parents=True, exist_ok=True)
+    paths = {}
+    for fmt in formats:
+        p = stem.with_name(stem.name + "." + fmt)
+        p.write_bytes(figure_bytes(fig, fmt))
+        paths[fmt] = p
+    return paths
