@@ -202,3 +202,64 @@ def test_group_and_order_columns_by_name_are_not_features():
                          sizes=[40], repeats=2, metric="balanced_error")
     assert ordered.meta["split"]["kind"] == "order"
     assert "day" not in ordered.meta["data"]["features"]
+
+
+def test_progress_callback_sees_every_cell_and_the_resumed_ones(tmp_path):
+    X, y = load_iris(return_X_y=True)
+    events = []
+    kw = dict(sizes=[20, 60], repeats=2, journal=tmp_path / "run.json.journal")
+    curve = cf.measure(DecisionTreeClassifier(), X, y, progress=lambda *e: events.append(e), **kw)
+    assert events[0] == (0, 4, None)
+    assert [e[0] for e in events] == [0, 1, 2, 3, 4] and {e[1] for e in events} == {4}
+    assert sorted((c["size"], c["repeat"]) for _, _, c in events[1:]) == \
+        sorted(zip(curve.points["size"], curve.points["repeat"]))
+    again = []
+    cf.measure(DecisionTreeClassifier(), X, y, resume=True, progress=lambda *e: again.append(e), **kw)
+    assert again == [(4, 4, None)]  # everything came from the journal
+
+
+def test_progress_true_runs_without_a_terminal():
+    X, y = load_iris(return_X_y=True)
+    curve = cf.measure(DecisionTreeClassifier(), X, y, sizes=[20], repeats=1, progress=True)
+    assert len(curve.points) == 1
+
+
+def test_seed_none_or_generator_is_drawn_and_recorded():
+    X, y = load_iris(return_X_y=True)
+    kw = dict(sizes=[20, 60], repeats=2)
+    drawn = cf.measure(DecisionTreeClassifier(), X, y, random_state=None, **kw)
+    seed = drawn.meta["seed"]
+    assert isinstance(seed, int) and seed >= 0
+    again = cf.measure(DecisionTreeClassifier(), X, y, random_state=seed, **kw)
+    pd.testing.assert_frame_equal(drawn.points[COMPARE], again.points[COMPARE])
+    from_generator = cf.measure(DecisionTreeClassifier(), X, y,
+                                random_state=np.random.default_rng(5), **kw)
+    assert from_generator.meta["seed"] == int(np.random.default_rng(5).integers(2 ** 32))
+
+
+def test_defaults_come_from_the_shared_core():
+    import inspect
+
+    from curvefit.core import defaults
+
+    params = inspect.signature(cf.measure).parameters
+    assert params["repeats"].default == defaults.REPEATS
+    assert params["test_size"].default == defaults.TEST_FRACTION
+    assert params["random_state"].default == defaults.SEED
+
+
+@pytest.mark.parametrize("kwargs, match", [
+    (dict(repeats=2.5), "repeats must be a whole number"),
+    (dict(random_state=-1), "random_state"),
+    (dict(n_jobs=0), "n_jobs"),
+    (dict(timeout=0), "timeout"),
+    (dict(backend="cloud"), "backend"),
+    (dict(size_unit="groups"), "group column"),
+    (dict(progress="loud"), "progress"),
+    (dict(resume=True), "journal"),
+    (dict(X_test=np.zeros((3, 4))), "both X_test and y_test"),
+])
+def test_settings_are_checked_before_any_fit(kwargs, match):
+    X, y = load_iris(return_X_y=True)
+    with pytest.raises(InputError, match=match):
+        cf.measure(_Fragile(sleep=60), X, y, sizes=[20], repeats=kwargs.pop("repeats", 1), **kwargs)

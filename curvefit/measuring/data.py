@@ -245,6 +245,31 @@ def table_fingerprint(df: pd.DataFrame) -> str:
     return h.hexdigest()
 
 
+def array_fingerprint(X, y) -> str:
+    """SHA-256 (hex) of features and target as given from Python (arrays or a DataFrame).
+
+    Unlike `table_fingerprint` it hashes the bytes, so it is fast on large arrays but
+    tells ``3`` from ``3.0``; runs measured from files use `table_fingerprint`.
+
+    Examples
+    --------
+    >>> a = array_fingerprint(np.eye(2), np.array([0, 1]))
+    >>> a == array_fingerprint(np.eye(2), np.array([0, 1])) != array_fingerprint(np.eye(2), np.array([1, 0]))
+    True
+    """
+    h = hashlib.sha256(b"curvefit.arrays/1\n")
+    if isinstance(X, pd.DataFrame):
+        h.update(repr([str(c) for c in X.columns]).encode())
+        h.update(pd.util.hash_pandas_object(X, index=False).to_numpy().tobytes())
+    else:
+        arr = np.ascontiguousarray(X)
+        h.update(f"{arr.dtype.str} {arr.shape}".encode())
+        h.update(arr.tobytes() if arr.dtype != object else repr(arr.tolist()).encode())
+    yy = np.asarray(y)
+    h.update(yy.tobytes() if yy.dtype != object else repr(yy.tolist()).encode())
+    return h.hexdigest()
+
+
 # ---------------------------------------------------------------------- prepare
 @dataclass(frozen=True, eq=False)
 class Dataset:
@@ -462,6 +487,48 @@ def _label_array(y_series: pd.Series) -> np.ndarray:
     return s.to_numpy(dtype=object)
 
 
+def as_features(X, what: str = "X"):
+    """Features given from Python as a DataFrame (index dropped) or a 2-D array.
+
+    A 1-D array is one feature column; a sparse matrix or a 3-D array is refused.
+
+    Examples
+    --------
+    >>> as_features([1.0, 2.0, 3.0]).shape
+    (3, 1)
+    """
+    if isinstance(X, pd.DataFrame):
+        return X.reset_index(drop=True)
+    if hasattr(X, "toarray") or hasattr(X, "tocsr"):
+        raise InputError(f"{what} is a sparse matrix; pass a dense array or a DataFrame")
+    arr = np.asarray(X)
+    if arr.ndim == 1:
+        arr = arr.reshape(-1, 1)
+    if arr.ndim != 2:
+        raise InputError(f"{what} must be 2-D (rows x features), got shape {arr.shape}")
+    return arr
+
+
+def as_target(y, n: int, what: str = "y") -> np.ndarray:
+    """A target given from Python as a 1-D array of ``n`` values without gaps.
+
+    Examples
+    --------
+    >>> as_target([[0], [1], [1]], 3).tolist()
+    [0, 1, 1]
+    """
+    arr = np.asarray(y)
+    if arr.ndim == 2 and 1 in arr.shape:
+        arr = arr.reshape(-1)
+    if arr.ndim != 1 or len(arr) != n:
+        raise InputError(f"{what} must be 1-D with one value per row ({n} rows, got shape {arr.shape})")
+    missing = pd.isna(pd.Series(arr)).to_numpy()
+    if missing.any():
+        raise InputError(f"{what} has {int(missing.sum())} missing values (first at row "
+                         f"{int(np.flatnonzero(missing)[0])}); drop or fill those rows")
+    return arr
+
+
 def dataset_from_arrays(X, y, feature_names=None, *, task: str | None = None,
                         target: str = "y") -> Dataset:
     """Wrap in-memory ``X`` (array or DataFrame) and ``y`` as a `Dataset`.
@@ -475,27 +542,17 @@ def dataset_from_arrays(X, y, feature_names=None, *, task: str | None = None,
     >>> ds.feature_names
     ['x0', 'x1']
     """
+    X = as_features(X)
     if isinstance(X, pd.DataFrame):
         frame = X.copy()
         frame.columns = [str(c) for c in frame.columns]
     else:
-        arr = np.asarray(X)
-        if arr.ndim == 1:
-            arr = arr.reshape(-1, 1)
-        if arr.ndim != 2:
-            raise InputError(f"X must be 2-D (rows x features), got shape {arr.shape}")
-        names = list(feature_names) if feature_names is not None else [f"x{i}" for i in range(arr.shape[1])]
-        if len(names) != arr.shape[1]:
-            raise InputError(f"{len(names)} feature names for {arr.shape[1]} columns of X")
-        frame = pd.DataFrame(arr, columns=[str(n) for n in names])
-    y_arr = np.asarray(y)
-    if y_arr.ndim == 2 and 1 in y_arr.shape:
-        y_arr = y_arr.reshape(-1)
-    if y_arr.ndim != 1 or len(y_arr) != len(frame):
-        raise InputError(f"y must be 1-D with one value per row of X (X has {len(frame)} rows, "
-                         f"y has shape {y_arr.shape})")
+        names = list(feature_names) if feature_names is not None else [f"x{i}" for i in range(X.shape[1])]
+        if len(names) != X.shape[1]:
+            raise InputError(f"{len(names)} feature names for {X.shape[1]} columns of X")
+        frame = pd.DataFrame(X, columns=[str(n) for n in names])
+    y_arr = as_target(y, len(frame))
     if target in frame.columns:
         raise InputError(f"a feature column is named {target!r}, the target's name; rename it")
-    frame = frame.reset_index(drop=True)
     frame[target] = y_arr
     return prepare(frame, target, task=task)
