@@ -1,27 +1,82 @@
-"""Helpers shared by the subcommands: output streams, JSON, list and range parsing."""
+"""Helpers shared by the subcommands: output streams, JSON, option names, list parsing."""
 
 from __future__ import annotations
 
-import json
 import math
+import re
 import sys
-from pathlib import Path
 from typing import Any, Callable
 
 import numpy as np
+import typer
 from rich.console import Console
 
-from curvefit.core.jsonio import jsonable
+from curvefit.core.defaults import INTERVAL
 from curvefit.core.errors import InputError
+from curvefit.core.jsonio import dumps
+from curvefit.workflows.jobs import read_toml, resolve_job_paths  # noqa: F401 (shared by commands)
 
 # Human-readable output goes to stdout unless --json is set; progress and warnings to stderr.
 out = Console(highlight=False, soft_wrap=True)
 err = Console(stderr=True, highlight=False, soft_wrap=True)
 
+# API parameter -> the command-line option that sets it, so an API message names the option.
+OPTION_NAMES = {
+    "interval": "--interval", "bootstrap": "--bootstrap", "random_state": "--seed",
+    "seed": "--seed", "target_error": "--target-error", "test_error": "--error",
+    "gap": "--gap", "cost_per_label": "--label-cost", "budget": "--budget",
+    "current_n": "--current", "vc_dim": "--vc-dim", "extra": "--extra", "on": "--on",
+    "weights": "--weights", "families": "--families", "repeats": "--repeats",
+    "max_n": "--max-n", "n_features": "--n-features", "n_jobs": "--jobs",
+    "test_size": "--test-fraction", "baseline": "--baseline",
+}
+_LEADING_NAME = re.compile(r"^([a-z][a-z_]*)\b")
+
+
+def option_message(message: str) -> str:
+    """An API error message with its parameter names replaced by the option names.
+
+    The leading word is replaced when it names a parameter; further on, only names with
+    an underscore are (plain words such as "interval" also occur in prose).
+
+    Examples
+    --------
+    >>> option_message("interval must be between 0 and 1, got 2")
+    '--interval must be between 0 and 1, got 2'
+    >>> option_message("budget needs a positive cost_per_label")
+    '--budget needs a positive --label-cost'
+    """
+    text = _LEADING_NAME.sub(lambda m: OPTION_NAMES.get(m.group(1), m.group(1)), message, count=1)
+    for name, option in OPTION_NAMES.items():
+        if "_" in name:
+            text = re.sub(rf"(?<![\w-]){name}\b", option, text)
+    return text
+
+
+def interval_option(help_text: str = "Interval level, e.g. 0.9 for 90%."):
+    """The ``--interval`` option (default ``core.defaults.INTERVAL``)."""
+    return typer.Option(INTERVAL, "--interval", help=help_text)
+
+
+def level_alias():
+    """``--level``: the former name of ``--interval``, accepted but not shown in help."""
+    return typer.Option(None, "--level", hidden=True)
+
+
+def pick_interval(interval: float, level: float | None) -> float:
+    """The interval level: ``--level`` when that older name was used, else ``--interval``.
+
+    When the older name was typed, error messages name it too.
+    """
+    if level is None:
+        return interval
+    OPTION_NAMES["interval"] = "--level"
+    return level
+
 
 def emit_json(obj: Any) -> None:
     """Print one JSON document on stdout (and nothing else there)."""
-    sys.stdout.write(json.dumps(jsonable(obj), indent=1, allow_nan=False) + "\n")
+    sys.stdout.write(dumps(obj))
     sys.stdout.flush()
 
 
@@ -76,32 +131,6 @@ def parse_list(text: str | None, kind: Callable = float, name: str = "value",
     return out_vals
 
 
-def resolve_job_paths(job: dict, config_path: str | Path, source: str | None = None) -> dict:
-    """Resolve a job file's relative paths against the file's own folder.
-
-    So a job runs the same from any working directory (what a nightly CI job needs).
-    Touches the keys ``data``, ``test``, ``store``, ``out`` and the file part of a
-    ``file.py:make_model`` model spec.
-    """
-    source = source or str(config_path)
-    base = Path(config_path).resolve().parent
-
-    def resolve(text: str) -> str:
-        q = Path(text).expanduser()
-        return str(q if q.is_absolute() else base / q)
-
-    for k in ("data", "test", "store", "out"):
-        if job.get(k) is not None:
-            if not isinstance(job[k], str):
-                raise InputError(f"{source}: {k!r} must be a path string, got {job[k]!r}")
-            job[k] = resolve(job[k])
-    model = job.get("model")
-    if isinstance(model, str) and ".py:" in model:
-        file_part, _, attr = model.rpartition(":")
-        job["model"] = f"{resolve(file_part)}:{attr}"
-    return job
-
-
 def print_table(head: list[str], rows: list[list[str]], *, align: str = "right",
                 indent: str = "") -> None:
     """A plain aligned text table on stdout (no box drawing, so it pastes into logs).
@@ -118,17 +147,3 @@ def print_table(head: list[str], rows: list[list[str]], *, align: str = "right",
     for r in [head, *rows]:
         out.print((indent + "  ".join(cell(i, c, w) for i, (c, w) in enumerate(zip(r, widths)))).rstrip(),
                   markup=False)
-
-
-def read_toml(path: str | Path, what: str = "config file") -> dict:
-    """Read a TOML job/config file; a missing or malformed file is an `InputError`."""
-    import tomllib
-
-    p = Path(path)
-    if not p.is_file():
-        raise InputError(f"{what} not found: {p}")
-    try:
-        with open(p, "rb") as fh:
-            return tomllib.load(fh)
-    except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError) as exc:
-        raise InputError(f"{p} is not valid TOML: {' '.join(str(exc).split())}") from None

@@ -18,6 +18,7 @@ except ImportError:  # pragma: no cover - older typer uses click itself
     from click import exceptions as _cx
 
 from curvefit.cli import COMMANDS
+from curvefit.cli.common import option_message
 from curvefit.core.errors import InputError
 
 app = typer.Typer(
@@ -29,7 +30,6 @@ app = typer.Typer(
     pretty_exceptions_enable=False,
     context_settings={"help_option_names": ["-h", "--help"]},
 )
-
 
 
 def _version(value: bool):
@@ -56,7 +56,7 @@ def main(argv: list[str] | None = None) -> None:
     try:
         code = app(args=argv, prog_name="curvefit", standalone_mode=False)
     except InputError as exc:
-        _fail(str(exc))
+        _fail(option_message(str(exc)))
     except _cx.UsageError as exc:
         if type(exc).__name__ == "NoArgsIsHelpError":
             sys.exit(0)  # a bare `curvefit` or `curvefit bound`: help was printed

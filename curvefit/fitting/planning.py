@@ -1,22 +1,33 @@
-"""What buying more labels is worth: expected test error after each purchase, with intervals.
+"""What buying more labels is worth: samples needed, their price, and each purchase's effect.
 
 Pure numerics on a fitted curve (``CurveFit``); imports neither the command line nor I/O.
+`plan_purchase` prices a list of purchases; `price_need` answers "how many labels for
+this target, and what do they cost" as one result object that the command line prints.
 """
 
 from __future__ import annotations
 
 import math
 import warnings
-from typing import Iterable
+from dataclasses import dataclass, field
+from typing import Any, Iterable
 
 import numpy as np
 import pandas as pd
 
+from curvefit.core.defaults import BOOTSTRAP, INTERVAL, SEED
 from curvefit.core.errors import FitWarning, InputError
+from curvefit.core.estimate import Estimate
+from curvefit.core.validate import check_level, check_positive
+
+# Confidence of the worst-case VC bound shown beside a measured answer.
+VC_DELTA = 0.1
+# Purchases priced by default, as multiples of the labels in hand.
+DEFAULT_MULTIPLES = (1, 4, 9)
 
 
 def plan_purchase(fit, *, current_n, extra: Iterable[float], cost_per_label=None,
-                  interval: float = 0.9) -> pd.DataFrame:
+                  interval: float = INTERVAL) -> pd.DataFrame:
     """Expected test error after buying each amount of extra labelled samples.
 
     Parameters
@@ -135,3 +146,268 @@ def labels_for_budget(budget, cost_per_label) -> int:
         raise InputError("cost per label must be > 0 to turn a budget into labels")
     # a small tolerance so 1000 / 0.1 is 10,000 labels, not 9,999
     return int(math.floor(budget / cost_per_label + 1e-9))
+
+
+def format_money(value) -> str:
+    """An amount of money: whole units from 100 up, else cents; ``–`` when missing.
+
+    Examples
+    --------
+    >>> format_money(500), format_money(0.4), format_money(1234.5), format_money(None)
+    ('500', '0.40', '1,234', '–')
+    """
+    if value is None or not math.isfinite(float(value)):
+        return "–"
+    v = float(value)
+    return f"{v:,.0f}" if abs(v) >= 100 else f"{v:,.2f}"
+
+
+# --------------------------------------------------------------------------- priced answer
+@dataclass(frozen=True)
+class Cost:
+    """What the missing labels cost: ``cost`` with the interval ``cost_low``–``cost_high``."""
+
+    extra_labels: float
+    cost: float
+    cost_low: float
+    cost_high: float
+    cost_per_label: float
+
+    def to_dict(self) -> dict:
+        return {"extra_labels": self.extra_labels, "cost": self.cost, "cost_low": self.cost_low,
+                "cost_high": self.cost_high, "cost_per_label": self.cost_per_label}
+
+
+@dataclass(frozen=True)
+class BudgetOutcome:
+    """What a budget buys: ``labels`` more, ``total_n`` in all, and the test error then."""
+
+    budget: float
+    labels: int
+    total_n: float
+    test_error: Estimate
+
+    def to_dict(self) -> dict:
+        return {"budget": self.budget, "labels": self.labels, "total_n": self.total_n,
+                "test_error": self.test_error.to_dict()}
+
+
+@dataclass(frozen=True)
+class LabelNeed:
+    """Labelled samples needed for a target, priced: the result of `labels_needed`.
+
+    Attributes
+    ----------
+    answer : SampleEstimate
+        Samples needed for the target, with its interval and its sentence.
+    fit : CurveFit
+        The fit the answer was read from (of the test error, or of the gap).
+    current_n : float
+        Labelled samples in hand.
+    extra, extra_low, extra_high : float
+        Labels still to buy (0 when already enough), with the interval; NaN when the
+        target is not reachable.
+    cost : Cost or None
+        Their price, when a price per label was given and the target is reachable.
+    budget : BudgetOutcome or None
+        What the budget buys, when one was given.
+    plan : pandas.DataFrame or None
+        `plan_purchase` for the priced amounts, when a price, budget or amounts were given.
+    vc : dict or None
+        The worst-case VC sample size and the 10 × d rule beside the measured answer,
+        when a VC dimension is known.
+    warnings : list of str
+        Cautions of the fit, the answer and the extrapolations, once each.
+    """
+
+    answer: Any
+    fit: Any
+    current_n: float
+    extra: float = math.nan
+    extra_low: float = math.nan
+    extra_high: float = math.nan
+    cost: Cost | None = None
+    budget: BudgetOutcome | None = None
+    plan: pd.DataFrame | None = None
+    vc: dict | None = None
+    vc_known: bool = False
+    warnings: list = field(default_factory=list)
+
+    @property
+    def budget_covers(self) -> bool | None:
+        """True when the budget buys the labels the target needs (None: nothing to compare)."""
+        if self.budget is None or not self.answer.reachable:
+            return None
+        return self.budget.labels >= self.extra
+
+    def to_dict(self) -> dict:
+        doc: dict = {"answer": self.answer.to_dict(), "current_n": self.current_n,
+                     "fit": {"on": "test" if self.answer.kind == "test_error" else "gap",
+                             "best": self.fit.best}}
+        if self.cost is not None:
+            doc["cost"] = self.cost.to_dict()
+        if self.budget is not None:
+            doc["budget"] = self.budget.to_dict()
+        if self.plan is not None:
+            doc["plan"] = self.plan.to_dict(orient="records")
+        if self.vc_known:
+            doc["vc"] = self.vc
+        doc["warnings"] = list(self.warnings)
+        return doc
+
+
+def vc_comparison(vc_dim: float, target: float, delta: float = VC_DELTA) -> dict:
+    """Worst-case VC sample size and the 10 × d rule of thumb beside a measured answer.
+
+    The VC size is None for a target outside (0, 1), where the bound says nothing.
+
+    Examples
+    --------
+    >>> vc_comparison(10, 0.05)["rule_of_thumb_samples"]
+    100
+    """
+    from curvefit import bounds
+
+    d = int(round(vc_dim))
+    row = {"vc_dim": d, "eps": target, "delta": delta, "vc_sample_size": None,
+           "rule_of_thumb_samples": int(bounds.rule_of_thumb_samples(d))}
+    if 0 < target < 1:
+        row["vc_sample_size"] = int(bounds.vc_sample_size(d, eps=target, delta=delta))
+    return row
+
+
+def _check_need(test_error, gap, cost_per_label, budget, current_n, extra, vc_dim, interval):
+    """Validate the settings of `labels_needed` (one message per problem)."""
+    if (test_error is None) == (gap is None):
+        raise InputError("give exactly one target: test_error=E or gap=G")
+    name, target = ("test_error", test_error) if test_error is not None else ("gap", gap)
+    check_positive(target, name, allow_zero=True)
+    check_level(interval)
+    if cost_per_label is not None:
+        check_positive(cost_per_label, "cost_per_label", allow_zero=True)
+    if budget is not None:
+        if cost_per_label is None or float(cost_per_label) == 0:
+            raise InputError("budget needs a positive cost_per_label to turn money into labels")
+        check_positive(budget, "budget", allow_zero=True)
+    if current_n is not None:
+        check_positive(current_n, "current_n")
+    if vc_dim is not None:
+        check_positive(vc_dim, "vc_dim", allow_zero=True)
+    if extra is not None and any(not math.isfinite(float(x)) or float(x) <= 0 for x in extra):
+        raise InputError("extra amounts must be positive numbers of labels")
+    return float(target)
+
+
+def _amounts(extra, have: float, budget_labels: int | None, missing: float | None) -> list[int]:
+    """Purchases to price: the given amounts, else 1×, 4× and 9× the labels in hand plus
+    what the budget buys and what the target needs."""
+    if extra is not None:
+        amounts = {float(x) for x in extra}
+    else:
+        amounts = {have * k for k in DEFAULT_MULTIPLES}
+        if budget_labels:
+            amounts.add(budget_labels)
+        if missing and math.isfinite(missing) and missing > 0:
+            amounts.add(missing)
+    return sorted({int(round(a)) for a in amounts if a > 0})
+
+
+def labels_needed(curve, *, test_error=None, gap=None, current_n=None, cost_per_label=None,
+                  budget=None, extra=None, vc_dim=None, interval: float = INTERVAL,
+                  families="auto", bootstrap: int = BOOTSTRAP, weights: str = "sem",
+                  random_state=SEED) -> LabelNeed:
+    """Labelled samples needed for a target test error or gap, and what buying them costs.
+
+    Fits the test error (and, for a gap target, the gap) with `fit_curve`, answers with
+    `CurveFit.samples_for`, and prices the answer, a budget and a list of purchases.
+
+    Parameters
+    ----------
+    curve : Curve
+    test_error, gap : float
+        The target; exactly one is given. A gap target needs train error in the curve.
+    current_n : float, optional
+        Labelled samples in hand (default: the largest measured size).
+    cost_per_label : float, optional
+        Price of one label; prices the answer and the purchase plan.
+    budget : float, optional
+        Money to spend on labels (needs a positive ``cost_per_label``).
+    extra : list of float, optional
+        Purchase amounts to price (default with a price or budget: 1×, 4× and 9× the
+        labels in hand, what the budget buys and what the target needs).
+    vc_dim : float, optional
+        A known VC dimension (default: ``curve.meta["vc_dim"]``), to show the
+        worst-case bound beside the measured answer.
+    interval : float
+        Level of every interval.
+    families, bootstrap, weights, random_state
+        Passed to `fit_curve`.
+
+    Returns
+    -------
+    LabelNeed
+
+    Examples
+    --------
+    >>> import numpy as np, pandas as pd
+    >>> from curvefit.core.curve import Curve
+    >>> n = np.repeat([100, 200, 400, 800, 1600], 3)
+    >>> e = 0.1 + 3 * n ** -0.5 + np.tile([-0.003, 0.0, 0.003], 5)
+    >>> curve = Curve.from_table(pd.DataFrame({"size": n, "test_error": e}))
+    >>> need = labels_needed(curve, test_error=0.16, cost_per_label=0.5, bootstrap=50,
+    ...                      families="power-law-floor")
+    >>> need.answer.reachable, need.cost.cost == need.extra * 0.5
+    (True, True)
+    """
+    from curvefit.fitting.engine import fit_curve
+
+    target = _check_need(test_error, gap, cost_per_label, budget, current_n, extra, vc_dim,
+                         interval)
+    if gap is not None and not curve.has_train:
+        raise InputError("a gap target needs train error in the curve; give test_error instead")
+    settings = dict(families=families, bootstrap=bootstrap, weights=weights,
+                    random_state=random_state)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", FitWarning)
+        fit = fit_curve(curve, on="test", **settings)
+        used = fit if gap is None else fit_curve(curve, on="gap", **settings)
+        answer = used.samples_for(test_error=test_error, gap=gap, interval=interval)
+        have = float(current_n) if current_n is not None else fit.largest_size
+        need = _price(fit, answer, have, cost_per_label, budget, extra, interval)
+        dims = vc_dim if vc_dim is not None else curve.meta.get("vc_dim")
+        vc = None
+        if dims is not None:
+            try:
+                vc = vc_comparison(float(dims), target)
+            except (TypeError, ValueError):
+                vc = None
+    notes = [str(w.message) for w in caught if issubclass(w.category, FitWarning)]
+    notes = list(dict.fromkeys(list(used.warnings) + list(answer.warnings) + notes))
+    return LabelNeed(answer=answer, fit=used, current_n=have, vc=vc, vc_known=dims is not None,
+                     warnings=notes, **need)
+
+
+def _price(fit, answer, have: float, cost_per_label, budget, extra, interval: float) -> dict:
+    """The labels still to buy, their cost, the budget's outcome and the purchase plan."""
+    out: dict = {}
+    missing = None
+    if answer.reachable:
+        missing = max(answer.n - have, 0.0)
+        out["extra"] = missing
+        out["extra_low"] = max(answer.low - have, 0.0) if math.isfinite(answer.low) else math.nan
+        out["extra_high"] = max(answer.high - have, 0.0) if not math.isnan(answer.high) else math.nan
+        if cost_per_label is not None:
+            c = float(cost_per_label)
+            out["cost"] = Cost(missing, missing * c, out["extra_low"] * c, out["extra_high"] * c, c)
+    bought = None
+    if budget is not None:
+        bought = labels_for_budget(budget, cost_per_label)
+        after = fit.predict([have + bought], interval=interval).iloc[0]
+        out["budget"] = BudgetOutcome(float(budget), bought, have + bought,
+                                      Estimate(float(after["estimate"]), float(after["low"]),
+                                               float(after["high"]), float(interval)))
+    if extra is not None or cost_per_label is not None or budget is not None:
+        amounts = _amounts(extra, have, bought, missing if answer.kind == "test_error" else None)
+        out["plan"] = plan_purchase(fit, current_n=have, extra=amounts,
+                                    cost_per_label=cost_per_label, interval=interval)
+    return out
