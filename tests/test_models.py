@@ -129,7 +129,7 @@ def test_no_model_and_both_models():
                       command=f"{PY} t.py {{train}} {{test}} {{predictions}}")
     with pytest.raises(InputError, match="--param does not apply to --command"):
         resolve_model(None, {"C": 1}, command=f"{PY} t.py {{train}} {{test}} {{predictions}}")
-    with pytest.raises(InputError, match="positive number of seconds"):
+    with pytest.raises(InputError, match="timeout must be > 0"):
         resolve_model("sklearn.linear_model:LogisticRegression", timeout=0)
 
 
@@ -233,9 +233,23 @@ def test_factory_and_class(iris_split):
         as_model_spec(lambda: "nope")
     with pytest.raises(InputError, match="model must be an estimator"):
         as_model_spec(42)
+    with pytest.raises(InputError, match="no model given"):
+        as_model_spec(None)
     # from Python, a string with the placeholders is a trainer command
     cmd = as_model_spec(f"{PY} t.py {{train}} {{test}} {{predictions}}", timeout=7)
     assert cmd.kind == "command" and cmd.make().timeout == 7
+
+
+def test_described_parameters_are_plain_json():
+    import json
+
+    spec = as_model_spec(lambda C, steps, weights: LogisticRegression(C=C),
+                         {"C": np.float64(0.5), "steps": (np.int64(3), 4), "weights": float("inf")})
+    params = spec.describe()["params"]
+    assert params == {"C": 0.5, "steps": [3, 4], "weights": "inf"}
+    json.dumps(params, allow_nan=False)
+    nested = as_model_spec(LogisticRegression(C=2.0)).describe()["params"]
+    assert nested["C"] == 2.0 and nested["max_iter"] == 100
 
 
 # ---------------------------------------------------------------- command trainer

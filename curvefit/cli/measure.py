@@ -16,14 +16,15 @@ from typing import List, Optional
 import typer
 
 from curvefit.cli.common import emit_json, out, parse_list, print_table, read_toml, resolve_job_paths, warn
+from curvefit.core import defaults
 from curvefit.core.errors import InputError
 
 # built-in values of the options a config file may set
 DEFAULTS = {
     "data": None, "target": None, "model": None, "param": None, "command": None,
-    "features": None, "test": None, "sizes": None, "repeats": 5, "test_fraction": 0.25,
-    "metric": "error", "encode": "auto", "jobs": 1, "backend": "local", "scheduler": None,
-    "seed": 0, "timeout": None, "resume": False, "out": "run.json", "quiet": False,
+    "features": None, "test": None, "sizes": None, "repeats": defaults.REPEATS,
+    "test_fraction": defaults.TEST_FRACTION, "metric": "error", "encode": "auto", "jobs": 1,
+    "backend": "local", "scheduler": None, "seed": defaults.SEED, "timeout": None, "resume": False, "out": "run.json", "quiet": False,
     "json": False, "groups": None, "order": None, "size_unit": "rows",
 }
 
@@ -232,16 +233,17 @@ def register(app: typer.Typer) -> None:
         features: Optional[str] = typer.Option(None, "--features", help="Feature columns a,b,c (default: all others)."),
         test: Optional[str] = typer.Option(None, "--test", help="Separate test table used by every repeat."),
         sizes: Optional[str] = typer.Option(None, "--sizes", help="Sizes 50,100,200 or START:STOP:COUNT."),
-        repeats: Optional[int] = typer.Option(None, "--repeats", help="Repeats per size (default 5)."),
-        test_fraction: Optional[float] = typer.Option(None, "--test-fraction",
-                                                      help="Test share of rows (groups) (default 0.25)."),
+        repeats: Optional[int] = typer.Option(None, "--repeats",
+                                              help=f"Repeats per size (default {defaults.REPEATS})."),
+        test_fraction: Optional[float] = typer.Option(
+            None, "--test-fraction", help=f"Test share of rows (groups) (default {defaults.TEST_FRACTION:g})."),
         metric: Optional[str] = typer.Option(None, "--metric",
                                              help="error, mse, mae, balanced_error or a scikit-learn scorer."),
         encode: Optional[str] = typer.Option(None, "--encode", help="auto (one-hot, impute) or none."),
         jobs: Optional[int] = typer.Option(None, "--jobs", help="Parallel fits (default 1)."),
         backend: Optional[str] = typer.Option(None, "--backend", help="local or dask."),
         scheduler: Optional[str] = typer.Option(None, "--scheduler", help="Dask scheduler address."),
-        seed: Optional[int] = typer.Option(None, "--seed", help="Random seed (default 0)."),
+        seed: Optional[int] = typer.Option(None, "--seed", help=f"Random seed (default {defaults.SEED})."),
         timeout: Optional[float] = typer.Option(None, "--timeout", help="Seconds allowed per fit."),
         resume: Optional[bool] = typer.Option(None, "--resume", help="Skip cells already in <out>.journal."),
         out_file: Optional[str] = typer.Option(None, "--out", help="Run file to write (default run.json)."),

@@ -12,7 +12,9 @@ A model can be named three ways on the command line (and as a string in the API)
 ``--command "trainer {train} {test} {predictions}"``
     Any program, in any language. See `CommandModel` for the file layout.
 
-From Python, a ready estimator or a zero-argument factory also works (`as_model_spec`).
+From Python, a ready estimator or a zero-argument factory also works. `as_model_spec` is
+the one place where anything a caller may pass as a model becomes a `ModelSpec`: the
+runner, the trade-off sweep and the capacity probe all call it.
 
 A `ModelSpec` stores only strings, parameters and (for the Python API) an unfitted
 estimator, so it pickles to loky or Dask workers; ``make()`` returns a fresh unfitted
@@ -46,6 +48,8 @@ import pandas as pd
 from sklearn.base import BaseEstimator, clone
 
 from curvefit.core.errors import InputError
+from curvefit.core.jsonio import jsonable
+from curvefit.core.validate import check_positive
 
 PLACEHOLDERS = ("{train}", "{test}", "{predictions}")
 ENCODE_CHOICES = ("auto", "none")
@@ -224,15 +228,17 @@ class ModelSpec:
 
 
 def _plain(v):
-    """A JSON-friendly version of a parameter value (repr for anything unusual)."""
-    if v is None or isinstance(v, (bool, int, str)):
+    """A JSON value for a parameter value: numbers and containers as `jsonable` makes
+    them, anything else (an estimator, a function, infinity) as its repr."""
+    if isinstance(v, (float, np.floating)) and not math.isfinite(v):
+        return repr(float(v))  # JSON has no infinity, and None would read as "unset"
+    v = jsonable(v)
+    if v is None or isinstance(v, (bool, int, float, str)):
         return v
-    if isinstance(v, float):
-        return v if math.isfinite(v) else repr(v)
-    if isinstance(v, (list, tuple)):
+    if isinstance(v, list):
         return [_plain(x) for x in v]
     if isinstance(v, dict):
-        return {str(k): _plain(x) for k, x in v.items()}
+        return {k: _plain(x) for k, x in v.items()}
     return repr(v)
 
 
@@ -293,12 +299,7 @@ def resolve_model(spec: str | None, params: dict | None = None, *, command: str 
     """
     params = dict(params or {})
     if timeout is not None:
-        try:
-            timeout = float(timeout)
-        except (TypeError, ValueError):
-            raise InputError(f"--timeout {timeout!r} is not a number of seconds") from None
-        if not (timeout > 0 and math.isfinite(timeout)):
-            raise InputError(f"--timeout must be a positive number of seconds, got {timeout:g}")
+        timeout = check_positive(timeout, "timeout")
     if command is not None:
         if spec:
             raise InputError("give either --model or --command, not both")
@@ -373,6 +374,16 @@ def as_model_spec(model, params: dict | None = None, *, timeout: float | None = 
         estimator instance (an unfitted clone is stored and cloned again for every
         ``make()``, so the caller's object is never touched), or a zero-argument
         factory returning an estimator.
+    params : dict, optional
+        Keyword arguments for a spec string, a class or a factory.
+    timeout : float, optional
+        Seconds allowed per run of a trainer command.
+
+    Raises
+    ------
+    InputError
+        No model (None), or one that is not an estimator, cannot be copied or fails
+        when built.
 
     Examples
     --------
@@ -382,6 +393,8 @@ def as_model_spec(model, params: dict | None = None, *, timeout: float | None = 
     >>> m.make() is user, m.make().max_depth
     (False, 3)
     """
+    if model is None:
+        raise InputError("no model given; pass an estimator, a factory or a model spec")
     if isinstance(model, ModelSpec):
         if model.kind == "command" and timeout is not None and model.timeout is None:
             return dataclasses.replace(model, timeout=float(timeout))
