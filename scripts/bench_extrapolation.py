@@ -35,7 +35,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 import curvefit as cf  # noqa: E402
 from curvefit.core.curve import Curve  # noqa: E402
-from curvefit import fitting  # noqa: E402
+from curvefit.core.defaults import BOOTSTRAP  # noqa: E402
+from curvefit.fitting import bootstrap as fit_bootstrap, intervals as fit_intervals  # noqa: E402
 from curvefit.core.errors import FitWarning  # noqa: E402
 
 FIT_FRACTION = 0.25
@@ -81,7 +82,7 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--jobs", type=int, default=1)
     ap.add_argument("--cache", type=Path, default=None)
-    ap.add_argument("--bootstrap", type=int, default=500)
+    ap.add_argument("--bootstrap", type=int, default=BOOTSTRAP)
     ap.add_argument("--repeats", type=int, default=5, help="repeats per size used in the fit")
     args = ap.parse_args()
     if args.cache:
@@ -102,21 +103,22 @@ def main() -> None:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore", FitWarning)
                 choice = cf.fit_curve(sub, bootstrap=args.bootstrap, random_state=0)
-                pred = choice.predict(pool)
+                pred = choice.error_at(pool)
                 n_fit = choice.largest_size
                 full_at_fit = float(ok.loc[ok["size"] == n_fit, "test_error"].mean())
-                at_fit = choice.predict(n_fit)
-                fitting.BOOTSTRAP_KIND, fitting.NOISE_FLOOR = "resample", False
+                at_fit = choice.error_at(n_fit)
+                # the plain bootstrap without the noise floor, for comparison
+                fit_bootstrap.BOOTSTRAP_KIND, fit_intervals.NOISE_FLOOR = "resample", False
                 try:
                     plain_boot = cf.fit_curve(sub, bootstrap=args.bootstrap, random_state=0)
-                    pp, pf = plain_boot.predict(pool), plain_boot.predict(n_fit)
+                    pp, pf = plain_boot.error_at(pool), plain_boot.error_at(n_fit)
                 finally:
-                    fitting.BOOTSTRAP_KIND, fitting.NOISE_FLOOR = "student", True
+                    fit_bootstrap.BOOTSTRAP_KIND, fit_intervals.NOISE_FLOOR = "student", True
                 plain = cf.fit_curve(sub, families="power-law-floor", weights="none", bootstrap=0)
                 floor_law = float(plain.predict_family("power-law-floor", [pool])[0]) \
                     if plain.best == "power-law-floor" or "power-law-floor" in set(
                         plain.table.loc[plain.table["status"] != "failed", "family"]) \
-                    else float(plain.predict(pool).estimate)
+                    else float(plain.error_at(pool).estimate)
             last_value = float(sub.ok_points().groupby("size")["test_error"].mean().iloc[-1])
             rows.append({
                 "dataset": dname, "model": mname, "pool": int(pool),

@@ -23,7 +23,11 @@ import pandas as pd
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from curvefit.core.curve import Curve  # noqa: E402
-from curvefit.fitting.engine import _bootstrap, _solve_ls, _Target, fit_curve  # noqa: E402
+from curvefit.fitting.bootstrap import bootstrap_parameters  # noqa: E402
+from curvefit.fitting.data import prepare_data  # noqa: E402
+from curvefit.fitting.engine import fit_curve  # noqa: E402
+from curvefit.fitting.families import get_family  # noqa: E402
+from curvefit.fitting.least_squares import Target, fit_family, solve_least_squares  # noqa: E402
 
 TARGET_SECONDS = 2.0
 
@@ -44,10 +48,14 @@ def measured_curve() -> Curve:
     return Curve.from_table(pd.DataFrame(rows))
 
 
-def plain_bootstrap(fit, B: int, seed: int = 0) -> float:
+def chosen_fit(curve: Curve, fit):
+    """The data and the full-data fit of the chosen family, as the engine builds them."""
+    data = prepare_data(curve, fit.on, "sem")
+    return data, fit_family(get_family(fit.best), data.sizes, data.y, data.w, data)
+
+
+def plain_bootstrap(data, chosen, B: int, seed: int = 0) -> float:
     """Seconds for B one-at-a-time least_squares refits of the chosen family (the plain way)."""
-    state = fit._state
-    data, chosen = state.data, state.fits[fit.best]
     fam = chosen.family
     rng = np.random.default_rng(seed)
     lo, hi = fam.bounds(signed=data.sign < 0)
@@ -56,10 +64,10 @@ def plain_bootstrap(fit, B: int, seed: int = 0) -> float:
         y = np.array([c[rng.integers(0, len(c), len(c)), 0].mean() for c in data.cells])
         if fam.joint:
             r = np.array([np.nanmean(c[:, 1]) for c in data.cells])
-            tgt = _Target(fam, data.sizes, y, data.w_test, r, data.w_train)
+            tgt = Target(fam, data.sizes, y, data.w_test, r, data.w_train)
         else:
-            tgt = _Target(fam, data.sizes, y, data.w)
-        _solve_ls(tgt, [chosen.theta], lo, hi, max_nfev=60)
+            tgt = Target(fam, data.sizes, y, data.w)
+        solve_least_squares(tgt, [chosen.theta], lo, hi, max_nfev=60)
     return time.perf_counter() - t0
 
 
@@ -77,11 +85,12 @@ def main() -> None:
         fit_curve(curve, bootstrap=0)
         no_boot.append(time.perf_counter() - t0)
     t_whole, t_fits = statistics.median(whole), statistics.median(no_boot)
+    data, chosen = chosen_fit(curve, fit)
     rng = np.random.default_rng(0)
     t0 = time.perf_counter()
-    _bootstrap(fit._state.fits[fit.best], fit._state.data, 500, rng)
+    bootstrap_parameters(chosen, data, 500, rng)
     t_batched = time.perf_counter() - t0
-    t_plain = plain_bootstrap(fit, 500)
+    t_plain = plain_bootstrap(data, chosen, 500)
     print(f"chosen family: {fit.best}; bootstrap refits that succeeded: {fit.n_bootstrap_ok}/500")
     print(f"whole fit (11 families + 500 bootstrap), median of 5: {t_whole:.2f} s "
           f"(target {TARGET_SECONDS:.1f} s, ratio {t_whole / TARGET_SECONDS:.2f}; runs: "

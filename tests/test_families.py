@@ -114,7 +114,7 @@ def test_adding_a_family_needs_no_change_elsewhere():
     fam = F.Family(
         name="hyp2", formula="c + a/n", params=("a", "c"),
         func=lambda n, t: t[1] + t[0] / n,
-        jac=lambda n, t: F._stack([1.0 / n, np.ones_like(n)]),
+        jac=lambda n, t: F.stack_columns([1.0 / n, np.ones_like(n)]),
         lower=(0.0, 0.0), upper=(np.inf, np.inf),
         guesses=lambda n, y, w: [np.array([float(np.ptp(y)) * float(n.min()), float(y.min())])],
         levels=("c",), asymptote=lambda t: float(t[1]))

@@ -75,22 +75,36 @@ def nb_fit(nb):
     return fit_curve(nb.curve, bootstrap=60, random_state=1)
 
 
+def _theta(fit, family):
+    """A family's fitted parameters, in the order of its ``params``."""
+    params = fit.table.set_index("family").loc[family, "params"]
+    return np.array([params[p] for p in get_family(family).params])
+
+
+def _floored_standard_errors(fit):
+    """The per-size standard errors, each raised to at least 0.2 × the median one and the
+    median where a size has no repeats, as the fit's documented noise scale."""
+    sem = fit.standard_errors
+    med = np.median(sem[np.isfinite(sem)])
+    return np.maximum(np.where(np.isfinite(sem), sem, med), 0.2 * med)
+
+
 # ------------------------------------------------------------------ outside checks
 @pytest.mark.parametrize("family", ["power-law-floor", "exponential-floor", "vapor-pressure", "power-law"])
 def test_weighted_least_squares_agrees_with_scipy_curve_fit(nb, family):
     # reference: scipy.optimize.curve_fit on the same weighted problem (sigma = 1/√w)
     fit = fit_curve(nb.curve, families=family, bootstrap=0)
-    data = fit._state.data
+    sizes, y, w = fit.sizes, fit.means, fit.weights
     fam = get_family(family)
-    theta = fit._state.fits[family].theta
+    theta = _theta(fit, family)
     lo, hi = fam.bounds()
-    ref, _ = curve_fit(lambda n, *t: fam.func(n, np.array(t)), data.sizes, data.y,
-                       p0=theta * 1.05 + 1e-4 * (theta == 0), sigma=1 / np.sqrt(data.w),
+    ref, _ = curve_fit(lambda n, *t: fam.func(n, np.array(t)), sizes, y,
+                       p0=theta * 1.05 + 1e-4 * (theta == 0), sigma=1 / np.sqrt(w),
                        bounds=(lo, hi), method="trf", jac=lambda n, *t: fam.jac(n, np.array(t)),
                        ftol=1e-14, xtol=1e-14, gtol=1e-14, max_nfev=5000)
-    pred_ours = fam.func(data.sizes, theta)
-    pred_ref = fam.func(data.sizes, ref)
-    rss = lambda p: float(np.sum(data.w * (p - data.y) ** 2))  # noqa: E731
+    pred_ours = fam.func(sizes, theta)
+    pred_ref = fam.func(sizes, ref)
+    rss = lambda p: float(np.sum(w * (p - y) ** 2))  # noqa: E731
     assert rss(pred_ours) <= rss(pred_ref) * (1 + 1e-6) + 1e-15
     np.testing.assert_allclose(pred_ours, pred_ref, rtol=1e-4)
 
@@ -99,7 +113,7 @@ def test_index_weights_follow_figueroa(nb):
     # Figueroa et al. 2012 (BMC Med. Inform. Decis. Mak. 12:8): weights grow with the
     # point's index (proportional to index: from memory)
     fit = fit_curve(nb.curve, families="power-law-floor", weights="index", bootstrap=0)
-    w = fit._state.data.w
+    w = fit.weights
     np.testing.assert_allclose(w / w[0], np.arange(1, len(w) + 1))
 
 
@@ -117,7 +131,7 @@ def test_joint_family_puts_the_shared_asymptote_between_train_and_test():
     train_fit = fit_curve(nb.curve, families="joint-train-test", on="train", bootstrap=0)
     assert train_fit.best == "joint-train-test"
     a_nb = train_fit.table.set_index("family").loc["joint-train-test", "params"]["a"]
-    assert train_fit.predict(10 * train_fit.largest_size).estimate <= a_nb + 1e-9
+    assert train_fit.error_at(10 * train_fit.largest_size).estimate <= a_nb + 1e-9
 
 
 # ------------------------------------------------------------------ the result object
@@ -137,21 +151,27 @@ def test_curvefit_contract(nb_fit):
     json.dumps(jsonable(fit.to_dict()), allow_nan=False)
 
 
-def test_predict_scalar_and_array(nb_fit):
-    e = nb_fit.predict(2000)
+def test_predict_gives_a_table_and_error_at_one_estimate(nb_fit):
+    e = nb_fit.error_at(2000)
     assert isinstance(e, Estimate) and e.level == 0.9
     assert e.low <= e.estimate <= e.high
     df = nb_fit.predict([500, 1000, 2000], interval=0.8)
     assert list(df.columns) == ["size", "estimate", "low", "high"]
     assert df["estimate"].iloc[2] == pytest.approx(e.estimate)
-    wide = nb_fit.predict(2000, interval=0.95)
+    one = nb_fit.predict(2000)  # one size is a one-row table, the same type as for several
+    assert isinstance(one, pd.DataFrame) and len(one) == 1
+    assert tuple(one.iloc[0][["estimate", "low", "high"]]) == (e.estimate, e.low, e.high)
+    wide = nb_fit.error_at(2000, interval=0.95)
     assert wide.high - wide.low >= e.high - e.low - 1e-12
     with pytest.warns(FitWarning):
         nb_fit.predict(100 * nb_fit.largest_size)
-    with pytest.raises(InputError):
-        nb_fit.predict(-5)
-    with pytest.raises(InputError):
-        nb_fit.predict(100, interval=1.5)
+    with pytest.warns(FitWarning):
+        nb_fit.error_at(100 * nb_fit.largest_size)
+    for bad in (lambda: nb_fit.predict(-5), lambda: nb_fit.error_at(-5),
+                lambda: nb_fit.error_at([100, 200]), lambda: nb_fit.predict(100, interval=1.5),
+                lambda: nb_fit.error_at(100, interval=1.5)):
+        with pytest.raises(InputError):
+            bad()
 
 
 def test_parameters_asymptote_exponent(nb_fit):
@@ -180,8 +200,8 @@ def test_same_seed_same_numbers(nb):
     a = fit_curve(nb.curve, families="power-law-floor,exponential-floor", bootstrap=40, random_state=7)
     b = fit_curve(nb.curve, families="power-law-floor,exponential-floor", bootstrap=40, random_state=7)
     c = fit_curve(nb.curve, families="power-law-floor,exponential-floor", bootstrap=40, random_state=8)
-    assert a.predict(5000) == b.predict(5000)
-    assert a.predict(5000).estimate == c.predict(5000).estimate
+    assert a.error_at(5000) == b.error_at(5000)
+    assert a.error_at(5000).estimate == c.error_at(5000).estimate
     assert a.parameters().equals(b.parameters())
     # the prediction band may sit on the measurement-noise floor; the parameters do not
     assert not np.allclose(a.parameters()["low"], c.parameters()["low"])
@@ -190,8 +210,20 @@ def test_same_seed_same_numbers(nb):
 def test_weights_choices_change_the_fit(nb):
     fits = {w: fit_curve(nb.curve, families="power-law-floor", weights=w, bootstrap=0) for w in
             ["sem", "index", "none"]}
-    vals = {w: tuple(np.round(f._state.fits["power-law-floor"].theta, 8)) for w, f in fits.items()}
+    vals = {w: tuple(np.round(_theta(f, "power-law-floor"), 8)) for w, f in fits.items()}
     assert len(set(vals.values())) == 3
+
+
+def test_n_holdout_sets_the_forecast_validation(nb):
+    # 8 sizes: a quarter is 2, raised to 3 while 4 sizes stay before them (documented rule)
+    assert fit_curve(nb.curve, families="power-law-floor", bootstrap=0).n_holdout == 3
+    fit = fit_curve(nb.curve, families="power-law-floor", bootstrap=0, n_holdout=2)
+    assert fit.n_holdout == 2
+    with pytest.warns(DeprecationWarning):
+        old = fit_curve(nb.curve, families="power-law-floor", bootstrap=0, holdout=2)
+    assert old.table.equals(fit.table)
+    with pytest.raises(InputError):
+        fit_curve(nb.curve, n_holdout=-1)
 
 
 def test_gap_and_train_fits(nb):
@@ -209,11 +241,11 @@ def test_gap_and_train_fits(nb):
 def test_samples_for_inverts_predict(nb):
     # power-law tends to 0; a target below every measured mean is answered from the fitted curve
     nb_fit = fit_curve(nb.curve, families="power-law", bootstrap=60, random_state=1)
-    target = 0.6 * min(nb_fit.predict(nb_fit.largest_size).estimate,
+    target = 0.6 * min(nb_fit.error_at(nb_fit.largest_size).estimate,
                        float(nb_fit.curve.summary()["test_mean"].min()))
     s = nb_fit.samples_for(test_error=target)
     assert isinstance(s, SampleEstimate) and s.kind == "test_error" and s.reachable
-    assert nb_fit.predict(s.n).estimate == pytest.approx(target, abs=2e-4)
+    assert nb_fit.error_at(s.n).estimate == pytest.approx(target, abs=2e-4)
     assert s.low <= s.n <= s.high
     assert s.message.startswith("To reach ") and "labelled samples" in s.message
     json.dumps(jsonable(s.to_dict()))
@@ -238,8 +270,10 @@ def test_already_reached_target(nb_fit):
 def test_gap_target_fits_the_gap_internally(nb_fit):
     s = nb_fit.samples_for(gap=0.05)
     assert s.kind == "gap"
-    assert "gap" in nb_fit._state.companions
-    assert nb_fit.samples_for(gap=0.05).n == s.n  # cached companion, same answer
+    # the gap fit is made once and kept: asking again gives the same answer
+    assert nb_fit.samples_for(gap=0.05).message == s.message
+    direct = fit_curve(nb_fit.curve, on="gap", bootstrap=60, random_state=1)
+    assert direct.samples_for(gap=0.05).n == s.n
     with pytest.raises(InputError):
         nb_fit.samples_for()
     with pytest.raises(InputError):
@@ -328,7 +362,7 @@ def test_odd_finite_curves_give_a_result(table, on):
             return
         assert fit.best in set(fit.table["family"])
         assert set(fit.table["status"]) <= {"converged", "poorly determined", "poor fit", "failed"}
-        e = fit.predict(2 * fit.largest_size)
+        e = fit.error_at(2 * fit.largest_size)
         assert isinstance(e, Estimate)
         if on == "test":
             s = fit.samples_for(test_error=float(np.nanmin(table["test_error"])) * 0.9)
@@ -349,7 +383,7 @@ def test_extrapolation_from_a_quarter_of_the_pool():
         sub = Curve(c.points[c.points["size"] <= 0.25 * pool])
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", FitWarning)
-            e = fit_curve(sub, bootstrap=100, random_state=0).predict(pool)
+            e = fit_curve(sub, bootstrap=100, random_state=0).error_at(pool)
         covered.append(e.low <= measured <= e.high)
         err_fit.append(abs(e.estimate - measured))
         err_last.append(abs(sub.ok_points().groupby("size")["test_error"].mean().iloc[-1] - measured))
@@ -375,7 +409,7 @@ def plateau_fit():
 
 
 def test_lack_of_fit_keeps_families_that_miss_the_points_out(plateau_fit, nb_fit):
-    from curvefit.fitting.engine import LACK_OF_FIT_FLOOR, LACK_OF_FIT_RATIO
+    from curvefit.fitting.selection import LACK_OF_FIT_FLOOR, LACK_OF_FIT_RATIO
 
     for fit in (plateau_fit, nb_fit):
         t = fit.table
@@ -394,15 +428,12 @@ def test_lack_of_fit_keeps_families_that_miss_the_points_out(plateau_fit, nb_fit
 
 
 def test_lack_of_fit_is_reduced_chi_square(nb_fit):
-    from curvefit.fitting.engine import _noise_scale
-
-    d = nb_fit._state.data
-    scale = _noise_scale(d)
+    scale = _floored_standard_errors(nb_fit)
     row = nb_fit.table[nb_fit.table["family"] == "power-law-floor"].iloc[0]
-    pred = nb_fit.predict_family("power-law-floor", d.sizes)
-    chi2 = float(np.sum(((pred - d.y) / scale) ** 2))
+    pred = nb_fit.predict_family("power-law-floor", nb_fit.sizes)
+    chi2 = float(np.sum(((pred - nb_fit.means) / scale) ** 2))
     # reduced chi-square χ²/(m − p) (Bevington & Robinson 2003, ch. 11)
-    assert row["lack_of_fit"] == pytest.approx(chi2 / (d.m - 3), rel=1e-9)
+    assert row["lack_of_fit"] == pytest.approx(chi2 / (len(nb_fit.sizes) - 3), rel=1e-9)
 
 
 def test_answers_within_the_measured_range_come_from_the_measured_means(plateau_fit):
@@ -434,15 +465,14 @@ def test_parametric_bootstrap_matches_student_t_for_one_mean(nb):
     # last-value is the last mean; its bootstrap interval should be Student's t interval of
     # that mean (scipy.stats.t), not the narrower resampled-repeats one
     fit = fit_curve(nb.curve, families="last-value", bootstrap=3000, random_state=3)
-    d = fit._state.data
-    k = len(d.cells[-1])
-    lo, hi = stats.t.interval(0.9, k - 1, loc=d.y[-1], scale=max(d.sem[-1], 0.2 * np.median(d.sem)))
-    est = fit.predict(fit.largest_size)
+    k, sem = fit.repeats[-1], fit.standard_errors
+    lo, hi = stats.t.interval(0.9, k - 1, loc=fit.means[-1], scale=max(sem[-1], 0.2 * np.median(sem)))
+    est = fit.error_at(fit.largest_size)
     assert est.low == pytest.approx(lo, rel=0.05) and est.high == pytest.approx(hi, rel=0.05)
 
 
 def test_asymptote_wording_is_clean_and_honest(nb):
-    from curvefit.fitting.engine import format_error
+    from curvefit.core.formatting import format_error
 
     assert format_error(2.6e-13) == "0%" and format_error(-1e-12) == "0%"
     assert format_error(0.0123) == "1.2%"
@@ -461,11 +491,10 @@ def test_asymptote_wording_is_clean_and_honest(nb):
 def test_prediction_band_is_no_narrower_than_the_measured_mean(nb_fit):
     from scipy import stats
 
-    d = nb_fit._state.data
-    scale = np.maximum(np.where(np.isfinite(d.sem), d.sem, np.median(d.sem)), 0.2 * np.median(d.sem))
-    band = nb_fit.predict(d.sizes)
+    scale = _floored_standard_errors(nb_fit)
+    band = nb_fit.predict(nb_fit.sizes)
     for j, row in enumerate(band.itertuples()):
-        k = len(d.cells[j])
+        k = nb_fit.repeats[j]
         half = stats.t.ppf(0.95, k - 1) * scale[j]  # Student-t interval of a mean (scipy.stats)
         assert row.high - row.estimate >= half * (1 - 1e-9)
         assert row.estimate - row.low >= min(half, row.estimate) * (1 - 1e-9)

@@ -160,7 +160,7 @@ def _npow(n, e):
     return np.exp(np.clip(-e * _ln(n), -700.0, 700.0))
 
 
-def _stack(columns) -> np.ndarray:
+def stack_columns(columns) -> np.ndarray:
     """Jacobian columns stacked on the last axis, broadcasting scalars and batches.
 
     With one parameter vector the result is (len(n), p); with parameters of shape
@@ -217,7 +217,7 @@ def _last_value(n, t):
 
 register(Family(
     name="last-value", formula="the last observed value", params=("value",),
-    func=_last_value, jac=lambda n, t: _stack([np.ones_like(_last_value(n, t))]),
+    func=_last_value, jac=lambda n, t: stack_columns([np.ones_like(_last_value(n, t))]),
     lower=(-INF,), upper=(INF,), guesses=lambda n, y, w: [np.array([y[-1]])],
     asymptote=lambda t: float(t[0]), baseline=True,
     reference="Viering & Loog 2023 (baseline)"))
@@ -230,7 +230,7 @@ def _power_law(n, t):
 
 def _power_law_jac(n, t):
     e = _npow(n, t[1])
-    return _stack([e, -t[0] * _ln(n) * e])
+    return stack_columns([e, -t[0] * _ln(n) * e])
 
 
 def _power_law_guess(n, y, w):
@@ -255,7 +255,7 @@ def _power_law_floor(n, t):
 
 def _power_law_floor_jac(n, t):
     e = _npow(n, t[1])
-    return _stack([e, -t[0] * _ln(n) * e, np.ones_like(e)])
+    return stack_columns([e, -t[0] * _ln(n) * e, np.ones_like(e)])
 
 
 register(Family(
@@ -277,7 +277,7 @@ def _shifted_power_law_jac(n, t):
     a, b, alpha, c = t
     u = np.maximum(a * n + b, 1e-300)
     g = np.exp(np.clip(-alpha * np.log(u), -700.0, 700.0))
-    return _stack([-alpha * n * g / u, -alpha * g / u, -np.log(u) * g, np.ones_like(g)])
+    return stack_columns([-alpha * n * g / u, -alpha * g / u, -np.log(u) * g, np.ones_like(g)])
 
 
 def _shifted_power_law_guess(n, y, w):
@@ -306,7 +306,7 @@ def _exponential_floor(n, t):
 
 def _exponential_floor_jac(n, t):
     e = np.exp(np.clip(-t[1] * n, -700.0, 700.0))
-    return _stack([e, -t[0] * n * e, np.ones_like(e)])
+    return stack_columns([e, -t[0] * n * e, np.ones_like(e)])
 
 
 def _exponential_floor_guess(n, y, w):
@@ -334,7 +334,7 @@ def _log_decline(n, t):
 
 def _log_decline_jac(n, t):
     L = _ln(n)
-    return _stack([-L, np.ones_like(L)])
+    return stack_columns([-L, np.ones_like(L)])
 
 
 def _log_decline_guess(n, y, w):
@@ -363,7 +363,7 @@ def _inverse_log(n, t):
 
 def _inverse_log_jac(n, t):
     q = _inv_ln(n)
-    return _stack([q, np.ones_like(q)])
+    return stack_columns([q, np.ones_like(q)])
 
 
 def _inverse_log_guess(n, y, w):
@@ -390,7 +390,7 @@ def _vapor_pressure(n, t):
 
 def _vapor_pressure_jac(n, t):
     f = _vapor_pressure(n, t)
-    return _stack([f, f / n, f * _ln(n)])
+    return stack_columns([f, f / n, f * _ln(n)])
 
 
 def _vapor_pressure_guess(n, y, w):
@@ -427,7 +427,7 @@ def _mmf_jac(n, t):
     p = np.exp(np.clip(d * L, -700.0, 700.0))
     D = b + p
     f = (a * b + c * p) / D
-    return _stack([b / D, (a - f) / D, p / D, p * L * (c - f) / D])
+    return stack_columns([b / D, (a - f) / D, p / D, p * L * (c - f) / D])
 
 
 def _mmf_guess(n, y, w):
@@ -461,7 +461,7 @@ def _weibull_jac(n, t):
     L = _ln(n)
     p = np.exp(np.clip(d * L, -700.0, 700.0))
     q = np.exp(np.clip(-a * p, -700.0, 700.0))
-    return _stack([b * p * q, -q, np.ones_like(q), b * q * a * p * L])
+    return stack_columns([b * p * q, -q, np.ones_like(q), b * q * a * p * L])
 
 
 def _weibull_guess(n, y, w):
@@ -504,14 +504,14 @@ def _joint_test_jac(n, t):
     a, b, alpha, c, beta = t
     e = _npow(n, alpha)
     z = np.zeros_like(e)
-    return _stack([np.ones_like(e), e, -b * _ln(n) * e, z, z])
+    return stack_columns([np.ones_like(e), e, -b * _ln(n) * e, z, z])
 
 
 def _joint_train_jac(n, t):
     a, b, alpha, c, beta = t
     e = _npow(n, beta)
     z = np.zeros_like(e)
-    return _stack([np.ones_like(e), z, z, -e, c * _ln(n) * e])
+    return stack_columns([np.ones_like(e), z, z, -e, c * _ln(n) * e])
 
 
 def _joint_guess(n, y_test, y_train, w_test=None, w_train=None):

@@ -1,0 +1,187 @@
+"""Samples needed for a target: where the measured or fitted curve reaches it, in words.
+
+Answers inside the measured range come from the measured means (interpolated linearly
+in ln n); the fitted curve answers only beyond the largest measured size, so a family
+that disagrees with the measured points at small n cannot give an answer there.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from curvefit.core.estimate import Estimate
+from curvefit.core.formatting import format_count, format_error, format_interval
+from curvefit.fitting.data import FitData
+
+# Answers are searched up to this many labelled samples.
+SEARCH_LIMIT = 1e12
+# Beyond this multiple of the largest measured size a prediction is an extrapolation to flag.
+EXTRAPOLATION_FACTOR = 10.0
+
+
+@dataclass(frozen=True)
+class Crossing:
+    """Where a curve reaches the target: the point, its interval and its source."""
+
+    point: float
+    low: float
+    high: float
+    source: str           # "measured" or "fitted"
+    fitted_at_largest: float  # the fitted curve at the largest measured size
+
+
+def search_grid(d: FitData) -> np.ndarray:
+    """Sizes searched beyond the data: from the largest measured size to SEARCH_LIMIT."""
+    return np.geomspace(max(d.n_max, 1.0), SEARCH_LIMIT, 2400)
+
+
+def find_crossing(d: FitData, target: float, grid, fitted, band, measured_band) -> Crossing:
+    """Where the target is reached: from the measured means when they reach it, else
+    from the fitted curve on ``grid``; each end of the interval likewise from the
+    measured band (``measured_band``), else from the fitted ``band`` beyond the data."""
+    lo_band, hi_band = band
+    mean_lo, mean_hi = measured_band
+    point_fit = first_crossing(fitted[None, :], grid, target)[0]
+    point_meas = measured_crossing(d.sizes, d.y, target)
+    if math.isfinite(point_meas):
+        point, source = point_meas, "measured"
+    else:
+        point, source = point_fit, "fitted"
+    low = measured_crossing(d.sizes, mean_lo, target)
+    if not math.isfinite(low) and np.all(np.isfinite(lo_band)):
+        low = first_crossing(lo_band[None, :], grid, target)[0]
+    high = measured_crossing(d.sizes, mean_hi, target)
+    if not math.isfinite(high) and np.all(np.isfinite(lo_band)):
+        high = first_crossing(np.where(np.isfinite(hi_band), hi_band, np.inf)[None, :],
+                              grid, target)[0]
+    if not np.all(np.isfinite(lo_band)) and source == "fitted":
+        low = high = math.nan
+    if math.isfinite(point):
+        if not math.isnan(low):
+            low = min(low, point)
+        if not math.isnan(high):
+            high = max(high, point)
+    return Crossing(float(point), float(low), float(high), source, float(fitted[0]))
+
+
+def unreachable_text(what: str, target_text: str, asym: Estimate | None, asym_text: str,
+                     target: float, level: float) -> tuple[str, list]:
+    """The message and cautions when more data does not reach the target."""
+    cautions = []
+    if asym is not None and math.isfinite(asym.estimate):
+        message = (f"A {what} of {target_text} is not reachable by more data with this model: "
+                   f"the {what} {asym_text}.")
+        if math.isfinite(asym.low) and asym.low <= target:
+            cautions.append(f"the {level:.0%} interval of that level reaches below the "
+                            "target, so this is uncertain; larger measured sizes would settle it")
+            message += " Note: " + cautions[-1] + "."
+    else:
+        message = (f"A {what} of {target_text} is not reachable by more data with this model: "
+                   f"the fitted curve does not fall that low within {SEARCH_LIMIT:.0e} samples.")
+    return message, cautions
+
+
+def answer_text(d: FitData, n: float, c: Crossing, kind: str, target: float, level: float,
+                metric: str, family: str, logarithmic: bool) -> tuple[str, list]:
+    """The message and cautions of a reachable answer of ``n`` samples."""
+    what = "test error" if kind == "test_error" else "generalization gap"
+    tgt = format_error(target, metric)
+    count = format_count(n)
+    interval = count_interval_text(c.low, c.high, level)
+    if c.source == "measured" and n <= float(d.sizes[0]):
+        message = (f"The measured curve already reaches {tgt} {what} at its smallest "
+                   f"measured size, {count} labelled samples (fewer were not measured).")
+    elif c.source == "measured":
+        j = int(np.searchsorted(d.sizes, n))
+        between = (f", between the measured sizes {d.sizes[j - 1]:,.0f} and "
+                   f"{d.sizes[j]:,.0f}" if 0 < j < d.m and d.sizes[j] != n else "")
+        message = (f"The measured curve already reaches {tgt} {what} at about "
+                   f"{count} labelled samples{between}{interval}.")
+    elif kind == "test_error":
+        message = f"To reach {tgt} test error you need about {count} labelled samples{interval}."
+    else:
+        message = (f"To bring the generalization gap down to {tgt} you need about "
+                   f"{count} labelled samples{interval}.")
+    cautions = _answer_cautions(d, n, c, target, metric, family, logarithmic)
+    if cautions:
+        message += " Note: " + "; ".join(cautions) + "."
+    return message, cautions
+
+
+def _answer_cautions(d: FitData, n: float, c: Crossing, target: float, metric: str,
+                     family: str, logarithmic: bool) -> list:
+    cautions = []
+    if c.source == "fitted" and c.fitted_at_largest <= target:
+        cautions.append(f"the fitted curve is already at the target at the largest "
+                        f"measured size ({d.n_max:,.0f}), where the measured mean "
+                        f"({format_error(float(d.y[-1]), metric)}) is not; the answer is rough")
+    if n > EXTRAPOLATION_FACTOR * d.n_max:
+        cautions.append(f"this is more than {EXTRAPOLATION_FACTOR:g}× the largest measured "
+                        f"size ({d.n_max:,.0f}), a long extrapolation")
+    if logarithmic and c.source == "fitted":
+        cautions.append(f"the {family} curve falls only logarithmically, so small "
+                        "changes in its fit move this answer a lot")
+    if math.isinf(c.high) and c.source == "measured":
+        cautions.append("within the measured sizes the intervals of the means never "
+                        "fall wholly below the target, so the interval has no upper limit")
+    elif math.isinf(c.high):
+        cautions.append("some bootstrap curves never reach the target, so the "
+                        "interval has no upper limit")
+    return cautions
+
+
+def count_interval_text(low: float, high: float, level: float) -> str:
+    """`` (90% interval 2,130–4,180)`` for a sample-count interval; "" when it is unknown.
+
+    Examples
+    --------
+    >>> count_interval_text(2131.0, float("inf"), 0.9)
+    ' (90% interval 2,130 to no upper limit)'
+    >>> count_interval_text(float("nan"), float("nan"), 0.9)
+    ''
+    """
+    if not math.isfinite(low) and not math.isfinite(high):
+        return ""
+    return f" ({format_interval(low, high, level, kind='count')})"
+
+
+def first_crossing(F: np.ndarray, grid: np.ndarray, target: float) -> np.ndarray:
+    """Smallest n on the log grid where each row of F falls to the target (inf if never)."""
+    below = F <= target
+    has = below.any(axis=1)
+    i = np.argmax(below, axis=1)
+    out = np.full(F.shape[0], math.inf)
+    for r in np.nonzero(has)[0]:
+        k = i[r]
+        if k == 0:
+            out[r] = grid[0]
+            continue
+        f0, f1 = F[r, k - 1], F[r, k]
+        frac = (f0 - target) / (f0 - f1) if f0 != f1 else 1.0
+        frac = min(max(frac, 0.0), 1.0)
+        out[r] = math.exp(math.log(grid[k - 1]) + frac * (math.log(grid[k]) - math.log(grid[k - 1])))
+    return out
+
+
+def measured_crossing(sizes: np.ndarray, values: np.ndarray, target: float) -> float:
+    """Smallest size where the measured values reach the target, interpolating linearly
+    in ln n between the last size above it and the first at or below it; inf if none.
+
+    Examples
+    --------
+    >>> round(measured_crossing(np.array([100.0, 400.0]), np.array([0.3, 0.1]), 0.2))
+    200
+    """
+    below = np.nonzero(np.asarray(values) <= target)[0]
+    if not len(below):
+        return math.inf
+    i = int(below[0])
+    if i == 0:
+        return float(sizes[0])
+    v0, v1 = float(values[i - 1]), float(values[i])
+    frac = (v0 - target) / (v0 - v1) if v0 != v1 else 1.0
+    frac = min(max(frac, 0.0), 1.0)
+    return float(math.exp(math.log(sizes[i - 1]) + frac * (math.log(sizes[i]) - math.log(sizes[i - 1]))))
