@@ -83,9 +83,22 @@ def test_pragmas_and_text_only_columns(store, tmp_path):
     con.close()
 
 
-def test_foreign_keys_enforced(store):
-    with pytest.raises(sqlite3.IntegrityError):
-        store._con.execute("INSERT INTO points (run_id, size, repeat, status) VALUES (999, 1, 0, 'ok')")
+def test_foreign_keys_declared(store):
+    store.record(_curve(), None, series="s", headline=_figs())
+    con = sqlite3.connect(store.path)
+    refs = {t: {r[2] for r in con.execute(f"PRAGMA foreign_key_list({t})")}
+            for t in ("runs", "points", "fits", "headline")}
+    con.close()
+    assert refs == {"runs": {"series"}, "points": {"runs"}, "fits": {"runs"}, "headline": {"runs"}}
+
+
+def test_record_refuses_to_compute_figures(store):
+    class Fit:
+        def predict(self, n, interval=0.9):
+            raise AssertionError("the store must not compute")
+
+    with pytest.raises(InputError, match="does not compute"):
+        store.record(_curve(), Fit(), series="s")
 
 
 def test_reference_size_is_fixed_per_series(store):
@@ -410,7 +423,7 @@ def test_headline_interval_widened_to_measurement_noise():
     class TightFit:  # a fit whose own intervals are far too narrow
         curve = c
 
-        def predict(self, n, interval=0.9):
+        def error_at(self, n, interval=0.9):
             return Estimate(0.06, 0.0599, 0.0601, interval)
 
         def exponent(self, interval=0.9):
@@ -452,7 +465,7 @@ def test_exponent_not_gated_with_two_repeats():
         class Fit:
             best, curve = "power-law-floor", Curve.from_table(pd.DataFrame(rows))
 
-            def predict(self, n, interval=0.9):
+            def error_at(self, n, interval=0.9):
                 return Estimate(0.1, 0.09, 0.11, interval)
 
             def exponent(self, interval=0.9):
@@ -472,15 +485,30 @@ def test_exponent_not_gated_with_two_repeats():
 
 
 def test_samples_answer_below_measured_range_is_not_gated():
+    from curvefit.core.estimate import Estimate
+
     class Answer:
         n, low, high, reachable, message = 1.0, 1.0, 1.0, True, ""
 
     rows = [{"size": s, "repeat": 0, "test_error": e} for s, e in [(25, 0.37), (300, 0.19)]]
     c = Curve.from_table(pd.DataFrame(rows))
-    fig = tracking._check_below_range(tracking.samples_figure(Answer(), 0.05), c, 0.05)
+
+    class Fit:  # answers every target at one labelled sample, below the measured sizes
+        curve = c
+
+        def error_at(self, n, interval=0.9):
+            return Estimate(0.19, 0.18, 0.2, interval)
+
+        def samples_for(self, test_error=None, gap=None, interval=0.9):
+            return Answer()
+
+    def samples(target):
+        figs = tracking.headline_figures(Fit(), reference_size=300, target_error=target)
+        return next(f for f in figs if f.name == "samples_for_target")
+
+    fig = samples(0.05)
     assert fig.better is None and "not gated" in fig.note
-    ok = tracking._check_below_range(tracking.samples_figure(Answer(), 0.5), c, 0.5)
-    assert ok.better == "lower"  # the data agree: already below 0.5 at the smallest size
+    assert samples(0.5).better == "lower"  # the data agree: already below 0.5 at the smallest size
 
 
 def test_store_addresses(tmp_path):

@@ -145,7 +145,7 @@ def test_data_change_not_comparable_unless_allowed(nightly, tmp_path):
     (("RUN",), "no history store"),
     (("RUN", "--store", "DB"), "no series"),
     (("RUN", "--store", "DB", "--series", "s", "--baseline", "yesterday"), "baseline must be"),
-    (("RUN", "--store", "DB", "--series", "s", "--target-error", "-1"), "target error"),
+    (("RUN", "--store", "DB", "--series", "s", "--target-error", "-1"), "--target-error"),
     (("missing.json", "--store", "DB", "--series", "s"), "run file not found"),
     (("--config", "BADKEY"), "unknown key"),
     (("--config", "BADTOML"), "not valid TOML"),

@@ -42,8 +42,11 @@ import math
 from dataclasses import asdict, dataclass, field
 from typing import Any, Iterable, Mapping
 
+from curvefit.core.defaults import INTERVAL
 from curvefit.core.errors import InputError
 from curvefit.core.estimate import Estimate
+from curvefit.core.formatting import MISSING, format_estimate, format_value
+from curvefit.core.stats import clopper_pearson, t_interval
 
 LOWER, HIGHER = "lower", "higher"
 # Figures that are parameters of the chosen family: compared only within one family.
@@ -59,6 +62,10 @@ FIGURES: dict[str, tuple[str | None, str]] = {
     "samples_for_target": (LOWER, "samples for target error"),
     "effective_capacity": (None, "effective capacity (VC units)"),
 }
+# name -> how its values read (a kind of `curvefit.core.formatting.format_value`)
+FIGURE_KINDS = {"test_error_at_ref": "error", "decay_exponent": "number",
+                "asymptote": "error", "samples_for_target": "count",
+                "effective_capacity": "capacity"}
 
 # Defaults chosen as common practice: one percentage point of error, a fifth of the
 # exponent, a quarter of the labels. Numbers are absolute, strings "N%" relative.
@@ -102,7 +109,7 @@ class Figure:
     estimate: float
     low: float = math.nan
     high: float = math.nan
-    level: float = 0.9
+    level: float = INTERVAL
     better: str | None = None
     note: str = ""
 
@@ -119,7 +126,7 @@ class Figure:
 
 
 def make_figure(name: str, estimate: float, low: float = math.nan, high: float = math.nan,
-                level: float = 0.9, note: str = "") -> Figure:
+                level: float = INTERVAL, note: str = "") -> Figure:
     """A `Figure` with the direction registered for ``name`` (None for unknown names)."""
     better = FIGURES.get(name, (None, ""))[0]
     return Figure(name, _float(estimate), _float(low), _float(high), float(level), better, note)
@@ -134,7 +141,7 @@ def _float(v: Any) -> float:
 
 # --------------------------------------------------------------------- figures from a fit
 def headline_figures(fit: Any, *, reference_size: int, target_error: float | None = None,
-                     capacity: Any = None, interval: float = 0.9,
+                     capacity: Any = None, interval: float = INTERVAL,
                      curve: Any = None) -> list[Figure]:
     """Headline figures of one run, read from its curve fit.
 
@@ -173,7 +180,7 @@ def headline_figures(fit: Any, *, reference_size: int, target_error: float | Non
        curves: asymptotic values and rate of convergence", NIPS 6, 1994.
     """
     figs: list[Figure] = []
-    est = fit.predict(reference_size, interval=interval)
+    est = _error_at(fit, reference_size, interval)
     low, high, note = est.low, est.high, f"n={int(reference_size)}"
     curve = curve if curve is not None else getattr(fit, "curve", None)
     if curve is not None and math.isfinite(_float(est.estimate)):
@@ -217,6 +224,14 @@ def headline_figures(fit: Any, *, reference_size: int, target_error: float | Non
             figs.append(make_figure("effective_capacity", vc, getattr(capacity, "low", math.nan),
                                     getattr(capacity, "high", math.nan), interval, note=note))
     return figs
+
+
+def _error_at(fit: Any, n: float, interval: float) -> Estimate:
+    """The fitted error at one size with its interval (`CurveFit.error_at`)."""
+    if hasattr(fit, "error_at"):
+        return fit.error_at(n, interval=interval)
+    row = fit.predict([n], interval=interval).iloc[0]  # a fit without error_at (older)
+    return Estimate(float(row["estimate"]), float(row["low"]), float(row["high"]), interval)
 
 
 def _widen(est: float, low: float, high: float, m: "_Measured | None") -> tuple[float, float, str]:
@@ -290,7 +305,7 @@ class _Measured:
     note: float  # the measured size used
 
 
-def measurement_interval(curve: Any, size: float, interval: float = 0.9) -> _Measured | None:
+def measurement_interval(curve: Any, size: float, interval: float = INTERVAL) -> _Measured | None:
     """How well the mean test error is known at the measured size nearest ``size``.
 
     Two lower limits on the uncertainty of the mean over the ``R`` repeats there, and
@@ -319,7 +334,6 @@ def measurement_interval(curve: Any, size: float, interval: float = 0.9) -> _Mea
     (0.0622, 0.1502)
     """
     import numpy as np
-    from scipy import stats
 
     ok = curve.ok_points()
     if ok.empty:
@@ -327,20 +341,18 @@ def measurement_interval(curve: Any, size: float, interval: float = 0.9) -> _Mea
     sizes = np.sort(ok["size"].unique()).astype(float)
     nearest = sizes[int(np.argmin(np.abs(np.log(sizes) - math.log(max(float(size), 1e-12)))))]
     g = ok[ok["size"] == nearest]
-    r = len(g)
     mean = float(g["test_error"].mean())
     lo, hi = mean, mean
-    if r >= 2:
-        sd = float(g["test_error"].std(ddof=1))
-        half = float(stats.t.ppf(0.5 + interval / 2, r - 1)) * sd / math.sqrt(r)
-        lo, hi = mean - half, mean + half
+    if len(g) >= 2:
+        t = t_interval(g["test_error"], interval)
+        lo, hi = t.low, t.high
     if g["n_test_errors"].notna().all() and g["n_test"].notna().all():
         k, n = int(round(g["n_test_errors"].sum())), int(round(g["n_test"].sum()))
         if n >= 1 and 0 <= k <= n:
-            ci = stats.binomtest(k, n).proportion_ci(confidence_level=interval, method="exact")
+            low, high = clopper_pearson(k, n, interval)
             p = k / n
             # centre the exact interval on the repeats' mean (equal to k/n for equal n_test)
-            lo, hi = min(lo, mean - (p - ci.low)), max(hi, mean + (ci.high - p))
+            lo, hi = min(lo, mean - (p - low)), max(hi, mean + (high - p))
     return _Measured(mean, lo, hi, nearest)
 
 
@@ -351,7 +363,7 @@ def _call_optional(fit: Any, method: str, interval: float):
     return fn(interval=interval)
 
 
-def decay_figure(exponent: Estimate, interval: float = 0.9, family: str | None = None) -> Figure:
+def decay_figure(exponent: Estimate, interval: float = INTERVAL, family: str | None = None) -> Figure:
     """``decay_exponent`` from `CurveFit.exponent`.
 
     `CurveFit.exponent` already reports the decay rate ``b`` of ``a·n^(−b)`` (``b > 0``
@@ -378,7 +390,7 @@ def _family(fig: Figure) -> str | None:
     return None
 
 
-def samples_figure(sample_estimate: Any, target_error: float, interval: float = 0.9) -> Figure:
+def samples_figure(sample_estimate: Any, target_error: float, interval: float = INTERVAL) -> Figure:
     """``samples_for_target`` from a `SampleEstimate`; ``inf`` when unreachable."""
     reachable = bool(getattr(sample_estimate, "reachable", True))
     n = _float(getattr(sample_estimate, "n", math.nan))
@@ -581,6 +593,7 @@ class Comparison:
     reasons: list[str] = field(default_factory=list)
     changes: list[FigureChange] = field(default_factory=list)
     data_change_allowed: bool = False
+    metric: str = "error"
 
     def __repr__(self) -> str:
         base = "no baseline" if self.baseline_id is None else \
@@ -623,21 +636,23 @@ class Comparison:
                 "comparable": self.comparable, "data_change_allowed": self.data_change_allowed,
                 "reasons": list(self.reasons), "verdict": self.verdict,
                 "regressed": self.regressed, "improved": self.improved,
-                "figures": [c.to_dict() for c in self.changes]}
+                "metric": self.metric, "figures": [c.to_dict() for c in self.changes]}
 
     def to_markdown(self) -> str:
         """A short markdown summary for CI logs."""
         head = f"### curvefit track: series `{self.series}`, run {self.run_id}"
         if self.baseline_id is None:
             lines = [head, "", "First run of the series: recorded as the baseline; nothing to compare.", ""]
-            lines += _figure_table([(c.name, c.current, None, None) for c in self.changes])
+            lines += _figure_table([(c.name, c.current, None, None) for c in self.changes],
+                                   self.metric)
             return "\n".join(lines) + "\n"
         lines = [f"{head} vs run {self.baseline_id} ({self.baseline_rule})", ""]
         for r in self.reasons:
             lines.append(f"- {'allowed: ' if self.data_change_allowed else ''}{r}")
         if self.reasons:
             lines.append("")
-        lines += _figure_table([(c.name, c.current, c.baseline, c) for c in self.changes])
+        lines += _figure_table([(c.name, c.current, c.baseline, c) for c in self.changes],
+                               self.metric)
         lines.append("")
         if not self.comparable:
             lines.append("**Result: not comparable** (data or metric changed; "
@@ -650,7 +665,8 @@ class Comparison:
         return "\n".join(lines) + "\n"
 
 
-def _figure_table(rows: Iterable[tuple[str, Figure | None, Figure | None, FigureChange | None]]) -> list[str]:
+def _figure_table(rows: Iterable[tuple[str, Figure | None, Figure | None, FigureChange | None]],
+                  metric: str = "error") -> list[str]:
     rows = list(rows)
     with_base = any(b is not None for _, _, b, _ in rows)
     if with_base:
@@ -659,49 +675,49 @@ def _figure_table(rows: Iterable[tuple[str, Figure | None, Figure | None, Figure
     else:
         lines = ["| figure | current |", "|---|---|"]
     for name, cur, base, change in rows:
-        label = FIGURES.get(name, (None, name))[1]
-        note = (cur or base).note if (cur or base) else ""
-        if name in FAMILY_BOUND and change and change.current and change.baseline \
-                and _family(change.current) != _family(change.baseline):
-            note = f"{_family(change.baseline)} → {_family(change.current)}"
-        elif name in FAMILY_BOUND:
-            note = _family(cur or base) or ""
-        else:
-            note = note.split(";")[0] if name in ("test_error_at_ref", "samples_for_target") else ""
-        if any("not gated" in f.note for f in (cur, base) if f is not None):
-            note = f"{note}; not gated" if note else "not gated"
-        label = f"{label} ({note})" if note else label
+        label = f"{FIGURES.get(name, (None, name))[1]}{_table_note(name, cur, base, change)}"
         if with_base:
-            lines.append(f"| {label} | {format_figure(base)} | {format_figure(cur)} | "
-                         f"{_fmt(change.worse_by) if change else ''} | "
-                         f"{change.tolerance if change and change.tolerance and change.better else ''} | "
+            worse = format_value(change.worse_by, figure_kind(name), metric) if change else ""
+            tol = change.tolerance if change and change.tolerance and change.better else ""
+            lines.append(f"| {label} | {format_figure(base, metric)} | "
+                         f"{format_figure(cur, metric)} | {worse} | {tol} | "
                          f"{change.status if change else ''} |")
         else:
-            lines.append(f"| {label} | {format_figure(cur)} |")
+            lines.append(f"| {label} | {format_figure(cur, metric)} |")
     return lines
 
 
-def format_figure(f: Figure | None) -> str:
-    """``0.0812 [0.0791, 0.0833]`` style text; ``—`` when absent."""
+def _table_note(name: str, cur: Figure | None, base: Figure | None,
+                change: FigureChange | None) -> str:
+    """`` (note)`` after a figure's label: its family, size or target, and "not gated"."""
+    note = (cur or base).note if (cur or base) else ""
+    if name in FAMILY_BOUND and change and change.current and change.baseline \
+            and _family(change.current) != _family(change.baseline):
+        note = f"{_family(change.baseline)} → {_family(change.current)}"
+    elif name in FAMILY_BOUND:
+        note = _family(cur or base) or ""
+    else:
+        note = note.split(";")[0] if name in ("test_error_at_ref", "samples_for_target") else ""
+    if any("not gated" in f.note for f in (cur, base) if f is not None):
+        note = f"{note}; not gated" if note else "not gated"
+    return f" ({note})" if note else ""
+
+
+def figure_kind(name: str) -> str:
+    """How a figure's values read: ``error``, ``count``, ``capacity`` or ``number``."""
+    return FIGURE_KINDS.get(name, "number")
+
+
+def format_figure(f: Figure | None, metric: str = "error") -> str:
+    """A figure as ``estimate (low–high)`` in its own units; ``–`` when absent.
+
+    Examples
+    --------
+    >>> format_figure(make_figure("test_error_at_ref", 0.081, 0.079, 0.083))
+    '8.1% (7.9%–8.3%)'
+    >>> format_figure(make_figure("samples_for_target", 2871, 2130, float("inf")))
+    '2,870 (2,130 to no upper limit)'
+    """
     if f is None:
-        return "—"
-    return format_interval(f.estimate, f.low, f.high)
-
-
-def format_interval(estimate, low, high) -> str:
-    """``estimate [low, high]``; the interval is left out when unknown, ``—`` for no estimate."""
-    if estimate is None or _nan(estimate):
-        return "—"
-    if (low is None or _nan(low)) and (high is None or _nan(high)):
-        return _fmt(estimate)
-    return f"{_fmt(estimate)} [{_fmt(low)}, {_fmt(high)}]"
-
-
-def _fmt(v: float) -> str:
-    if v is None or _nan(v):
-        return "—"
-    if math.isinf(v):
-        return "∞" if v > 0 else "−∞"
-    if abs(v) >= 100:  # sample counts and capacities: whole numbers read best
-        return f"{v:,.0f}"
-    return f"{v:.4g}"
+        return MISSING
+    return format_estimate(f.estimate, f.low, f.high, kind=figure_kind(f.name), metric=metric)

@@ -34,9 +34,11 @@ import pandas as pd
 
 from curvefit.history import figures as tracking
 from curvefit.core.curve import POINT_COLUMNS, Curve
-from curvefit.core.jsonio import jsonable
+from curvefit.core.defaults import INTERVAL
 from curvefit.core.errors import InputError
+from curvefit.core.jsonio import jsonable
 from curvefit.core.legacy import rename_legacy
+from curvefit.core.validate import check_count, check_positive
 
 # "cfhs" (curvefit history store) as a 32-bit integer: marks the file as ours.
 APPLICATION_ID = 0x63666873
@@ -302,48 +304,28 @@ class Store:
         return json.loads(rows[0][0]) if rows else None
 
     # ------------------------------------------------------------------ writing
-    def record(self, curve: Curve, fit: Any = None, *, series: str,
-               headline: Sequence[tracking.Figure] | None = None,
-               target_error: float | None = None, reference_size: int | None = None,
-               tolerances: Mapping[str, Any] | None = None, capacity: Any = None,
-               interval: float = 0.9, code_version: str | None | bool = True,
-               created: str | None = None) -> int:
-        """Record one run of ``series`` and return its run id.
+    def series_settings(self, series: str, curve: Curve, *, target_error: float | None = None,
+                        reference_size: int | None = None,
+                        tolerances: Mapping[str, Any] | None = None) -> dict:
+        """The settings a run of ``series`` would be recorded with, checked; nothing written.
 
-        Parameters
-        ----------
-        curve : Curve
-            The measured curve (points and meta are stored).
-        fit : CurveFit, optional
-            Its fit; the summary (``fit.to_dict()``) is stored and, unless ``headline``
-            is given, the headline figures are computed from it.
-        series : str
-            Series name; created on first use.
-        headline : list of Figure, optional
-            Headline figures given directly (skips computing them from ``fit``).
-        target_error, reference_size, tolerances
-            Series settings. The first run fixes the reference size (default: its
-            largest measured size) so all runs are read at the same size; a target or
-            tolerances given here replace the stored ones.
-        capacity : CapacityEstimate, optional
-            Effective capacity of the run, stored as a figure.
-        interval : float
-            Level of the headline intervals.
-        code_version : str, None or True
-            Code version to store; True looks it up with ``git rev-parse HEAD``.
-        created : str, optional
-            ISO timestamp; defaults to now (UTC).
+        The first run fixes the reference size (default: its largest measured size) so
+        all runs are read at the same size; a target or tolerances given here replace
+        the stored ones. Compute the headline figures at this ``reference_size`` and
+        ``target_error`` before `record`.
+
+        Returns
+        -------
+        dict
+            ``reference_size``, and ``target_error`` and ``tolerances`` when set.
         """
         if not isinstance(series, str) or not series.strip():
             raise InputError("a series name is needed, e.g. --series nightly")
-        if target_error is not None and not (0 <= float(target_error) < math.inf):
-            raise InputError(f"target error must be a finite number >= 0; got {target_error}")
+        if target_error is not None:
+            check_positive(target_error, "target_error", allow_zero=True)
         config = dict(self.series_config(series) or {})
-        is_new = not config and series not in self.series_names()
         if reference_size is not None:
-            ref = int(reference_size)
-            if ref <= 0:
-                raise InputError(f"reference size must be a positive integer; got {reference_size}")
+            ref = check_count(reference_size, "reference_size", minimum=1)
             if config.get("reference_size") not in (None, ref):
                 raise InputError(f"series {series!r} reads errors at reference size "
                                  f"{config['reference_size']}, not {ref}; start a new series "
@@ -360,69 +342,102 @@ class Store:
             merged = dict(config.get("tolerances") or {})
             merged.update(tracking.tolerances_to_config(tolerances))
             config["tolerances"] = merged
+        return config
+
+    def record(self, curve: Curve, fit: Any = None, *, series: str,
+               headline: Sequence[tracking.Figure] | None = None,
+               target_error: float | None = None, reference_size: int | None = None,
+               tolerances: Mapping[str, Any] | None = None, capacity: Any = None,
+               interval: float = INTERVAL, code_version: str | None | bool = True,
+               created: str | None = None) -> int:
+        """Record one run of ``series`` and return its run id.
+
+        The store stores what it is given and computes nothing: the caller computes the
+        headline figures (`curvefit.history.figures.headline_figures` at the reference
+        size of `series_settings`), as `curvefit.workflows.nightly.track_run` does.
+
+        Parameters
+        ----------
+        curve : Curve
+            The measured curve (points and meta are stored).
+        fit : dict or CurveFit, optional
+            Its fit summary (``fit.to_dict()``), stored as JSON.
+        series : str
+            Series name; created on first use.
+        headline : list of Figure
+            The run's headline figures; required when a fit is given.
+        target_error, reference_size, tolerances
+            Series settings (see `series_settings`).
+        capacity : CapacityEstimate, optional
+            Kept for callers of earlier versions; record it as an ``effective_capacity``
+            figure in ``headline`` instead.
+        interval : float
+            Level of the headline intervals (kept in the run's metadata).
+        code_version : str, None or True
+            Code version to store; True looks it up with ``git rev-parse HEAD``.
+        created : str, optional
+            ISO timestamp; defaults to now (UTC).
+        """
+        config = self.series_settings(series, curve, target_error=target_error,
+                                      reference_size=reference_size, tolerances=tolerances)
+        is_new = series not in self.series_names()
         if headline is None:
-            headline = []
             if fit is not None:
-                headline = tracking.headline_figures(
-                    fit, reference_size=config["reference_size"],
-                    target_error=config.get("target_error"), capacity=capacity,
-                    interval=interval)
+                raise InputError("the store records headline figures, it does not compute them: "
+                                 "pass headline=curvefit.history.figures.headline_figures(fit, "
+                                 "...) or use curvefit.track_run(curve, store=..., series=...)")
+            headline = []
         meta = dict(curve.meta)
         meta["tracking"] = {"reference_size": config["reference_size"],
                             "target_error": config.get("target_error"),
                             "interval": interval}
-        fit_summary = _fit_summary(fit)
         version = git_head() if code_version is True else (code_version or None)
-        points = curve.points
-        extra_cols = [c for c in points.columns if c not in POINT_COLUMNS]
-        rows = []
-        for rec in points.astype(object).where(points.notna(), None).to_dict(orient="records"):
-            extra = {c: rec[c] for c in extra_cols}
-            rows.append((int(rec["size"]), int(rec["repeat"]),
-                         *(_num(rec[c]) for c in ("train_error", "test_error", "n_test",
-                                                   "n_test_errors", "fit_seconds")),
-                         str(rec["status"]), str(rec["message"] or ""),
-                         _json(extra) if extra else None))
-        now = created or _now()
-        con = self._con
+        run = {"meta": meta, "code_version": version, "points": _point_rows(curve.points),
+               "fit_summary": None if fit is None else _json(fit),
+               "headline": list(headline), "created": created or _now()}
         try:
-            con.execute("BEGIN IMMEDIATE")
-            try:
-                con.execute("INSERT OR IGNORE INTO series (name, config, created) VALUES (?, ?, ?)",
-                            (series, _json(config), now))
-                if not is_new:
-                    con.execute("UPDATE series SET config = ? WHERE name = ?", (_json(config), series))
-                sid = con.execute("SELECT id FROM series WHERE name = ?", (series,)).fetchone()[0]
-                cur = con.execute(
-                    "INSERT INTO runs (series_id, created, meta, data_fingerprint, model, metric,"
-                    " code_version) VALUES (?, ?, ?, ?, ?, ?, ?)",
-                    (sid, now, _json(meta), _fingerprint(meta), _model_text(meta.get("model")),
-                     str(meta.get("metric", "error")), version))
-                run_id = int(cur.lastrowid)
-                con.executemany(
-                    "INSERT INTO points (run_id, size, repeat, train_error, test_error, n_test,"
-                    " n_test_errors, fit_seconds, status, message, extra)"
-                    " VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
-                    [(run_id, *r) for r in rows])
-                if fit_summary is not None:
-                    con.execute("INSERT INTO fits (run_id, summary) VALUES (?, ?)",
-                                (run_id, fit_summary))
-                con.executemany(
-                    "INSERT INTO headline (run_id, name, estimate, low, high, level, better, note)"
-                    " VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
-                    [(run_id, f.name, _num(f.estimate, keep_inf=True), _num(f.low, keep_inf=True),
-                      _num(f.high, keep_inf=True), float(f.level), f.better, f.note or "")
-                     for f in headline])
-                con.execute("COMMIT")
-            except BaseException:
-                if con.in_transaction:
-                    con.execute("ROLLBACK")
-                raise
+            return self._write_run(series, config, is_new, run)
         except sqlite3.IntegrityError as exc:
             raise InputError(f"cannot record the run: {exc} (duplicate size/repeat cells "
                              "or figure names?)") from None
         except sqlite3.DatabaseError as exc:
             raise InputError(f"history store {self.path}: {exc}") from None
+
+    def _write_run(self, series: str, config: dict, is_new: bool, run: dict) -> int:
+        """Insert one run (series config, run row, points, fit, figures) in one transaction."""
+        con, meta, now = self._con, run["meta"], run["created"]
+        con.execute("BEGIN IMMEDIATE")
+        try:
+            con.execute("INSERT OR IGNORE INTO series (name, config, created) VALUES (?, ?, ?)",
+                        (series, _json(config), now))
+            if not is_new:
+                con.execute("UPDATE series SET config = ? WHERE name = ?", (_json(config), series))
+            sid = con.execute("SELECT id FROM series WHERE name = ?", (series,)).fetchone()[0]
+            cur = con.execute(
+                "INSERT INTO runs (series_id, created, meta, data_fingerprint, model, metric,"
+                " code_version) VALUES (?, ?, ?, ?, ?, ?, ?)",
+                (sid, now, _json(meta), _fingerprint(meta), _model_text(meta.get("model")),
+                 str(meta.get("metric", "error")), run["code_version"]))
+            run_id = int(cur.lastrowid)
+            con.executemany(
+                "INSERT INTO points (run_id, size, repeat, train_error, test_error, n_test,"
+                " n_test_errors, fit_seconds, status, message, extra)"
+                " VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                [(run_id, *r) for r in run["points"]])
+            if run["fit_summary"] is not None:
+                con.execute("INSERT INTO fits (run_id, summary) VALUES (?, ?)",
+                            (run_id, run["fit_summary"]))
+            con.executemany(
+                "INSERT INTO headline (run_id, name, estimate, low, high, level, better, note)"
+                " VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
+                [(run_id, f.name, _num(f.estimate, keep_inf=True), _num(f.low, keep_inf=True),
+                  _num(f.high, keep_inf=True), float(f.level), f.better, f.note or "")
+                 for f in run["headline"]])
+            con.execute("COMMIT")
+        except BaseException:
+            if con.in_transaction:
+                con.execute("ROLLBACK")
+            raise
         return run_id
 
     # ------------------------------------------------------------------ reading
@@ -470,7 +485,7 @@ class Store:
         rows = self._query("SELECT name, estimate, low, high, level, better, note FROM headline"
                            " WHERE run_id = ? ORDER BY rowid", (int(run_id),))
         return {r[0]: tracking.Figure(r[0], _unnull(r[1]), _unnull(r[2]), _unnull(r[3]),
-                                      float(r[4] if r[4] is not None else 0.9), r[5],
+                                      float(r[4] if r[4] is not None else INTERVAL), r[5],
                                       rename_legacy(r[6] or ""))
                 for r in rows}
 
@@ -567,9 +582,11 @@ class Store:
         config = self.series_config(row["series"]) or {}
         tol = tracking.resolve_tolerances(config.get("tolerances"), tolerances)
         current = self.headline(row["id"])
+        metric = row["metric"] or "error"
         if bid is None:
             changes = [tracking.compare_figure(f, None, tol.get(n)) for n, f in current.items()]
-            return tracking.Comparison(row["series"], row["id"], None, rule_name, True, [], changes)
+            return tracking.Comparison(row["series"], row["id"], None, rule_name, True, [], changes,
+                                       metric=metric)
         brow = self._run_row(bid)
         base = self.headline(bid)
         reasons = []
@@ -582,7 +599,8 @@ class Store:
         changes = [tracking.compare_figure(current.get(n), base.get(n), tol.get(n)) for n in names]
         comparable = not reasons or allow_data_change
         return tracking.Comparison(row["series"], row["id"], bid, rule_name, comparable,
-                                   reasons, changes, data_change_allowed=bool(reasons) and allow_data_change)
+                                   reasons, changes, data_change_allowed=bool(reasons) and allow_data_change,
+                                   metric=metric)
 
 
 def _short(fp: str | None) -> str:
@@ -604,6 +622,20 @@ def _fingerprint(meta: Mapping[str, Any]) -> str | None:
     return None if fp is None else str(fp)
 
 
+def _point_rows(points: pd.DataFrame) -> list[tuple]:
+    """The points as rows of the ``points`` table; columns beyond the standard ones go to ``extra``."""
+    extra_cols = [c for c in points.columns if c not in POINT_COLUMNS]
+    rows = []
+    for rec in points.astype(object).where(points.notna(), None).to_dict(orient="records"):
+        extra = {c: rec[c] for c in extra_cols}
+        rows.append((int(rec["size"]), int(rec["repeat"]),
+                     *(_num(rec[c]) for c in ("train_error", "test_error", "n_test",
+                                               "n_test_errors", "fit_seconds")),
+                     str(rec["status"]), str(rec["message"] or ""),
+                     _json(extra) if extra else None))
+    return rows
+
+
 def _num(v: Any, keep_inf: bool = False) -> float | None:
     if v is None:
         return None
@@ -615,12 +647,3 @@ def _num(v: Any, keep_inf: bool = False) -> float | None:
 
 def _unnull(v: Any) -> float:
     return math.nan if v is None else float(v)
-
-
-def _fit_summary(fit: Any) -> str | None:
-    if fit is None:
-        return None
-    to_dict = getattr(fit, "to_dict", None)
-    if to_dict is None:
-        return None
-    return _json(to_dict())

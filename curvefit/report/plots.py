@@ -40,6 +40,8 @@ import pandas as pd  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
 from matplotlib.ticker import FuncFormatter  # noqa: E402
 
+from curvefit.core.errors import InputError  # noqa: E402
+
 # Our palette: ink blue, ember orange, heather violet, lagoon teal, moss olive. Ordered
 # so that neighbours differ in lightness (greyscale) and in the blue/yellow axis that
 # red-green colour-blind readers keep.
@@ -699,6 +701,78 @@ def worst_case_figure(rows: Sequence[Mapping], *, title: str | None = None,
                 color=NEUTRAL, va="bottom")
     ax.set_xlabel("labelled samples (log scale)")
     ax.set_title(title or "Worst case against measured")
+    return fig
+
+
+# --------------------------------------------------------------------------- history
+def _trend_names(doc: Mapping) -> list[str]:
+    """Figure names in a history document: the registered ones first, in their order."""
+    from curvefit.history.figures import FIGURES
+
+    names: list[str] = []
+    for s in doc["series"]:
+        for r in s["runs"]:
+            names += [n for n in r["figures"] if n not in names]
+    return [n for n in FIGURES if n in names] + [n for n in names if n not in FIGURES]
+
+
+def _trend_panel(ax, doc: Mapping, name: str) -> None:
+    """One headline figure over the runs: estimate and interval per run, one line per series."""
+    from curvefit.history.figures import FIGURES
+
+    skipped = 0
+    for i, s in enumerate(doc["series"]):
+        xs, ys, lo, hi = [], [], [], []
+        for r in s["runs"]:
+            f = r["figures"].get(name)
+            if not f or f["estimate"] is None:
+                skipped += bool(f and f.get("unbounded"))
+                continue
+            xs.append(r["run_id"])
+            ys.append(f["estimate"])
+            lo.append(f["low"] if isinstance(f["low"], float) else f["estimate"])
+            hi.append(f["high"] if isinstance(f["high"], float) else f["estimate"])
+        if not xs:
+            continue
+        st = style(i)
+        yerr = [[max(0.0, y - low) for y, low in zip(ys, lo)],
+                [max(0.0, h - y) for y, h in zip(ys, hi)]]
+        ax.errorbar(xs, ys, yerr=yerr, color=st["color"], marker=st["marker"],
+                    linestyle=st["linestyle"], linewidth=1.2, markersize=4.5,
+                    capsize=3, elinewidth=0.9, label=s["name"])
+    direction, label = FIGURES.get(name, (None, name))
+    hint = {"lower": " — lower is better", "higher": " — higher is better"}.get(direction, "")
+    extra = f" ({skipped} unreachable not drawn)" if skipped else ""
+    ax.set_title(f"{label}{hint}{extra}", fontsize=9.5)
+    if len(doc["series"]) > 1:
+        ax.legend(loc="best")
+
+
+@_styled
+def trend_figure(doc: Mapping) -> Figure:
+    """One panel per headline figure: estimate and interval for each run, per series.
+
+    Parameters
+    ----------
+    doc : dict
+        A history document (`curvefit.history.listing.history_document`). Only the
+        recorded figures are drawn; unreachable targets (``inf``) are left out of the
+        panel and counted in its title.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    names = _trend_names(doc)
+    if not names:
+        raise InputError("no headline figures recorded yet; nothing to plot "
+                         "(record a run with: curvefit track RUN --store DB --series NAME)")
+    fig = Figure(figsize=(7.6, 2.3 * len(names) + 0.4), dpi=DPI, layout="constrained")
+    axes = fig.subplots(len(names), 1, sharex=True, squeeze=False)[:, 0]
+    for ax, name in zip(axes, names):
+        _trend_panel(ax, doc, name)
+    axes[-1].set_xlabel("run id (in order of recording)")
+    axes[-1].xaxis.get_major_locator().set_params(integer=True)
     return fig
 
 

@@ -1,0 +1,86 @@
+"""The stored runs of a history store as one plain document (what ``curvefit history`` shows).
+
+Reads the store only: every figure is the one recorded by ``curvefit track``.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from typing import Any
+
+import pandas as pd
+
+
+def figure_names(runs: pd.DataFrame) -> list[str]:
+    """Names of the headline figures in a `Store.runs` table (columns with ``_low``/``_high``)."""
+    return [c for c in runs.columns if f"{c}_low" in runs.columns and f"{c}_high" in runs.columns]
+
+
+def history_document(store, series: str | None = None) -> dict:
+    """The runs of ``series`` (or of every series) as a plain JSON-ready dict.
+
+    Each run lists its figures with ``estimate``, ``low``, ``high`` (None when unknown or
+    infinite; ``unbounded`` says which), the recorded direction ``better`` and ``note``.
+
+    Examples
+    --------
+    >>> import tempfile, os, pandas as pd
+    >>> from curvefit.core.curve import Curve
+    >>> from curvefit.history.figures import make_figure
+    >>> from curvefit.history.store import Store
+    >>> s = Store(os.path.join(tempfile.mkdtemp(), "history.db"))
+    >>> c = Curve.from_table(pd.DataFrame({"size": [50, 100], "test_error": [0.2, 0.1]}))
+    >>> _ = s.record(c, series="demo", headline=[make_figure("test_error_at_ref", 0.1, 0.09, 0.11)])
+    >>> doc = history_document(s)
+    >>> doc["series"][0]["runs"][0]["figures"]["test_error_at_ref"]["estimate"]
+    0.1
+    >>> s.close()
+    """
+    names = [series] if series is not None else store.series_names()
+    doc = {"store": str(store.path), "schema_version": store.schema_version, "series": []}
+    for name in names:
+        runs = store.runs(name)
+        entries = [_run_entry(store, r, figure_names(runs)) for _, r in runs.iterrows()]
+        doc["series"].append({"name": name, "config": store.series_config(name), "runs": entries})
+    return doc
+
+
+def _run_entry(store, r: pd.Series, figs: list[str]) -> dict:
+    recorded = store.headline(int(r["run_id"]))
+    return {
+        "run_id": int(r["run_id"]), "created": r["created"],
+        "model": model_value(r["model"]),
+        "metric": _text(r["metric"]), "data_fingerprint": _text(r["data_fingerprint"]),
+        "code_version": _text(r["code_version"]),
+        "n_points": int(r["n_points"]), "n_failed": int(r["n_failed"]),
+        "figures": {f: {"estimate": _finite(r[f]), "low": _finite(r[f"{f}_low"]),
+                        "high": _finite(r[f"{f}_high"]),
+                        "unbounded": bool(math.isinf(r[f])),
+                        "better": recorded[f].better if f in recorded else None,
+                        "note": recorded[f].note if f in recorded else ""}
+                    for f in figs if not pd.isna(r[f])},
+    }
+
+
+def model_value(v: Any):
+    """A stored model spec: plain text, or the decoded JSON object; None when absent."""
+    if v is None or pd.isna(v):
+        return None
+    if str(v).startswith("{"):
+        try:
+            return json.loads(v)
+        except ValueError:
+            pass
+    return str(v)
+
+
+def _text(v: Any) -> str | None:
+    return None if v is None or pd.isna(v) else v
+
+
+def _finite(v: Any) -> float | None:
+    if v is None or pd.isna(v):
+        return None
+    f = float(v)
+    return f if math.isfinite(f) else None  # unbounded values are flagged beside it

@@ -1,0 +1,273 @@
+"""The nightly gate: fit a run, record it in a history store, compare it with its baseline.
+
+`track_run` is the whole job for a measured `Curve`; `track_job` runs it from a job file
+(TOML with the ``measure`` option names plus the tracking keys), measuring first when the
+job says how. Both return a `TrackResult` whose ``exit_code`` gates a CI job: 0 no
+regression (or a first run), 1 a headline figure regressed, 2 the run is not comparable
+with its baseline (data or metric changed) unless that was allowed.
+
+Examples
+--------
+>>> import os, tempfile, warnings
+>>> import numpy as np, pandas as pd
+>>> from curvefit.core.curve import Curve
+>>> n = np.repeat([100, 200, 400, 800, 1600], 3)
+>>> e = 0.1 + 3 * n ** -0.5 + np.tile([-0.003, 0.0, 0.003], 5)
+>>> curve = Curve.from_table(pd.DataFrame({"size": n, "test_error": e}))
+>>> db = os.path.join(tempfile.mkdtemp(), "history.db")
+>>> result = track_run(curve, store=db, series="nightly", bootstrap=20)
+>>> result.comparison.verdict, result.exit_code
+('first run', 0)
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Callable, Mapping
+
+from curvefit.core.defaults import BOOTSTRAP, INTERVAL, SEED
+from curvefit.core.errors import InputError
+from curvefit.core.validate import check_count, check_level
+from curvefit.workflows.jobs import read_toml, resolve_job_paths
+
+# Job-file keys: the `measure` options (dashes or underscores) plus the tracking ones.
+MEASURE_KEYS = {"data", "target", "model", "param", "command", "features", "test", "sizes",
+                "repeats", "test_fraction", "metric", "encode", "jobs", "backend",
+                "scheduler", "seed", "timeout", "resume", "out", "quiet", "json", "groups",
+                "order", "size_unit"}
+TRACK_KEYS = {"store", "series", "target_error", "baseline", "tolerances",
+              "allow_data_change", "bootstrap", "interval", "reference_size", "families"}
+
+
+@dataclass
+class TrackResult:
+    """What `track_run` did: the comparison with the baseline and what it was read from.
+
+    Attributes
+    ----------
+    comparison : Comparison
+        The run against its baseline (``.verdict``, ``.regressed``, ``.to_markdown()``).
+    store, series : str
+        Where the run was recorded.
+    curve : Curve
+    fit : CurveFit
+    capacity : CapacityEstimate or None
+        Effective capacity from the gap, when the curve has train error and it succeeded.
+    warnings : list of str
+        Cautions raised on the way (fit, capacity, measurement), once each.
+    """
+
+    comparison: Any
+    store: str
+    series: str
+    curve: Any = None
+    fit: Any = None
+    capacity: Any = None
+    warnings: list = field(default_factory=list)
+
+    @property
+    def run_id(self) -> int:
+        return self.comparison.run_id
+
+    @property
+    def exit_code(self) -> int:
+        """0 no regression or first run, 1 a regression, 2 not comparable."""
+        return self.comparison.exit_code
+
+    def to_dict(self) -> dict:
+        doc = self.comparison.to_dict()
+        doc["store"] = self.store
+        return doc
+
+
+# --------------------------------------------------------------------------- job file
+def read_job(path: str | Path) -> dict:
+    """Read a job file: keys normalised to underscores, paths resolved against its folder.
+
+    A numeric ``target`` is taken as the target error (``target_error``); a string
+    ``target`` names the label column, as with ``measure --target``.
+
+    Examples
+    --------
+    >>> import tempfile, os
+    >>> p = os.path.join(tempfile.mkdtemp(), "nightly.toml")
+    >>> _ = open(p, "w").write('store = "h.db"\\nseries = "s"\\ntarget-error = 0.1\\n')
+    >>> job = read_job(p)
+    >>> job["target_error"], os.path.isabs(job["store"])
+    (0.1, True)
+    """
+    p = Path(path)
+    raw = read_toml(p, "job file")
+    job: dict[str, Any] = {}
+    for key, value in raw.items():
+        k = key.replace("-", "_")
+        if k == "target" and isinstance(value, (int, float)) and not isinstance(value, bool):
+            k = "target_error"
+        if k not in MEASURE_KEYS | TRACK_KEYS:
+            known = ", ".join(sorted(MEASURE_KEYS | TRACK_KEYS))
+            raise InputError(f"{p}: unknown key {key!r}; known keys: {known}")
+        job[k] = value
+    resolve_job_paths(job, p)
+    return job
+
+
+def tracking_settings(job: Mapping[str, Any]) -> dict:
+    """The keyword arguments of `track_run` that a job sets, checked (nothing is run).
+
+    Examples
+    --------
+    >>> tracking_settings({"store": "h.db", "series": "s", "bootstrap": 50})["bootstrap"]
+    50
+    """
+    from curvefit.history.figures import check_baseline, resolve_tolerances
+
+    store, series = job.get("store"), job.get("series")
+    if not store:
+        raise InputError("no history store: give store (e.g. history.db) or set 'store' in "
+                         "the job file")
+    if not series or not isinstance(series, str):
+        raise InputError("no series: give series (e.g. nightly) or set 'series' in the job file")
+    target = job.get("target_error")
+    if target is not None and (isinstance(target, bool) or not isinstance(target, (int, float))
+                               or not math.isfinite(target) or target < 0):
+        raise InputError(f"target_error must be a number >= 0, got {target!r}")
+    tolerances = job.get("tolerances")
+    if tolerances is not None:
+        if not isinstance(tolerances, Mapping):
+            raise InputError("'tolerances' must be a table, e.g. "
+                             "tolerances = {test_error_at_ref = 0.01}")
+        resolve_tolerances(tolerances)
+    reference = job.get("reference_size")
+    return {"store": str(store), "series": series,
+            "baseline": check_baseline(job.get("baseline", "previous")),
+            "target_error": target, "tolerances": tolerances,
+            "allow_data_change": bool(job.get("allow_data_change", False)),
+            "bootstrap": check_count(job.get("bootstrap", BOOTSTRAP), "bootstrap"),
+            "interval": check_level(job.get("interval", INTERVAL)),
+            "random_state": check_count(job.get("seed", SEED), "seed"),
+            "reference_size": None if reference is None else check_count(reference, "reference_size", 1),
+            "families": job.get("families", "auto")}
+
+
+def check_store_path(path: str) -> None:
+    """Refuse a store that cannot be opened or created, before a long measurement."""
+    from curvefit.history.store import Store
+
+    if Path(path).exists():
+        Store(path, create=False).close()
+    elif not Path(path).parent.is_dir():
+        raise InputError(f"cannot create history store {path}: its directory does not exist")
+
+
+def track_job(job: Mapping[str, Any], *, curve=None,
+              measure: Callable[[Mapping[str, Any]], Any] | None = None) -> TrackResult:
+    """Run a job: measure (unless ``curve`` is given), then fit, record and compare.
+
+    Parameters
+    ----------
+    job : dict
+        Settings as `read_job` returns them (command-line overrides merged in).
+    curve : Curve, optional
+        An already measured curve; the job's measurement keys are then not used.
+    measure : callable, optional
+        Turns the job's measurement keys into a `Curve` (the ``measure`` command's
+        option handling); needed when ``curve`` is None.
+
+    Returns
+    -------
+    TrackResult
+    """
+    settings = tracking_settings(job)
+    notes: list[str] = []
+    if curve is None:
+        if measure is None:
+            raise InputError("nothing to track: give a measured curve or a job that measures one")
+        check_store_path(settings["store"])
+        curve = measure(job)
+        failed = len(curve.failed_points())
+        if failed:
+            notes.append(f"{failed} of {len(curve.points)} fits failed (recorded in the run)")
+    result = track_run(curve, **settings)
+    result.warnings[:0] = notes
+    return result
+
+
+# --------------------------------------------------------------------------- the pipeline
+def track_run(curve, *, store: str, series: str, baseline: str | int = "previous",
+              target_error: float | None = None, tolerances: Mapping | None = None,
+              allow_data_change: bool = False, bootstrap: int = BOOTSTRAP,
+              interval: float = INTERVAL, random_state: int = SEED,
+              reference_size: int | None = None, families: Any = "auto") -> TrackResult:
+    """Fit ``curve``, record it in ``store`` under ``series`` and compare with the baseline.
+
+    Parameters
+    ----------
+    curve : Curve
+    store : str or path
+        The history store (created if absent).
+    series : str
+        The series the run belongs to.
+    baseline : "previous", "best" or int
+        What the run is compared with.
+    target_error : float, optional
+        The series' target test error (gives the ``samples_for_target`` figure).
+    tolerances : dict, optional
+        Per-figure tolerances (numbers absolute, ``"N%"`` relative).
+    allow_data_change : bool
+        Compare even when the data or the metric changed.
+    bootstrap, interval, random_state, families
+        Settings of the fit (and of the capacity estimate).
+    reference_size : int, optional
+        Size at which errors are read (fixed by the series' first run).
+
+    Returns
+    -------
+    TrackResult
+        Effective capacity is added when the curve has train error and the estimate
+        succeeds; otherwise it is skipped with a warning.
+    """
+    from curvefit.history.figures import check_baseline, headline_figures
+    from curvefit.history.store import Store
+
+    interval = check_level(interval)
+    bootstrap = check_count(bootstrap, "bootstrap")
+    rule = check_baseline(baseline)
+    with Store(store) as st:  # open first: a bad store or baseline fails before the slow fit
+        if isinstance(rule, int):
+            st.headline(rule)  # the named baseline run must exist
+        config = st.series_settings(series, curve, target_error=target_error,
+                                    reference_size=reference_size, tolerances=tolerances)
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            fit, capacity, notes = _fit_and_capacity(curve, families, bootstrap, random_state,
+                                                     interval)
+            figures = headline_figures(fit, reference_size=config["reference_size"],
+                                       target_error=config.get("target_error"),
+                                       capacity=capacity, interval=interval)
+            run_id = st.record(curve, fit.to_dict(), series=series, headline=figures,
+                               target_error=target_error, reference_size=reference_size,
+                               tolerances=tolerances, interval=interval)
+        comparison = st.compare(run_id, rule, allow_data_change=allow_data_change)
+    notes += [str(w.message).splitlines()[0] for w in caught]
+    return TrackResult(comparison, str(store), series, curve, fit, capacity,
+                       list(dict.fromkeys(notes)))
+
+
+def _fit_and_capacity(curve, families, bootstrap: int, random_state, interval: float):
+    """The curve fit and, when the curve has train error, the effective capacity."""
+    from curvefit.fitting.engine import fit_curve
+
+    fit = fit_curve(curve, families=families, bootstrap=bootstrap, random_state=random_state)
+    capacity, notes = None, []
+    if curve.has_train:
+        from curvefit.capacity import effective_capacity
+
+        try:
+            capacity = effective_capacity(curve, bootstrap=bootstrap, random_state=random_state,
+                                          interval=interval)
+        except (InputError, ValueError, RuntimeError, ArithmeticError) as exc:
+            notes.append(f"effective capacity skipped: {str(exc).splitlines()[0]}")
+    return fit, capacity, notes
