@@ -31,6 +31,7 @@ _EXPORTS = {
     "tradeoff": "curvefit.capacity.tradeoff",
     "Tradeoff": "curvefit.capacity.tradeoff",
     "Store": "curvefit.history.store",
+    "track_run": "curvefit.workflows.nightly",
 }
 # the parts of the package, reachable as attributes (``cf.fitting.families`` …)
 _SUBMODULES = {"bounds", "core", "measuring", "fitting", "capacity", "history", "report"}

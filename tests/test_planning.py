@@ -34,7 +34,7 @@ def test_plan_columns_and_values(knn_fit):
 def test_drop_per_1000_is_the_marginal_slope(knn_fit):
     now = knn_fit.largest_size
     plan = plan_purchase(knn_fit, current_n=now, extra=[1000, 3000])
-    e0 = knn_fit.predict(now).estimate
+    e0 = knn_fit.error_at(now).estimate
     e1, e2 = plan["test_error"]
     assert plan["drop_per_1000"].iloc[0] == pytest.approx((e0 - e1) / 1000 * 1000)
     assert plan["drop_per_1000"].iloc[1] == pytest.approx((e1 - e2) / 2000 * 1000)
