@@ -402,10 +402,8 @@ def _price(fit, answer, have: float, cost_per_label, budget, extra, interval: fl
     bought = None
     if budget is not None:
         bought = labels_for_budget(budget, cost_per_label)
-        after = fit.predict([have + bought], interval=interval).iloc[0]
         out["budget"] = BudgetOutcome(float(budget), bought, have + bought,
-                                      Estimate(float(after["estimate"]), float(after["low"]),
-                                               float(after["high"]), float(interval)))
+                                      fit.error_at(have + bought, interval=interval))
     if extra is not None or cost_per_label is not None or budget is not None:
         amounts = _amounts(extra, have, bought, missing if answer.kind == "test_error" else None)
         out["plan"] = plan_purchase(fit, current_n=have, extra=amounts,

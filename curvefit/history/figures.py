@@ -148,7 +148,7 @@ def headline_figures(fit: Any, *, reference_size: int, target_error: float | Non
     Parameters
     ----------
     fit : CurveFit
-        Result of `curvefit.fitting.engine.fit_curve`; uses ``.predict``, ``.exponent``,
+        Result of `curvefit.fitting.engine.fit_curve`; uses ``.error_at``, ``.exponent``,
         ``.asymptote`` and ``.samples_for``, each with bootstrap intervals.
     reference_size : int
         Sample size at which the test error is read off the fitted curve (fixed per
@@ -180,7 +180,7 @@ def headline_figures(fit: Any, *, reference_size: int, target_error: float | Non
        curves: asymptotic values and rate of convergence", NIPS 6, 1994.
     """
     figs: list[Figure] = []
-    est = _error_at(fit, reference_size, interval)
+    est = fit.error_at(reference_size, interval=interval)
     low, high, note = est.low, est.high, f"n={int(reference_size)}"
     curve = curve if curve is not None else getattr(fit, "curve", None)
     if curve is not None and math.isfinite(_float(est.estimate)):
@@ -224,14 +224,6 @@ def headline_figures(fit: Any, *, reference_size: int, target_error: float | Non
             figs.append(make_figure("effective_capacity", vc, getattr(capacity, "low", math.nan),
                                     getattr(capacity, "high", math.nan), interval, note=note))
     return figs
-
-
-def _error_at(fit: Any, n: float, interval: float) -> Estimate:
-    """The fitted error at one size with its interval (`CurveFit.error_at`)."""
-    if hasattr(fit, "error_at"):
-        return fit.error_at(n, interval=interval)
-    row = fit.predict([n], interval=interval).iloc[0]  # a fit without error_at (older)
-    return Estimate(float(row["estimate"]), float(row["low"]), float(row["high"]), interval)
 
 
 def _widen(est: float, low: float, high: float, m: "_Measured | None") -> tuple[float, float, str]:
