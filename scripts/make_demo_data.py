@@ -11,16 +11,22 @@ against, and every orchard has its own unexplained tendency (a group effect, par
 tied to its altitude). About 7% of the inspectors' decisions are flipped at random
 (label noise). The blemish camera and the starch test sometimes fail (missing values).
 
-Run from the repository root (writes datasets_demo/packhouse.csv):
+Run from the repository root (writes datasets_demo/packhouse.csv and the gzipped copy
+shipped inside the package, curvefit/workflows/packhouse.csv.gz):
 
     python scripts/make_demo_data.py
 
-The seed is fixed, so the file is the same on every run with the same numpy.
+The seed is fixed, so the file is the same on every run with the same numpy. The
+package ships the file rather than generating it at run time because numpy's random
+streams may change between versions; the gzip header carries no time stamp, so the
+copy is byte-identical on every run too.
 """
 
 from __future__ import annotations
 
 import argparse
+import gzip
+import io
 from pathlib import Path
 
 import numpy as np
@@ -118,9 +124,23 @@ def make_packhouse(n_rows: int = N_ROWS, seed: int = SEED, with_truth: bool = Fa
     return table
 
 
+ROOT = Path(__file__).resolve().parents[1]
+PACKAGED = ROOT / "curvefit" / "workflows" / "packhouse.csv.gz"
+
+
+def gzip_bytes(data: bytes) -> bytes:
+    """Gzip with no file name and a zero time stamp, so equal input gives equal bytes."""
+    buf = io.BytesIO()
+    with gzip.GzipFile(filename="", mode="wb", fileobj=buf, compresslevel=9, mtime=0) as gz:
+        gz.write(data)
+    return buf.getvalue()
+
+
 def main(argv=None) -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--out", default=str(Path(__file__).resolve().parents[1] / "datasets_demo" / "packhouse.csv"))
+    parser.add_argument("--out", default=str(ROOT / "datasets_demo" / "packhouse.csv"))
+    parser.add_argument("--packaged", default=str(PACKAGED),
+                        help="gzipped copy shipped with the package ('' to skip)")
     parser.add_argument("--rows", type=int, default=N_ROWS)
     args = parser.parse_args(argv)
     df = make_packhouse(args.rows)
@@ -129,6 +149,10 @@ def main(argv=None) -> None:
     df.to_csv(out, index=False)
     print(f"wrote {out} ({len(df)} rows, {out.stat().st_size / 1e6:.2f} MB, "
           f"{df['rejected'].mean():.1%} rejected, {df['orchard'].nunique()} orchards)")
+    if args.packaged:
+        packaged = Path(args.packaged)
+        packaged.write_bytes(gzip_bytes(out.read_bytes()))
+        print(f"wrote {packaged} ({packaged.stat().st_size / 1e6:.2f} MB)")
 
 
 if __name__ == "__main__":

@@ -1,7 +1,6 @@
 """`curvefit measure` through the real command line: outputs, exit codes, bad input, kill -9."""
 
 import json
-import os
 import signal
 import subprocess
 import sys
@@ -134,11 +133,13 @@ def _cases(iris_csv, d):
     t = [iris_csv, "--target", "target"]
     return {
         "missing_file": ([d / "nope.csv", "--target", "y", *m], "not found"),
-        "unreadable_file": ([f("broken.parquet", b"this is not parquet"), "--target", "y", *m], "cannot read"),
+        "unreadable_file": ([f("broken.parquet", b"this is not parquet"), "--target", "y", *m],
+                            "cannot read"),
         "unknown_format": ([f("table.xyz", "a,b\n1,2\n"), "--target", "b", *m], "unknown data format"),
         "target_absent_lists_columns": ([iris_csv, "--target", "species", *m], "petal length (cm)"),
         "nan_in_target": ([f("nan.csv", "a,y\n1,0\n2,1\n3,\n4,1\n"), "--target", "y", *m], "missing value"),
-        "single_class": ([f("one.csv", "a,y\n" + "".join(f"{i},x\n" for i in range(20))), "--target", "y", *m],
+        "single_class": ([f("one.csv", "a,y\n" + "".join(f"{i},x\n" for i in range(20))),
+                          "--target", "y", *m],
                          "single class"),
         "too_few_rows_for_smallest_size": ([*t, *m, "--sizes", "140"], "too few rows"),
         "size_larger_than_pool": ([*t, *m, "--sizes", "20,500"], "larger than the training pool"),
@@ -154,7 +155,8 @@ def _cases(iris_csv, d):
         "group_column_absent": ([*t, *m, "--groups", "site"], "--groups column 'site' not in the table"),
         "group_column_is_target": ([*t, *m, "--groups", "target"], "is the target"),
         "group_column_has_missing": ([f("gap.csv", "a,g,y\n" + "".join(
-            f"{i},{'' if i == 3 else i % 4},{i % 2}\n" for i in range(40))), "--target", "y", *m, "--groups", "g"],
+            f"{i},{'' if i == 3 else i % 4},{i % 2}\n" for i in range(40))),
+            "--target", "y", *m, "--groups", "g"],
             "missing values"),
         "too_few_groups": ([*t, *m, "--groups", "plot", "--size-unit", "groups", "--sizes", "12"],
                            "too few groups"),
@@ -162,7 +164,8 @@ def _cases(iris_csv, d):
         "order_with_groups_not_both_honoured": ([f("og.csv", "a,g,day,y\n" + "".join(
             f"{i},{i % 3},{i},{i % 2}\n" for i in range(60))), "--target", "y", *m, "--groups", "g",
             "--order", "day"], "cannot both be honoured"),
-        "order_with_size_unit_groups": ([*t, *m, "--groups", "plot", "--order", "day", "--size-unit", "groups"],
+        "order_with_size_unit_groups": ([*t, *m, "--groups", "plot", "--order", "day",
+                                         "--size-unit", "groups"],
                                         "cannot both be honoured"),
     }
 

@@ -10,9 +10,16 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from sklearn.datasets import load_breast_cancer, load_diabetes, load_digits, load_iris, load_wine
 
-from curvefit.measuring.data import (MAX_INTEGER_CLASSES, Dataset, dataset_from_arrays, infer_task,
-                           load_table, prepare, table_fingerprint)
 from curvefit.core.errors import InputError
+from curvefit.measuring.data import (
+    MAX_INTEGER_CLASSES,
+    Dataset,
+    dataset_from_arrays,
+    infer_task,
+    load_table,
+    prepare,
+    table_fingerprint,
+)
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "datasets_demo" / "packhouse.csv"
@@ -161,7 +168,8 @@ def test_errors_are_one_line(tmp_path):
 
 # ---------------------------------------------------------------- prepare
 def test_prepare_errors(wine_mixed):
-    with pytest.raises(InputError, match=r"target column 'label' not in the table; available columns: alcohol"):
+    with pytest.raises(InputError,
+                       match=r"target column 'label' not in the table; available columns: alcohol"):
         prepare(wine_mixed, "label")
     with pytest.raises(InputError, match=r"feature columns nope, zilch not in the table"):
         prepare(wine_mixed, "target", ["alcohol", "nope", "zilch"])
@@ -247,3 +255,20 @@ def test_demo_generator_reproduces_committed_file():
     spec.loader.exec_module(mod)
     fresh = mod.make_packhouse()
     assert table_fingerprint(fresh) == table_fingerprint(load_table(DEMO))
+
+
+def test_packaged_demo_table_is_the_committed_file():
+    import gzip
+
+    from curvefit.workflows.packhouse import demo_table_path, load_demo_table
+
+    shipped = demo_table_path()
+    assert shipped.is_file() and shipped.parent == ROOT / "curvefit" / "workflows"
+    # the same bytes, hence the same rows, as datasets_demo/packhouse.csv
+    assert gzip.decompress(shipped.read_bytes()) == DEMO.read_bytes()
+    pd.testing.assert_frame_equal(load_demo_table(), load_table(DEMO))
+    # and the generator's gzip step makes exactly the shipped file (no time stamp inside)
+    spec = importlib.util.spec_from_file_location("make_demo_data", ROOT / "scripts" / "make_demo_data.py")
+    mod = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(mod)
+    assert mod.gzip_bytes(DEMO.read_bytes()) == shipped.read_bytes()

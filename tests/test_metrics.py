@@ -4,8 +4,15 @@ import numpy as np
 import pytest
 from sklearn.datasets import load_breast_cancer, load_diabetes, load_iris
 from sklearn.linear_model import LinearRegression, LogisticRegression
-from sklearn.metrics import (balanced_accuracy_score, f1_score, log_loss, mean_absolute_error,
-                             mean_squared_error, r2_score, roc_auc_score)
+from sklearn.metrics import (
+    balanced_accuracy_score,
+    f1_score,
+    log_loss,
+    mean_absolute_error,
+    mean_squared_error,
+    r2_score,
+    roc_auc_score,
+)
 from sklearn.svm import SVC
 
 from curvefit.core.errors import InputError
@@ -37,10 +44,14 @@ def test_regression_losses_match_sklearn():
     X, y = load_diabetes(return_X_y=True)
     est = LinearRegression().fit(X, y)
     pred = est.predict(X)
-    assert resolve_metric("error", "regression").loss(est, X, y)[0] == pytest.approx(mean_squared_error(y, pred), rel=1e-12)
-    assert resolve_metric("mae", "regression").loss(est, X, y)[0] == pytest.approx(mean_absolute_error(y, pred), rel=1e-12)
+
+    def loss(name):
+        return resolve_metric(name, "regression").loss(est, X, y)[0]
+
+    assert loss("error") == pytest.approx(mean_squared_error(y, pred), rel=1e-12)
+    assert loss("mae") == pytest.approx(mean_absolute_error(y, pred), rel=1e-12)
     # r2 scorer: loss is 1 - r2 (fraction of variance unexplained)
-    assert resolve_metric("r2", "regression").loss(est, X, y)[0] == pytest.approx(1 - r2_score(y, pred), rel=1e-12)
+    assert loss("r2") == pytest.approx(1 - r2_score(y, pred), rel=1e-12)
 
 
 def test_scorers_become_losses(iris_fit):

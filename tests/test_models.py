@@ -19,9 +19,17 @@ from sklearn.neighbors import NearestCentroid
 from sklearn.tree import DecisionTreeClassifier
 
 from curvefit.core.errors import InputError
-from curvefit.measuring.models import (CommandError, CommandModel, CommandTimeout, ModelSpec,
-                             as_model_spec, check_command, parse_params, resolve_model,
-                             with_encoding)
+from curvefit.measuring.models import (
+    CommandError,
+    CommandModel,
+    CommandTimeout,
+    ModelSpec,
+    as_model_spec,
+    check_command,
+    parse_params,
+    resolve_model,
+    with_encoding,
+)
 
 PY = sys.executable
 
@@ -55,7 +63,8 @@ MAJORITY_AWK = textwrap.dedent("""\
     FILENAME == ARGV[2] && FNR > 1 { n++ }
     END {
         best = ""
-        for (k in count) if (best == "" || count[k] > count[best] || (count[k] == count[best] && k < best)) best = k
+        for (k in count)
+            if (best == "" || count[k] > count[best] || (count[k] == count[best] && k < best)) best = k
         for (i = 0; i < n; i++) print best > out
     }
     """)
@@ -107,7 +116,8 @@ def test_import_spec_makes_fresh_estimators():
 
 
 @pytest.mark.parametrize("spec, params, match", [
-    ("nosuchpackage.models:Thing", {}, r"'nosuchpackage.models:Thing' is not importable: ModuleNotFoundError"),
+    ("nosuchpackage.models:Thing", {},
+     r"'nosuchpackage.models:Thing' is not importable: ModuleNotFoundError"),
     ("sklearn.linear_model:NoSuchModel", {}, r"is not importable: AttributeError"),
     ("LogisticRegression", {}, r"is not importable: use package.module:Name"),
     ("math:pi", {}, r"'math:pi' is not an estimator \(no fit/predict\)"),
@@ -181,7 +191,8 @@ def test_all_spec_kinds_pickle(model_file, tmp_path):
     specs = [
         resolve_model("sklearn.tree:DecisionTreeClassifier", {"max_depth": 2}),
         resolve_model(f"{model_file}:make_model", {"C": 3.0}),
-        resolve_model(None, command=f"{PY} {tmp_path / 'c.py'} {{train}} {{test}} {{predictions}}", timeout=5),
+        resolve_model(None, command=f"{PY} {tmp_path / 'c.py'} {{train}} {{test}} {{predictions}}",
+                      timeout=5),
         as_model_spec(DecisionTreeClassifier(max_depth=4)),
     ]
     for spec in specs:
@@ -369,7 +380,8 @@ def test_bad_predictions(tmp_path, body, match):
 @pytest.mark.parametrize("command, match", [
     ("train.py {train} {test}", r"missing the placeholder \{predictions\}"),
     ("train.py {train}", r"missing the placeholders \{test\}, \{predictions\}"),
-    ("no-such-trainer-xyz {train} {test} {predictions}", r"'no-such-trainer-xyz' in --command not found on PATH"),
+    ("no-such-trainer-xyz {train} {test} {predictions}",
+     r"'no-such-trainer-xyz' in --command not found on PATH"),
     ("python3 'unclosed {train} {test} {predictions}", r"cannot split --command"),
     ("", r"--command is empty"),
 ])
@@ -421,7 +433,8 @@ def test_encode_auto_on_categoricals_and_gaps(mixed_frame):
 def test_encode_none_and_nothing_to_do(mixed_frame):
     X, y = mixed_frame
     base = LogisticRegression()
-    with pytest.raises(InputError, match=r"non-numeric feature columns region with --encode none; use --encode auto"):
+    with pytest.raises(InputError,
+                       match=r"non-numeric feature columns region with --encode none; use --encode auto"):
         with_encoding(base, X, "none")
     numeric = X.drop(columns="region")
     est, how = with_encoding(base, numeric, "none")

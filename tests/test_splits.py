@@ -6,15 +6,22 @@ import warnings
 
 import numpy as np
 import pytest
-from hypothesis import given, settings, strategies as st
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from sklearn.datasets import load_breast_cancer
 from sklearn.model_selection import GroupShuffleSplit, TimeSeriesSplit
 from sklearn.neighbors import KNeighborsClassifier
 
 import curvefit as cf
 from curvefit.core.errors import InputError
-from curvefit.measuring.splits import (GroupSplit, LeakWarning, OrderSplit, RandomSplit, default_floor,
-                             stratified_order)
+from curvefit.measuring.splits import (
+    GroupSplit,
+    LeakWarning,
+    OrderSplit,
+    RandomSplit,
+    default_floor,
+    stratified_order,
+)
 
 
 def test_stratified_order_keeps_every_prefix_proportional():

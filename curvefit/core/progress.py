@@ -60,8 +60,14 @@ class ProgressBar:
 
     def _start(self, total: int) -> None:
         from rich.console import Console
-        from rich.progress import (BarColumn, MofNCompleteColumn, Progress, TextColumn,
-                                   TimeElapsedColumn, TimeRemainingColumn)
+        from rich.progress import (
+            BarColumn,
+            MofNCompleteColumn,
+            Progress,
+            TextColumn,
+            TimeElapsedColumn,
+            TimeRemainingColumn,
+        )
 
         self._bar = Progress(TextColumn(self.label), BarColumn(), MofNCompleteColumn(),
                              TextColumn(self.unit), TimeElapsedColumn(), TextColumn("eta"),

@@ -420,15 +420,17 @@ def prepare(df: pd.DataFrame, target: str, features=None, *, drop=(),
                              f"{_list_names(absent)} not in the table; available columns: "
                              f"{_list_names(columns)}")
         if target in features:
-            raise InputError(f"the target {target!r} is also listed as a feature; remove it from the features")
+            raise InputError(f"the target {target!r} is also listed as a feature; "
+                             "remove it from the features")
         if len(set(features)) != len(features):
             raise InputError("a feature column is listed twice; list each once")
         feature_names = [f for f in features if f not in drop_set]
     else:
         feature_names = [c for c in columns if c != target and c not in drop_set]
     if not feature_names:
+        excluded = sorted(drop_set & set(columns))
         raise InputError(f"no feature columns left (target {target!r}"
-                         + (f", excluded {_list_names(sorted(drop_set & set(columns)))}" if drop_set & set(columns) else "")
+                         + (f", excluded {_list_names(excluded)}" if excluded else "")
                          + "); the table needs at least one other column")
 
     y_series = df[target]

@@ -22,8 +22,8 @@ import os
 from pathlib import Path
 from typing import Any
 
-from curvefit.core.jsonio import jsonable
 from curvefit.core.errors import InputError
+from curvefit.core.jsonio import jsonable
 
 JOURNAL_FORMAT = "curvefit.measuring.journal/1"
 
@@ -110,7 +110,8 @@ class Journal:
                              f"{JOURNAL_FORMAT!r}); delete it or run without --resume")
         theirs, ours = header["run"], json.loads(_canonical(identity))
         if _canonical(theirs) != _canonical(ours):
-            keys = sorted(k for k in set(theirs) | set(ours) if _canonical(theirs.get(k)) != _canonical(ours.get(k)))
+            keys = sorted(k for k in set(theirs) | set(ours)
+                          if _canonical(theirs.get(k)) != _canonical(ours.get(k)))
             raise InputError(f"the journal {path} belongs to a different run (differs in: "
                              f"{', '.join(keys)}); run without --resume to start over")
         for c in cells:

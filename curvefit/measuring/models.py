@@ -207,7 +207,8 @@ class ModelSpec:
             try:
                 est.set_params(**params)
             except (ValueError, TypeError) as exc:
-                raise InputError(f"model {self.name} does not accept {', '.join(params)}: {_one_line(exc)}") from None
+                raise InputError(f"model {self.name} does not accept {', '.join(params)}: "
+                                 f"{_one_line(exc)}") from None
             return ModelSpec("object", self.spec, merged, name=self.name, estimator=est)
         return resolve_model(self.spec, merged)
 
@@ -310,7 +311,8 @@ def resolve_model(spec: str | None, params: dict | None = None, *, command: str 
                          name=_command_label(argv))
     if spec is None or not str(spec).strip():
         raise InputError("no model given; use --model package.module:Name, "
-                         "--model path/to/file.py:make_model, or --command \"trainer {train} {test} {predictions}\"")
+                         "--model path/to/file.py:make_model, or "
+                         "--command \"trainer {train} {test} {predictions}\"")
     spec = str(spec).strip()
     if ":" in spec:
         target, _, attr = spec.rpartition(":")
@@ -323,7 +325,8 @@ def resolve_model(spec: str | None, params: dict | None = None, *, command: str 
                          "e.g. sklearn.linear_model:LogisticRegression")
     target, attr = target.strip(), attr.strip()
     if not target or not attr:
-        raise InputError(f"model spec {spec!r} is not importable: use package.module:Name or file.py:make_model")
+        raise InputError(f"model spec {spec!r} is not importable: use package.module:Name "
+                         "or file.py:make_model")
     is_file = target.endswith(".py") or os.sep in target or "/" in target
     if is_file:
         path = Path(target).expanduser()
@@ -437,7 +440,8 @@ def as_model_spec(model, params: dict | None = None, *, timeout: float | None = 
         return ModelSpec("factory", _qualname(model), dict(params or {}),
                          name=_estimator_label(est), factory=model)
     raise InputError(f"model must be an estimator with fit/predict, a zero-argument factory, or a "
-                     f"spec string like 'sklearn.linear_model:LogisticRegression'; got {type(model).__name__}")
+                     "spec string like 'sklearn.linear_model:LogisticRegression'; "
+                     f"got {type(model).__name__}")
 
 
 class _Partial:
@@ -463,7 +467,8 @@ def check_command(command: str) -> list[str]:
     ['{train}', '{test}', '{predictions}']
     """
     if not isinstance(command, str) or not command.strip():
-        raise InputError("--command is empty; use e.g. --command \"python train.py {train} {test} {predictions}\"")
+        raise InputError("--command is empty; use e.g. "
+                         "--command \"python train.py {train} {test} {predictions}\"")
     try:
         argv = shlex.split(command)
     except ValueError as exc:
@@ -725,8 +730,12 @@ def with_encoding(estimator, X, encode: str = "auto"):
     >>> from sklearn.linear_model import LogisticRegression
     >>> X = pd.DataFrame({"a": [1.0, None, 3.0], "c": ["u", "v", "u"]})
     >>> est, how = with_encoding(LogisticRegression(), X)
-    >>> type(est).__name__, how
-    ('Pipeline', 'one-hot encoding of 1 categorical column (c); median imputation with missing-value indicators for 1 numeric column (a)')
+    >>> type(est).__name__
+    'Pipeline'
+    >>> for part in how.split("; "):
+    ...     print(part)
+    one-hot encoding of 1 categorical column (c)
+    median imputation with missing-value indicators for 1 numeric column (a)
     """
     if encode not in ENCODE_CHOICES:
         raise InputError(f"unknown --encode {encode!r}; use auto or none")
@@ -769,7 +778,8 @@ def with_encoding(estimator, X, encode: str = "auto"):
         if cat_gaps:
             steps.insert(0, ("impute", SimpleImputer(strategy="most_frequent")))
         transformers.append(("categorical", Pipeline(steps), [col_ref[i] for i in categorical]))
-        part = (f"one-hot encoding of {len(categorical)} categorical column{'s' if len(categorical) > 1 else ''} "
+        part = (f"one-hot encoding of {len(categorical)} categorical "
+                f"column{'s' if len(categorical) > 1 else ''} "
                 f"({', '.join(names[i] for i in categorical)})")
         if cat_gaps:
             part += f" with most-frequent imputation for {', '.join(names[i] for i in cat_gaps)}"
@@ -779,6 +789,7 @@ def with_encoding(estimator, X, encode: str = "auto"):
                                                            keep_empty_features=True),
                              [col_ref[i] for i in numeric_gaps]))
         parts.append(f"median imputation with missing-value indicators for {len(numeric_gaps)} numeric "
-                     f"column{'s' if len(numeric_gaps) > 1 else ''} ({', '.join(names[i] for i in numeric_gaps)})")
+                     f"column{'s' if len(numeric_gaps) > 1 else ''} "
+                     f"({', '.join(names[i] for i in numeric_gaps)})")
     encoder = ColumnTransformer(transformers, remainder="passthrough", sparse_threshold=0.0)
     return Pipeline([("encode", encoder), ("model", estimator)]), "; ".join(parts)
