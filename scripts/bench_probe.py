@@ -48,7 +48,7 @@ def gap_sweep(seeds: int) -> None:
     import pandas as pd
     from sklearn.linear_model import LogisticRegression
 
-    from curvefit.capacity.vc_model import effective_capacity
+    from curvefit.capacity import effective_capacity
     from curvefit.core.curve import Curve
 
     print(f"{'seed':>4s} {'d':>3s} {'noise':>5s} {'h/(d+1)':>8s} {'90% interval':>16s} {'covers':>6s}")
@@ -94,7 +94,7 @@ def main() -> None:
         gap_sweep(args.gap_sweep)
         return
 
-    from curvefit.capacity.vc_model import probe_capacity
+    from curvefit.capacity import probe_capacity
 
     print(f"load average before: {', '.join(f'{x:.1f}' for x in os.getloadavg())} "
           f"on {os.cpu_count()} cores (shared machine: wall times vary with load)")

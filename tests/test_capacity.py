@@ -1,4 +1,4 @@
-"""Tests of curvefit.capacity.vc_model and `curvefit capacity` against outside facts.
+"""Tests of curvefit.capacity (probe, gap model, Φ) and `curvefit capacity` against outside facts.
 
 Outside references used here:
 - Φ check values: Vapnik, Levin & LeCun 1994, "Measuring the VC-dimension of a
@@ -21,8 +21,10 @@ from sklearn.neighbors import KNeighborsClassifier
 from sklearn.svm import LinearSVC
 
 from conftest import run_cli
-from curvefit.capacity.vc_model import (CapacityEstimate, effective_capacity, fit_vc_curve, phi,
-                               phi_inverse, probe_capacity)
+from curvefit.capacity import (CapacityEstimate, effective_capacity, phi, phi_inverse,
+                               probe_capacity)
+from curvefit.capacity.result import widen_interval
+from curvefit.capacity.vc_curve import fit_vc_curve
 from curvefit.core.curve import Curve
 from curvefit.core.errors import InputError
 
@@ -311,9 +313,7 @@ def test_cli_bad_files_exit_2(tmp_path):
 
 def test_widened_interval_stays_inside_the_searched_range():
     # A lack-of-fit widening must not invent capacities outside the range h was searched in.
-    from curvefit.capacity.vc_model import _widen
-
-    low, high = _widen(10.0, 5.0, 40.0, ratio=25.0, bounds=(0.25, 400.0))
+    low, high = widen_interval(10.0, 5.0, 40.0, ratio=25.0, bounds=(0.25, 400.0))
     assert low >= 0.25 and high == float("inf")
-    low, high = _widen(10.0, 8.0, 12.0, ratio=4.0, bounds=(0.25, 400.0))
+    low, high = widen_interval(10.0, 8.0, 12.0, ratio=4.0, bounds=(0.25, 400.0))
     assert low == pytest.approx(6.4) and high == pytest.approx(14.4)

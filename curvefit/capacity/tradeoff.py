@@ -5,7 +5,7 @@ regularisation strength) and each sample size, :func:`tradeoff` measures train a
 test error with repeats through :func:`curvefit.measuring.runner.measure` (one measuring code
 path for the whole project), and reports the best value per size with the set of
 values within one standard error of it. With ``probe=True`` each value is also placed
-on a VC axis by :func:`curvefit.capacity.vc_model.probe_capacity`.
+on a VC axis by the max-deviation probe (:mod:`curvefit.capacity.probe`).
 """
 
 from __future__ import annotations
@@ -18,14 +18,26 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from curvefit.core.defaults import SEED
 from curvefit.core.errors import InputError
+from curvefit.core.jsonio import jsonable
+from curvefit.capacity.probe import ProbeSettings, probe_inputs, run_probe
 
 TABLE_COLUMNS = ["param", "value", "size", "n_repeats", "n_failed", "train_mean", "train_sem",
                  "test_mean", "test_sem", "gap_mean"]
 CAPACITY_COLUMNS = ["capacity", "capacity_low", "capacity_high", "capacity_above_range"]
+# Bootstrap replicates of each setting's probe: a lighter interval, as every value is probed.
+PROBE_BOOTSTRAP = 100
 
 
-def _label(value: Any) -> str:
+def value_label(value: Any) -> str:
+    """A parameter value as text (``None`` for None), the key of ``Tradeoff.capacities``.
+
+    Examples
+    --------
+    >>> value_label(None), value_label(4), value_label("rbf")
+    ('None', '4', 'rbf')
+    """
     return "None" if value is None else str(value)
 
 
@@ -123,7 +135,6 @@ class Tradeoff:
         return out
 
     def to_dict(self) -> dict:
-        from curvefit.core.jsonio import jsonable
         t = self.table.astype(object).where(self.table.notna(), None)
         best = self.best_per_size()
         best = best.astype(object).where(best.notna(), None)
@@ -150,7 +161,7 @@ class Tradeoff:
                    capacities=dict(d.get("capacities") or {}), meta=dict(d.get("meta") or {}))
 
 
-def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: int = 0,
+def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: int = SEED,
              n_jobs: int = 1, backend: str = "local", scheduler: str | None = None,
              test_size: float = 0.25, metric: str = "error", probe: bool = False,
              probe_repeats: int = 6, probe_max_n: int = 1000, timeout: float | None = None,
@@ -214,21 +225,22 @@ def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: 
     values = list(values) if isinstance(values, (list, tuple, np.ndarray)) else [values]
     if len(values) < 2:
         raise InputError(f"give at least two values of {param} to compare")
-    labels = [_label(v) for v in values]
+    labels = [value_label(v) for v in values]
     if len(set(labels)) != len(labels):
         raise InputError(f"a value of {param} is listed twice; list each once")
     if sizes is None or len(list(sizes)) == 0:
         raise InputError("give the sample sizes to compare at, e.g. sizes=[50, 200, 800]")
     sizes = [int(s) for s in sizes]
-    base = as_model_spec(model)
+    base = as_model_spec(model)  # the one conversion; every setting is a copy of it
     say = progress or (lambda _m: None)
-    probe_X = None
+    inputs = settings = None
     if probe:
-        from curvefit.capacity.vc_model import _probe_pool
-
-        # Check the probe's inputs before any measuring, so a bad table fails at once.
-        probe_X = X.to_numpy(dtype=float) if hasattr(X, "columns") and _all_numeric(X) else X
-        _probe_pool(probe_X, None)
+        # Check the probe's inputs and budget before any measuring, so bad ones fail at once.
+        inputs = probe_inputs(X.to_numpy(dtype=float) if hasattr(X, "columns") and _all_numeric(X)
+                              else X, None)
+        settings = ProbeSettings(repeats=probe_repeats, max_n=probe_max_n,
+                                 bootstrap=PROBE_BOOTSTRAP, random_state=random_state,
+                                 n_jobs=n_jobs, backend=backend, scheduler=scheduler)
     rows, capacities, failed_total = [], {}, 0
     for value, label in zip(values, labels):
         spec = base.with_params(**{param: value})
@@ -252,11 +264,7 @@ def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: 
                          "test_mean": float(r.test_mean), "test_sem": float(r.test_sem),
                          "gap_mean": float(r.gap_mean)})
         if probe:
-            from curvefit.capacity.vc_model import probe_capacity
-
-            est = probe_capacity(spec, probe_X, repeats=probe_repeats, n_jobs=n_jobs,
-                                 backend=backend, scheduler=scheduler, random_state=random_state,
-                                 max_n=probe_max_n, bootstrap=100)
+            est = run_probe(spec, inputs, settings)
             capacities[label] = est.to_dict()
             for row in rows[-len(sizes):]:
                 row.update({"capacity": est.vc_dim, "capacity_low": est.low,
