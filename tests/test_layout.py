@@ -48,7 +48,7 @@ def module_name(path: Path) -> str:
 
 
 def part_of(module: str) -> str:
-    """The part a curvefit module belongs to: ``core``, ``cli``, ``bounds``, …; ``api`` for the package itself."""
+    """The part a curvefit module is in: ``core``, ``cli``, ``bounds``, …; ``api`` for the package itself."""
     pieces = module.split(".")
     return pieces[1] if len(pieces) > 1 else "api"
 
