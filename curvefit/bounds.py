@@ -64,7 +64,8 @@ class VCSampleSize:
     ``n_samples`` is the smallest integer satisfying the implicit inequality, ``root``
     the real root found by the bracketing solver, ``iterates`` the fixed-point sequence
     ``N_{k+1} = (8/ε²) ln(4 m_H(2 N_k) / δ)`` from ``start`` (for display; the answer
-    does not depend on it).
+    does not depend on it; empty unless asked for with ``trace=True``). ``int(r)`` is
+    ``r.n_samples``.
     """
 
     n_samples: int
@@ -74,6 +75,9 @@ class VCSampleSize:
     eps: float = math.nan
     delta: float = math.nan
     growth: str = "polynomial"
+
+    def __int__(self) -> int:
+        return self.n_samples
 
     def to_dict(self) -> dict:
         d = asdict(self)
@@ -314,7 +318,7 @@ def _vc_map(n: float, vc_dim: int, eps: float, delta: float, growth: str) -> flo
 
 
 def vc_sample_size(vc_dim, eps, delta, growth: str = "polynomial", trace: bool = False,
-                   start: float = DEFAULT_START, max_iter: int = 200):
+                   start: float = DEFAULT_START, max_iter: int = 200) -> VCSampleSize:
     """Worst-case training-set size from the VC bound.
 
     The smallest integer ``N`` with ``N >= (8/ε²) ln(4 m_H(2N) / δ)``, i.e. the size at
@@ -335,13 +339,14 @@ def vc_sample_size(vc_dim, eps, delta, growth: str = "polynomial", trace: bool =
     growth : {"polynomial", "sauer"}
         Bound used for ``m_H(2N)``.
     trace : bool
-        If True, return a `VCSampleSize` with the real ``root`` and the fixed-point
-        ``iterates`` from ``start`` (stopping when a step moves by less than 0.01 or
-        after ``max_iter`` steps).
+        If True, also record the fixed-point ``iterates`` from ``start`` (stopping when
+        a step moves by less than 0.01 or after ``max_iter`` steps).
 
     Returns
     -------
-    int or VCSampleSize
+    VCSampleSize
+        ``n_samples`` (the answer; also ``int(result)``), the real ``root`` and, with
+        ``trace``, the ``iterates``.
 
     References
     ----------
@@ -353,11 +358,11 @@ def vc_sample_size(vc_dim, eps, delta, growth: str = "polynomial", trace: bool =
 
     Examples
     --------
-    >>> vc_sample_size(3, 0.1, 0.1)
+    >>> vc_sample_size(3, 0.1, 0.1).n_samples
     29300
     >>> r = vc_sample_size(3, 0.1, 0.1, trace=True)
-    >>> round(r.root, 1), round(r.iterates[1])
-    (29299.4, 21193)
+    >>> round(r.root, 1), round(r.iterates[1]), int(r)
+    (29299.4, 21193, 29300)
     """
     _kind(growth, GROWTH_KINDS, "growth")
     d = int(_one(_count(vc_dim, "vc_dim"), "vc_dim"))
@@ -388,17 +393,21 @@ def vc_sample_size(vc_dim, eps, delta, growth: str = "polynomial", trace: bool =
         n += 1
     while n > 1 and _vc_gap(n - 1, d, e, dl, growth) >= 0:
         n -= 1
-    if not trace:
-        return n
+    iterates = _fixed_point_iterates(start, d, e, dl, growth, max_iter) if trace else ()
+    return VCSampleSize(n_samples=n, root=float(root), iterates=iterates, vc_dim=d,
+                        eps=e, delta=dl, growth=growth)
 
+
+def _fixed_point_iterates(start: float, d: int, e: float, dl: float, growth: str,
+                          max_iter: int) -> tuple:
+    """``N_{k+1} = (8/ε²) ln(4 m_H(2 N_k)/δ)`` from ``start`` until a step moves < 0.01."""
     iterates = [start]
     for _ in range(max_iter):
         nxt = _vc_map(iterates[-1], d, e, dl, growth)
         iterates.append(nxt)
         if abs(nxt - iterates[-2]) < 0.01:
             break
-    return VCSampleSize(n_samples=n, root=float(root), iterates=tuple(iterates), vc_dim=d,
-                        eps=e, delta=dl, growth=growth)
+    return tuple(iterates)
 
 
 def pac_sample_size(vc_dim, eps, delta) -> int:

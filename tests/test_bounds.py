@@ -27,7 +27,10 @@ def test_worked_example_d3_root_and_first_fixed_point_step():
     assert r.iterates[1] == pytest.approx(21000, rel=0.02)
     # the iteration converges to the same root the bracketing solver found
     assert r.iterates[-1] == pytest.approx(r.root, abs=0.05)
-    assert bounds.vc_sample_size(3, 0.1, 0.1) == r.n_samples
+    # without trace the answer is the same object type, without the iterates
+    plain = bounds.vc_sample_size(3, 0.1, 0.1)
+    assert isinstance(plain, bounds.VCSampleSize) and plain.iterates == ()
+    assert plain.n_samples == int(plain) == r.n_samples and plain.root == r.root
 
 
 @pytest.mark.parametrize("d, eps, delta, root", [
@@ -45,7 +48,7 @@ def test_sample_size_is_the_smallest_integer_satisfying_the_inequality():
     # Computed: N >= (8/eps^2) ln(4((2N)^d + 1)/delta) at the answer and not one below it.
     for d, eps, delta in [(1, 0.2, 0.05), (3, 0.1, 0.1), (7, 0.15, 0.01), (0, 0.1, 0.1)]:
         for growth in ("polynomial", "sauer"):
-            n = bounds.vc_sample_size(d, eps, delta, growth=growth)
+            n = bounds.vc_sample_size(d, eps, delta, growth=growth).n_samples
 
             def rhs(m):
                 log_m = bounds.log_growth_bound(2 * m, d, kind=growth)
@@ -70,7 +73,8 @@ def test_root_agrees_with_an_independent_solver():
 def test_sauer_growth_gives_smaller_sizes_than_polynomial():
     # Sauer's sum <= N^d + 1 (Sauer 1972), so its sample size is never larger.
     for d in (1, 3, 10):
-        assert bounds.vc_sample_size(d, 0.1, 0.1, growth="sauer") <= bounds.vc_sample_size(d, 0.1, 0.1)
+        assert (bounds.vc_sample_size(d, 0.1, 0.1, growth="sauer").n_samples
+                <= bounds.vc_sample_size(d, 0.1, 0.1).n_samples)
 
 
 def test_worst_case_is_orders_of_magnitude_above_the_rule_of_thumb():
@@ -78,7 +82,7 @@ def test_worst_case_is_orders_of_magnitude_above_the_rule_of_thumb():
     # worst-case bounds are one to two orders of magnitude more conservative (REFERENCES.md).
     assert bounds.rule_of_thumb_samples(3) == 30
     assert bounds.rule_of_thumb_samples(4, factor=20) == 80
-    ratio = bounds.vc_sample_size(3, 0.1, 0.1) / bounds.rule_of_thumb_samples(3)
+    ratio = bounds.vc_sample_size(3, 0.1, 0.1).n_samples / bounds.rule_of_thumb_samples(3)
     assert ratio > 10
 
 
@@ -89,7 +93,7 @@ def test_pac_realizable_size():
     assert bounds.pac_sample_size(3, 0.1, 0.1) == 1686
     assert bounds.pac_sample_size(0, 0.1, 0.1) == 173
     # realizable case needs far fewer samples than the agnostic VC bound
-    assert bounds.pac_sample_size(3, 0.1, 0.1) < bounds.vc_sample_size(3, 0.1, 0.1)
+    assert bounds.pac_sample_size(3, 0.1, 0.1) < bounds.vc_sample_size(3, 0.1, 0.1).n_samples
 
 
 # ---------------------------------------------------------------- VC error bar
@@ -296,7 +300,7 @@ def test_relative_error_rule_of_guyon_et_al():
 @settings(max_examples=40, deadline=None)
 def test_vc_sample_size_monotone_in_eps(d, e1, e2, delta):
     lo, hi = sorted((e1, e2))
-    assert bounds.vc_sample_size(d, hi, delta) <= bounds.vc_sample_size(d, lo, delta)
+    assert bounds.vc_sample_size(d, hi, delta).n_samples <= bounds.vc_sample_size(d, lo, delta).n_samples
 
 
 @given(d1=st.integers(0, 40), d2=st.integers(0, 40), eps=st.floats(0.02, 0.5),
@@ -304,8 +308,9 @@ def test_vc_sample_size_monotone_in_eps(d, e1, e2, delta):
 @settings(max_examples=40, deadline=None)
 def test_vc_sample_size_monotone_in_d_and_delta(d1, d2, eps, dl1, dl2):
     (da, db), (sa, sb) = sorted((d1, d2)), sorted((dl1, dl2))
-    assert bounds.vc_sample_size(da, eps, sa) <= bounds.vc_sample_size(db, eps, sa)
-    assert bounds.vc_sample_size(da, eps, sb) <= bounds.vc_sample_size(da, eps, sa)
+    n = lambda d, delta: bounds.vc_sample_size(d, eps, delta).n_samples  # noqa: E731
+    assert n(da, sa) <= n(db, sa)
+    assert n(da, sb) <= n(da, sa)
 
 
 @given(n1=st.floats(1, 1e7), n2=st.floats(1, 1e7), d=st.integers(0, 50),
