@@ -449,7 +449,8 @@ def _execute(inputs: _Inputs, split: _SplitPlan, spec, settings: _Settings) -> t
     if settings.journal is not None:
         journal, previous = Journal.open(settings.journal, _identity(inputs, split, spec, settings),
                                          resume=settings.resume)
-        done = {key: c for c in previous if (key := (int(c["size"]), int(c["repeat"]))) in set(wanted)}
+        wanted_set = set(wanted)
+        done = {key: c for c in previous if (key := (int(c["size"]), int(c["repeat"]))) in wanted_set}
     resumed = len(done)
     try:
         # largest fits first: the slowest cells do not end up alone at the end
