@@ -32,6 +32,7 @@ _EXPORTS = {
     "Tradeoff": "curvefit.capacity.tradeoff",
     "Store": "curvefit.history.store",
     "track_run": "curvefit.workflows.nightly",
+    "run_demo": "curvefit.workflows.demo",
 }
 # the parts of the package, reachable as attributes (``cf.fitting.families`` …)
 _SUBMODULES = {"bounds", "core", "measuring", "fitting", "capacity", "history", "report"}

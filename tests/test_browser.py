@@ -129,6 +129,7 @@ def _report_file(tmp_path: Path) -> Path:
 
     import curvefit as cf
     from curvefit.report import html as report
+    from curvefit.workflows import analysis
 
     X, y = load_breast_cancer(return_X_y=True)
     curves = {}
@@ -137,7 +138,7 @@ def _report_file(tmp_path: Path) -> Path:
                          ("tree <b>depth 3</b>", DecisionTreeClassifier(max_depth=3))]:
         curves[label] = cf.measure(model, X, y, sizes=[30, 60, 120, 240, 400], repeats=3,
                                    random_state=0)
-    results = report.analyse(curves, target_error=0.06, bootstrap=30)
+    results = analysis.analyse(curves, target_error=0.06, bootstrap=30)
     return report.write_report(tmp_path / "report.html", results, target_error=0.06)
 
 

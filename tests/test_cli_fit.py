@@ -69,7 +69,7 @@ def test_need_json_with_vc_dimension(files):
     doc = json.loads(r.stdout)
     assert doc["answer"]["kind"] == "gap" and doc["answer"]["target"] == 0.02
     # beside the measured answer: the worst-case VC size from curvefit.bounds at δ = 0.1
-    assert doc["vc"]["vc_sample_size"] == bounds.vc_sample_size(10, eps=0.02, delta=0.1)
+    assert doc["vc"]["vc_sample_size"] == bounds.vc_sample_size(10, eps=0.02, delta=0.1).n_samples
     assert doc["vc"]["rule_of_thumb_samples"] == 100
 
 

@@ -16,7 +16,7 @@ from sklearn.linear_model import LogisticRegression
 
 import curvefit as cf
 from curvefit.report import plots
-from curvefit.capacity.vc_model import CapacityEstimate, phi
+from curvefit.capacity import CapacityEstimate, phi
 from curvefit.core.curve import Curve
 from curvefit.core.errors import FitWarning
 
@@ -217,7 +217,7 @@ def test_worst_case_figure_bars_are_the_given_sizes():
     from curvefit import bounds
 
     # d=4, eps=delta=0.1 -> 38,997.2 (check value in REFERENCES.md, computed independently)
-    vc = bounds.vc_sample_size(4, 0.1, 0.1)
+    vc = bounds.vc_sample_size(4, 0.1, 0.1).n_samples
     assert vc == pytest.approx(38998, abs=1)
     rows = [{"label": "VC bound", "n": vc, "kind": "bound"},
             {"label": "rule of thumb", "n": bounds.rule_of_thumb_samples(4), "kind": "rule"},
@@ -244,8 +244,9 @@ def test_split_kind_is_named_on_the_figure_and_in_the_report():
     import pandas as pd
 
     from curvefit.report import plots
-    from curvefit.report import html as report
     from curvefit.core.curve import Curve
+    from curvefit.report import html as report
+    from curvefit.workflows import analysis
 
     pts = pd.DataFrame({"size": [20, 20, 40, 40, 80, 80], "repeat": [0, 1] * 3,
                         "train_error": [0.1] * 6,
@@ -256,5 +257,5 @@ def test_split_kind_is_named_on_the_figure_and_in_the_report():
     assert plots.split_label(ordered) == "time-ordered split by day"
     fig = plots.learning_curve_figure({"a": grouped, "b": ordered})
     assert "grouped split by site; time-ordered split by day" in fig.axes[0].get_xlabel()
-    html = report.build_report(report.analyse({"a": grouped}, bootstrap=20))
+    html = report.build_report(analysis.analyse({"a": grouped}, bootstrap=20))
     assert "Split: grouped split by site." in html

@@ -13,9 +13,11 @@ import pandas as pd
 import pytest
 
 import curvefit as cf
-from curvefit.report import html as report
-from curvefit.core.curve import Curve
 from conftest import run_cli
+from curvefit.core.curve import Curve
+from curvefit.core.formatting import format_count
+from curvefit.report import html as report
+from curvefit.workflows import analysis
 
 # Every element and attribute the report is allowed to contain; anything else in the DOM
 # must have come from user strings that escaped escaping.
@@ -70,7 +72,7 @@ def curves():
 @pytest.fixture(scope="module")
 def analysed(curves):
     target = 0.5 * float(curves["logistic"].summary()["test_mean"].min())
-    return target, report.analyse(curves, target_error=target, bootstrap=20)
+    return target, analysis.analyse(curves, target_error=target, bootstrap=20)
 
 
 def test_sections_in_order_and_answer_first(analysed):
@@ -89,11 +91,11 @@ def test_sections_in_order_and_answer_first(analysed):
     assert ids == ["answer", "curves", "ranking", "capacity", "tradeoff", "worst-case",
                    "cautions", "metadata"]
     answer = page[page.index('id="answer"'):page.index('id="curves"')]
-    best = report._order(results)[0]
+    best = report.order_results(results)[0]
     assert best.answer is not None
     if best.answer.reachable:
-        assert f"{report.fmt_count(best.answer.n)} labelled samples" in answer
-        assert report.fmt_count(best.answer.low) in answer
+        assert f"{format_count(best.answer.n)} labelled samples" in answer
+        assert format_count(best.answer.low) in answer
     else:
         assert "not reachable" in answer
     cautions = page[page.index('id="cautions"'):page.index('id="metadata"')]
@@ -135,7 +137,7 @@ def test_user_strings_are_escaped(curves):
     meta = dict(c.meta, label=evil, model={"spec": quote, "name": evil},
                 features=[evil, quote, "a'b\"c"], target=evil)
     bad = Curve(c.points.assign(message=evil), meta)
-    res = report.analyse({evil: bad}, target_error=0.01, bootstrap=5)
+    res = analysis.analyse({evil: bad}, target_error=0.01, bootstrap=5)
     page = report.build_report(res, target_error=0.01, title=quote)
     dom = parse(page)
     assert {t for t, _ in dom.tags} <= TAGS
@@ -146,13 +148,17 @@ def test_user_strings_are_escaped(curves):
     assert evil in text and quote in text  # shown as text, not markup
 
 
-def test_number_formats():
-    assert report.fmt_count(12_437) == "12,400"
-    assert report.fmt_count(987.4) == "987"
-    assert report.fmt_error(0.05) == "5.0%"
-    assert report.fmt_error(0.004) == "0.40%"
-    assert report.fmt_error(12.345, "mse") == "12.3"
-    assert report.fmt_count(math.inf) == "–"
+def test_numbers_read_as_in_the_terminal(curves):
+    # one style (curvefit.core.formatting) for the report and the terminal: 0.004 is 0.40%
+    from types import SimpleNamespace
+
+    page = report.build_report([curves["tree"]], target_error=0.004)
+    assert "No answer for 0.40% test error" in page
+    answer = SimpleNamespace(n=12_437.0, low=9_870.4, high=math.inf, level=0.9, reachable=True)
+    res = SimpleNamespace(label="m", curve=curves["tree"], answer=answer, notes=[])
+    text = report.answer_sentence(res, 0.05)
+    assert "<strong>5.0%</strong> test error" in text and "12,400 labelled samples" in text
+    assert "90% interval 9,870 to no upper limit" in text
 
 
 def test_write_report_puts_figures_beside(tmp_path, analysed):
@@ -174,7 +180,7 @@ def run_file(tmp_path_factory, curves):
 
 
 def test_cli_report_two_runs_probe_tradeoff_and_json(run_file):
-    from curvefit.capacity.vc_model import CapacityEstimate, phi
+    from curvefit.capacity import CapacityEstimate, phi
 
     n = np.array([5, 10, 20, 40, 80], float)
     cap = CapacityEstimate(vc_dim=20.0, low=15.0, high=26.0, level=0.9, method="probe",

@@ -17,6 +17,7 @@ import typer
 
 from curvefit.cli.common import emit_json, out, parse_list, print_table
 from curvefit.core.errors import InputError
+from curvefit.core.formatting import format_number
 
 WORST_CASE_NOTE = ("Worst-case bounds: they hold for every data distribution and are "
                    "typically far larger than what is needed in practice.")
@@ -54,12 +55,10 @@ def _ints(text: str, option: str, minimum: int = 0) -> list[int]:
 
 # ---------------------------------------------------------------- printing helpers
 def _num(value, digits: int = 4) -> str:
-    """Human formatting: integers with thousands separators, floats to `digits` significant."""
-    if value is None or (isinstance(value, float) and math.isnan(value)):
-        return "-"
-    if isinstance(value, int):
+    """A table cell: exact whole numbers with separators (bounds are exact), else core's style."""
+    if isinstance(value, int) and not isinstance(value, bool):
         return f"{value:,}"
-    return f"{value:.{digits}g}"
+    return format_number(value, digits)
 
 
 def _print_table(title: str, headers: list[str], rows: list[list[str]], notes: list[str]) -> None:

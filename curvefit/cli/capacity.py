@@ -11,55 +11,48 @@ Two forms:
 
 from __future__ import annotations
 
-import math
 from typing import List, Optional
 
 import typer
 
-from curvefit.cli.common import emit_json, err, out, parse_list, print_table
+from curvefit.cli.common import (emit_json, err, interval_option, level_alias, out, parse_list,
+                                 pick_interval, print_table)
+from curvefit.core.defaults import SEED
 from curvefit.core.errors import InputError
+from curvefit.core.formatting import format_error, format_estimate, format_number
 
 
-def _fmt(v, digits: int = 3) -> str:
-    if v is None or (isinstance(v, float) and not math.isfinite(v)):
-        return "-"
-    return f"{v:.{digits}f}" if isinstance(v, float) else str(v)
+def _print_probe_design(est) -> None:
+    out.print("design (n: half-sample size, τ = n/h, ξ: mean max deviation):", markup=False)
+    rows = [[str(int(r.n)), format_number(r.tau, 3), format_number(r.xi_mean, 3),
+             format_number(r.xi_sem, 3), format_number(r.xi_fit, 3), str(int(r.repeats))]
+            for r in est.design.itertuples()]
+    print_table(["n", "τ", "ξ", "± sem", "Φ(τ)", "repeats"], rows)
 
 
-def print_estimate(est) -> None:
+def _print_gap_design(est, metric: str) -> None:
+    if est.exponent is not None:
+        b = est.exponent
+        out.print(f"gap power law: b = {format_estimate(b.estimate, b.low, b.high, b.level)}: "
+                  f"{est.regime}; VC-shaped scale s = {format_number(est.scale, 3)}", markup=False)
+
+    def gap(v):
+        return format_error(v, metric)
+
+    rows = [[str(int(r.size)), gap(r.gap_mean), gap(r.gap_sem), gap(r.gap_fit), gap(r.gap_power),
+             str(int(r.repeats))] for r in est.design.itertuples()]
+    print_table(["size", "gap", "± sem", "s·Φ(n/h)", "a·n^-b", "repeats"], rows)
+
+
+def print_estimate(est, metric: str = "error") -> None:
     """The estimate in one sentence, then the design table, then the notes."""
     out.print(est.message, markup=False)
-    d = est.design
     if est.method == "probe":
-        out.print("design (n: half-sample size, τ = n/h, ξ: mean max deviation):", markup=False)
-        rows = [[str(int(r.n)), _fmt(r.tau, 2), _fmt(r.xi_mean), _fmt(r.xi_sem),
-                 _fmt(r.xi_fit), str(int(r.repeats))] for r in d.itertuples()]
-        print_table(["n", "τ", "ξ", "± sem", "Φ(τ)", "repeats"], rows)
+        _print_probe_design(est)
     else:
-        if est.exponent is not None:
-            b = est.exponent
-            out.print(f"gap power law: b = {b.estimate:.3f} ({b.level:.0%} interval "
-                      f"{_fmt(b.low)}–{_fmt(b.high)}): {est.regime}; VC-shaped scale "
-                      f"s = {_fmt(est.scale)}", markup=False)
-        rows = [[str(int(r.size)), _fmt(r.gap_mean, 4), _fmt(r.gap_sem, 4), _fmt(r.gap_fit, 4),
-                 _fmt(r.gap_power, 4), str(int(r.repeats))] for r in d.itertuples()]
-        print_table(["size", "gap", "± sem", "s·Φ(n/h)", "a·n^-b", "repeats"], rows)
+        _print_gap_design(est, metric)
     for note in est.notes:
         out.print(f"note: {note}", markup=False)
-
-
-def save_json(path: str, doc: dict) -> None:
-    """Write a result document as JSON (inf/NaN as null); a bad path is an input error."""
-    import json
-    from pathlib import Path
-
-    from curvefit.core.jsonio import jsonable
-    p = Path(path)
-    try:
-        p.parent.mkdir(parents=True, exist_ok=True)
-        p.write_text(json.dumps(jsonable(doc), indent=1, allow_nan=False) + "\n", encoding="utf-8")
-    except OSError as exc:
-        raise InputError(f"cannot write {path}: {exc.strerror or exc}") from None
 
 
 def _probe_inputs(data: str | None, target: str | None, features: str | None,
@@ -115,51 +108,34 @@ def register(app: typer.Typer) -> None:
         features: Optional[str] = typer.Option(None, "--features", help="Feature columns a,b,c (default: all but the target)."),
         n_features: Optional[int] = typer.Option(None, "--n-features", help="Probe on standard-normal inputs of this dimension (no DATA)."),
         sizes: Optional[str] = typer.Option(None, "--sizes", help="Fixed probe half-sizes n (list or START:STOP:COUNT) instead of the adaptive design."),
-        repeats: int = typer.Option(10, "--repeats", help="Base repeats per probe design point."),
-        max_n: int = typer.Option(2000, "--max-n", help="Largest probe half-size n (2n rows per fit)."),
-        bootstrap: Optional[int] = typer.Option(None, "--bootstrap", help="Bootstrap replicates (default 500 for the gap model, 200 for the probe)."),
-        level: float = typer.Option(0.9, "--level", help="Interval level."),
+        repeats: Optional[int] = typer.Option(None, "--repeats", help="Base repeats per probe design point (default 10)."),
+        max_n: Optional[int] = typer.Option(None, "--max-n", help="Largest probe half-size n, 2n rows per fit (default 2000)."),
+        bootstrap: Optional[int] = typer.Option(None, "--bootstrap", help="Bootstrap replicates (default: the estimate's own)."),
+        interval: float = interval_option(),
+        level: Optional[float] = level_alias(),
         jobs: int = typer.Option(1, "--jobs", help="Parallel probe cells."),
         backend: str = typer.Option("local", "--backend", help="local or dask."),
         scheduler: Optional[str] = typer.Option(None, "--scheduler", help="Dask scheduler address."),
-        seed: int = typer.Option(0, "--seed", help="Random seed."),
+        seed: int = typer.Option(SEED, "--seed", help="Random seed."),
         quiet: bool = typer.Option(False, "--quiet", help="No progress on stderr."),
         json_out: bool = typer.Option(False, "--json", help="Print the estimate as JSON only."),
         out_file: Optional[str] = typer.Option(None, "--out", help="Also save the estimate as JSON (for curvefit report --capacity)."),
     ):
         """Effective capacity in VC units: from a run's gap, or by the max-deviation probe."""
-        from curvefit.capacity import vc_model as cap
+        from curvefit.core.jsonio import write_json
 
-        if not 0 < level < 1:
-            raise InputError(f"--level must be between 0 and 1, got {level:g}")
-        if bootstrap is not None and bootstrap < 0:
-            raise InputError(f"--bootstrap must be >= 0, got {bootstrap}")
+        interval = pick_interval(interval, level)
+        settings = {"interval": interval, "random_state": seed}
+        if bootstrap is not None:
+            settings["bootstrap"] = bootstrap
         if probe:
-            if not model:
-                raise InputError("the probe needs a model: pass --model SPEC "
-                                 "(e.g. sklearn.svm:LinearSVC)")
-            if repeats < 1:
-                raise InputError(f"--repeats must be at least 1, got {repeats}")
-            if max_n < 2:
-                raise InputError(f"--max-n must be at least 2, got {max_n}")
-            if n_features is not None and n_features < 1:
-                raise InputError(f"--n-features must be a positive integer, got {n_features}")
-            from curvefit.measuring.models import parse_params, resolve_model
-
-            spec = resolve_model(model, parse_params(param or []))
-            X = _probe_inputs(source, target, features, n_features)
-            size_list = None
-            if sizes is not None:
-                size_list = parse_list(sizes, float, name="size", integer_range=True)
-                if any(s < 1 or float(s) != int(s) for s in size_list):
-                    raise InputError("probe sizes must be whole numbers >= 1 (half-sizes n)")
-                size_list = [int(s) for s in size_list]
             show = not (quiet or json_out)
-            est = cap.probe_capacity(
-                spec, X, n_features=n_features, sizes=size_list, repeats=repeats,
-                n_jobs=jobs, backend=backend, scheduler=scheduler, random_state=seed,
-                max_n=max_n, bootstrap=200 if bootstrap is None else bootstrap,
-                interval=level, progress=(lambda m: err.print(m, markup=False)) if show else None)
+            est = _run_probe(source, model, param, target, features, n_features, sizes,
+                             dict(settings, n_jobs=jobs, backend=backend, scheduler=scheduler,
+                                  progress=(lambda m: err.print(m, markup=False)) if show else None,
+                                  **{k: v for k, v in (("repeats", repeats), ("max_n", max_n))
+                                     if v is not None}))
+            metric = "error"
         else:
             stray = [name for name, v in (("--model", model), ("--param", param),
                                           ("--target", target), ("--features", features),
@@ -168,19 +144,42 @@ def register(app: typer.Typer) -> None:
             if stray:
                 raise InputError(f"{stray[0]} belongs to the probe; add --probe, or give only "
                                  "a run file for the gap model")
-            if source is None:
-                raise InputError("no run file given; usage: curvefit capacity RUN, or "
-                                 "curvefit capacity --probe DATA --model SPEC")
-            from curvefit.core.curve import Curve
-
-            curve = Curve.read(source)
-            est = cap.effective_capacity(curve, bootstrap=500 if bootstrap is None else bootstrap,
-                                         random_state=seed, interval=level)
+            est, metric = _run_gap(source, settings)
         if out_file:
-            save_json(out_file, est.to_dict())
+            write_json(out_file, est.to_dict(), what="capacity file")
         if json_out:
             emit_json(est.to_dict())
         else:
-            print_estimate(est)
+            print_estimate(est, metric)
             if out_file:
                 out.print(f"wrote {out_file}", markup=False)
+
+
+def _run_probe(source, model, param, target, features, n_features, sizes, settings: dict):
+    """The max-deviation probe of ``model`` on DATA's feature rows or on normal inputs."""
+    from curvefit.capacity import probe_capacity
+    from curvefit.measuring.models import parse_params, resolve_model
+
+    if not model:
+        raise InputError("the probe needs a model: pass --model SPEC (e.g. sklearn.svm:LinearSVC)")
+    spec = resolve_model(model, parse_params(param or []))
+    X = _probe_inputs(source, target, features, n_features)
+    size_list = None
+    if sizes is not None:
+        size_list = parse_list(sizes, float, name="size", integer_range=True)
+        if any(s < 1 or float(s) != int(s) for s in size_list):
+            raise InputError("probe sizes must be whole numbers >= 1 (half-sizes n)")
+        size_list = [int(s) for s in size_list]
+    return probe_capacity(spec, X, n_features=n_features, sizes=size_list, **settings)
+
+
+def _run_gap(source, settings: dict):
+    """The VC-shaped gap model fitted to a run file; returns the estimate and the metric."""
+    from curvefit.capacity import effective_capacity
+    from curvefit.core.curve import Curve
+
+    if source is None:
+        raise InputError("no run file given; usage: curvefit capacity RUN, or "
+                         "curvefit capacity --probe DATA --model SPEC")
+    curve = Curve.read(source)
+    return effective_capacity(curve, **settings), curve.metric

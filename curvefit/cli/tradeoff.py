@@ -8,18 +8,17 @@ from typing import List, Optional
 import typer
 
 from curvefit.cli.common import emit_json, err, out, parse_list, print_table
+from curvefit.core.defaults import SEED
 from curvefit.core.errors import InputError
-
-
-def _f(v, digits: int = 4) -> str:
-    if v is None or (isinstance(v, float) and not math.isfinite(v)):
-        return "-"
-    return f"{v:.{digits}f}"
+from curvefit.core.formatting import MISSING, format_capacity, format_error
 
 
 def print_tradeoff(tr) -> None:
     """The measured table, then the best setting per size."""
-    from curvefit.capacity.tradeoff import _label
+    from curvefit.capacity.tradeoff import value_label as _label
+
+    def _f(v):
+        return format_error(v, tr.metric)
 
     t = tr.table
     probe = "capacity" in t.columns
@@ -34,8 +33,8 @@ def print_tradeoff(tr) -> None:
                _f(r.test_mean), _f(r.test_sem), str(int(r.n_failed))]
         if probe:
             cap = r.capacity
-            row.append(("≥ " if r.capacity_above_range else "≈ ") + _f(cap, 1)
-                       if cap is not None and math.isfinite(cap) else "-")
+            row.append(("≥ " if r.capacity_above_range else "≈ ") + format_capacity(cap)
+                       if cap is not None and math.isfinite(cap) else format_capacity(None))
         rows.append(row)
     print_table(head, rows)
     out.print("best setting per size (lowest mean test error; values within one standard "
@@ -43,7 +42,7 @@ def print_tradeoff(tr) -> None:
     best = tr.best_per_size()
     print_table(["size", f"best {tr.param}", "test", "± sem", "within 1 se"],
            [[str(int(b.size)), _label(b.best_value), _f(b.test_mean), _f(b.test_sem),
-             ", ".join(_label(v) for v in b.within_1se) or "-"] for b in best.itertuples()])
+             ", ".join(_label(v) for v in b.within_1se) or "–"] for b in best.itertuples()])
 
 
 def register(app: typer.Typer) -> None:
@@ -64,14 +63,14 @@ def register(app: typer.Typer) -> None:
         jobs: int = typer.Option(1, "--jobs", help="Parallel cells."),
         backend: str = typer.Option("local", "--backend", help="local or dask."),
         scheduler: Optional[str] = typer.Option(None, "--scheduler", help="Dask scheduler address."),
-        seed: int = typer.Option(0, "--seed", help="Random seed."),
+        seed: int = typer.Option(SEED, "--seed", help="Random seed."),
         quiet: bool = typer.Option(False, "--quiet", help="No progress on stderr."),
         json_out: bool = typer.Option(False, "--json", help="Print the result as JSON only."),
         out_file: Optional[str] = typer.Option(None, "--out", help="Also save the result as JSON (for curvefit report --tradeoff)."),
     ):
         """Train and test error against a complexity parameter; the best setting per size."""
         from curvefit.measuring import data as cfdata
-        from curvefit.cli.capacity import save_json
+        from curvefit.core.jsonio import write_json
         from curvefit.measuring.models import parse_params, resolve_model
         from curvefit.capacity.tradeoff import parse_vary, tradeoff
 
@@ -109,7 +108,7 @@ def register(app: typer.Typer) -> None:
                       probe=probe, timeout=timeout,
                       progress=(lambda m: err.print(m, markup=False)) if show else None)
         if out_file:
-            save_json(out_file, tr.to_dict())
+            write_json(out_file, tr.to_dict(), what="trade-off file")
         if json_out:
             emit_json(tr.to_dict())
         else:

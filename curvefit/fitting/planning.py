@@ -272,7 +272,7 @@ def vc_comparison(vc_dim: float, target: float, delta: float = VC_DELTA) -> dict
     row = {"vc_dim": d, "eps": target, "delta": delta, "vc_sample_size": None,
            "rule_of_thumb_samples": int(bounds.rule_of_thumb_samples(d))}
     if 0 < target < 1:
-        row["vc_sample_size"] = int(bounds.vc_sample_size(d, eps=target, delta=delta))
+        row["vc_sample_size"] = bounds.vc_sample_size(d, eps=target, delta=delta).n_samples
     return row
 
 

@@ -41,6 +41,11 @@ from matplotlib.figure import Figure  # noqa: E402
 from matplotlib.ticker import FuncFormatter  # noqa: E402
 
 from curvefit.core.errors import InputError  # noqa: E402
+from curvefit.core.formatting import (format_capacity, format_count, format_error,  # noqa: E402
+                                      format_level, format_range, is_rate)
+from curvefit.report.labels import (as_items, family_name, field, is_finite,  # noqa: E402
+                                    format_param_value, metric_label, model_label,
+                                    split_label)
 
 # Our palette: ink blue, ember orange, heather violet, lagoon teal, moss olive. Ordered
 # so that neighbours differ in lightness (greyscale) and in the blue/yellow axis that
@@ -83,63 +88,13 @@ def style(i: int) -> dict:
             "linestyle": LINESTYLES[i % len(LINESTYLES)]}
 
 
-def metric_label(metric: str | None, what: str = "test") -> str:
-    """Axis label with units: ``"test error (0-1)"`` for 0-1 error, else the metric name."""
-    m = (metric or "error").strip()
-    if m.lower() in ("error", "0-1", "zero_one", "misclassification", "error_rate"):
-        return f"{what} error (0-1)"
-    return f"{what} {m}"
-
-
-def model_label(curve: Any, index: int = 0) -> str:
-    """A short name for the model behind a curve, from its run metadata."""
-    meta = getattr(curve, "meta", None) or {}
-    for key in ("label", "name"):
-        if meta.get(key):
-            return str(meta[key])
-    model = meta.get("model")
-    if isinstance(model, Mapping):
-        for key in ("label", "name", "spec", "class"):
-            if model.get(key):
-                return str(model[key])
-    elif model:
-        return str(model)
-    for key in ("model_spec", "spec"):
-        if meta.get(key):
-            return str(meta[key])
-    return f"model {index + 1}"
-
-
-def split_label(curve: Any) -> str:
-    """How a curve's train/test splits were made, in a few words (from its metadata).
-
-    Leaky splits give curves a model never reaches, so every figure and report says
-    which split a curve used.
-    """
-    meta = getattr(curve, "meta", None) or {}
-    split = meta.get("split") if isinstance(meta.get("split"), Mapping) else {}
-    data = meta.get("data") if isinstance(meta.get("data"), Mapping) else {}
-    kind = split.get("kind")
-    unit = " (sizes in groups)" if (meta.get("size_unit") or split.get("size_unit")) == "groups" else ""
-    if kind == "groups":
-        col = meta.get("groups_column") or data.get("groups") or split.get("column")
-        return f"grouped split{f' by {col}' if col else ''}{unit}"
-    if kind == "order":
-        col = meta.get("order_column") or data.get("order") or split.get("column")
-        return f"time-ordered split{f' by {col}' if col else ''}"
-    if kind == "given_test":
-        return "given test set"
-    if kind == "random":
-        return "random stratified split"
-    return "split not recorded"
-
-
 def _split_caption(curves: list) -> str:
     labels = list(dict.fromkeys(split_label(c) for _, c in curves))
     return "; ".join(labels)
 
 
-def _fmt_count(v: float) -> str:
+def _axis_count(v: float) -> str:
+    """Compact tick labels of a count axis (``20k``, ``1.5M``): ticks need few characters."""
     if not np.isfinite(v):
         return "–"
     if v >= 1e6:
@@ -149,7 +104,7 @@ def _fmt_count(v: float) -> str:
     return f"{int(round(v)):,}"
 
 
-_count_formatter = FuncFormatter(lambda v, _pos: _fmt_count(v) if v > 0 else "")
+_count_formatter = FuncFormatter(lambda v, _pos: _axis_count(v) if v > 0 else "")
 
 
 def _new_axes(figsize=FIGSIZE):
@@ -168,44 +123,6 @@ def _styled(fn):
             return fn(*args, **kwargs)
 
     return wrapper
-
-
-def _as_list(obj: Any) -> list:
-    """Normalise one item / a list / a dict of items into a list of (label, item)."""
-    if obj is None:
-        return []
-    if isinstance(obj, Mapping):
-        return list(obj.items())
-    if isinstance(obj, (list, tuple)):
-        return [(None, o) for o in obj]
-    return [(None, obj)]
-
-
-def _family_name(f: Any) -> str | None:
-    if f is None:
-        return None
-    if isinstance(f, str):
-        return f
-    for key in ("name", "family"):
-        v = getattr(f, key, None)
-        if isinstance(v, str):
-            return v
-    return str(f)
-
-
-def _get(obj: Any, name: str, default=None):
-    if obj is None:
-        return default
-    if isinstance(obj, Mapping):
-        return obj.get(name, default)
-    return getattr(obj, name, default)
-
-
-def _finite(v) -> bool:
-    try:
-        return v is not None and math.isfinite(float(v))
-    except (TypeError, ValueError):
-        return False
 
 
 # --------------------------------------------------------------------------- curves
@@ -232,18 +149,10 @@ def _fit_lines(fit: Any, grid: np.ndarray, interval: float) -> _FitLines | None:
             pred = fit.predict(grid, interval=interval)
     except Exception:  # an unusable fit still leaves the measured points to draw
         return None
-    if isinstance(pred, pd.DataFrame):
-        est = pred["estimate"].to_numpy(float)
-        low = pred["low"].to_numpy(float) if "low" in pred else np.full_like(est, np.nan)
-        high = pred["high"].to_numpy(float) if "high" in pred else np.full_like(est, np.nan)
-        size = pred["size"].to_numpy(float) if "size" in pred else grid
-    else:
-        est = np.asarray(_get(pred, "estimate", pred), float).reshape(-1)
-        low = np.asarray(_get(pred, "low", np.nan), float) * np.ones_like(est)
-        high = np.asarray(_get(pred, "high", np.nan), float) * np.ones_like(est)
-        size = grid
-    best = _family_name(getattr(fit, "best", None))
-    runner = _family_name(getattr(fit, "runner_up", None))
+    est, low, high = (pred[c].to_numpy(float) for c in ("estimate", "low", "high"))
+    size = pred["size"].to_numpy(float)
+    best = family_name(getattr(fit, "best", None))
+    runner = family_name(getattr(fit, "runner_up", None))
     runner_est = None
     if runner and runner != best and hasattr(fit, "predict_family"):
         try:
@@ -258,11 +167,11 @@ def _fit_lines(fit: Any, grid: np.ndarray, interval: float) -> _FitLines | None:
 def _answer_of(answer: Any) -> dict | None:
     if answer is None:
         return None
-    n = _get(answer, "n", _get(answer, "estimate"))
-    return {"n": float(n) if _finite(n) else math.nan,
-            "low": float(_get(answer, "low")) if _finite(_get(answer, "low")) else math.nan,
-            "high": float(_get(answer, "high")) if _finite(_get(answer, "high")) else math.nan,
-            "reachable": bool(_get(answer, "reachable", _finite(n)))}
+    n = field(answer, "n", field(answer, "estimate"))
+    return {"n": float(n) if is_finite(n) else math.nan,
+            "low": float(field(answer, "low")) if is_finite(field(answer, "low")) else math.nan,
+            "high": float(field(answer, "high")) if is_finite(field(answer, "high")) else math.nan,
+            "reachable": bool(field(answer, "reachable", is_finite(n)))}
 
 
 @_styled
@@ -300,9 +209,9 @@ def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float 
     one standard error of that mean across repeats, and the thin capped bar the exact
     (Clopper–Pearson) interval of a single repeat's finite test set.
     """
-    items = _as_list(curves)
-    fit_items = [f for _, f in _as_list(fits)] if not isinstance(fits, Mapping) else None
-    ans_items = [a for _, a in _as_list(answers)] if not isinstance(answers, Mapping) else None
+    items = as_items(curves)
+    fit_items = [f for _, f in as_items(fits)] if not isinstance(fits, Mapping) else None
+    ans_items = [a for _, a in as_items(answers)] if not isinstance(answers, Mapping) else None
     fig, ax = _new_axes()
     metric = None
     xmin, xmax = math.inf, 0.0
@@ -343,9 +252,9 @@ def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float 
         if fit is not None and len(summ):
             top = float(summ["size"].max())  # this model's own largest size, not the running max
             right = top * 4
-            if a and _finite(a["high"]):
+            if a and is_finite(a["high"]):
                 right = max(right, a["high"] * 1.3)
-            elif a and _finite(a["n"]):
+            elif a and is_finite(a["n"]):
                 right = max(right, a["n"] * 1.5)
             right = min(right, top * 1e3)
             left = float(summ["size"].min()) if len(summ) else xmin
@@ -358,29 +267,29 @@ def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float 
                 if band.any():
                     ax.fill_between(lines.size, lines.low, lines.high, where=band,
                                     color=st["color"], alpha=0.14, linewidth=0, zorder=1,
-                                    label=f"{label}: {interval:.0%} band ({name})")
+                                    label=f"{label}: {format_level(interval)} band ({name})")
                 ax.plot(lines.size, lines.estimate, color=st["color"], linewidth=1.8,
                         linestyle="-", zorder=2, label=f"{label}: fit, {name}")
                 if lines.runner_up_estimate is not None:
                     ax.plot(lines.size, lines.runner_up_estimate, color=st["color"],
                             linewidth=1.1, linestyle=(0, (5, 2)), alpha=0.9, zorder=2,
                             label=f"{label}: runner-up, {lines.runner_up}")
-        if a and target_error is not None and a["reachable"] and _finite(a["n"]):
+        if a and target_error is not None and a["reachable"] and is_finite(a["n"]):
             n = a["n"]
-            if _finite(a["low"]) and _finite(a["high"]):
+            if is_finite(a["low"]) and is_finite(a["high"]):
                 ax.plot([a["low"], a["high"]], [target_error, target_error], color=st["color"],
                         linewidth=4.5, alpha=0.45, solid_capstyle="butt", zorder=5)
             ax.plot([n], [target_error], marker=st["marker"], ms=9, mfc=st["color"],
                     mec="white", mew=1.2, linestyle="none", zorder=6)
-            ax.annotate(f"n ≈ {_fmt_count(n)}", (n, target_error), xytext=(0, 9 + 11 * i),
+            ax.annotate(f"n ≈ {format_count(n)}", (n, target_error), xytext=(0, 9 + 11 * i),
                         textcoords="offset points", ha="center", fontsize=8.5,
                         color=st["color"], fontweight="bold")
-            xmax = max(xmax, a["high"] if _finite(a["high"]) else n)
+            xmax = max(xmax, a["high"] if is_finite(a["high"]) else n)
     if target_error is not None:
         ax.axhline(target_error, color=TARGET_COLOUR, linewidth=1.0, linestyle=(0, (4, 2, 1, 2)),
                    zorder=2)
         # at the left end, below the line: the curves sit above the target there
-        ax.annotate(f"target {target_error:.3g}", (0.0, target_error),
+        ax.annotate(f"target {format_error(target_error, metric)}", (0.0, target_error),
                     xycoords=("axes fraction", "data"), xytext=(4, -11),
                     textcoords="offset points", ha="left", fontsize=8.5, color=TARGET_COLOUR)
     if not any_data:
@@ -455,8 +364,8 @@ def gap_figure(curves: Any, lines: Any = None, *, title: str | None = None) -> F
     -------
     matplotlib.figure.Figure
     """
-    items = _as_list(curves)
-    line_items = None if isinstance(lines, Mapping) else [v for _, v in _as_list(lines)]
+    items = as_items(curves)
+    line_items = None if isinstance(lines, Mapping) else [v for _, v in as_items(lines)]
     fig, ax = _new_axes()
     any_data = False
     xs = []
@@ -497,7 +406,7 @@ def gap_figure(curves: Any, lines: Any = None, *, title: str | None = None) -> F
                 ha="center", va="center", color=NEUTRAL)
     metric = getattr(items[0][1], "metric", None) if items else None
     ax.set_xlabel(f"labelled samples (training-set size, log scale) · {_split_caption(items)}")
-    unit = "(0-1)" if metric_label(metric).endswith("(0-1)") else f"({metric})"
+    unit = "(0-1)" if is_rate(metric) else f"({metric})"
     ax.set_ylabel(f"generalization gap, test − train {unit}")
     ax.set_title(title or "Generalization gap")
     _legend_outside(ax)
@@ -531,11 +440,11 @@ def probe_figure(capacity: Any, *, title: str | None = None) -> Figure:
     .. [1] V. Vapnik, E. Levin, Y. LeCun, "Measuring the VC-dimension of a learning
        machine", Neural Computation 6(5), 1994.
     """
-    from curvefit.capacity.vc_model import phi
+    from curvefit.capacity import phi
 
     fig, ax = _new_axes()
-    design = _get(capacity, "design")
-    h = _get(capacity, "vc_dim")
+    design = field(capacity, "design")
+    h = field(capacity, "vc_dim")
     st = style(0)
     drawn = False
     if isinstance(design, pd.DataFrame) and len(design):
@@ -548,17 +457,17 @@ def probe_figure(capacity: Any, *, title: str | None = None) -> Figure:
             ax.errorbar(x, y, yerr=yerr, fmt=st["marker"], color=st["color"], ms=5.5,
                         elinewidth=2.0, capsize=0, zorder=4, label="measured ξ(n)")
             drawn = len(x) > 0
-            if drawn and _finite(h) and float(h) > 0:
+            if drawn and is_finite(h) and float(h) > 0:
                 grid = np.geomspace(max(x.min() / 1.5, 1e-9), x.max() * 1.5, 200)
                 ax.plot(grid, phi(grid / float(h)), color=PALETTE[1], linewidth=1.8,
-                        label=f"Φ(n/h), h = {float(h):.3g}")
-                lo, hi = _get(capacity, "low"), _get(capacity, "high")
-                if _finite(lo) and _finite(hi) and float(lo) > 0:
-                    level = _get(capacity, "level", 0.9) or 0.9
+                        label=f"Φ(n/h), h = {format_capacity(h)}")
+                lo, hi = field(capacity, "low"), field(capacity, "high")
+                if is_finite(lo) and is_finite(hi) and float(lo) > 0:
+                    level = field(capacity, "level", 0.9) or 0.9
                     ax.fill_between(grid, phi(grid / float(lo)), phi(grid / float(hi)),
                                     color=PALETTE[1], alpha=0.16, linewidth=0,
-                                    label=f"{float(level):.0%} interval of h: "
-                                          f"{float(lo):.3g}–{float(hi):.3g}")
+                                    label=f"{format_level(level)} interval of h: "
+                                          f"{format_range(lo, hi, 'capacity')}")
             if drawn:
                 ax.set_xscale("log")
                 ax.xaxis.set_major_formatter(_count_formatter)
@@ -574,15 +483,6 @@ def probe_figure(capacity: Any, *, title: str | None = None) -> Figure:
 
 
 # --------------------------------------------------------------------------- trade-off
-def _value_label(v: Any) -> str:
-    """A parameter value as text: missing → "None", whole floats without ".0"."""
-    if v is None or (isinstance(v, float) and math.isnan(v)):
-        return "None"
-    if isinstance(v, (float, np.floating)) and float(v).is_integer():
-        return str(int(v))
-    return str(v)
-
-
 @_styled
 def tradeoff_figure(tradeoff: Any, *, title: str | None = None) -> Figure:
     """Train and test error against a complexity parameter, one line per sample size.
@@ -596,7 +496,7 @@ def tradeoff_figure(tradeoff: Any, *, title: str | None = None) -> Figure:
     -------
     matplotlib.figure.Figure
     """
-    table = tradeoff if isinstance(tradeoff, pd.DataFrame) else _get(tradeoff, "table")
+    table = tradeoff if isinstance(tradeoff, pd.DataFrame) else field(tradeoff, "table")
     fig, ax = _new_axes()
     if not isinstance(table, pd.DataFrame) or not len(table):
         ax.text(0.5, 0.5, "no trade-off measurements to draw", transform=ax.transAxes,
@@ -608,7 +508,7 @@ def tradeoff_figure(tradeoff: Any, *, title: str | None = None) -> Figure:
     numeric = pd.to_numeric(t["value"], errors="coerce")
     categorical = numeric.isna().any()
     if categorical:
-        names = t["value"].map(_value_label)
+        names = t["value"].map(format_param_value)
         order = list(dict.fromkeys(names))
         t["_x"] = names.map({v: k for k, v in enumerate(order)})
     else:
@@ -621,11 +521,11 @@ def tradeoff_figure(tradeoff: Any, *, title: str | None = None) -> Figure:
         yerr = np.nan_to_num(g["test_sem"].to_numpy(float)) if "test_sem" in g else None
         ax.errorbar(g["_x"], g["test_mean"], yerr=yerr, marker=st["marker"], color=st["color"],
                     ms=5.5, linestyle=st["linestyle"], linewidth=1.6, elinewidth=1.6,
-                    capsize=0, label=f"n = {_fmt_count(size)}: test", zorder=4)
+                    capsize=0, label=f"n = {format_count(size)}: test", zorder=4)
         if "train_mean" in g and g["train_mean"].notna().any():
             ax.plot(g["_x"], g["train_mean"], marker=st["marker"], ms=4.5, mfc="white",
                     mec=st["color"], color=st["color"], linestyle=(0, (1, 1.5)), linewidth=1.0,
-                    label=f"n = {_fmt_count(size)}: train", zorder=3)
+                    label=f"n = {format_count(size)}: train", zorder=3)
         ok = g[np.isfinite(g["test_mean"])]
         if len(ok):
             b = ok.loc[ok["test_mean"].idxmin()]
@@ -637,7 +537,7 @@ def tradeoff_figure(tradeoff: Any, *, title: str | None = None) -> Figure:
         ax.set_xticks(range(len(order)), order)
     elif positive and spread >= 20:
         ax.set_xscale("log")
-    metric = _get(tradeoff, "metric", None) if not isinstance(tradeoff, pd.DataFrame) else None
+    metric = field(tradeoff, "metric", None) if not isinstance(tradeoff, pd.DataFrame) else None
     ax.set_xlabel(f"{param} (model complexity{', log scale' if ax.get_xscale() == 'log' else ''})")
     ax.set_ylabel(metric_label(metric, "train / test"))
     ax.set_title(title or f"Complexity trade-off: {param}")
@@ -663,7 +563,7 @@ def worst_case_figure(rows: Sequence[Mapping], *, title: str | None = None,
     -------
     matplotlib.figure.Figure
     """
-    rows = [r for r in rows if _finite(r.get("n")) and float(r["n"]) > 0]
+    rows = [r for r in rows if is_finite(r.get("n")) and float(r["n"]) > 0]
     height = 1.4 + 0.55 * max(len(rows), 1)
     fig, ax = _new_axes(figsize=(FIGSIZE[0], height))
     if not rows:
@@ -682,12 +582,12 @@ def worst_case_figure(rows: Sequence[Mapping], *, title: str | None = None,
         ax.barh(y, n, left=0, height=0.58, color=colour, alpha=0.85, hatch=hatch,
                 edgecolor="white", linewidth=0.5, zorder=3)
         lo, hi = r.get("low"), r.get("high")
-        if _finite(lo) and _finite(hi) and float(lo) > 0:
+        if is_finite(lo) and is_finite(hi) and float(lo) > 0:
             ax.errorbar([n], [y], xerr=[[n - float(lo)], [float(hi) - n]], fmt="none",
                         ecolor="black", elinewidth=1.0, capsize=3, zorder=4)
             vals.append(float(hi))
-        ax.text(max(n, float(hi) if _finite(hi) else n) * 1.15, y,
-                f"{_fmt_count(n)}" + (f"  {r['note']}" if r.get("note") else ""),
+        ax.text(max(n, float(hi) if is_finite(hi) else n) * 1.15, y,
+                f"{format_count(n)}" + (f"  {r['note']}" if r.get("note") else ""),
                 va="center", fontsize=8.5, color="#1d2329")
     ax.set_yticks(ys, [str(r["label"]) for r in rows])
     ax.set_xscale("log")

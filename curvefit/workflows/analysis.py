@@ -1,0 +1,379 @@
+"""The analysis behind a report: fit each run, answer the target, estimate capacity.
+
+`analyse` is the one place that calls the estimating API for a report (``fit_curve``,
+``samples_for``, ``effective_capacity``, the worst-case bound); the report
+(`curvefit.report.html`) only renders the `ModelResult` objects it returns.
+`report_runs` is the whole ``curvefit report`` job: read run files, analyse, write the page.
+
+Examples
+--------
+>>> import warnings
+>>> import numpy as np, pandas as pd
+>>> from curvefit.core.curve import Curve
+>>> n = np.repeat([100, 200, 400, 800, 1600], 3)
+>>> e = 0.1 + 3 * n ** -0.5 + np.tile([-0.003, 0.0, 0.003], 5)
+>>> curve = Curve.from_table(pd.DataFrame({"size": n, "test_error": e}), meta={"label": "m"})
+>>> with warnings.catch_warnings():
+...     warnings.simplefilter("ignore")
+...     [res] = analyse([curve], target_error=0.16, bootstrap=20)
+>>> res.label, res.fit is not None, res.answer.reachable
+('m', True, True)
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Callable, Sequence
+
+import numpy as np
+import pandas as pd
+
+from curvefit.core.curve import Curve
+from curvefit.core.defaults import BOOTSTRAP, INTERVAL, SEED
+from curvefit.core.errors import InputError
+from curvefit.core.formatting import format_capacity, format_number, is_rate
+from curvefit.core.jsonio import jsonable, read_json
+from curvefit.core.validate import check_count, check_level
+from curvefit.report.labels import as_items, family_name, field as field_of, is_finite, model_label
+
+# Forecasts a report shows when no target was given: multiples of the largest measured size.
+FORECAST_MULTIPLES = (2, 10)
+# Smallest gap ε the worst-case bound is asked for (a target at the floor asks for ε = 0).
+MIN_EPS = 0.005
+
+
+@dataclass(frozen=True)
+class WorstCase:
+    """The distribution-free sample sizes beside one model's measured answer.
+
+    ``rows`` hold ``label``, ``n`` and ``kind`` ("bound", "rule" or "measured"; the
+    measured row also ``low`` and ``high``), as `curvefit.report.plots.worst_case_figure`
+    draws them.
+    """
+
+    label: str
+    vc_dim: float
+    method: str
+    eps: float
+    delta: float
+    rows: list
+
+
+@dataclass
+class ModelResult:
+    """What the report shows for one run (one model): the curve and what was computed from it."""
+
+    label: str
+    curve: Curve
+    fit: Any = None            # CurveFit of the test error
+    answer: Any = None         # SampleEstimate for the target, when one was asked for
+    capacity: Any = None       # CapacityEstimate from the measured gap
+    notes: list = field(default_factory=list)   # why a piece is missing, in plain words
+    source: str | None = None  # run file it came from
+    forecast: pd.DataFrame | None = None        # fit.predict at FORECAST_MULTIPLES × largest size
+    gap_lines: list = field(default_factory=list)  # fitted gap curves: (name, sizes, gaps)
+    worst_case: WorstCase | None = None
+
+
+@dataclass
+class ReportResult:
+    """What `report_runs` wrote: the page, its figure files, and the analysed runs."""
+
+    path: Path
+    figures: list
+    results: list
+
+
+def run_step(fn: Callable[[], Any], notes: list, what: str):
+    """Run one API step; a failure becomes a note (``what: reason``), not a crash."""
+    try:
+        return fn()
+    except InputError as exc:
+        notes.append(f"{what}: {exc}")
+    except Exception as exc:  # noqa: BLE001 - any numeric failure is reported, not fatal
+        notes.append(f"{what} failed: {type(exc).__name__}: {exc}")
+    return None
+
+
+# --------------------------------------------------------------------------- analysis
+def analyse(curves: Any, *, target_error: float | None = None, bootstrap: int = BOOTSTRAP,
+            random_state: int = SEED, interval: float = INTERVAL, capacity: bool = True,
+            labels: Sequence[str] | None = None, sources: Sequence[str] | None = None,
+            probe: Any = None) -> list[ModelResult]:
+    """Fit each curve, answer the target and estimate capacity from the gap.
+
+    Parameters
+    ----------
+    curves : Curve, list of Curve, or dict label -> Curve
+    target_error : float, optional
+        Test error to reach; the answer is ``fit.samples_for(test_error=...)``.
+    bootstrap : int
+        Bootstrap replicates for the fit and capacity intervals.
+    random_state : int
+        Seed passed to every fit, so the report is reproducible.
+    interval : float
+        Level of every interval.
+    capacity : bool
+        Also run ``effective_capacity`` on curves that have a training error.
+    labels, sources : list of str, optional
+        A label and a source file per curve.
+    probe : CapacityEstimate, optional
+        A max-deviation probe; used in place of each model's gap capacity for the
+        worst-case comparison.
+
+    Returns
+    -------
+    list of ModelResult
+        One per curve, in the given order. A step that fails leaves its field None
+        and a note saying why.
+    """
+    interval = check_level(interval)
+    bootstrap = check_count(bootstrap, "bootstrap")
+    items = as_items(curves)
+    check_target(target_error, [c for _, c in items])
+    results = []
+    for i, (label, curve) in enumerate(items):
+        if not isinstance(curve, Curve):
+            raise InputError(f"expected a Curve, got {type(curve).__name__}")
+        label = (labels[i] if labels and i < len(labels) else None) or label \
+            or model_label(curve, i)
+        res = ModelResult(label=str(label), curve=curve,
+                          source=sources[i] if sources and i < len(sources) else None)
+        _fit_one(res, bootstrap, random_state, interval, capacity)
+        results.append(res)
+    if target_error is not None:
+        answer_target(results, target_error, interval=interval, probe=probe)
+    return results
+
+
+def _fit_one(res: ModelResult, bootstrap: int, random_state, interval: float,
+             capacity: bool) -> None:
+    """The fit, its forecasts, and the capacity from the gap of one result."""
+    from curvefit.fitting.engine import fit_curve
+
+    curve = res.curve
+    if len(curve.ok_points()) == 0:
+        res.notes.append("no cell finished, so nothing could be fitted")
+        return
+    res.fit = run_step(lambda: fit_curve(curve, on="test", bootstrap=bootstrap,
+                                         random_state=random_state), res.notes, "curve fit")
+    if res.fit is not None:
+        have = float(curve.sizes.max())
+        res.forecast = run_step(lambda: res.fit.predict([have * k for k in FORECAST_MULTIPLES],
+                                                        interval=interval),
+                                res.notes, "forecast")
+    if capacity and curve.has_train:
+        from curvefit.capacity import effective_capacity
+
+        res.capacity = run_step(lambda: effective_capacity(curve, bootstrap=bootstrap,
+                                                           random_state=random_state,
+                                                           interval=interval),
+                                res.notes, "capacity from the gap")
+        res.gap_lines = gap_lines(curve, res.capacity)
+
+
+def answer_target(results: Sequence[ModelResult], target_error: float, *,
+                  interval: float = INTERVAL, probe: Any = None) -> None:
+    """Set each result's ``answer`` for ``target_error`` and its worst-case comparison."""
+    for r in results:
+        if r.fit is not None:
+            r.answer = run_step(lambda: r.fit.samples_for(test_error=target_error,
+                                                          interval=interval),
+                                r.notes, "sample size for the target")
+        r.worst_case = worst_case(r, probe if probe is not None else r.capacity,
+                                  target_error, interval)
+
+
+def check_target(target_error: float | None, curves: Sequence[Curve]) -> None:
+    """A target error must be finite and ≥ 0, and inside (0, 1) for 0-1 error rates."""
+    if target_error is None:
+        return
+    if not math.isfinite(target_error):
+        raise InputError(f"target_error must be a finite number, got {target_error}")
+    if all(is_rate(c.metric) for c in curves) and not 0 < target_error < 1:
+        raise InputError(f"target_error is a 0-1 error rate, so it must be between 0 and 1 "
+                         f"(got {target_error}); e.g. 0.05 for 5%")
+    if target_error < 0:
+        raise InputError(f"target_error must not be negative, got {target_error}")
+
+
+def gap_lines(curve: Curve, capacity: Any) -> list:
+    """The fitted gap curves of a capacity estimate on a grid over the measured sizes.
+
+    The VC-shaped ``s·Φ(n/h)`` and the power law ``a·n^-b``, each from the estimate's
+    own fitted parameters, as ``(name, sizes, gaps)``.
+    """
+    from curvefit.capacity import phi
+
+    if capacity is None or not len(curve.sizes):
+        return []
+    grid = np.geomspace(curve.sizes.min(), curve.sizes.max() * 2, 120)
+    extra = field_of(capacity, "extra", None) or {}
+    lines = []
+    h = extra.get("h_fit", field_of(capacity, "vc_dim"))
+    s = field_of(capacity, "scale")
+    if is_finite(h) and is_finite(s) and float(h) > 0:
+        lines.append((f"VC-shaped fit s·Φ(n/h), h = {format_capacity(h)}", grid,
+                      float(s) * np.asarray(phi(grid / float(h)), float)))
+    a, b = extra.get("power_scale"), field_of(field_of(capacity, "exponent"), "estimate")
+    if is_finite(a) and is_finite(b):
+        lines.append((f"power-law fit a·n^-b, b = {format_number(b, 3)}", grid,
+                      float(a) * grid ** (-float(b))))
+    return lines
+
+
+def worst_case(res: ModelResult, capacity: Any, target_error: float,
+               interval: float = INTERVAL) -> WorstCase | None:
+    """The VC bound and the 10 × d rule beside the measured answer, for one model.
+
+    The bound asks for a gap of at most ε = target − fitted floor (at least `MIN_EPS`)
+    with probability ``interval``. None without a capacity or an answer.
+    """
+    from curvefit import bounds
+
+    d = field_of(capacity, "vc_dim")
+    if not is_finite(d) or float(d) <= 0 or res.answer is None:
+        return None
+    asym = field_of(res.answer, "asymptote")
+    floor = field_of(asym, "estimate", asym)
+    eps = max(float(target_error) - max(float(floor) if is_finite(floor) else 0.0, 0.0), MIN_EPS)
+    delta = round(1.0 - interval, 6)
+    dims = int(math.ceil(float(d)))
+    rows = []
+    try:
+        rows.append({"label": f"VC bound (d={format_capacity(d)}, ε={format_number(eps, 3)}, "
+                              f"δ={delta:g})",
+                     "n": float(bounds.vc_sample_size(dims, eps, delta).n_samples), "kind": "bound"})
+    except Exception:  # noqa: BLE001 - skip a bound that cannot be computed
+        pass
+    rows.append({"label": "rule of thumb, 10 × d",
+                 "n": float(bounds.rule_of_thumb_samples(dims)), "kind": "rule"})
+    n = field_of(res.answer, "n")
+    if bool(field_of(res.answer, "reachable", False)) and is_finite(n):
+        rows.append({"label": f"measured: {res.label}", "n": float(n),
+                     "low": field_of(res.answer, "low"), "high": field_of(res.answer, "high"),
+                     "kind": "measured"})
+    return WorstCase(res.label, float(d), str(field_of(capacity, "method", "estimate")),
+                     eps, delta, rows)
+
+
+def result_summary(res: ModelResult) -> dict:
+    """Plain JSON-ready headline of one model: chosen family, answer, capacity, notes."""
+    ans, cap = res.answer, res.capacity
+    return jsonable({
+        "label": res.label, "source": res.source,
+        "best": family_name(field_of(res.fit, "best")),
+        "answer": None if ans is None else {
+            k: field_of(ans, k) for k in ("n", "low", "high", "reachable", "message")},
+        "capacity": None if cap is None else {
+            k: field_of(cap, k) for k in ("vc_dim", "low", "high", "level", "method", "above_range")},
+        "notes": list(res.notes),
+    })
+
+
+# --------------------------------------------------------------------------- report job
+def run_labels(curves: Sequence[Curve], paths: Sequence[Any]) -> list[str]:
+    """Model labels for runs; two runs of the same model get their file name added.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> c = Curve.from_table(pd.DataFrame({"size": [10], "test_error": [0.3]}), meta={"label": "m"})
+    >>> run_labels([c, c, c], ["a/x.json", "b/y.json", "c/y.json"])
+    ['m (x)', 'm (y)', 'm (y) #2']
+    """
+    labels = [model_label(c, i) for i, c in enumerate(curves)]
+    for i, lab in enumerate(labels):
+        if labels.count(lab) > 1:
+            labels[i] = f"{lab} ({Path(paths[i]).stem})"
+    seen: dict[str, int] = {}
+    for i, lab in enumerate(labels):  # same model and same file stem: number them
+        seen[lab] = seen.get(lab, 0) + 1
+        if seen[lab] > 1:
+            labels[i] = f"{lab} #{seen[lab]}"
+    return labels
+
+
+def read_probe(path: str | os.PathLike):
+    """A saved probe result (``curvefit capacity --probe ... --out``)."""
+    from curvefit.capacity import CapacityEstimate
+
+    doc = read_json(path, "saved capacity")
+    if isinstance(doc, dict) and "vc_dim" not in doc and isinstance(doc.get("capacity"), dict):
+        doc = doc["capacity"]  # tolerate a wrapper object around the estimate
+    return CapacityEstimate.from_dict(doc)
+
+
+def read_tradeoff(path: str | os.PathLike):
+    """A saved trade-off result (``curvefit tradeoff ... --out``)."""
+    from curvefit.capacity.tradeoff import Tradeoff
+
+    doc = read_json(path, "saved trade-off")
+    if isinstance(doc, dict) and "table" not in doc and isinstance(doc.get("tradeoff"), dict):
+        doc = doc["tradeoff"]
+    try:
+        return Tradeoff.from_dict(doc)
+    except InputError:
+        raise
+    except (KeyError, TypeError, ValueError) as exc:
+        raise InputError(f"{path} is not a saved trade-off ({type(exc).__name__}: {exc})") from None
+
+
+def check_report_path(out: str | os.PathLike) -> Path:
+    """The report's file: an ``.html`` name in an existing folder."""
+    out = Path(out)
+    if out.suffix.lower() not in (".html", ".htm"):
+        raise InputError(f"the report must be an .html file, got {out}")
+    if not out.parent.exists():
+        raise InputError(f"folder {out.parent} does not exist; create it or choose another file")
+    return out
+
+
+def report_runs(runs: Sequence[str | os.PathLike], out: str | os.PathLike = "report.html", *,
+                target_error: float | None = None, capacity: str | os.PathLike | None = None,
+                tradeoff: str | os.PathLike | None = None, title: str = "Learning-curve report",
+                bootstrap: int = BOOTSTRAP, random_state: int = SEED,
+                interval: float = INTERVAL,
+                progress: Callable[[str], None] | None = None) -> ReportResult:
+    """Read run files, analyse them and write the self-contained HTML report.
+
+    Parameters
+    ----------
+    runs : list of path
+        Run files or curve tables, one per model.
+    out : path
+        The ``.html`` file; figures go to ``<stem>_files/`` beside it.
+    target_error : float, optional
+        The report opens with the labelled samples needed for it.
+    capacity, tradeoff : path, optional
+        A saved probe result and a saved trade-off result to include.
+    title : str
+    bootstrap, random_state, interval
+        Settings of every fit (same seed, same report).
+    progress : callable, optional
+        Receives one line of progress text.
+
+    Returns
+    -------
+    ReportResult
+    """
+    from curvefit.report.html import figure_dir_for, write_report
+
+    out = check_report_path(out)
+    curves = [Curve.read(p) for p in runs]
+    check_target(target_error, curves)
+    probe = read_probe(capacity) if capacity else None
+    trade = read_tradeoff(tradeoff) if tradeoff else None
+    if progress is not None:
+        progress(f"fitting {len(curves)} run(s) ...")
+    results = analyse(curves, target_error=target_error, bootstrap=bootstrap,
+                      random_state=random_state, interval=interval,
+                      labels=run_labels(curves, runs), sources=[str(p) for p in runs],
+                      probe=probe)
+    path = write_report(out, results, target_error=target_error, probe=probe, tradeoff=trade,
+                        title=title, interval=interval)
+    figures = sorted(str(p) for p in figure_dir_for(path).glob("*"))
+    return ReportResult(path, figures, results)
