@@ -555,10 +555,8 @@ def test_sample_size(eps, delta=0.05, method: str = "hoeffding", p=None) -> int:
 
     References
     ----------
-    .. [1] W. Hoeffding, "Probability inequalities for sums of bounded random
-       variables", Journal of the American Statistical Association 58(301), 1963.
-    .. [2] C. J. Clopper and E. S. Pearson, "The use of confidence or fiducial limits
-       illustrated in the case of the binomial", Biometrika 26(4), 1934.
+    .. [1] W. Hoeffding, JASA 58(301), 1963 (as in `test_error_bar`).
+    .. [2] C. J. Clopper and E. S. Pearson, Biometrika 26(4), 1934 (as in `test_error_bar`).
 
     Examples
     --------

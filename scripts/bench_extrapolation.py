@@ -36,8 +36,9 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 import curvefit as cf  # noqa: E402
 from curvefit.core.curve import Curve  # noqa: E402
 from curvefit.core.defaults import BOOTSTRAP  # noqa: E402
-from curvefit.fitting import bootstrap as fit_bootstrap, intervals as fit_intervals  # noqa: E402
 from curvefit.core.errors import FitWarning  # noqa: E402
+from curvefit.fitting import bootstrap as fit_bootstrap  # noqa: E402
+from curvefit.fitting import intervals as fit_intervals
 
 FIT_FRACTION = 0.25
 
@@ -124,7 +125,8 @@ def main() -> None:
                 "dataset": dname, "model": mname, "pool": int(pool),
                 "fit_sizes": int(sub.ok_points()["size"].nunique()), "measured": measured,
                 "family": choice.best, "choice": pred.estimate, "low": pred.low, "high": pred.high,
-                "covered": pred.low <= measured <= pred.high, "power-law-floor": floor_law, "last-value": last_value,
+                "covered": pred.low <= measured <= pred.high, "power-law-floor": floor_law,
+                "last-value": last_value,
                 "covered_in_range": at_fit.low <= full_at_fit <= at_fit.high,
                 "plain_covered": pp.low <= measured <= pp.high,
                 "plain_covered_in_range": pf.low <= full_at_fit <= pf.high,
@@ -134,12 +136,14 @@ def main() -> None:
             print(f"{dname:14s} {mname:8s} pool {r['pool']:5d} fit on {r['fit_sizes']:2d} sizes | "
                   f"measured {measured:.4f} | {r['family']:6s} {r['choice']:.4f} "
                   f"[{r['low']:.4f}, {r['high']:.4f}] {'covers' if r['covered'] else 'MISSES'} | "
-                  f"power-law-floor {floor_law:.4f} | last-value {last_value:.4f} | {r['seconds']:.0f} s", flush=True)
+                  f"power-law-floor {floor_law:.4f} | last-value {last_value:.4f} | {r['seconds']:.0f} s",
+                  flush=True)
     err = lambda key: np.mean([abs(r[key] - r["measured"]) for r in rows])  # noqa: E731
     mae_choice, mae_pow3, mae_last1 = err("choice"), err("power-law-floor"), err("last-value")
     coverage = np.mean([r["covered"] for r in rows])
     print()
-    print("| dataset | model | pool | measured | choice (family) | 90% interval | power-law-floor | last-value |")
+    print("| dataset | model | pool | measured | choice (family) | 90% interval | power-law-floor "
+          "| last-value |")
     print("|---|---|---:|---:|---:|---|---:|---:|")
     for r in rows:
         print(f"| {r['dataset']} | {r['model']} | {r['pool']} | {r['measured']:.4f} | "
@@ -152,7 +156,8 @@ def main() -> None:
           f"{mae_choice / mae_last1:.2f} (target ≤ 0.4); coverage of 90% intervals: "
           f"{coverage:.0%} (target 80–97%)")
     med = lambda key, rs: np.median([abs(r[key] - r["measured"]) for r in rs])  # noqa: E731
-    print(f"median absolute error: curvefit {med('choice', rows):.4f}, power-law-floor {med('power-law-floor', rows):.4f}, "
+    print(f"median absolute error: curvefit {med('choice', rows):.4f}, "
+          f"power-law-floor {med('power-law-floor', rows):.4f}, "
           f"last-value {med('last-value', rows):.4f}")
     # boosted trees with default leaf sizes barely learn in the small end of these pools, so
     # their curves change regime after the fitted range; shown apart, not hidden
@@ -160,8 +165,10 @@ def main() -> None:
     if rest:
         e = lambda key: np.mean([abs(r[key] - r["measured"]) for r in rest])  # noqa: E731
         print(f"without the boosted-tree cases ({len(rest)} cases): curvefit {e('choice'):.4f}, "
-              f"power-law-floor {e('power-law-floor'):.4f}, last-value {e('last-value'):.4f}; ratios {e('choice') / e('power-law-floor'):.2f} "
-              f"and {e('choice') / e('last-value'):.2f}; coverage {np.mean([r['covered'] for r in rest]):.0%}")
+              f"power-law-floor {e('power-law-floor'):.4f}, last-value {e('last-value'):.4f}; "
+              f"ratios {e('choice') / e('power-law-floor'):.2f} "
+              f"and {e('choice') / e('last-value'):.2f}; "
+              f"coverage {np.mean([r['covered'] for r in rest]):.0%}")
     cov = lambda key: np.mean([r[key] for r in rows])  # noqa: E731
     print(f"bootstrap, fitted on {args.repeats} repeats per size: coverage at the full pool "
           f"Student-t parametric with the noise floor {cov('covered'):.0%} vs plain resampling "

@@ -98,7 +98,8 @@ def main() -> None:
 
     print(f"load average before: {', '.join(f'{x:.1f}' for x in os.getloadavg())} "
           f"on {os.cpu_count()} cores (shared machine: wall times vary with load)")
-    head = f"{'learner':40s} {'true h':>7s} {'h est':>8s} {'90% interval':>16s} {'rel err':>8s} {'cover':>5s} {'cells':>6s} {'wall s':>7s}"
+    head = (f"{'learner':40s} {'true h':>7s} {'h est':>8s} {'90% interval':>16s} {'rel err':>8s} "
+            f"{'cover':>5s} {'cells':>6s} {'wall s':>7s}")
     print(head)
     for name, model, d, true_h in cases(args.quick):
         for seed in range(args.seeds):

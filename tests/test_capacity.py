@@ -21,8 +21,7 @@ from sklearn.neighbors import KNeighborsClassifier
 from sklearn.svm import LinearSVC
 
 from conftest import run_cli
-from curvefit.capacity import (CapacityEstimate, effective_capacity, phi, phi_inverse,
-                               probe_capacity)
+from curvefit.capacity import CapacityEstimate, effective_capacity, phi, phi_inverse, probe_capacity
 from curvefit.capacity.result import widen_interval
 from curvefit.capacity.vc_curve import fit_vc_curve
 from curvefit.core.curve import Curve

@@ -3,12 +3,10 @@
 import math
 
 import numpy as np
-import pandas as pd
 import pytest
 from scipy.optimize import approx_fprime
 
 from curvefit.fitting import families as F
-from curvefit.core.curve import Curve
 from curvefit.fitting.engine import fit_curve
 
 N = np.array([20.0, 50.0, 130.0, 400.0, 1500.0, 6000.0])
@@ -31,8 +29,9 @@ THETAS = {
 
 def test_catalogue_has_the_published_families():
     # Viering & Loog 2023 (IEEE TPAMI 45(6)) list these; joint-train-test is Cortes et al. 1994
-    for name in ["last-value", "power-law", "power-law-floor", "shifted-power-law", "exponential-floor", "log-decline", "inverse-log", "vapor-pressure", "morgan-mercer-flodin",
-                 "weibull", "joint-train-test"]:
+    for name in ["last-value", "power-law", "power-law-floor", "shifted-power-law",
+                 "exponential-floor", "log-decline", "inverse-log", "vapor-pressure",
+                 "morgan-mercer-flodin", "weibull", "joint-train-test"]:
         fam = F.get_family(name)
         assert fam.n_params == len(fam.lower) == len(fam.upper) == len(THETAS[name])
     with pytest.raises(KeyError):
@@ -73,13 +72,17 @@ def test_formulas_match_the_written_forms():
     a, b, c = THETAS["power-law-floor"]
     assert F.get_family("power-law-floor")(n, THETAS["power-law-floor"]) == pytest.approx(c + a * n ** -b)
     a, b, al, c = THETAS["shifted-power-law"]
-    assert F.get_family("shifted-power-law")(n, THETAS["shifted-power-law"]) == pytest.approx(c + (a * n + b) ** -al)
+    assert F.get_family("shifted-power-law")(n, THETAS["shifted-power-law"]) \
+        == pytest.approx(c + (a * n + b) ** -al)
     a, b, c = THETAS["exponential-floor"]
-    assert F.get_family("exponential-floor")(n, THETAS["exponential-floor"]) == pytest.approx(c + a * math.exp(-b * n))
+    assert F.get_family("exponential-floor")(n, THETAS["exponential-floor"]) \
+        == pytest.approx(c + a * math.exp(-b * n))
     a, b, c = THETAS["vapor-pressure"]
-    assert F.get_family("vapor-pressure")(n, THETAS["vapor-pressure"]) == pytest.approx(math.exp(a + b / n + c * math.log(n)))
+    assert F.get_family("vapor-pressure")(n, THETAS["vapor-pressure"]) \
+        == pytest.approx(math.exp(a + b / n + c * math.log(n)))
     a, b, c, d = THETAS["morgan-mercer-flodin"]
-    assert F.get_family("morgan-mercer-flodin")(n, THETAS["morgan-mercer-flodin"]) == pytest.approx((a * b + c * n ** d) / (b + n ** d))
+    assert F.get_family("morgan-mercer-flodin")(n, THETAS["morgan-mercer-flodin"]) \
+        == pytest.approx((a * b + c * n ** d) / (b + n ** d))
     a, b, c, d = THETAS["weibull"]
     assert F.get_family("weibull")(n, THETAS["weibull"]) == pytest.approx(c - b * math.exp(-a * n ** d))
     a, c = THETAS["inverse-log"]

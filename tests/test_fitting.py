@@ -18,12 +18,11 @@ from hypothesis import strategies as st
 from scipy.optimize import curve_fit
 
 from curvefit.core.curve import Curve
-
-from curvefit.core.jsonio import jsonable
 from curvefit.core.errors import FitWarning, InputError
-from curvefit.fitting.families import get_family
-from curvefit.fitting.engine import CurveFit, SampleEstimate, fit_curve
 from curvefit.core.estimate import Estimate
+from curvefit.core.jsonio import jsonable
+from curvefit.fitting.engine import CurveFit, SampleEstimate, fit_curve
+from curvefit.fitting.families import get_family
 
 
 # ------------------------------------------------------------------ measured curves
@@ -424,7 +423,8 @@ def test_lack_of_fit_keeps_families_that_miss_the_points_out(plateau_fit, nb_fit
         if len(fine):
             assert row["status"] != "poor fit", t
     # the sharp drop at ~50 samples is missed by the smooth 2- and 3-parameter laws
-    assert (plateau_fit.table.set_index("family").loc[["power-law", "power-law-floor"], "status"] == "poor fit").all()
+    status = plateau_fit.table.set_index("family").loc[["power-law", "power-law-floor"], "status"]
+    assert (status == "poor fit").all()
 
 
 def test_lack_of_fit_is_reduced_chi_square(nb_fit):

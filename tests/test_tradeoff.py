@@ -10,7 +10,6 @@ Outside references:
 import json
 import math
 
-import numpy as np
 import pandas as pd
 import pytest
 from sklearn.datasets import load_digits, load_iris
@@ -19,8 +18,8 @@ from sklearn.tree import DecisionTreeClassifier
 
 import curvefit as cf
 from conftest import run_cli
-from curvefit.core.errors import InputError
 from curvefit.capacity.tradeoff import Tradeoff, parse_vary, tradeoff
+from curvefit.core.errors import InputError
 
 
 def test_best_tree_depth_grows_with_n_on_digits():

@@ -12,6 +12,8 @@ import math
 import numpy as np
 import pandas as pd
 
+from curvefit.capacity.result import STAT_NOTE, CapacityEstimate, interval_text, lack_of_fit, widen_interval
+from curvefit.capacity.vc_curve import fit_vc_curve, phi
 from curvefit.core.curve import Curve
 from curvefit.core.defaults import BOOTSTRAP, INTERVAL, SEED
 from curvefit.core.errors import InputError
@@ -19,9 +21,6 @@ from curvefit.core.estimate import Estimate
 from curvefit.core.formatting import format_capacity, format_number
 from curvefit.core.stats import sem
 from curvefit.core.validate import check_count, check_level, check_seed
-from curvefit.capacity.result import (STAT_NOTE, CapacityEstimate, interval_text, lack_of_fit,
-                                      widen_interval)
-from curvefit.capacity.vc_curve import fit_vc_curve, phi
 
 _GAP_NOTE = ("This is the capacity the model uses on this data distribution; it can "
              "differ from the probe's distribution-free figure.")

@@ -17,14 +17,13 @@ from statistics import NormalDist
 import numpy as np
 import pandas as pd
 
+from curvefit.capacity.result import STAT_NOTE, CapacityEstimate, interval_text, lack_of_fit, widen_interval
+from curvefit.capacity.vc_curve import fit_vc_curve, phi, phi_inverse
 from curvefit.core.defaults import INTERVAL, SEED
 from curvefit.core.errors import InputError
 from curvefit.core.formatting import format_capacity, format_number
 from curvefit.core.stats import sem
 from curvefit.core.validate import check_count, check_level, check_seed
-from curvefit.capacity.result import (STAT_NOTE, CapacityEstimate, interval_text, lack_of_fit,
-                                      widen_interval)
-from curvefit.capacity.vc_curve import fit_vc_curve, phi, phi_inverse
 
 # Default largest n of the probe: 2n = 4000 training rows keeps one cell cheap.
 DEFAULT_MAX_N = 2000

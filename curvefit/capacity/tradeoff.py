@@ -18,10 +18,10 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from curvefit.capacity.probe import ProbeSettings, probe_inputs, run_probe
 from curvefit.core.defaults import SEED
 from curvefit.core.errors import InputError
 from curvefit.core.jsonio import jsonable
-from curvefit.capacity.probe import ProbeSettings, probe_inputs, run_probe
 
 TABLE_COLUMNS = ["param", "value", "size", "n_repeats", "n_failed", "train_mean", "train_sem",
                  "test_mean", "test_sem", "gap_mean"]
@@ -219,15 +219,7 @@ def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: 
     from curvefit.measuring.models import as_model_spec
     from curvefit.measuring.runner import measure
 
-    if not isinstance(vary, dict) or len(vary) != 1:
-        raise InputError("vary one parameter at a time: vary={'max_depth': [1, 2, 4]}")
-    (param, values), = vary.items()
-    values = list(values) if isinstance(values, (list, tuple, np.ndarray)) else [values]
-    if len(values) < 2:
-        raise InputError(f"give at least two values of {param} to compare")
-    labels = [value_label(v) for v in values]
-    if len(set(labels)) != len(labels):
-        raise InputError(f"a value of {param} is listed twice; list each once")
+    param, values, labels = _checked_vary(vary)
     if sizes is None or len(list(sizes)) == 0:
         raise InputError("give the sample sizes to compare at, e.g. sizes=[50, 200, 800]")
     sizes = [int(s) for s in sizes]
@@ -247,28 +239,15 @@ def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: 
         curve = measure(spec, X, y, sizes=sizes, repeats=repeats, test_size=test_size,
                         metric=metric, n_jobs=n_jobs, backend=backend, scheduler=scheduler,
                         random_state=random_state, timeout=timeout)
-        summary = curve.summary()
         failed_total += len(curve.failed_points())
-        by_size = {int(r.size): r for r in summary.itertuples()}
-        for size in sizes:
-            r = by_size.get(size)
-            n_failed = int((curve.failed_points()["size"] == size).sum())
-            if r is None:
-                rows.append({"param": param, "value": value, "size": size, "n_repeats": 0,
-                             "n_failed": n_failed, "train_mean": math.nan, "train_sem": math.nan,
-                             "test_mean": math.nan, "test_sem": math.nan, "gap_mean": math.nan})
-                continue
-            rows.append({"param": param, "value": value, "size": size,
-                         "n_repeats": int(r.n_repeats), "n_failed": n_failed,
-                         "train_mean": float(r.train_mean), "train_sem": float(r.train_sem),
-                         "test_mean": float(r.test_mean), "test_sem": float(r.test_sem),
-                         "gap_mean": float(r.gap_mean)})
+        value_rows = _size_rows(param, value, curve, sizes)
         if probe:
             est = run_probe(spec, inputs, settings)
             capacities[label] = est.to_dict()
-            for row in rows[-len(sizes):]:
+            for row in value_rows:
                 row.update({"capacity": est.vc_dim, "capacity_low": est.low,
                             "capacity_high": est.high, "capacity_above_range": est.above_range})
+        rows += value_rows
         say(f"{param}={label}: measured {len(sizes)} sizes")
     cols = TABLE_COLUMNS + (CAPACITY_COLUMNS if probe else [])
     table = pd.DataFrame(rows, columns=cols)
@@ -280,6 +259,41 @@ def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: 
             "test_size": test_size, "failed_cells": int(failed_total)}
     return Tradeoff(table=table, param=str(param), values=values, metric=str(metric),
                     capacities=capacities, meta=meta)
+
+
+def _checked_vary(vary) -> tuple[str, list, list[str]]:
+    """``(param, values, labels)`` of ``vary={"param": [v1, v2, ...]}``, checked."""
+    if not isinstance(vary, dict) or len(vary) != 1:
+        raise InputError("vary one parameter at a time: vary={'max_depth': [1, 2, 4]}")
+    (param, values), = vary.items()
+    values = list(values) if isinstance(values, (list, tuple, np.ndarray)) else [values]
+    if len(values) < 2:
+        raise InputError(f"give at least two values of {param} to compare")
+    labels = [value_label(v) for v in values]
+    if len(set(labels)) != len(labels):
+        raise InputError(f"a value of {param} is listed twice; list each once")
+    return param, values, labels
+
+
+def _size_rows(param: str, value, curve, sizes: list[int]) -> list[dict]:
+    """One table row per size for one value: means and standard errors over repeats."""
+    by_size = {int(r.size): r for r in curve.summary().itertuples()}
+    failed = curve.failed_points()
+    rows = []
+    for size in sizes:
+        r = by_size.get(size)
+        n_failed = int((failed["size"] == size).sum())
+        if r is None:
+            rows.append({"param": param, "value": value, "size": size, "n_repeats": 0,
+                         "n_failed": n_failed, "train_mean": math.nan, "train_sem": math.nan,
+                         "test_mean": math.nan, "test_sem": math.nan, "gap_mean": math.nan})
+            continue
+        rows.append({"param": param, "value": value, "size": size,
+                     "n_repeats": int(r.n_repeats), "n_failed": n_failed,
+                     "train_mean": float(r.train_mean), "train_sem": float(r.train_sem),
+                     "test_mean": float(r.test_mean), "test_sem": float(r.test_sem),
+                     "gap_mean": float(r.gap_mean)})
+    return rows
 
 
 def _all_numeric(X) -> bool:

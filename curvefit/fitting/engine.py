@@ -41,20 +41,35 @@ from curvefit.core.curve import Curve
 from curvefit.core.defaults import BOOTSTRAP, INTERVAL, SEED
 from curvefit.core.errors import FitWarning, InputError
 from curvefit.core.estimate import Estimate
-# format_count and format_error stay importable from here for the command line
-from curvefit.core.formatting import (format_count, format_error,  # noqa: F401
-                                      format_interval, format_level, format_number,
-                                      format_range)
+from curvefit.core.formatting import (
+    format_count,
+    format_error,
+    format_interval,
+    format_level,
+    format_number,
+    format_range,
+)
 from curvefit.core.validate import check_choice, check_count, check_level, check_seed
-from curvefit.fitting.answers import (EXTRAPOLATION_FACTOR, SEARCH_LIMIT,  # noqa: F401
-                                      answer_text, find_crossing, search_grid, unreachable_text)
+from curvefit.fitting.answers import (
+    EXTRAPOLATION_FACTOR,
+    answer_text,
+    find_crossing,
+    search_grid,
+    unreachable_text,
+)
 from curvefit.fitting.bootstrap import bootstrap_parameters, percentile_interval
 from curvefit.fitting.data import ON_CHOICES, WEIGHT_CHOICES, FitData, prepare_data
 from curvefit.fitting.intervals import mean_band, prediction_band
 from curvefit.fitting.least_squares import asymptote_function, exponent_function, predict_natural
-from curvefit.fitting.selection import (MIN_VALIDATION_POINTS, choose, family_list,
-                                        fit_families, holdout_count, ranking_table,
-                                        score_families)
+from curvefit.fitting.selection import (
+    MIN_VALIDATION_POINTS,
+    choose,
+    family_list,
+    fit_families,
+    holdout_count,
+    ranking_table,
+    score_families,
+)
 
 # Practical horizon for the wording of logarithmic families: the value at this multiple
 # of the largest measured size is shown beside their limit.

@@ -19,7 +19,8 @@ References
        45(6), 2023 (the family catalogue power-law … weibull, last-value).
 .. [2] T. Domhan, J. T. Springenberg and F. Hutter, "Speeding up automatic
        hyperparameter optimization of deep neural networks by extrapolation of
-       learning curves", IJCAI 2015 (vapor-pressure, morgan-mercer-flodin, weibull, shifted-power-law, inverse-log, log-decline).
+       learning curves", IJCAI 2015 (vapor-pressure, morgan-mercer-flodin, weibull,
+       shifted-power-law, inverse-log, log-decline).
 .. [3] J. Hestness et al., "Deep Learning Scaling is Predictable, Empirically",
        arXiv:1712.00409, 2017 (power law with a floor, power-law-floor).
 .. [4] C. Cortes, L. D. Jackel, S. A. Solla, V. Vapnik and J. S. Denker, "Learning
@@ -409,7 +410,8 @@ def _vapor_pressure_asymptote(t):
 
 register(Family(
     name="vapor-pressure", formula="exp(a + b/n + c·ln n)", params=("a", "b", "c"),
-    func=_vapor_pressure, jac=_vapor_pressure_jac, lower=(-INF, -INF, -MAX_EXPONENT), upper=(INF, INF, MAX_EXPONENT),
+    func=_vapor_pressure, jac=_vapor_pressure_jac,
+    lower=(-INF, -INF, -MAX_EXPONENT), upper=(INF, INF, MAX_EXPONENT),
     guesses=_vapor_pressure_guess, asymptote=_vapor_pressure_asymptote, exponent=lambda t: float(-t[2]),
     reference="Domhan et al. 2015; Viering & Loog 2023"))
 
