@@ -24,9 +24,9 @@ from sklearn.linear_model import LogisticRegression
 from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 
-from curvefit.measuring import runner
-from curvefit.history import figures as tracking
 from curvefit.fitting.engine import fit_curve
+from curvefit.history import figures as tracking
+from curvefit.measuring import runner
 
 SIZES = [25, 41, 67, 110, 182, 300]
 TOLERANCES = {"test_error_at_ref": 0.01, "samples_for_target": "25%"}

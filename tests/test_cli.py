@@ -1,9 +1,9 @@
 """The command-line shell: help, version, and usage errors as one line with exit 2."""
 
+import pytest
+
 from curvefit.cli.common import parse_list
 from curvefit.core.errors import InputError
-
-import pytest
 
 
 def test_help_lists_every_command(cli):

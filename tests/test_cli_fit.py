@@ -3,10 +3,10 @@
 import json
 
 import pytest
+from test_fitting import measured_curve
 
 from conftest import run_cli
 from curvefit import bounds
-from test_fitting import measured_curve
 
 
 @pytest.fixture(scope="module")
@@ -44,8 +44,8 @@ def test_fit_json_on_a_run_file(files):
 
 
 def test_fit_gap_with_chosen_families(files):
-    r = run_cli("fit", files["csv"], "--on", "gap", "--families", "power-law,power-law-floor", "--bootstrap", "20",
-                "--weights", "index", "--json")
+    r = run_cli("fit", files["csv"], "--on", "gap", "--families", "power-law,power-law-floor",
+                "--bootstrap", "20", "--weights", "index", "--json")
     assert r.returncode == 0, r.stderr
     doc = json.loads(r.stdout)
     assert doc["on"] == "gap"

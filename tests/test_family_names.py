@@ -9,10 +9,10 @@ import re
 import sqlite3
 
 import pytest
+from test_fitting import measured_curve
 
 from conftest import run_cli
 from curvefit.fitting.families import FAMILIES, LEGACY_NAMES, current_name, rename_legacy
-from test_fitting import measured_curve
 
 OLD_CODE = re.compile(r"(?<![\w.\-])(?:last1|pow[234]|exp3|i?log2(?!\()|vap3|mmf4|wbl4|joint5)\b")
 

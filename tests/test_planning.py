@@ -4,11 +4,11 @@ import math
 
 import numpy as np
 import pytest
+from test_fitting import measured_curve
 
 from curvefit.core.errors import InputError
 from curvefit.fitting.engine import fit_curve
 from curvefit.fitting.planning import labels_for_budget, plan_purchase
-from test_fitting import measured_curve
 
 
 @pytest.fixture(scope="module")

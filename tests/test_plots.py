@@ -15,10 +15,10 @@ from sklearn.base import BaseEstimator, ClassifierMixin
 from sklearn.linear_model import LogisticRegression
 
 import curvefit as cf
-from curvefit.report import plots
 from curvefit.capacity import CapacityEstimate, phi
 from curvefit.core.curve import Curve
 from curvefit.core.errors import FitWarning
+from curvefit.report import plots
 
 
 class FailsWhenSmall(ClassifierMixin, BaseEstimator):
@@ -39,7 +39,6 @@ class FailsWhenSmall(ClassifierMixin, BaseEstimator):
 def measured():
     """Two real curves on scikit-learn's breast_cancer data, one with failed cells."""
     from sklearn.datasets import load_breast_cancer
-    from sklearn.pipeline import make_pipeline
     from sklearn.preprocessing import StandardScaler
     from sklearn.tree import DecisionTreeClassifier
 
@@ -243,9 +242,9 @@ def test_split_kind_is_named_on_the_figure_and_in_the_report():
     # Issue 8: figures and the report say which split a curve used.
     import pandas as pd
 
-    from curvefit.report import plots
     from curvefit.core.curve import Curve
     from curvefit.report import html as report
+    from curvefit.report import plots
     from curvefit.workflows import analysis
 
     pts = pd.DataFrame({"size": [20, 20, 40, 40, 80, 80], "repeat": [0, 1] * 3,

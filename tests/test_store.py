@@ -13,11 +13,11 @@ import pandas as pd
 import pytest
 
 from conftest import ROOT, run_cli
-from curvefit.history import figures as tracking
 from curvefit.core.curve import Curve
 from curvefit.core.errors import InputError
-from curvefit.history.store import APPLICATION_ID, SCHEMA_VERSION, Store
+from curvefit.history import figures as tracking
 from curvefit.history.figures import Tolerance, compare_figure, make_figure
+from curvefit.history.store import APPLICATION_ID, SCHEMA_VERSION, Store
 
 
 def _curve(fingerprint="abc123", metric="error", shift=0.0, sizes=(50, 100, 200), repeats=2):

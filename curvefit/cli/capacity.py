@@ -15,8 +15,16 @@ from typing import List, Optional
 
 import typer
 
-from curvefit.cli.common import (emit_json, err, interval_option, level_alias, out, parse_list,
-                                 pick_interval, print_table)
+from curvefit.cli.common import (
+    emit_json,
+    err,
+    interval_option,
+    level_alias,
+    out,
+    parse_list,
+    pick_interval,
+    print_table,
+)
 from curvefit.core.defaults import SEED
 from curvefit.core.errors import InputError
 from curvefit.core.formatting import format_error, format_estimate, format_number
@@ -102,15 +110,27 @@ def register(app: typer.Typer) -> None:
             help="Run file (gap model), or with --probe the data whose feature rows are resampled."),
         probe: bool = typer.Option(False, "--probe",
                                    help="Run the max-deviation probe on --model instead of reading a run."),
-        model: Optional[str] = typer.Option(None, "--model", help="Model spec (package.module:Name or file.py:func)."),
-        param: Optional[List[str]] = typer.Option(None, "--param", help="Model parameter KEY=VALUE (repeatable)."),
-        target: Optional[str] = typer.Option(None, "--target", help="Label column of DATA, left out of the probe's inputs."),
-        features: Optional[str] = typer.Option(None, "--features", help="Feature columns a,b,c (default: all but the target)."),
-        n_features: Optional[int] = typer.Option(None, "--n-features", help="Probe on standard-normal inputs of this dimension (no DATA)."),
-        sizes: Optional[str] = typer.Option(None, "--sizes", help="Fixed probe half-sizes n (list or START:STOP:COUNT) instead of the adaptive design."),
-        repeats: Optional[int] = typer.Option(None, "--repeats", help="Base repeats per probe design point (default 10)."),
-        max_n: Optional[int] = typer.Option(None, "--max-n", help="Largest probe half-size n, 2n rows per fit (default 2000)."),
-        bootstrap: Optional[int] = typer.Option(None, "--bootstrap", help="Bootstrap replicates (default: the estimate's own)."),
+        model: Optional[str] = typer.Option(None, "--model",
+                                            help="Model spec (package.module:Name or file.py:func)."),
+        param: Optional[List[str]] = typer.Option(None, "--param",
+                                                  help="Model parameter KEY=VALUE (repeatable)."),
+        target: Optional[str] = typer.Option(None, "--target",
+                                             help="Label column of DATA, left out of the probe's inputs."),
+        features: Optional[str] = typer.Option(None, "--features",
+                                               help="Feature columns a,b,c (default: all but the target)."),
+        n_features: Optional[int] = typer.Option(None, "--n-features",
+                                                 help="Probe on standard-normal inputs of this dimension "
+                                                      "(no DATA)."),
+        sizes: Optional[str] = typer.Option(None, "--sizes",
+                                            help="Fixed probe half-sizes n (list or START:STOP:COUNT) "
+                                                 "instead of the adaptive design."),
+        repeats: Optional[int] = typer.Option(None, "--repeats",
+                                              help="Base repeats per probe design point (default 10)."),
+        max_n: Optional[int] = typer.Option(None, "--max-n",
+                                            help="Largest probe half-size n, 2n rows per fit (default "
+                                                 "2000)."),
+        bootstrap: Optional[int] = typer.Option(None, "--bootstrap",
+                                                help="Bootstrap replicates (default: the estimate's own)."),
         interval: float = interval_option(),
         level: Optional[float] = level_alias(),
         jobs: int = typer.Option(1, "--jobs", help="Parallel probe cells."),
@@ -119,7 +139,9 @@ def register(app: typer.Typer) -> None:
         seed: int = typer.Option(SEED, "--seed", help="Random seed."),
         quiet: bool = typer.Option(False, "--quiet", help="No progress on stderr."),
         json_out: bool = typer.Option(False, "--json", help="Print the estimate as JSON only."),
-        out_file: Optional[str] = typer.Option(None, "--out", help="Also save the estimate as JSON (for curvefit report --capacity)."),
+        out_file: Optional[str] = typer.Option(None, "--out",
+                                               help="Also save the estimate as JSON (for curvefit report "
+                                                    "--capacity)."),
     ):
         """Effective capacity in VC units: from a run's gap, or by the max-deviation probe."""
         from curvefit.core.jsonio import write_json

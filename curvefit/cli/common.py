@@ -111,7 +111,8 @@ def parse_list(text: str | None, kind: Callable = float, name: str = "value",
         try:
             start, stop, count = float(parts[0]), float(parts[1]), int(parts[2])
         except ValueError:
-            raise InputError(f"malformed {name} range {text!r}; use START:STOP:COUNT, e.g. 50:5000:12") from None
+            raise InputError(f"malformed {name} range {text!r}; use START:STOP:COUNT, "
+                             "e.g. 50:5000:12") from None
         if start <= 0 or stop < start or count < 1:
             raise InputError(f"{name} range {text!r} needs 0 < START <= STOP and COUNT >= 1")
         vals = np.geomspace(start, stop, count) if count > 1 else np.array([start])

@@ -8,8 +8,7 @@ from typing import Optional
 
 import typer
 
-from curvefit.cli.common import (emit_json, interval_option, level_alias, out, pick_interval,
-                                 warn)
+from curvefit.cli.common import emit_json, interval_option, level_alias, out, pick_interval, warn
 from curvefit.cli.common import print_table as _print_table
 from curvefit.core.defaults import BOOTSTRAP, SEED
 from curvefit.core.errors import FitWarning
@@ -94,7 +93,8 @@ def register(app: typer.Typer) -> None:
     @app.command("fit")
     def fit_command(
         run: str = typer.Argument(..., metavar="RUN",
-                                  help="Run file (JSON) or a curve table (CSV with size, test_error[, train_error, repeat])."),
+                                  help="Run file (JSON) or a curve table (CSV with size, "
+                                       "test_error[, train_error, repeat])."),
         on: str = typer.Option("test", "--on", help=ON_HELP),
         families: str = typer.Option("auto", "--families", help="Families to try, a,b,c (default: all)."),
         bootstrap: int = typer.Option(BOOTSTRAP, "--bootstrap", help=BOOTSTRAP_HELP),
@@ -102,7 +102,8 @@ def register(app: typer.Typer) -> None:
         interval: float = interval_option(),
         level: Optional[float] = level_alias(),
         seed: int = typer.Option(SEED, "--seed", help="Random seed of the bootstrap."),
-        out_file: Optional[str] = typer.Option(None, "--out", help="Also write the fit as JSON to this file."),
+        out_file: Optional[str] = typer.Option(None, "--out",
+                                               help="Also write the fit as JSON to this file."),
         quiet: bool = typer.Option(False, "--quiet", help="No warnings on stderr."),
         json_out: bool = typer.Option(False, "--json", help="Print the fit as JSON only."),
     ):

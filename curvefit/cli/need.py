@@ -7,13 +7,11 @@ from typing import Optional
 
 import typer
 
-from curvefit.cli.common import (emit_json, interval_option, level_alias, out, parse_list,
-                                 pick_interval, warn)
+from curvefit.cli.common import emit_json, interval_option, level_alias, out, parse_list, pick_interval, warn
 from curvefit.cli.fit import BOOTSTRAP_HELP, WEIGHTS_HELP, print_table
 from curvefit.core.defaults import BOOTSTRAP, SEED
 from curvefit.core.errors import InputError
-from curvefit.core.formatting import (format_count, format_error, format_interval,
-                                      format_level, format_range)
+from curvefit.core.formatting import format_count, format_error, format_interval, format_level, format_range
 
 
 def _print_answer(need, interval: float) -> None:
@@ -95,12 +93,19 @@ def register(app: typer.Typer) -> None:
     def need_command(
         run: str = typer.Argument(..., metavar="RUN", help="Run file (JSON) or a curve table (CSV)."),
         error: Optional[float] = typer.Option(None, "--error", help="Target test error E."),
-        gap: Optional[float] = typer.Option(None, "--gap", help="Target generalization gap G (test − train)."),
+        gap: Optional[float] = typer.Option(None, "--gap",
+                                            help="Target generalization gap G (test − train)."),
         label_cost: Optional[float] = typer.Option(None, "--label-cost", help="Price of one label."),
-        budget: Optional[float] = typer.Option(None, "--budget", help="Money to spend on labels (needs --label-cost)."),
-        current: Optional[int] = typer.Option(None, "--current", help="Labelled samples you have now (default: the largest measured size)."),
-        extra: Optional[str] = typer.Option(None, "--extra", help="Purchase amounts to price, a,b,c or START:STOP:COUNT."),
-        vc_dim: Optional[float] = typer.Option(None, "--vc-dim", help="A known VC dimension, to show the worst-case bound beside the answer."),
+        budget: Optional[float] = typer.Option(None, "--budget",
+                                               help="Money to spend on labels (needs --label-cost)."),
+        current: Optional[int] = typer.Option(None, "--current",
+                                              help="Labelled samples you have now (default: the largest "
+                                                   "measured size)."),
+        extra: Optional[str] = typer.Option(None, "--extra",
+                                            help="Purchase amounts to price, a,b,c or START:STOP:COUNT."),
+        vc_dim: Optional[float] = typer.Option(None, "--vc-dim",
+                                               help="A known VC dimension, to show the worst-case bound "
+                                                    "beside the answer."),
         families: str = typer.Option("auto", "--families", help="Families to try, a,b,c (default: all)."),
         bootstrap: int = typer.Option(BOOTSTRAP, "--bootstrap", help=BOOTSTRAP_HELP),
         weights: str = typer.Option("sem", "--weights", help=WEIGHTS_HELP),

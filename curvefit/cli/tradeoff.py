@@ -10,7 +10,7 @@ import typer
 from curvefit.cli.common import emit_json, err, out, parse_list, print_table
 from curvefit.core.defaults import SEED
 from curvefit.core.errors import InputError
-from curvefit.core.formatting import MISSING, format_capacity, format_error
+from curvefit.core.formatting import format_capacity, format_error
 
 
 def print_tradeoff(tr) -> None:
@@ -50,15 +50,21 @@ def register(app: typer.Typer) -> None:
     def tradeoff_cmd(
         data: str = typer.Argument(..., metavar="DATA", help="Data table (CSV, TSV, Parquet, NPZ)."),
         target: Optional[str] = typer.Option(None, "--target", help="Label column."),
-        model: Optional[str] = typer.Option(None, "--model", help="Model spec (package.module:Name or file.py:func)."),
-        param: Optional[List[str]] = typer.Option(None, "--param", help="Fixed model parameter KEY=VALUE (repeatable)."),
-        vary: Optional[str] = typer.Option(None, "--vary", help="The complexity parameter and its values: PARAM=V1,V2,..."),
-        features: Optional[str] = typer.Option(None, "--features", help="Feature columns a,b,c (default: all but the target)."),
+        model: Optional[str] = typer.Option(None, "--model",
+                                            help="Model spec (package.module:Name or file.py:func)."),
+        param: Optional[List[str]] = typer.Option(None, "--param",
+                                                  help="Fixed model parameter KEY=VALUE (repeatable)."),
+        vary: Optional[str] = typer.Option(None, "--vary",
+                                           help="The complexity parameter and its values: PARAM=V1,V2,..."),
+        features: Optional[str] = typer.Option(None, "--features",
+                                               help="Feature columns a,b,c (default: all but the target)."),
         sizes: Optional[str] = typer.Option(None, "--sizes", help="Sample sizes (list or START:STOP:COUNT)."),
         repeats: int = typer.Option(3, "--repeats", help="Repeats per (value, size)."),
-        test_fraction: float = typer.Option(0.25, "--test-fraction", help="Share of rows held out per repeat."),
+        test_fraction: float = typer.Option(0.25, "--test-fraction",
+                                            help="Share of rows held out per repeat."),
         metric: str = typer.Option("error", "--metric", help="Loss to measure (lower is better)."),
-        probe: bool = typer.Option(False, "--probe", help="Also probe each setting's effective VC dimension."),
+        probe: bool = typer.Option(False, "--probe",
+                                   help="Also probe each setting's effective VC dimension."),
         timeout: Optional[float] = typer.Option(None, "--timeout", help="Seconds allowed per fit."),
         jobs: int = typer.Option(1, "--jobs", help="Parallel cells."),
         backend: str = typer.Option("local", "--backend", help="local or dask."),
@@ -66,13 +72,15 @@ def register(app: typer.Typer) -> None:
         seed: int = typer.Option(SEED, "--seed", help="Random seed."),
         quiet: bool = typer.Option(False, "--quiet", help="No progress on stderr."),
         json_out: bool = typer.Option(False, "--json", help="Print the result as JSON only."),
-        out_file: Optional[str] = typer.Option(None, "--out", help="Also save the result as JSON (for curvefit report --tradeoff)."),
+        out_file: Optional[str] = typer.Option(None, "--out",
+                                               help="Also save the result as JSON (for curvefit report "
+                                                    "--tradeoff)."),
     ):
         """Train and test error against a complexity parameter; the best setting per size."""
-        from curvefit.measuring import data as cfdata
-        from curvefit.core.jsonio import write_json
-        from curvefit.measuring.models import parse_params, resolve_model
         from curvefit.capacity.tradeoff import parse_vary, tradeoff
+        from curvefit.core.jsonio import write_json
+        from curvefit.measuring import data as cfdata
+        from curvefit.measuring.models import parse_params, resolve_model
 
         if not target:
             raise InputError("no target column given; pass --target COL")

@@ -248,8 +248,11 @@ def _widen_samples(fig: Figure, fit: Any, curve: Any, target: float, interval: f
     if m is None:
         return fig
     down, up = m.estimate - m.low, m.high - m.estimate
-    n_low = fit.samples_for(test_error=target + down, interval=interval).n if down > 0 else fig.estimate
-    n_high = fit.samples_for(test_error=max(target - up, 0.0), interval=interval).n if up > 0 else fig.estimate
+    n_low, n_high = fig.estimate, fig.estimate
+    if down > 0:
+        n_low = fit.samples_for(test_error=target + down, interval=interval).n
+    if up > 0:
+        n_high = fit.samples_for(test_error=max(target - up, 0.0), interval=interval).n
     n_low = _nan_to(n_low, fig.estimate)
     n_high = math.inf if not math.isfinite(_float(n_high)) else float(n_high)
     low = min(_nan_to(fig.low, math.inf), n_low)

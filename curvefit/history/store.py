@@ -32,13 +32,13 @@ from typing import Any, Mapping, Sequence
 
 import pandas as pd
 
-from curvefit.history import figures as tracking
 from curvefit.core.curve import POINT_COLUMNS, Curve
 from curvefit.core.defaults import INTERVAL
 from curvefit.core.errors import InputError
 from curvefit.core.jsonio import jsonable
 from curvefit.core.legacy import rename_legacy
 from curvefit.core.validate import check_count, check_positive
+from curvefit.history import figures as tracking
 
 # "cfhs" (curvefit history store) as a 32-bit integer: marks the file as ours.
 APPLICATION_ID = 0x63666873
@@ -614,7 +614,8 @@ def _fingerprint(meta: Mapping[str, Any]) -> str | None:
     data = meta.get("data")
     if fp is None and isinstance(data, Mapping):
         fp = data.get("fingerprint")
-        test_fp = (meta.get("test_data") or {}).get("fingerprint") if isinstance(meta.get("test_data"), Mapping) else None
+        test_data = meta.get("test_data")
+        test_fp = test_data.get("fingerprint") if isinstance(test_data, Mapping) else None
         if fp is not None and test_fp:
             fp = f"{fp}+{test_fp}"
     if isinstance(fp, Mapping):  # a runner may keep several hashes; store them all

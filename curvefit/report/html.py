@@ -47,13 +47,22 @@ import pandas as pd
 from curvefit.core.curve import Curve
 from curvefit.core.defaults import INTERVAL
 from curvefit.core.errors import InputError
-from curvefit.core.formatting import (MISSING, format_capacity, format_count, format_error,
-                                      format_interval, format_level, format_number,
-                                      format_range, is_rate)
+from curvefit.core.formatting import (
+    MISSING,
+    format_capacity,
+    format_count,
+    format_error,
+    format_interval,
+    format_level,
+    format_number,
+    format_range,
+    is_rate,
+)
 from curvefit.core.jsonio import jsonable, write_text_atomic
 from curvefit.fitting.planning import format_money
 from curvefit.report import plots
-from curvefit.report.labels import as_items, family_name, field as field_of, is_finite, model_label
+from curvefit.report.labels import as_items, family_name, is_finite, model_label
+from curvefit.report.labels import field as field_of
 
 
 @dataclass
@@ -248,7 +257,8 @@ h3 { font-size:16px; margin:20px 0 6px; }
 p { margin:6px 0 10px; }
 .sub { color:var(--muted); font-size:13px; }
 nav { font-size:13px; margin:8px 0 0; }
-nav a { color:var(--accent); margin-right:14px; text-decoration:none; border-bottom:1px dotted var(--accent); }
+nav a { color:var(--accent); margin-right:14px; text-decoration:none;
+        border-bottom:1px dotted var(--accent); }
 .answer { background:var(--panel); border:1px solid var(--line); border-left:6px solid var(--warm);
           padding:14px 18px; margin:8px 0 14px; }
 .answer p.lead { font-size:18px; margin:4px 0 8px; }
@@ -273,7 +283,8 @@ dl.meta { display:grid; grid-template-columns:max-content 1fr; gap:3px 16px; fon
 dl.meta dt { font-weight:bold; color:var(--muted); }
 dl.meta dd { margin:0; overflow-wrap:anywhere; font-family:"DejaVu Sans Mono", monospace; font-size:12px; }
 ul.caution li { margin:4px 0; }
-footer { margin-top:36px; color:var(--muted); font-size:12px; border-top:1px solid var(--line); padding-top:8px; }
+footer { margin-top:36px; color:var(--muted); font-size:12px; border-top:1px solid var(--line);
+         padding-top:8px; }
 """
 
 CAUTIONS = [

@@ -41,11 +41,24 @@ from matplotlib.figure import Figure  # noqa: E402
 from matplotlib.ticker import FuncFormatter  # noqa: E402
 
 from curvefit.core.errors import InputError  # noqa: E402
-from curvefit.core.formatting import (format_capacity, format_count, format_error,  # noqa: E402
-                                      format_level, format_range, is_rate)
-from curvefit.report.labels import (as_items, family_name, field, is_finite,  # noqa: E402
-                                    format_param_value, metric_label, model_label,
-                                    split_label)
+from curvefit.core.formatting import (  # noqa: E402
+    format_capacity,
+    format_count,
+    format_error,
+    format_level,
+    format_range,
+    is_rate,
+)
+from curvefit.report.labels import (  # noqa: E402
+    as_items,
+    family_name,
+    field,
+    format_param_value,
+    is_finite,
+    metric_label,
+    model_label,
+    split_label,
+)
 
 # Our palette: ink blue, ember orange, heather violet, lagoon teal, moss olive. Ordered
 # so that neighbours differ in lightness (greyscale) and in the blue/yellow axis that
@@ -382,8 +395,8 @@ def gap_figure(curves: Any, lines: Any = None, *, title: str | None = None) -> F
         x = summ["size"].to_numpy(float)
         xs.extend([x.min(), x.max()])
         sem = np.nan_to_num(summ["gap_sem"].to_numpy(float))
-        ax.errorbar(x, summ["gap_mean"].to_numpy(float), yerr=sem, fmt=st["marker"], color=st["color"], ms=5.5,
-                    elinewidth=2.2, capsize=0, zorder=4, label=f"{label}: measured gap")
+        ax.errorbar(x, summ["gap_mean"].to_numpy(float), yerr=sem, fmt=st["marker"], color=st["color"],
+                    ms=5.5, elinewidth=2.2, capsize=0, zorder=4, label=f"{label}: measured gap")
         these = (lines.get(label) if isinstance(lines, Mapping)
                  else (line_items[i] if line_items and i < len(line_items) else None)) or []
         for j, (name, sx, sy) in enumerate(these):

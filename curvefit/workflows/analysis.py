@@ -37,7 +37,8 @@ from curvefit.core.errors import InputError
 from curvefit.core.formatting import format_capacity, format_number, is_rate
 from curvefit.core.jsonio import jsonable, read_json
 from curvefit.core.validate import check_count, check_level
-from curvefit.report.labels import as_items, family_name, field as field_of, is_finite, model_label
+from curvefit.report.labels import as_items, family_name, is_finite, model_label
+from curvefit.report.labels import field as field_of
 
 # Forecasts a report shows when no target was given: multiples of the largest measured size.
 FORECAST_MULTIPLES = (2, 10)
@@ -285,10 +286,9 @@ def run_labels(curves: Sequence[Curve], paths: Sequence[Any]) -> list[str]:
     >>> run_labels([c, c, c], ["a/x.json", "b/y.json", "c/y.json"])
     ['m (x)', 'm (y)', 'm (y) #2']
     """
-    labels = [model_label(c, i) for i, c in enumerate(curves)]
-    for i, lab in enumerate(labels):
-        if labels.count(lab) > 1:
-            labels[i] = f"{lab} ({Path(paths[i]).stem})"
+    models = [model_label(c, i) for i, c in enumerate(curves)]
+    labels = [f"{lab} ({Path(paths[i]).stem})" if models.count(lab) > 1 else lab
+              for i, lab in enumerate(models)]
     seen: dict[str, int] = {}
     for i, lab in enumerate(labels):  # same model and same file stem: number them
         seen[lab] = seen.get(lab, 0) + 1
