@@ -45,7 +45,7 @@ from typing import Any, Iterable, Mapping
 from curvefit.core.defaults import INTERVAL
 from curvefit.core.errors import InputError
 from curvefit.core.estimate import Estimate
-from curvefit.core.formatting import MISSING, format_estimate, format_value
+from curvefit.core.formatting import MISSING, format_error, format_estimate, format_value
 from curvefit.core.stats import clopper_pearson, t_interval
 
 LOWER, HIGHER = "lower", "higher"
@@ -212,7 +212,8 @@ def headline_figures(fit: Any, *, reference_size: int, target_error: float | Non
         figs.append(make_figure("asymptote", asym.estimate, lo, hi, interval, note=note))
     if target_error is not None:
         sample = fit.samples_for(test_error=float(target_error), interval=interval)
-        fig = samples_figure(sample, target_error, interval)
+        fig = samples_figure(sample, target_error, interval,
+                             metric=curve.metric if curve is not None else "error")
         if curve is not None and math.isfinite(fig.estimate) and len(curve.sizes):
             fig = _widen_samples(fig, fit, curve, float(target_error), interval)
             fig = _check_below_range(fig, curve, float(target_error))
@@ -276,7 +277,8 @@ def _check_below_range(fig: Figure, curve: Any, target: float) -> Figure:
     if fig.estimate < smallest and first > target:
         return Figure(fig.name, fig.estimate, fig.low, fig.high, fig.level, None,
                       f"{fig.note}; not gated: the fit answers below the smallest measured "
-                      f"size ({int(smallest)}) where the measured error {first:.3g} is above the target")
+                      f"size ({int(smallest)}) where the measured error "
+                      f"{format_error(first, curve.metric)} is above the target")
     return fig
 
 
@@ -385,13 +387,22 @@ def _family(fig: Figure) -> str | None:
     return None
 
 
-def samples_figure(sample_estimate: Any, target_error: float, interval: float = INTERVAL) -> Figure:
-    """``samples_for_target`` from a `SampleEstimate`; ``inf`` when unreachable."""
+def samples_figure(sample_estimate: Any, target_error: float, interval: float = INTERVAL,
+                   metric: str = "error") -> Figure:
+    """``samples_for_target`` from a `SampleEstimate`; ``inf`` when unreachable.
+
+    Examples
+    --------
+    >>> class Answer:
+    ...     n, low, high, reachable = 800.0, 700.0, 950.0, True
+    >>> samples_figure(Answer(), 0.05).note
+    'target 5.0%'
+    """
     reachable = bool(getattr(sample_estimate, "reachable", True))
     n = _float(getattr(sample_estimate, "n", math.nan))
     lo = _float(getattr(sample_estimate, "low", math.nan))
     hi = _float(getattr(sample_estimate, "high", math.nan))
-    note = f"target {target_error:g}"
+    note = f"target {format_error(target_error, metric)}"
     if not reachable or not math.isfinite(n):
         # Unreachable: the need is unbounded; keep the lower end if the fit gave one.
         n, hi = math.inf, math.inf

@@ -466,7 +466,7 @@ def _curves_section(page: _Page) -> str:
     fig = plots.learning_curve_figure(
         {r.label: r.curve for r in res}, {r.label: r.fit for r in res},
         target_error=page.target_error, answers={r.label: r.answer for r in res},
-        interval=page.interval, confidence=page.interval)
+        interval=page.interval)
     body = [page.figure("learning-curve", fig, "learning curves: error against labelled samples",
                         f"Filled markers: mean test error over repeats (thick bar ± one standard "
                         f"error); thin capped bars: exact {level} interval of one repeat's "

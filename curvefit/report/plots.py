@@ -40,6 +40,7 @@ import pandas as pd  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
 from matplotlib.ticker import FuncFormatter  # noqa: E402
 
+from curvefit.core.defaults import INTERVAL  # noqa: E402
 from curvefit.core.errors import InputError  # noqa: E402
 from curvefit.core.formatting import (  # noqa: E402
     format_capacity,
@@ -189,7 +190,7 @@ def _answer_of(answer: Any) -> dict | None:
 
 @_styled
 def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float | None = None,
-                          answers: Any = None, interval: float = 0.9, confidence: float = 0.9,
+                          answers: Any = None, interval: float = INTERVAL,
                           show_train: bool = True, title: str | None = None) -> Figure:
     """Train and test error against training-set size, with fits extrapolated to a target.
 
@@ -206,9 +207,8 @@ def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float 
         The labelled samples needed for the target; marked on the target line with its
         interval.
     interval : float
-        Level of the forecast band (read from ``fit.predict``).
-    confidence : float
-        Level of the exact test-set interval drawn at each measured size.
+        Level of the forecast band (read from ``fit.predict``) and of the exact
+        test-set interval drawn at each measured size.
     show_train : bool
         Also draw the training error (hollow markers, dotted).
 
@@ -233,7 +233,7 @@ def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float 
         label = label or model_label(curve, i)
         metric = metric or getattr(curve, "metric", None)
         st = style(i)
-        summ = curve.summary(confidence) if len(curve.ok_points()) else pd.DataFrame()
+        summ = curve.summary(interval) if len(curve.ok_points()) else pd.DataFrame()
         fit = (fits.get(label) if isinstance(fits, Mapping)
                else (fit_items[i] if fit_items and i < len(fit_items) else None))
         ans = (answers.get(label) if isinstance(answers, Mapping)
@@ -476,7 +476,7 @@ def probe_figure(capacity: Any, *, title: str | None = None) -> Figure:
                         label=f"Φ(n/h), h = {format_capacity(h)}")
                 lo, hi = field(capacity, "low"), field(capacity, "high")
                 if is_finite(lo) and is_finite(hi) and float(lo) > 0:
-                    level = field(capacity, "level", 0.9) or 0.9
+                    level = field(capacity, "level", INTERVAL) or INTERVAL
                     ax.fill_between(grid, phi(grid / float(lo)), phi(grid / float(hi)),
                                     color=PALETTE[1], alpha=0.16, linewidth=0,
                                     label=f"{format_level(level)} interval of h: "

@@ -149,7 +149,7 @@ def _write_fits(path: Path, target: float | None, results: list[ModelResult]) ->
 
 def _plan(best: ModelResult, out_dir: Path):
     """Price the label purchases for the best model; write plan.csv and plan.json."""
-    from curvefit.fitting.planning import plan_purchase
+    from curvefit.fitting.planning import format_money, plan_purchase
 
     have = int(best.curve.sizes.max())
     plan = run_step(lambda: plan_purchase(best.fit, current_n=have, extra=EXTRA_LABELS,
@@ -162,7 +162,7 @@ def _plan(best: ModelResult, out_dir: Path):
         "model": best.label, "current_n": have, "cost_per_label": COST_PER_LABEL,
         "rows": plan.to_dict(orient="records")}, what="plan")
     note = (f"Starting from the {have:,} labelled samples measured, at an invented cost of "
-            f"{COST_PER_LABEL:.2f} per label; expected test error with its "
+            f"{format_money(COST_PER_LABEL)} per label; expected test error with its "
             f"{format_level(INTERVAL)} interval.")
     return plan, plan_csv, plan_json, note
 
