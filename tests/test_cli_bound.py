@@ -15,9 +15,10 @@ def _json(proc):
 
 
 def test_samples_single_value_json_and_text():
-    # Textbook worked example of the VC sample-complexity bound, from memory:
-    # d_vc = 3, eps = delta = 0.1 -> exact root 29,299.4; first fixed-point step from
-    # N = 1,000 about 21,000. Rule of thumb 10 x d_vc (common practice).
+    # Worked example of the VC sample-complexity bound (docs/references.md
+    # #vc-sample-size-worked-example): d_vc = 3, eps = delta = 0.1 -> exact root 29,299.4;
+    # first fixed-point step from N = 1,000 about 21,000. Rule of thumb 10 x d_vc
+    # (docs/references.md#rule-of-thumb).
     row = _json(run_cli("bound", "samples", "--vc-dim", "3", "--eps", "0.1", "--delta", "0.1",
                         "--trace", "--json"))
     assert row["n_samples"] == 29300
@@ -29,7 +30,8 @@ def test_samples_single_value_json_and_text():
 
 
 def test_samples_list_makes_a_table():
-    # REFERENCES.md check values [C]: d = 4, 5 at eps = delta = 0.1 -> 38,997.2 and 48,915.1.
+    # docs/references.md#vc-sample-size-check-values: d = 4, 5 at eps = delta = 0.1
+    # -> 38,997.2 and 48,915.1.
     text = run_cli("bound", "samples", "--vc-dim", "3,4,5", "--eps", "0.1", "--delta", "0.1")
     assert text.returncode == 0, text.stderr
     rows = [ln.split() for ln in text.stdout.splitlines() if ln.split()[:1] in (["3"], ["4"], ["5"])]
@@ -40,7 +42,7 @@ def test_samples_list_makes_a_table():
 
 
 def test_error_bar_values():
-    # Textbook worked example, from memory: d_vc = 1, delta = 0.1 -> 0.848 at N = 100,
+    # Worked example (docs/references.md#vc-error-bar): d_vc = 1, delta = 0.1 -> 0.848 at N = 100,
     # 0.301 at N = 1,000.
     rows = _json(run_cli("bound", "error-bar", "--n", "100,1000", "--vc-dim", "1",
                          "--delta", "0.1", "--json"))

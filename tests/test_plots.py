@@ -169,8 +169,8 @@ def test_probe_figure_draws_phi_and_interval():
     ax = fig.axes[0]
     line = next(ln for ln in ax.get_lines() if ln.get_label().startswith("Φ(n/h)"))
     x, y = line.get_xdata(), line.get_ydata()
-    # Φ(1) ≈ 0.722 and Φ(2) ≈ 0.493 (check values in REFERENCES.md, computed independently
-    # from the formula of Vapnik, Levin & LeCun 1994)
+    # Φ(1) ≈ 0.722 and Φ(2) ≈ 0.493 (docs/references.md#phi-check-values, computed
+    # independently from the formula of Vapnik, Levin & LeCun 1994)
     assert np.interp(h * 1.0, x, y) == pytest.approx(0.722, abs=0.01)
     assert np.interp(h * 2.0, x, y) == pytest.approx(0.493, abs=0.01)
     assert len(ax.collections) >= 2  # error bars and the band of h's interval
@@ -215,7 +215,7 @@ def test_tradeoff_figure_marks_best_per_size():
 def test_worst_case_figure_bars_are_the_given_sizes():
     from curvefit import bounds
 
-    # d=4, eps=delta=0.1 -> 38,997.2 (check value in REFERENCES.md, computed independently)
+    # d=4, eps=delta=0.1 -> 38,997.2 (docs/references.md#vc-sample-size-check-values)
     vc = bounds.vc_sample_size(4, 0.1, 0.1).n_samples
     assert vc == pytest.approx(38998, abs=1)
     rows = [{"label": "VC bound", "n": vc, "kind": "bound"},
