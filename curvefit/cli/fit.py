@@ -38,7 +38,7 @@ def read_and_fit(run: str, *, on: str = "test", families: str = "auto",
 
 def _print_ranking(fit) -> None:
     sizes = fit.sizes
-    held = fit.to_dict()["settings"]["holdout"]
+    held = fit.n_holdout
     out.print(f"{QUANTITY[fit.on]} of {len(sizes)} sizes, {sizes.min():,.0f}–{sizes.max():,.0f} "
               "labelled samples", markup=False)
     out.print(f"ranking (rolling forecast error over the {held} largest size{'s' if held != 1 else ''}; "
