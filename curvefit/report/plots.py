@@ -223,81 +223,25 @@ def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float 
     (Clopper–Pearson) interval of a single repeat's finite test set.
     """
     items = as_items(curves)
-    fit_items = [f for _, f in as_items(fits)] if not isinstance(fits, Mapping) else None
-    ans_items = [a for _, a in as_items(answers)] if not isinstance(answers, Mapping) else None
     fig, ax = _new_axes()
     metric = None
-    xmin, xmax = math.inf, 0.0
+    span = [math.inf, 0.0]  # smallest and largest size drawn, for the axis limits
     any_data = False
     for i, (label, curve) in enumerate(items):
         label = label or model_label(curve, i)
         metric = metric or getattr(curve, "metric", None)
         st = style(i)
         summ = curve.summary(interval) if len(curve.ok_points()) else pd.DataFrame()
-        fit = (fits.get(label) if isinstance(fits, Mapping)
-               else (fit_items[i] if fit_items and i < len(fit_items) else None))
-        ans = (answers.get(label) if isinstance(answers, Mapping)
-               else (ans_items[i] if ans_items and i < len(ans_items) else None))
-        if len(summ):
-            any_data = True
-            x = summ["size"].to_numpy(float)
-            xmin, xmax = min(xmin, x.min()), max(xmax, x.max())
-            y = summ["test_mean"].to_numpy(float)
-            sem = summ["test_sem"].to_numpy(float)
-            lo, hi = summ["test_low"].to_numpy(float), summ["test_high"].to_numpy(float)
-            has_exact = np.isfinite(lo) & np.isfinite(hi)
-            if has_exact.any():
-                ax.errorbar(x[has_exact], y[has_exact],
-                            yerr=[np.clip(y - lo, 0, None)[has_exact],
-                                  np.clip(hi - y, 0, None)[has_exact]],
-                            fmt="none", ecolor=st["color"], elinewidth=0.8, capsize=2.5,
-                            alpha=0.75, zorder=3)
-            semv = np.where(np.isfinite(sem), sem, 0.0)
-            ax.errorbar(x, y, yerr=semv, fmt=st["marker"], color=st["color"], ms=5.5,
-                        elinewidth=2.6, capsize=0, zorder=4, label=f"{label}: test")
-            if show_train and summ["train_mean"].notna().any():
-                t = summ["train_mean"].to_numpy(float)
-                ax.plot(x, t, marker=st["marker"], ms=5, mfc="white", mec=st["color"],
-                        color=st["color"], linestyle=(0, (1, 1.5)), linewidth=1.1,
-                        label=f"{label}: train", zorder=4)
-        # fitted families, extrapolated far enough to show the answer
-        a = _answer_of(ans)
-        if fit is not None and len(summ):
-            top = float(summ["size"].max())  # this model's own largest size, not the running max
-            right = top * 4
-            if a and is_finite(a["high"]):
-                right = max(right, a["high"] * 1.3)
-            elif a and is_finite(a["n"]):
-                right = max(right, a["n"] * 1.5)
-            right = min(right, top * 1e3)
-            left = float(summ["size"].min()) if len(summ) else xmin
-            grid = np.geomspace(left, right, 160)
-            lines = _fit_lines(fit, grid, interval)
-            if lines is not None:
-                xmax = max(xmax, right)
-                name = lines.best or "fit"
-                band = np.isfinite(lines.low) & np.isfinite(lines.high)
-                if band.any():
-                    ax.fill_between(lines.size, lines.low, lines.high, where=band,
-                                    color=st["color"], alpha=0.14, linewidth=0, zorder=1,
-                                    label=f"{label}: {format_level(interval)} band ({name})")
-                ax.plot(lines.size, lines.estimate, color=st["color"], linewidth=1.8,
-                        linestyle="-", zorder=2, label=f"{label}: fit, {name}")
-                if lines.runner_up_estimate is not None:
-                    ax.plot(lines.size, lines.runner_up_estimate, color=st["color"],
-                            linewidth=1.1, linestyle=(0, (5, 2)), alpha=0.9, zorder=2,
-                            label=f"{label}: runner-up, {lines.runner_up}")
+        if not len(summ):
+            continue
+        any_data = True
+        _draw_measured(ax, summ, st, label, show_train, span)
+        a = _answer_of(_matching(answers, label, i))
+        fit = _matching(fits, label, i)
+        if fit is not None:
+            _draw_fit(ax, fit, summ, a, st, label, interval, span)
         if a and target_error is not None and a["reachable"] and is_finite(a["n"]):
-            n = a["n"]
-            if is_finite(a["low"]) and is_finite(a["high"]):
-                ax.plot([a["low"], a["high"]], [target_error, target_error], color=st["color"],
-                        linewidth=4.5, alpha=0.45, solid_capstyle="butt", zorder=5)
-            ax.plot([n], [target_error], marker=st["marker"], ms=9, mfc=st["color"],
-                    mec="white", mew=1.2, linestyle="none", zorder=6)
-            ax.annotate(f"n ≈ {format_count(n)}", (n, target_error), xytext=(0, 9 + 11 * i),
-                        textcoords="offset points", ha="center", fontsize=8.5,
-                        color=st["color"], fontweight="bold")
-            xmax = max(xmax, a["high"] if is_finite(a["high"]) else n)
+            _draw_answer(ax, a, target_error, st, i, span)
     if target_error is not None:
         ax.axhline(target_error, color=TARGET_COLOUR, linewidth=1.0, linestyle=(0, (4, 2, 1, 2)),
                    zorder=2)
@@ -310,7 +254,7 @@ def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float 
                 ha="center", va="center", color=NEUTRAL)
     else:
         ax.set_xscale("log")
-        ax.set_xlim(xmin / 1.25, xmax * 1.25)
+        ax.set_xlim(span[0] / 1.25, span[1] * 1.25)
         ax.xaxis.set_major_formatter(_count_formatter)
         ax.xaxis.set_minor_formatter(FuncFormatter(lambda v, _p: ""))
     ax.set_xlabel(f"labelled samples (training-set size, log scale) · {_split_caption(items)}")
@@ -318,6 +262,79 @@ def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float 
     ax.set_title(title or "Learning curve")
     _legend_outside(ax)
     return fig
+
+
+def _matching(items: Any, label: str, i: int):
+    """The entry of ``items`` (a dict by label, a list by position, or one item) for a curve."""
+    if isinstance(items, Mapping):
+        return items.get(label)
+    listed = [v for _, v in as_items(items)]
+    return listed[i] if i < len(listed) else None
+
+
+def _draw_measured(ax, summ: pd.DataFrame, st: dict, label: str, show_train: bool,
+                   span: list) -> None:
+    """Mean test error (± one s.e.), the exact test-set interval, and the training error."""
+    x = summ["size"].to_numpy(float)
+    span[0], span[1] = min(span[0], x.min()), max(span[1], x.max())
+    y = summ["test_mean"].to_numpy(float)
+    sem = summ["test_sem"].to_numpy(float)
+    lo, hi = summ["test_low"].to_numpy(float), summ["test_high"].to_numpy(float)
+    exact = np.isfinite(lo) & np.isfinite(hi)
+    if exact.any():
+        ax.errorbar(x[exact], y[exact],
+                    yerr=[np.clip(y - lo, 0, None)[exact], np.clip(hi - y, 0, None)[exact]],
+                    fmt="none", ecolor=st["color"], elinewidth=0.8, capsize=2.5,
+                    alpha=0.75, zorder=3)
+    ax.errorbar(x, y, yerr=np.where(np.isfinite(sem), sem, 0.0), fmt=st["marker"],
+                color=st["color"], ms=5.5, elinewidth=2.6, capsize=0, zorder=4,
+                label=f"{label}: test")
+    if show_train and summ["train_mean"].notna().any():
+        ax.plot(x, summ["train_mean"].to_numpy(float), marker=st["marker"], ms=5, mfc="white",
+                mec=st["color"], color=st["color"], linestyle=(0, (1, 1.5)), linewidth=1.1,
+                label=f"{label}: train", zorder=4)
+
+
+def _draw_fit(ax, fit: Any, summ: pd.DataFrame, a: dict | None, st: dict, label: str,
+              interval: float, span: list) -> None:
+    """The chosen family with its band and the runner-up, extrapolated to show the answer."""
+    top = float(summ["size"].max())  # this model's own largest size, not the running max
+    right = top * 4
+    if a and is_finite(a["high"]):
+        right = max(right, a["high"] * 1.3)
+    elif a and is_finite(a["n"]):
+        right = max(right, a["n"] * 1.5)
+    right = min(right, top * 1e3)
+    lines = _fit_lines(fit, np.geomspace(float(summ["size"].min()), right, 160), interval)
+    if lines is None:
+        return
+    span[1] = max(span[1], right)
+    name = lines.best or "fit"
+    band = np.isfinite(lines.low) & np.isfinite(lines.high)
+    if band.any():
+        ax.fill_between(lines.size, lines.low, lines.high, where=band, color=st["color"],
+                        alpha=0.14, linewidth=0, zorder=1,
+                        label=f"{label}: {format_level(interval)} band ({name})")
+    ax.plot(lines.size, lines.estimate, color=st["color"], linewidth=1.8, linestyle="-",
+            zorder=2, label=f"{label}: fit, {name}")
+    if lines.runner_up_estimate is not None:
+        ax.plot(lines.size, lines.runner_up_estimate, color=st["color"], linewidth=1.1,
+                linestyle=(0, (5, 2)), alpha=0.9, zorder=2,
+                label=f"{label}: runner-up, {lines.runner_up}")
+
+
+def _draw_answer(ax, a: dict, target_error: float, st: dict, i: int, span: list) -> None:
+    """The samples needed, marked on the target line with its interval."""
+    n = a["n"]
+    if is_finite(a["low"]) and is_finite(a["high"]):
+        ax.plot([a["low"], a["high"]], [target_error, target_error], color=st["color"],
+                linewidth=4.5, alpha=0.45, solid_capstyle="butt", zorder=5)
+    ax.plot([n], [target_error], marker=st["marker"], ms=9, mfc=st["color"],
+            mec="white", mew=1.2, linestyle="none", zorder=6)
+    ax.annotate(f"n ≈ {format_count(n)}", (n, target_error), xytext=(0, 9 + 11 * i),
+                textcoords="offset points", ha="center", fontsize=8.5,
+                color=st["color"], fontweight="bold")
+    span[1] = max(span[1], a["high"] if is_finite(a["high"]) else n)
 
 
 _KIND_ORDER = ["test", "train", "measured", "fit", "runner-up", "VC", "power", "band"]
