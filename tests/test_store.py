@@ -15,6 +15,7 @@ import pytest
 from conftest import ROOT, run_cli
 from curvefit.core.curve import Curve
 from curvefit.core.errors import InputError
+from curvefit.core.estimate import Estimate
 from curvefit.history import figures as tracking
 from curvefit.history.figures import Tolerance, compare_figure, make_figure
 from curvefit.history.store import APPLICATION_ID, SCHEMA_VERSION, Store
@@ -151,7 +152,7 @@ def test_exponent_direction_slower_decay_is_worse():
     assert compare_figure(slow, fast, Tolerance(0.2, relative=True)).status == "regressed"
     assert compare_figure(fast, slow, Tolerance(0.2, relative=True)).status == "improved"
     # CurveFit.exponent is b in a*n^(-b), i.e. -beta of Hestness et al. 2017: kept as is
-    f = tracking.decay_figure(tracking.Estimate(0.35, 0.30, 0.40))
+    f = tracking.decay_figure(Estimate(0.35, 0.30, 0.40))
     assert (f.estimate, f.low, f.high) == pytest.approx((0.35, 0.30, 0.40))
     assert f.better == "higher"
 
@@ -414,8 +415,6 @@ def test_measurement_interval_matches_scipy_exact_and_t():
 
 
 def test_headline_interval_widened_to_measurement_noise():
-    from curvefit.core.estimate import Estimate
-
     rows = [{"size": s, "repeat": r, "test_error": e, "n_test": 100, "n_test_errors": e * 100}
             for s, es in [(100, (0.10, 0.14)), (400, (0.05, 0.07))] for r, e in enumerate(es)]
     c = Curve.from_table(pd.DataFrame(rows))
@@ -442,9 +441,9 @@ def test_headline_interval_widened_to_measurement_noise():
 
 
 def test_exponents_of_different_families_are_not_gated():
-    a = tracking.decay_figure(tracking.Estimate(0.5, 0.45, 0.55), family="power-law-floor")
-    b = tracking.decay_figure(tracking.Estimate(0.1, 0.05, 0.15), family="morgan-mercer-flodin")
-    c = tracking.decay_figure(tracking.Estimate(0.1, 0.05, 0.15), family="power-law-floor")
+    a = tracking.decay_figure(Estimate(0.5, 0.45, 0.55), family="power-law-floor")
+    b = tracking.decay_figure(Estimate(0.1, 0.05, 0.15), family="morgan-mercer-flodin")
+    c = tracking.decay_figure(Estimate(0.1, 0.05, 0.15), family="power-law-floor")
     tol = Tolerance(0.2, relative=True)
     assert compare_figure(b, a, tol).status == "info"
     assert compare_figure(c, a, tol).status == "regressed"
@@ -457,8 +456,6 @@ def test_exponents_of_different_families_are_not_gated():
 
 
 def test_exponent_not_gated_with_two_repeats():
-    from curvefit.core.estimate import Estimate
-
     def fit_on(repeats):
         rows = [{"size": s, "repeat": r, "test_error": 1 / s} for s in (10, 20, 40) for r in range(repeats)]
 
@@ -479,14 +476,12 @@ def test_exponent_not_gated_with_two_repeats():
     three = {f.name: f for f in tracking.headline_figures(fit_on(3), reference_size=40)}
     assert two["decay_exponent"].better is None and "not gated" in two["decay_exponent"].note
     assert three["decay_exponent"].better == "higher"
-    slow = tracking.decay_figure(tracking.Estimate(0.1, 0.05, 0.15), family="power-law-floor")
+    slow = tracking.decay_figure(Estimate(0.1, 0.05, 0.15), family="power-law-floor")
     assert compare_figure(slow, two["decay_exponent"], Tolerance(0.2, True)).status == "info"
     assert compare_figure(slow, three["decay_exponent"], Tolerance(0.2, True)).status == "regressed"
 
 
 def test_samples_answer_below_measured_range_is_not_gated():
-    from curvefit.core.estimate import Estimate
-
     class Answer:
         n, low, high, reachable, message = 1.0, 1.0, 1.0, True, ""
 
