@@ -34,9 +34,9 @@ def test_worked_example_d3_root_and_first_fixed_point_step():
 
 
 @pytest.mark.parametrize("d, eps, delta, root", [
-    (4, 0.1, 0.1, 38997.2),    # REFERENCES.md check value [C], polynomial growth bound
-    (5, 0.1, 0.1, 48915.1),    # REFERENCES.md check value [C]
-    (10, 0.05, 0.05, 452956.9),  # REFERENCES.md check value [C]
+    (4, 0.1, 0.1, 38997.2),    # docs/references.md#vc-sample-size-check-values, polynomial growth bound
+    (5, 0.1, 0.1, 48915.1),    # docs/references.md#vc-sample-size-check-values
+    (10, 0.05, 0.05, 452956.9),  # docs/references.md#vc-sample-size-check-values
 ])
 def test_reference_check_values(d, eps, delta, root):
     r = bounds.vc_sample_size(d, eps, delta, trace=True)
@@ -79,7 +79,8 @@ def test_sauer_growth_gives_smaller_sizes_than_polynomial():
 
 def test_worst_case_is_orders_of_magnitude_above_the_rule_of_thumb():
     # Rule of thumb, common practice: about 10 x d_vc samples are often enough;
-    # worst-case bounds are one to two orders of magnitude more conservative (REFERENCES.md).
+    # worst-case bounds are one to two orders of magnitude more conservative
+    # (docs/references.md#rule-of-thumb).
     assert bounds.rule_of_thumb_samples(3) == 30
     assert bounds.rule_of_thumb_samples(4, factor=20) == 80
     ratio = bounds.vc_sample_size(3, 0.1, 0.1).n_samples / bounds.rule_of_thumb_samples(3)

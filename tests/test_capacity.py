@@ -3,7 +3,7 @@
 Outside references used here:
 - Φ check values: Vapnik, Levin & LeCun 1994, "Measuring the VC-dimension of a
   learning machine", Neural Computation 6(5), values computed independently ([C] in
-  REFERENCES.md).
+  docs/references.md#phi-check-values).
 - Linear threshold classifiers with a bias in R^d have VC dimension d+1 (Vapnik &
   Chervonenkis 1971; Cover 1965, IEEE Trans. Electronic Computers EC-14(3)).
 - 1-nearest-neighbour memorises any labelling of distinct points (common practice),
@@ -32,12 +32,12 @@ from curvefit.core.errors import InputError
 @pytest.mark.parametrize("tau, expected", [(1.0, 0.722), (2.0, 0.493), (10.0, 0.194),
                                            (30.0, 0.105)])
 def test_phi_check_values(tau, expected):
-    # Check values [C] of REFERENCES.md for Φ of Vapnik, Levin & LeCun 1994.
+    # Check values of docs/references.md#phi-check-values for Φ of Vapnik, Levin & LeCun 1994.
     assert phi(tau) == pytest.approx(expected, abs=6e-4)
 
 
 def test_phi_flat_continuous_and_decreasing():
-    # Φ = 1 below τ = 0.5 and k = 0.14928 makes it continuous there (REFERENCES.md [C]).
+    # Φ = 1 below τ = 0.5 and k = 0.14928 makes it continuous there (docs/references.md#phi).
     assert phi(np.array([0.01, 0.2, 0.49])).tolist() == [1.0, 1.0, 1.0]
     assert phi(0.5) == pytest.approx(1.0, abs=1e-4)
     t = np.geomspace(0.5, 1e4, 400)

@@ -2,8 +2,8 @@
 
 import pytest
 
-from curvefit.cli.common import parse_list
 from curvefit.core.errors import InputError
+from curvefit.core.validate import parse_list
 
 
 def test_help_lists_every_command(cli):

@@ -93,13 +93,20 @@ def test_foreign_keys_declared(store):
     assert refs == {"runs": {"series"}, "points": {"runs"}, "fits": {"runs"}, "headline": {"runs"}}
 
 
-def test_record_refuses_to_compute_figures(store):
-    class Fit:
-        def predict(self, n, interval=0.9):
-            raise AssertionError("the store must not compute")
+def test_record_with_a_fit_stores_the_figures_of_history_figures(store):
+    # the documented one-call form Store.record(curve, fit, series=...) keeps working;
+    # its figures are those of history.figures.headline_figures at the reference size
+    from curvefit.fitting import fit_curve
 
-    with pytest.raises(InputError, match="does not compute"):
-        store.record(_curve(), Fit(), series="s")
+    curve = _curve(sizes=(50, 100, 200, 400, 800), repeats=3)
+    fit = fit_curve(curve, bootstrap=20)
+    rid = store.record(curve, fit, series="s", target_error=0.03)
+    ref = store.series_config("s")["reference_size"]
+    want = tracking.headline_figures(fit, reference_size=ref, target_error=0.03, curve=curve)
+    got = store.headline(rid)
+    assert {f.name for f in want} == set(got)
+    for f in want:
+        assert got[f.name].estimate == pytest.approx(f.estimate)
 
 
 def test_reference_size_is_fixed_per_series(store):

@@ -68,7 +68,7 @@ class CapacityEstimate:
         """Plain JSON-ready dict (inf and NaN become None)."""
         design = self.design.astype(object).where(self.design.notna(), None)
         return jsonable({
-            "format": "curvefit.capacity.vc_model/1",  # the saved-file format keeps its name
+            "format": "curvefit.capacity/1",
             "vc_dim": self.vc_dim, "low": self.low, "high": self.high, "level": self.level,
             "method": self.method, "above_range": bool(self.above_range),
             "scale": self.scale,

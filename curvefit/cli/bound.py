@@ -15,9 +15,10 @@ from typing import Optional
 
 import typer
 
-from curvefit.cli.common import emit_json, out, parse_list, print_table
+from curvefit.cli.common import emit_json, out, print_table
 from curvefit.core.errors import InputError
 from curvefit.core.formatting import format_number
+from curvefit.core.validate import parse_list
 
 WORST_CASE_NOTE = ("Worst-case bounds: they hold for every data distribution and are "
                    "typically far larger than what is needed in practice.")

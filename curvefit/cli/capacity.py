@@ -15,19 +15,11 @@ from typing import List, Optional
 
 import typer
 
-from curvefit.cli.common import (
-    emit_json,
-    err,
-    interval_option,
-    level_alias,
-    out,
-    parse_list,
-    pick_interval,
-    print_table,
-)
+from curvefit.cli.common import emit_json, err, interval_option, level_alias, out, pick_interval, print_table
 from curvefit.core.defaults import SEED
 from curvefit.core.errors import InputError
 from curvefit.core.formatting import format_error, format_estimate, format_number
+from curvefit.core.validate import parse_list
 
 
 def _print_probe_design(est) -> None:

@@ -37,7 +37,7 @@ def _print_target(res) -> None:
 
 
 def _print_plan(res) -> None:
-    from curvefit.fitting.planning import format_money
+    from curvefit.core.formatting import format_money
 
     if res.plan is None or not len(res.plan):
         return

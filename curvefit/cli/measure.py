@@ -7,27 +7,15 @@ list of ``"K=V"``, ``data = "table.csv"``); options on the command line win.
 
 from __future__ import annotations
 
-import shlex
-import sys
-import warnings
 from pathlib import Path
 from typing import List, Optional
 
 import typer
 
-from curvefit.cli.common import emit_json, out, parse_list, print_table, read_toml, resolve_job_paths, warn
+from curvefit.cli.common import emit_json, out, print_table, warn
 from curvefit.core import defaults
 from curvefit.core.errors import InputError
-
-# built-in values of the options a config file may set
-DEFAULTS = {
-    "data": None, "target": None, "model": None, "param": None, "command": None,
-    "features": None, "test": None, "sizes": None, "repeats": defaults.REPEATS,
-    "test_fraction": defaults.TEST_FRACTION, "metric": "error", "encode": "auto", "jobs": 1,
-    "backend": "local", "scheduler": None, "seed": defaults.SEED, "timeout": None,
-    "resume": False, "out": "run.json", "quiet": False,
-    "json": False, "groups": None, "order": None, "size_unit": "rows",
-}
+from curvefit.workflows.jobs import MEASURE_DEFAULTS, measure_from_settings, read_toml, resolve_job_paths
 
 
 def _read_config(path: str) -> dict:
@@ -36,39 +24,11 @@ def _read_config(path: str) -> dict:
     conf = {}
     for key, value in doc.items():
         name = str(key).replace("-", "_")
-        if name not in DEFAULTS:
+        if name not in MEASURE_DEFAULTS:
             raise InputError(f"unknown key {key!r} in config {path}; keys are the long option "
                              f"names of curvefit measure, e.g. target, model, sizes")
         conf[name] = value
     return resolve_job_paths(conf, p)
-
-
-def _params(config_value, cli_items) -> dict:
-    from curvefit.measuring.models import parse_params
-
-    params = {}
-    if isinstance(config_value, dict):
-        params.update(config_value)
-    elif isinstance(config_value, (list, tuple)):
-        params.update(parse_params([str(v) for v in config_value]))
-    elif isinstance(config_value, str):
-        params.update(parse_params([config_value]))
-    elif config_value is not None:
-        raise InputError("config key 'param' must be a table {K = V} or a list of \"K=V\"")
-    params.update(parse_params(cli_items or []))
-    return params
-
-
-def _sizes(value) -> list[int] | None:
-    if value is None:
-        return None
-    if isinstance(value, (list, tuple)):
-        value = ",".join(str(v) for v in value)
-    sizes = parse_list(str(value), float, name="size", integer_range=True)
-    bad = [s for s in sizes if float(s) != int(s) or s < 1]
-    if bad:
-        raise InputError(f"size {bad[0]:g} is not a whole number >= 1; sizes count training rows")
-    return [int(s) for s in sizes]
 
 
 def _summary_rows(curve) -> list[dict]:
@@ -101,97 +61,6 @@ def _print_summary(curve, path: Path) -> None:
     out.print(f"wrote {path} ({len(curve.points)} cells, {n_failed} failed)", markup=False)
 
 
-def measure_from_options(opts: dict, *, progress: bool | None = None):
-    """Load, validate and measure what merged options (or a job file) describe.
-
-    The one place that turns option values into a `Curve`: used by ``curvefit measure``
-    and by ``curvefit track --config``. Writes the run file when ``opts["out"]`` is set
-    (the journal goes beside it). Returns ``(curve, out_path or None, caught warnings)``.
-    """
-    # data problems are reported before scikit-learn is even imported (it is slow to load)
-    from curvefit.measuring import data as cfdata
-    from curvefit.measuring.journal import journal_path
-
-    if not opts["data"]:
-        raise InputError("no data file given; usage: curvefit measure DATA --target COL --model SPEC")
-    if not opts["target"]:
-        raise InputError("no target column given; pass --target COL")
-    if opts["encode"] not in ("auto", "none"):
-        raise InputError(f"unknown --encode {opts['encode']!r}; use auto or none")
-    df = cfdata.load_table(opts["data"])
-    features = opts["features"]
-    if isinstance(features, (list, tuple)):
-        features = [str(f) for f in features]
-    columns = [str(c) for c in df.columns]
-    special = {}
-    for option in ("groups", "order"):
-        col = opts[option]
-        if col is None:
-            continue
-        col = str(col)
-        if col == str(opts["target"]):
-            raise InputError(f"the --{option} column {col!r} is the target; pick another column")
-        if col not in columns:
-            raise InputError(f"--{option} column {col!r} not in the table; available columns: "
-                             f"{', '.join(columns[:25])}")
-        if df[col].isna().any():
-            raise InputError(f"the --{option} column {col!r} has {int(df[col].isna().sum())} missing "
-                             "values; fill them or drop those rows")
-        special[option] = df[col].reset_index(drop=True)
-    ds = cfdata.prepare(df, opts["target"], features, drop=tuple(str(opts[o]) for o in special))
-    from curvefit.measuring.models import resolve_model
-    from curvefit.measuring.runner import measure
-
-    spec = resolve_model(opts["model"], _params(opts.get("param_config"), opts["param"]),
-                         command=opts["command"], timeout=opts["timeout"])
-    X_test = y_test = None
-    if opts["test"]:
-        tdf = cfdata.load_table(opts["test"])
-        missing = [c for c in ds.feature_names + [ds.target] if c not in tdf.columns]
-        if missing:
-            raise InputError(f"the test file {opts['test']} lacks the columns "
-                             f"{', '.join(missing[:10])}; it needs the same features and target")
-        tds = cfdata.prepare(tdf, ds.target, ds.feature_names, task=ds.task)
-        X_test, y_test = tds.X, tds.y
-    try:
-        repeats = int(opts["repeats"])
-        jobs = int(opts["jobs"])
-        seed = int(opts["seed"])
-        test_fraction = float(opts["test_fraction"])
-    except (TypeError, ValueError) as exc:
-        raise InputError(f"a numeric option is not a number: {exc}") from None
-    if not 0 < test_fraction < 1:
-        raise InputError(f"--test-fraction must be strictly between 0 and 1, got {test_fraction:g}")
-    out_path = Path(opts["out"]) if opts.get("out") else None
-    data_meta = ds.describe()
-    data_meta["path"] = str(opts["data"])
-    if opts["test"]:
-        data_meta["test_path"] = str(opts["test"])
-    meta = {"data": data_meta, "target": ds.target, "features": ds.feature_names,
-            "command_line": "curvefit " + " ".join(shlex.quote(str(a)) for a in sys.argv[1:])}
-    if opts["groups"]:
-        meta["groups_column"] = str(opts["groups"])
-    if opts["order"]:
-        meta["order_column"] = str(opts["order"])
-    if progress is None:
-        progress = not (bool(opts.get("quiet")) or bool(opts.get("json")))
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
-        curve = measure(
-            spec, ds.X, ds.y, sizes=_sizes(opts["sizes"]), repeats=repeats,
-            test_size=test_fraction, X_test=X_test, y_test=y_test, metric=str(opts["metric"]),
-            n_jobs=jobs, backend=str(opts["backend"]), scheduler=opts["scheduler"],
-            random_state=seed, journal=journal_path(out_path) if out_path else None,
-            resume=bool(opts["resume"]) and out_path is not None,
-            timeout=opts["timeout"], encode=str(opts["encode"]),
-            groups=special.get("groups"), order=special.get("order"),
-            size_unit=str(opts["size_unit"]), progress=progress, meta=meta)
-    if out_path is not None:
-        out_path.parent.mkdir(parents=True, exist_ok=True)
-        curve.write(out_path)
-    return curve, out_path, caught
-
-
 def run_measure(opts: dict) -> int:
     """Do the work of the command from merged options; return the exit code."""
     from curvefit.core.errors import FitWarning
@@ -200,7 +69,7 @@ def run_measure(opts: dict) -> int:
 
     if not opts.get("out"):
         raise InputError("--out must name the run file to write")
-    curve, out_path, caught = measure_from_options(opts)
+    curve, out_path, caught = measure_from_settings(opts)
     for w in caught:
         if issubclass(w.category, (LeakWarning, FitWarning)):
             warn(str(w.message), bool(opts["quiet"]))
@@ -270,7 +139,7 @@ def register(app: typer.Typer) -> None:
                  "size_unit": size_unit}
         conf = _read_config(config) if config else {}
         opts = {}
-        for key, default in DEFAULTS.items():
+        for key, default in MEASURE_DEFAULTS.items():
             if key == "param":
                 continue
             value = given[key]

@@ -7,11 +7,12 @@ from typing import Optional
 
 import typer
 
-from curvefit.cli.common import emit_json, interval_option, level_alias, out, parse_list, pick_interval, warn
+from curvefit.cli.common import emit_json, interval_option, level_alias, out, pick_interval, warn
 from curvefit.cli.fit import BOOTSTRAP_HELP, WEIGHTS_HELP, print_table
 from curvefit.core.defaults import BOOTSTRAP, SEED
 from curvefit.core.errors import InputError
 from curvefit.core.formatting import format_count, format_error, format_interval, format_level, format_range
+from curvefit.core.validate import parse_list
 
 
 def _print_answer(need, interval: float) -> None:
@@ -29,7 +30,7 @@ def _print_answer(need, interval: float) -> None:
 
 def _print_price(need, interval: float) -> None:
     """What is still missing, its cost, and what the budget buys."""
-    from curvefit.fitting.planning import format_money as money
+    from curvefit.core.formatting import format_money as money
 
     have, metric = need.current_n, need.fit.curve.metric
     if need.answer.reachable:
@@ -56,7 +57,7 @@ def _print_price(need, interval: float) -> None:
 
 
 def _print_plan(need, interval: float) -> None:
-    from curvefit.fitting.planning import format_money
+    from curvefit.core.formatting import format_money
 
     metric = need.fit.curve.metric
     out.print("", markup=False)

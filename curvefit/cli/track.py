@@ -27,32 +27,6 @@ from curvefit.core.defaults import BOOTSTRAP, INTERVAL
 from curvefit.core.errors import InputError
 
 
-def measure_job(job: dict, *, quiet: bool = False):
-    """Measure the learning curve a job file describes (the ``measure`` step of ``track``).
-
-    Same meaning of the keys as ``curvefit measure`` (the same code does the work); when
-    ``out`` is set the run file is written there with its journal beside it, so
-    ``resume = true`` continues an interrupted nightly run.
-    """
-    from curvefit.cli.measure import DEFAULTS, measure_from_options
-
-    for key in ("data", "target"):
-        if not job.get(key):
-            raise InputError(f"the job file needs {key!r} to measure (or give a RUN file "
-                             "instead of --config)")
-    if not job.get("model") and not job.get("command"):
-        raise InputError("the job file needs 'model' (e.g. \"sklearn.linear_model:LogisticRegression\")")
-    if not isinstance(job["target"], str):
-        raise InputError(f"'target' must name the label column, got {job['target']!r}")
-    opts = {k: job.get(k, default) for k, default in DEFAULTS.items()}
-    opts.update(param=None, param_config=job.get("param"), out=job.get("out"),
-                quiet=quiet, json=False)
-    curve, _path, caught = measure_from_options(opts, progress=not quiet and sys.stderr.isatty())
-    for msg in dict.fromkeys(str(w.message).splitlines()[0] for w in caught):
-        warn(msg, quiet)
-    return curve
-
-
 def _job(run, config, options: dict) -> dict:
     """The job: the file's settings (if any) with the options given on the command line."""
     from curvefit.workflows.nightly import read_job
@@ -119,7 +93,7 @@ def register(app: typer.Typer) -> None:
         quiet = quiet or bool(job.get("quiet", False))
         json_out = json_out or bool(job.get("json", False))
         curve = Curve.read(run) if run is not None else None
-        result = track_job(job, curve=curve, measure=lambda j: measure_job(j, quiet=quiet))
+        result = track_job(job, curve=curve, progress=not quiet and sys.stderr.isatty())
         for note in result.warnings:
             warn(note, quiet)
         _report(result, json_out, quiet)

@@ -7,10 +7,11 @@ from typing import List, Optional
 
 import typer
 
-from curvefit.cli.common import emit_json, err, out, parse_list, print_table
+from curvefit.cli.common import emit_json, err, out, print_table
 from curvefit.core.defaults import SEED
 from curvefit.core.errors import InputError
 from curvefit.core.formatting import format_capacity, format_error
+from curvefit.core.validate import parse_list
 
 
 def print_tradeoff(tr) -> None:

@@ -20,9 +20,9 @@ import pandas as pd
 from curvefit.core.defaults import INTERVAL
 from curvefit.core.errors import InputError
 from curvefit.core.jsonio import jsonable, write_json
+from curvefit.core.legacy import rename_legacy
 from curvefit.core.stats import clopper_pearson, hoeffding_half_width, sem
 from curvefit.core.validate import check_level
-from curvefit.core.legacy import rename_legacy
 
 RUN_FORMAT = "curvefit.run/1"
 

@@ -173,3 +173,17 @@ def format_estimate(estimate: Any, low: Any = None, high: Any = None, level: flo
     inner = (format_interval(low, high, level, kind, metric) if level is not None
              else format_range(low, high, kind, metric))
     return f"{text} ({inner})"
+
+
+def format_money(value) -> str:
+    """An amount of money: whole units from 100 up, else cents; ``–`` when missing.
+
+    Examples
+    --------
+    >>> format_money(500), format_money(0.4), format_money(1234.5), format_money(None)
+    ('500', '0.40', '1,234', '–')
+    """
+    if is_missing(value) or math.isinf(float(value)):
+        return MISSING
+    v = float(value)
+    return f"{v:,.0f}" if abs(v) >= 100 else f"{v:,.2f}"

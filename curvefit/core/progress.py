@@ -18,6 +18,8 @@ True
 
 from __future__ import annotations
 
+import sys
+import time
 from typing import Any, Callable
 
 from curvefit.core.errors import InputError
@@ -26,11 +28,12 @@ ProgressCallback = Callable[[int, int, Any], None]
 
 
 class ProgressBar:
-    """A rich progress bar with elapsed time and ETA on stderr.
+    """A one-line progress display with elapsed time and ETA on stderr (terminals only).
 
-    Called with ``(done, total, item)``; it appears at the first call with work left,
-    and disappears when ``done`` reaches ``total`` or on `close`. Use it as a context
-    manager so that an interrupted job also removes it.
+    Called with ``(done, total, item)``; it appears at the first call with work left, is
+    redrawn in place, and is wiped when ``done`` reaches ``total`` or on `close`. On a
+    stream that is not a terminal (a CI log, a pipe) it stays silent, so logs hold only
+    results. Use it as a context manager so that an interrupted job also removes it.
 
     Parameters
     ----------
@@ -38,48 +41,60 @@ class ProgressBar:
         What is running, printed before the bar (``"measuring"``).
     unit : str
         What is counted, printed after the count (``"cells"``).
+    stream : file-like, optional
+        Where to draw (default: ``sys.stderr``).
 
     Examples
     --------
-    >>> with ProgressBar("measuring", "cells") as bar:
+    >>> import io
+    >>> with ProgressBar("measuring", "cells", stream=io.StringIO()) as bar:
     ...     bar(0, 0, None)      # nothing to do: no bar is drawn
+    >>> ProgressBar("measuring", "cells").line(3, 12, 30.0)
+    'measuring [#####...............]  3/12 cells  0:30 elapsed, eta 1:30'
     """
 
-    def __init__(self, label: str = "working", unit: str = "items"):
-        self.label, self.unit = label, unit
-        self._bar = self._task = None
+    WIDTH = 20
+
+    def __init__(self, label: str = "working", unit: str = "items", stream=None):
+        self.label, self.unit, self._stream = label, unit, stream
+        self._start = None
+        self._shown = 0
+
+    @property
+    def stream(self):
+        return self._stream if self._stream is not None else sys.stderr
 
     def __call__(self, done: int, total: int, item: Any = None) -> None:
-        if self._bar is None:
+        if self._start is None:
             if not total or done >= total:
                 return
-            self._start(total)
-        self._bar.update(self._task, completed=done, total=total)
+            self._start = (time.monotonic(), done)
         if done >= total:
             self.close()
+            return
+        if not _is_terminal(self.stream):
+            return
+        text = self.line(done, total, time.monotonic() - self._start[0], self._start[1])
+        self.stream.write("\r" + text.ljust(self._shown))
+        self.stream.flush()
+        self._shown = len(text)
 
-    def _start(self, total: int) -> None:
-        from rich.console import Console
-        from rich.progress import (
-            BarColumn,
-            MofNCompleteColumn,
-            Progress,
-            TextColumn,
-            TimeElapsedColumn,
-            TimeRemainingColumn,
-        )
-
-        self._bar = Progress(TextColumn(self.label), BarColumn(), MofNCompleteColumn(),
-                             TextColumn(self.unit), TimeElapsedColumn(), TextColumn("eta"),
-                             TimeRemainingColumn(), console=Console(stderr=True), transient=True)
-        self._bar.start()
-        self._task = self._bar.add_task(self.unit, total=total)
+    def line(self, done: int, total: int, elapsed: float, resumed: int = 0) -> str:
+        """The text of the bar after ``elapsed`` seconds (``resumed`` units were done before)."""
+        filled = int(self.WIDTH * done / total) if total else self.WIDTH
+        bar = "#" * filled + "." * (self.WIDTH - filled)
+        fresh = done - resumed
+        eta = (f", eta {_clock(elapsed / fresh * (total - done))}" if fresh > 0 else "")
+        return (f"{self.label} [{bar}] {done:>{len(str(total))}}/{total} {self.unit}  "
+                f"{_clock(elapsed)} elapsed{eta}")
 
     def close(self) -> None:
-        """Remove the bar (safe to call more than once)."""
-        if self._bar is not None:
-            self._bar.stop()
-            self._bar = None
+        """Wipe the bar (safe to call more than once)."""
+        if self._shown and _is_terminal(self.stream):
+            self.stream.write("\r" + " " * self._shown + "\r")
+            self.stream.flush()
+        self._shown = 0
+        self._start = None
 
     def __enter__(self) -> "ProgressBar":
         return self
@@ -87,6 +102,21 @@ class ProgressBar:
     def __exit__(self, *exc) -> bool:
         self.close()
         return False
+
+
+def _is_terminal(stream) -> bool:
+    try:
+        return bool(stream.isatty())
+    except (AttributeError, ValueError):
+        return False
+
+
+def _clock(seconds: float) -> str:
+    """``m:ss`` (``h:mm:ss`` from an hour)."""
+    s = int(round(max(seconds, 0.0)))
+    h, rest = divmod(s, 3600)
+    m, s = divmod(rest, 60)
+    return f"{h}:{m:02d}:{s:02d}" if h else f"{m}:{s:02d}"
 
 
 def progress_callback(progress, label: str = "working", unit: str = "items") -> ProgressCallback | None:

@@ -15,6 +15,9 @@ from __future__ import annotations
 
 import math
 import numbers
+from typing import Callable
+
+import numpy as np
 
 from curvefit.core.errors import InputError
 
@@ -67,3 +70,50 @@ def check_choice(value, name: str, choices) -> str:
     if value not in choices:
         raise InputError(f"{name} must be one of {', '.join(map(str, choices))}, got {value!r}")
     return value
+
+
+def parse_list(text: str | None, kind: Callable = float, name: str = "value",
+               integer_range: bool = False) -> list | None:
+    """Parse ``"a,b,c"`` or a geometric range ``"start:stop:count"``.
+
+    A range gives ``count`` values spaced geometrically from ``start`` to ``stop``
+    inclusive (rounded and de-duplicated when ``integer_range``).
+
+    Examples
+    --------
+    >>> parse_list("50,100,200", int)
+    [50, 100, 200]
+    >>> parse_list("50:5000:3", int, integer_range=True)
+    [50, 500, 5000]
+    """
+    if text is None:
+        return None
+    text = str(text).strip()
+    if not text:
+        raise InputError(f"empty {name} list")
+    if ":" in text:
+        parts = text.split(":")
+        if len(parts) != 3:
+            raise InputError(f"malformed {name} range {text!r}; use START:STOP:COUNT, e.g. 50:5000:12")
+        try:
+            start, stop, count = float(parts[0]), float(parts[1]), int(parts[2])
+        except ValueError:
+            raise InputError(f"malformed {name} range {text!r}; use START:STOP:COUNT, "
+                             "e.g. 50:5000:12") from None
+        if start <= 0 or stop < start or count < 1:
+            raise InputError(f"{name} range {text!r} needs 0 < START <= STOP and COUNT >= 1")
+        vals = np.geomspace(start, stop, count) if count > 1 else np.array([start])
+        if integer_range or kind is int:
+            return sorted({int(round(v)) for v in vals})
+        return [kind(v) for v in vals]
+    out_vals = []
+    for piece in text.split(","):
+        piece = piece.strip()
+        try:
+            v = kind(piece)
+        except ValueError:
+            raise InputError(f"malformed {name} {piece!r} in {text!r}") from None
+        if isinstance(v, float) and not math.isfinite(v):
+            raise InputError(f"{name} {piece!r} is not finite")
+        out_vals.append(v)
+    return out_vals

@@ -148,20 +148,6 @@ def labels_for_budget(budget, cost_per_label) -> int:
     return int(math.floor(budget / cost_per_label + 1e-9))
 
 
-def format_money(value) -> str:
-    """An amount of money: whole units from 100 up, else cents; ``–`` when missing.
-
-    Examples
-    --------
-    >>> format_money(500), format_money(0.4), format_money(1234.5), format_money(None)
-    ('500', '0.40', '1,234', '–')
-    """
-    if value is None or not math.isfinite(float(value)):
-        return "–"
-    v = float(value)
-    return f"{v:,.0f}" if abs(v) >= 100 else f"{v:,.2f}"
-
-
 # --------------------------------------------------------------------------- priced answer
 @dataclass(frozen=True)
 class Cost:

@@ -352,9 +352,9 @@ class Store:
                created: str | None = None) -> int:
         """Record one run of ``series`` and return its run id.
 
-        The store stores what it is given and computes nothing: the caller computes the
-        headline figures (`curvefit.history.figures.headline_figures` at the reference
-        size of `series_settings`), as `curvefit.workflows.nightly.track_run` does.
+        The store writes what it is given. Without ``headline``, the figures of ``fit``
+        are taken from `curvefit.history.figures.headline_figures` at the series'
+        reference size (what `curvefit.workflows.nightly.track_run` also does).
 
         Parameters
         ----------
@@ -364,13 +364,12 @@ class Store:
             Its fit summary (``fit.to_dict()``), stored as JSON.
         series : str
             Series name; created on first use.
-        headline : list of Figure
-            The run's headline figures; required when a fit is given.
+        headline : list of Figure, optional
+            The run's headline figures (default: computed from ``fit`` as above).
         target_error, reference_size, tolerances
             Series settings (see `series_settings`).
         capacity : CapacityEstimate, optional
-            Kept for callers of earlier versions; record it as an ``effective_capacity``
-            figure in ``headline`` instead.
+            Effective capacity, recorded as a figure when ``headline`` is not given.
         interval : float
             Level of the headline intervals (kept in the run's metadata).
         code_version : str, None or True
@@ -382,11 +381,12 @@ class Store:
                                       reference_size=reference_size, tolerances=tolerances)
         is_new = series not in self.series_names()
         if headline is None:
-            if fit is not None:
-                raise InputError("the store records headline figures, it does not compute them: "
-                                 "pass headline=curvefit.history.figures.headline_figures(fit, "
-                                 "...) or use curvefit.track_run(curve, store=..., series=...)")
-            headline = []
+            # the documented one-call form: the figures come from history.figures, the
+            # module that defines them; the store itself only writes what it is handed
+            headline = [] if fit is None or isinstance(fit, dict) else tracking.headline_figures(
+                fit, reference_size=config["reference_size"],
+                target_error=config.get("target_error"), capacity=capacity,
+                interval=interval, curve=curve)
         meta = dict(curve.meta)
         meta["tracking"] = {"reference_size": config["reference_size"],
                             "target_error": config.get("target_error"),

@@ -4,7 +4,7 @@ The runner talks to a journal through three calls — `Journal.open`, `append`,
 `close` — so the storage can change without touching the runner. This version writes
 JSON lines beside the run file (``run.json.journal``):
 
-* line 1, the header: ``{"format": "curvefit.measuring.journal/1", "run": {...}}``, where
+* line 1, the header: ``{"format": "curvefit.journal/1", "run": {...}}``, where
   ``run`` identifies the run (data fingerprint, model, sizes, repeats, seed, metric,
   split). Resuming with a journal whose identity differs is refused, so cells of a
   different run are never mixed in.
@@ -25,7 +25,7 @@ from typing import Any
 from curvefit.core.errors import InputError
 from curvefit.core.jsonio import jsonable
 
-JOURNAL_FORMAT = "curvefit.measuring.journal/1"
+JOURNAL_FORMAT = "curvefit.journal/1"
 
 
 def journal_path(run_path: str | os.PathLike) -> Path:

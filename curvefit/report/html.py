@@ -54,12 +54,12 @@ from curvefit.core.formatting import (
     format_error,
     format_interval,
     format_level,
+    format_money,
     format_number,
     format_range,
     is_rate,
 )
 from curvefit.core.jsonio import jsonable, write_text_atomic
-from curvefit.fitting.planning import format_money
 from curvefit.report import plots
 from curvefit.report.labels import as_items, family_name, is_finite, model_label
 from curvefit.report.labels import field as field_of

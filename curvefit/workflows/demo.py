@@ -149,7 +149,8 @@ def _write_fits(path: Path, target: float | None, results: list[ModelResult]) ->
 
 def _plan(best: ModelResult, out_dir: Path):
     """Price the label purchases for the best model; write plan.csv and plan.json."""
-    from curvefit.fitting.planning import format_money, plan_purchase
+    from curvefit.core.formatting import format_money
+    from curvefit.fitting.planning import plan_purchase
 
     have = int(best.curve.sizes.max())
     plan = run_step(lambda: plan_purchase(best.fit, current_n=have, extra=EXTRA_LABELS,

@@ -7,10 +7,15 @@ the file's own folder (what a nightly CI job needs).
 
 from __future__ import annotations
 
+import shlex
+import sys
 import tomllib
+import warnings
 from pathlib import Path
 
+from curvefit.core import defaults
 from curvefit.core.errors import InputError
+from curvefit.core.validate import parse_list
 
 # Keys whose values are paths, resolved against the job file's folder.
 PATH_KEYS = ("data", "test", "store", "out")
@@ -66,3 +71,134 @@ def resolve_job_paths(job: dict, config_path: str | Path, source: str | None = N
         file_part, _, attr = model.rpartition(":")
         job["model"] = f"{resolve(file_part)}:{attr}"
     return job
+
+
+# built-in values of the measuring options a job file (or the command line) may set
+MEASURE_DEFAULTS = {
+    "data": None, "target": None, "model": None, "param": None, "command": None,
+    "features": None, "test": None, "sizes": None, "repeats": defaults.REPEATS,
+    "test_fraction": defaults.TEST_FRACTION, "metric": "error", "encode": "auto", "jobs": 1,
+    "backend": "local", "scheduler": None, "seed": defaults.SEED, "timeout": None,
+    "resume": False, "out": "run.json", "quiet": False,
+    "json": False, "groups": None, "order": None, "size_unit": "rows",
+}
+
+
+def _params(config_value, cli_items) -> dict:
+    from curvefit.measuring.models import parse_params
+
+    params = {}
+    if isinstance(config_value, dict):
+        params.update(config_value)
+    elif isinstance(config_value, (list, tuple)):
+        params.update(parse_params([str(v) for v in config_value]))
+    elif isinstance(config_value, str):
+        params.update(parse_params([config_value]))
+    elif config_value is not None:
+        raise InputError("config key 'param' must be a table {K = V} or a list of \"K=V\"")
+    params.update(parse_params(cli_items or []))
+    return params
+
+
+def _sizes(value) -> list[int] | None:
+    if value is None:
+        return None
+    if isinstance(value, (list, tuple)):
+        value = ",".join(str(v) for v in value)
+    sizes = parse_list(str(value), float, name="size", integer_range=True)
+    bad = [s for s in sizes if float(s) != int(s) or s < 1]
+    if bad:
+        raise InputError(f"size {bad[0]:g} is not a whole number >= 1; sizes count training rows")
+    return [int(s) for s in sizes]
+
+
+def measure_from_settings(opts: dict, *, progress: bool | None = None):
+    """Load, validate and measure what a job's settings (or merged options) describe.
+
+    The one place that turns settings into a `Curve`: ``curvefit measure`` and the
+    nightly track (`curvefit.workflows.nightly.track_job`) both call it. Keys are those
+    of `MEASURE_DEFAULTS`. Writes the run file when ``opts["out"]`` is set
+    (the journal goes beside it). Returns ``(curve, out_path or None, caught warnings)``.
+    """
+    # data problems are reported before scikit-learn is even imported (it is slow to load)
+    from curvefit.measuring import data as cfdata
+    from curvefit.measuring.journal import journal_path
+
+    if not opts["data"]:
+        raise InputError("no data file given; usage: curvefit measure DATA --target COL --model SPEC")
+    if not opts["target"]:
+        raise InputError("no target column given; pass --target COL")
+    if opts["encode"] not in ("auto", "none"):
+        raise InputError(f"unknown --encode {opts['encode']!r}; use auto or none")
+    df = cfdata.load_table(opts["data"])
+    features = opts["features"]
+    if isinstance(features, (list, tuple)):
+        features = [str(f) for f in features]
+    columns = [str(c) for c in df.columns]
+    special = {}
+    for option in ("groups", "order"):
+        col = opts[option]
+        if col is None:
+            continue
+        col = str(col)
+        if col == str(opts["target"]):
+            raise InputError(f"the --{option} column {col!r} is the target; pick another column")
+        if col not in columns:
+            raise InputError(f"--{option} column {col!r} not in the table; available columns: "
+                             f"{', '.join(columns[:25])}")
+        if df[col].isna().any():
+            raise InputError(f"the --{option} column {col!r} has {int(df[col].isna().sum())} missing "
+                             "values; fill them or drop those rows")
+        special[option] = df[col].reset_index(drop=True)
+    ds = cfdata.prepare(df, opts["target"], features, drop=tuple(str(opts[o]) for o in special))
+    from curvefit.measuring.models import resolve_model
+    from curvefit.measuring.runner import measure
+
+    spec = resolve_model(opts["model"], _params(opts.get("param_config"), opts["param"]),
+                         command=opts["command"], timeout=opts["timeout"])
+    X_test = y_test = None
+    if opts["test"]:
+        tdf = cfdata.load_table(opts["test"])
+        missing = [c for c in ds.feature_names + [ds.target] if c not in tdf.columns]
+        if missing:
+            raise InputError(f"the test file {opts['test']} lacks the columns "
+                             f"{', '.join(missing[:10])}; it needs the same features and target")
+        tds = cfdata.prepare(tdf, ds.target, ds.feature_names, task=ds.task)
+        X_test, y_test = tds.X, tds.y
+    try:
+        repeats = int(opts["repeats"])
+        jobs = int(opts["jobs"])
+        seed = int(opts["seed"])
+        test_fraction = float(opts["test_fraction"])
+    except (TypeError, ValueError) as exc:
+        raise InputError(f"a numeric option is not a number: {exc}") from None
+    if not 0 < test_fraction < 1:
+        raise InputError(f"--test-fraction must be strictly between 0 and 1, got {test_fraction:g}")
+    out_path = Path(opts["out"]) if opts.get("out") else None
+    data_meta = ds.describe()
+    data_meta["path"] = str(opts["data"])
+    if opts["test"]:
+        data_meta["test_path"] = str(opts["test"])
+    meta = {"data": data_meta, "target": ds.target, "features": ds.feature_names,
+            "command_line": "curvefit " + " ".join(shlex.quote(str(a)) for a in sys.argv[1:])}
+    if opts["groups"]:
+        meta["groups_column"] = str(opts["groups"])
+    if opts["order"]:
+        meta["order_column"] = str(opts["order"])
+    if progress is None:
+        progress = not (bool(opts.get("quiet")) or bool(opts.get("json")))
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        curve = measure(
+            spec, ds.X, ds.y, sizes=_sizes(opts["sizes"]), repeats=repeats,
+            test_size=test_fraction, X_test=X_test, y_test=y_test, metric=str(opts["metric"]),
+            n_jobs=jobs, backend=str(opts["backend"]), scheduler=opts["scheduler"],
+            random_state=seed, journal=journal_path(out_path) if out_path else None,
+            resume=bool(opts["resume"]) and out_path is not None,
+            timeout=opts["timeout"], encode=str(opts["encode"]),
+            groups=special.get("groups"), order=special.get("order"),
+            size_unit=str(opts["size_unit"]), progress=progress, meta=meta)
+    if out_path is not None:
+        out_path.parent.mkdir(parents=True, exist_ok=True)
+        curve.write(out_path)
+    return curve, out_path, caught

@@ -26,7 +26,7 @@ import math
 import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Callable, Mapping
+from typing import Any, Mapping
 
 from curvefit.core.defaults import BOOTSTRAP, INTERVAL, SEED
 from curvefit.core.errors import InputError
@@ -162,8 +162,7 @@ def check_store_path(path: str) -> None:
         raise InputError(f"cannot create history store {path}: its directory does not exist")
 
 
-def track_job(job: Mapping[str, Any], *, curve=None,
-              measure: Callable[[Mapping[str, Any]], Any] | None = None) -> TrackResult:
+def track_job(job: Mapping[str, Any], *, curve=None, progress: bool = False) -> TrackResult:
     """Run a job: measure (unless ``curve`` is given), then fit, record and compare.
 
     Parameters
@@ -172,27 +171,55 @@ def track_job(job: Mapping[str, Any], *, curve=None,
         Settings as `read_job` returns them (command-line overrides merged in).
     curve : Curve, optional
         An already measured curve; the job's measurement keys are then not used.
-    measure : callable, optional
-        Turns the job's measurement keys into a `Curve` (the ``measure`` command's
-        option handling); needed when ``curve`` is None.
+    progress : bool
+        Show the measuring progress bar (terminals only).
 
     Returns
     -------
     TrackResult
+        Warnings raised while measuring (e.g. a possible leak) are in ``warnings``.
     """
     settings = tracking_settings(job)
     notes: list[str] = []
     if curve is None:
-        if measure is None:
-            raise InputError("nothing to track: give a measured curve or a job that measures one")
         check_store_path(settings["store"])
-        curve = measure(job)
+        curve, messages = measure_job(job, progress=progress)
+        notes.extend(messages)
         failed = len(curve.failed_points())
         if failed:
             notes.append(f"{failed} of {len(curve.points)} fits failed (recorded in the run)")
     result = track_run(curve, **settings)
     result.warnings[:0] = notes
     return result
+
+
+def measure_job(job: Mapping[str, Any], *, progress: bool = False):
+    """Measure the learning curve a job file describes (the ``measure`` step of a track).
+
+    Same meaning of the keys as ``curvefit measure`` (`measure_from_settings` does the
+    work); when ``out`` is set the run file is written there with its journal beside it,
+    so ``resume = true`` continues an interrupted nightly run.
+
+    Returns
+    -------
+    (Curve, list of str)
+        The curve and the distinct first lines of the warnings raised while measuring.
+    """
+    from curvefit.workflows.jobs import MEASURE_DEFAULTS, measure_from_settings
+
+    for key in ("data", "target"):
+        if not job.get(key):
+            raise InputError(f"the job file needs {key!r} to measure (or give a RUN file "
+                             "instead of --config)")
+    if not job.get("model") and not job.get("command"):
+        raise InputError("the job file needs 'model' (e.g. \"sklearn.linear_model:LogisticRegression\")")
+    if not isinstance(job["target"], str):
+        raise InputError(f"'target' must name the label column, got {job['target']!r}")
+    opts = {k: job.get(k, default) for k, default in MEASURE_DEFAULTS.items()}
+    opts.update(param=None, param_config=job.get("param"), out=job.get("out"),
+                quiet=not progress, json=False)
+    curve, _path, caught = measure_from_settings(opts, progress=progress)
+    return curve, list(dict.fromkeys(str(w.message).splitlines()[0] for w in caught))
 
 
 # --------------------------------------------------------------------------- the pipeline
