@@ -27,7 +27,7 @@ import numpy as np
 from scipy import special
 
 from curvefit.core.errors import InputError
-from curvefit.core.stats import binomial_limits
+from curvefit.core.stats import binomial_limits, hoeffding_width
 
 GROWTH_KINDS = ("polynomial", "sauer")
 TEST_METHODS = ("hoeffding", "exact")
@@ -471,7 +471,7 @@ def hoeffding_half_width(n_test, delta):
     """
     n_a = _positive(n_test, "n_test")
     d_a = _unit_open(delta, "delta")
-    return _like(np.sqrt(np.log(2.0 / d_a) / (2.0 * n_a)), n_test, delta)
+    return _like(hoeffding_width(n_a, d_a), n_test, delta)
 
 
 def clopper_pearson(errors, n_test, delta=0.05) -> ConfidenceInterval:

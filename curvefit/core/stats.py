@@ -108,5 +108,11 @@ def hoeffding_half_width(n_test, level: float = 0.9):
     >>> round(hoeffding_half_width(1000, 0.95), 5)
     0.04295
     """
-    delta = 1.0 - check_level(level)
-    return np.sqrt(np.log(2.0 / delta) / (2.0 * np.asarray(n_test, dtype=float)))
+    return hoeffding_width(n_test, 1.0 - check_level(level))
+
+
+def hoeffding_width(n_test, delta):
+    """The Hoeffding half-width for a failure probability ``delta`` (arrays broadcast,
+    no validation): the one implementation behind every Hoeffding figure."""
+    return np.sqrt(np.log(2.0 / np.asarray(delta, dtype=float))
+                   / (2.0 * np.asarray(n_test, dtype=float)))
