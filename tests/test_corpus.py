@@ -1,0 +1,177 @@
+"""The stored learning-curve corpus (corpus/) and the forecast benchmark that reads it.
+
+Fast checks only: the corpus is built by scripts/build_corpus.py (not in CI) and the
+full benchmark is scripts/bench_forecast.py; here a tiny version runs on two curves.
+"""
+
+from __future__ import annotations
+
+import importlib.util
+import json
+import math
+import sys
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+ROOT = Path(__file__).resolve().parents[1]
+CORPUS = ROOT / "corpus"
+
+
+def _script(name: str):
+    spec = importlib.util.spec_from_file_location(f"_corpus_{name}", ROOT / "scripts" / f"{name}.py")
+    module = importlib.util.module_from_spec(spec)
+    sys.modules[spec.name] = module
+    spec.loader.exec_module(module)
+    return module
+
+
+@pytest.fixture(scope="module")
+def bench():
+    return _script("bench_forecast")
+
+
+@pytest.fixture(scope="module")
+def builder():
+    return _script("build_corpus")
+
+
+@pytest.fixture(scope="module")
+def corpus(bench):
+    return bench.load_corpus(CORPUS)
+
+
+def test_corpus_loads_with_the_expected_columns(corpus, builder):
+    points, index = corpus
+    assert index["format"] == builder.FORMAT
+    assert list(index["columns"]) == builder.COLUMNS
+    for path in sorted((CORPUS / "curves").glob("*.csv.gz")):
+        assert list(pd.read_csv(path, nrows=1).columns) == builder.COLUMNS, path.name
+    assert set(points["task"]) <= {"classification", "regression"}
+    assert set(points["source"]) <= {"sklearn", "statsmodels", "generated"}
+    assert set(points["status"]) <= {"ok", "failed"}
+    assert (points["size"] > 0).all() and (points["size"] <= points["pool"]).all()
+
+
+def test_the_corpus_is_small():
+    total = sum(p.stat().st_size for p in (CORPUS / "curves").glob("*.csv.gz"))
+    assert total < 5 * 2 ** 20
+
+
+def test_index_and_files_agree(corpus):
+    points, index = corpus
+    stored = {f"{d}/{m}" for d, m in points[["dataset", "model"]].drop_duplicates().itertuples(index=False)}
+    assert stored == set(index["pairs"])
+    for key, entry in index["pairs"].items():
+        rows = points[(points["dataset"] == entry["dataset"]) & (points["model"] == entry["model"])]
+        assert sorted(rows["size"].unique().tolist()) == entry["sizes"], key
+        assert entry["dataset"] in index["tables"]
+        assert index["tables"][entry["dataset"]]["source"] == entry["source"]
+
+
+def test_every_curve_has_five_sizes_and_five_repeats(corpus):
+    points, _ = corpus
+    for (dataset, model), rows in points.groupby(["dataset", "model"]):
+        ok = rows[rows["status"] == "ok"]
+        assert ok["size"].nunique() >= 5, (dataset, model)
+        repeats = rows.groupby("size")["repeat"].nunique()
+        assert repeats.min() >= 5, (dataset, model)
+        assert rows["size"].max() == rows["pool"].iloc[0], (dataset, model)
+        # nearly every cell finished
+        assert (rows["status"] == "ok").mean() >= 0.9, (dataset, model)
+
+
+def test_sources_and_models_are_varied(corpus):
+    points, _ = corpus
+    assert {"sklearn", "statsmodels", "generated"} <= set(points["source"])
+    assert points["model"].nunique() >= 6
+
+
+def test_generated_tasks_carry_the_true_error(corpus, builder):
+    points, index = corpus
+    gen = points[points["source"] == "generated"]
+    assert not gen.empty
+    assert set(gen["dataset"]) <= set(builder.GENERATORS)
+    assert gen["true_error"].notna().all()
+    assert (gen["true_error_sem"] >= 0).all()
+    real = points[points["source"] != "generated"]
+    assert real["true_error"].isna().all()
+    for name in gen["dataset"].unique():
+        assert index["tables"][name]["formula"], name
+    # the true error falls with size for a well-specified model: the logistic task
+    lin = gen[(gen["dataset"] == "gen_logistic_noise") & (gen["model"] == "linear")]
+    if not lin.empty:
+        truth = lin.groupby("size")["true_error"].mean()
+        assert truth.iloc[-1] < truth.iloc[0]
+
+
+def test_regression_generators_have_the_stated_noise(builder):
+    # the stated noise variance is the lowest reachable MSE: y minus the noiseless part
+    rng = np.random.default_rng(0)
+    X, y = builder.gen_linear_regression(20000, rng)
+    resid = y - X @ (1.0 / np.arange(1, 11))
+    assert abs(resid.var() - 1.0) < 0.05
+
+
+def test_exact_error_of_the_simulated_rule(bench):
+    # the true rule errs exactly on the flipped labels; an orthogonal rule is a coin flip
+    assert bench.exact_error(bench.BETA[None, :], np.array([0.0]))[0] == pytest.approx(0.1, abs=1e-9)
+    ortho = np.array([[1.0, 1.5, 0.0, 0.0, 0.0]])  # beta·ortho = 0
+    assert bench.exact_error(ortho, np.array([0.0]))[0] == pytest.approx(0.5, abs=1e-6)
+    # against a Monte Carlo estimate on fresh draws
+    rng = np.random.default_rng(1)
+    w, b = np.array([[1.0, -0.5, 0.5, 0.2, 0.0]]), np.array([0.1])
+    X, y = bench.generate_logistic(200_000, rng)
+    mc = np.mean((X @ w[0] + b[0] > 0).astype(int) != y)
+    assert bench.exact_error(w, b)[0] == pytest.approx(mc, abs=0.004)
+
+
+def test_crossing_interpolates_in_log_size(bench):
+    assert bench.crossing([10, 100], [0.3, 0.1], 0.2) == pytest.approx(math.sqrt(1000))
+    assert bench.crossing([10, 100], [0.3, 0.25], 0.2) == math.inf
+    assert bench.crossing([10, 100], [0.1, 0.05], 0.2) == 10
+
+
+def test_tiny_benchmark_on_two_curves(bench, corpus):
+    points, _ = corpus
+    pairs = [("iris", "linear"), ("gen_logistic_noise", "linear")]
+    chosen = [points[(points["dataset"] == d) & (points["model"] == m)] for d, m in pairs]
+    chosen = [c for c in chosen if not c.empty]
+    assert chosen
+    forecasts, answers = [], []
+    for rows in chosen:
+        f, a = bench.evaluate_curve(rows, bootstrap=20)
+        forecasts += f
+        answers += a
+    fc, an = pd.DataFrame(forecasts), pd.DataFrame(answers)
+    assert set(fc["horizon"]) >= {"pool", "2x"}
+    assert fc["covered"].isin([True, False]).all()
+    assert (fc["low"] <= fc["high"]).all()
+    assert np.isfinite(fc["power_law_floor"]).all()
+    if "covered_truth" in fc:
+        gen = fc[fc["source"] == "generated"]
+        assert gen["truth"].notna().all()
+    tables = bench.summarise(fc, an)
+    assert "headline" in tables and "per model" in tables
+    text = bench.markdown(tables["headline"])
+    assert text.startswith("| cut | task |") and "ratio to power-law-floor" in text
+
+
+def test_leave_one_dataset_out_never_mixes(bench, corpus):
+    points, _ = corpus
+    seen = []
+    for name, rest, held in bench.leave_one_dataset_out(points):
+        assert set(held["dataset"]) == {name}
+        assert name not in set(rest["dataset"])
+        seen.append(name)
+    assert sorted(seen) == sorted(points["dataset"].unique())
+
+
+def test_results_of_the_baseline_are_stored():
+    results = CORPUS / "results"
+    md = results / "baseline-corpus.md"
+    assert md.is_file()
+    assert "ratio to power-law-floor" in md.read_text()
+    assert json.loads((CORPUS / "index.json").read_text())["pairs"]
