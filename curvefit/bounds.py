@@ -413,7 +413,7 @@ def _fixed_point_iterates(start: float, d: int, e: float, dl: float, growth: str
 def pac_sample_size(vc_dim, eps, delta) -> int:
     """Realizable-case PAC sample size (consistent learner, zero training error).
 
-    ``m >= max((4/ε) log2(2/δ), (8d/ε) log2(13/ε))`` samples suffice for a learner that
+    ``m >= max((4/ε) log₂(2/δ), (8d/ε) log₂(13/ε))`` samples suffice for a learner that
     fits the sample exactly to have true error at most ``eps`` with probability at least
     ``1 - delta``. Applies only when the target is in the class (realizable case).
 

@@ -40,6 +40,11 @@ POINT_COLUMNS = [
 ]
 
 
+# Optional column: the constant predictor's loss on the cell's test rows (majority class of
+# the training subsample, or its mean). Files written before it existed load without it.
+BASELINE_COLUMN = "baseline_error"
+
+
 def _empty_points() -> pd.DataFrame:
     return pd.DataFrame({c: pd.Series(dtype=t) for c, t in [
         ("size", "int64"), ("repeat", "int64"), ("train_error", "float64"),
@@ -66,7 +71,8 @@ def _normalise_points(points: pd.DataFrame) -> pd.DataFrame:
     try:
         df["size"] = pd.to_numeric(df["size"]).astype("int64")
         df["repeat"] = pd.to_numeric(df["repeat"]).astype("int64")
-        for col in ["train_error", "test_error", "n_test", "n_test_errors", "fit_seconds"]:
+        numeric = ["train_error", "test_error", "n_test", "n_test_errors", "fit_seconds"]
+        for col in numeric + ([BASELINE_COLUMN] if BASELINE_COLUMN in df.columns else []):
             df[col] = pd.to_numeric(df[col], errors="raise").astype("float64")
     except (ValueError, TypeError) as exc:
         raise InputError(f"curve table has a non-numeric value: {exc}") from None
@@ -74,7 +80,7 @@ def _normalise_points(points: pd.DataFrame) -> pd.DataFrame:
         raise InputError("curve table has a size <= 0; sizes count labelled samples")
     df["status"] = df["status"].fillna("ok").astype(str)
     df["message"] = df["message"].fillna("").astype(str)
-    extra = [c for c in df.columns if c not in POINT_COLUMNS]
+    extra = sorted((c for c in df.columns if c not in POINT_COLUMNS), key=lambda c: c != BASELINE_COLUMN)
     df = df[POINT_COLUMNS + extra]
     return df.sort_values(["size", "repeat"], kind="stable").reset_index(drop=True)
 
@@ -126,6 +132,12 @@ class Curve:
     def has_train(self) -> bool:
         return bool(self.ok_points()["train_error"].notna().any())
 
+    @property
+    def has_baseline(self) -> bool:
+        """True when the cells hold the constant predictor's error (``baseline_error``)."""
+        p = self.ok_points()
+        return BASELINE_COLUMN in p.columns and bool(p[BASELINE_COLUMN].notna().any())
+
     def ok_points(self) -> pd.DataFrame:
         """Cells that finished and have a finite test error."""
         p = self.points
@@ -141,7 +153,17 @@ class Curve:
         train_mean, train_std, train_sem, gap_mean, gap_sem, n_test``, and, as the
         uncertainty of one repeat's finite test set at the mean error,
         ``test_low, test_high`` (exact Clopper–Pearson interval, 0-1 error only) and
-        ``test_hoeffding`` (Hoeffding half-width), both at level ``interval``.
+        ``test_hoeffding`` (Hoeffding half-width), both at level ``interval``; then
+        ``baseline_mean, baseline_sem``: the constant predictor's error on the same test
+        sets (NaN for curves measured without it).
+
+        Examples
+        --------
+        >>> import pandas as pd
+        >>> c = Curve.from_table(pd.DataFrame({"size": [10, 10], "test_error": [0.3, 0.2],
+        ...                                    "baseline_error": [0.4, 0.5]}))
+        >>> c.summary()[["test_mean", "baseline_mean"]].round(3).values.tolist()
+        [[0.25, 0.45]]
         """
         level = check_level(interval)
         ok = self.ok_points().copy()
@@ -159,7 +181,11 @@ class Curve:
                 "gap_mean": float(g["gap"].mean()) if g["gap"].notna().any() else math.nan,
                 "gap_sem": sem(g["gap"]), "n_test": n_test,
                 "test_low": math.nan, "test_high": math.nan, "test_hoeffding": math.nan,
+                "baseline_mean": math.nan, "baseline_sem": math.nan,
             }
+            if BASELINE_COLUMN in g.columns and g[BASELINE_COLUMN].notna().any():
+                row["baseline_mean"] = float(g[BASELINE_COLUMN].mean())
+                row["baseline_sem"] = sem(g[BASELINE_COLUMN])
             if np.isfinite(n_test) and n_test >= 1:
                 n_int = int(round(n_test))
                 row["test_hoeffding"] = float(hoeffding_half_width(n_int, level))
@@ -169,7 +195,7 @@ class Curve:
             rows.append(row)
         cols = ["size", "n_repeats", "n_failed", "test_mean", "test_std", "test_sem",
                 "train_mean", "train_std", "train_sem", "gap_mean", "gap_sem", "n_test",
-                "test_low", "test_high", "test_hoeffding"]
+                "test_low", "test_high", "test_hoeffding", "baseline_mean", "baseline_sem"]
         return pd.DataFrame(rows, columns=cols)
 
     # ------------------------------------------------------------------ I/O

@@ -8,20 +8,11 @@ from __future__ import annotations
 
 import re
 
-# Curve families were called by a short code with a parameter count up to version 0.1.
-LEGACY_NAMES: dict[str, str] = {
-    "last1": "last-value",
-    "pow2": "power-law",
-    "pow3": "power-law-floor",
-    "pow4": "shifted-power-law",
-    "exp3": "exponential-floor",
-    "log2": "log-decline",
-    "ilog2": "inverse-log",
-    "vap3": "vapor-pressure",
-    "mmf4": "morgan-mercer-flodin",
-    "wbl4": "weibull",
-    "joint5": "joint-train-test",
-}
+# Curve families were called by a short code with a parameter count up to version 0.1;
+# the pairs read old=new.
+LEGACY_NAMES: dict[str, str] = dict(pair.split("=") for pair in (
+    "last1=last-value pow2=power-law pow3=power-law-floor pow4=shifted-power-law exp3=exponential-floor log2=log-decline ilog2=inverse-log vap3=vapor-pressure mmf4=morgan-mercer-flodin wbl4=weibull joint5=joint-train-test"  # noqa: E501
+).split())
 
 
 def current_name(name):

@@ -49,11 +49,13 @@ from curvefit.core.formatting import (
     format_number,
     format_range,
 )
-from curvefit.core.validate import check_choice, check_count, check_level, check_seed
+from curvefit.core.validate import check_choice, check_count, check_level, check_positive, check_seed
 from curvefit.fitting.answers import (
     EXTRAPOLATION_FACTOR,
+    HORIZON,
     answer_text,
     find_crossing,
+    horizon_text,
     search_grid,
     unreachable_text,
 )
@@ -84,12 +86,15 @@ class SampleEstimate:
     Attributes
     ----------
     n : float
-        Point estimate of the samples needed (``inf`` when not reachable): from the
-        measured means when the target lies within the measured range, else from the
-        fitted curve beyond the largest measured size.
+        Point estimate of the samples needed (``inf`` when not reachable or beyond the
+        horizon): from the measured means when they stay at or below the target from
+        some measured size on, else from the fitted curve beyond the largest measured
+        size.
     low, high : float
-        Bootstrap percentile interval (``high`` is ``inf`` when some bootstrap curves
-        never reach the target; NaN without bootstrap).
+        Interval of the samples needed (``high`` is ``inf`` when the band's upper edge
+        does not reach the target within the horizon, the message says why; ``low`` is
+        finite for an unreachable target when the band's lower edge reaches it; NaN
+        without bootstrap).
     level : float
         Interval level, e.g. 0.9.
     target : float
@@ -97,13 +102,21 @@ class SampleEstimate:
     kind : str
         ``"test_error"`` or ``"gap"``.
     reachable : bool
-        False when the fitted curve levels off above the target.
+        True when the answer is a number of samples: False when the fitted curve levels
+        off above the target, and when it reaches the target only beyond the horizon.
     asymptote : Estimate or None
         The level the fitted curve tends to, where the family has one.
     message : str
         The answer as one plain sentence.
     warnings : tuple of str
         Cautions attached to this answer (extrapolation, open interval).
+    horizon : float
+        The largest size this curve answers with a number (``HORIZON`` × the largest
+        measured size by default).
+    beyond_horizon : bool
+        True when the fitted curve reaches the target only beyond ``horizon``: the
+        answer is "more than ``horizon``; this curve cannot say how much more", and
+        ``n`` is ``inf``.
     """
 
     n: float
@@ -116,6 +129,8 @@ class SampleEstimate:
     asymptote: Estimate | None
     message: str
     warnings: tuple = ()
+    horizon: float = math.inf
+    beyond_horizon: bool = False
 
     def to_dict(self) -> dict:
         d = asdict(self)
@@ -316,7 +331,7 @@ class CurveFit:
 
     # ------------------------------------------------------------ answers
     def samples_for(self, test_error: float | None = None, gap: float | None = None,
-                    interval: float = INTERVAL) -> SampleEstimate:
+                    interval: float = INTERVAL, horizon: float = HORIZON) -> SampleEstimate:
         """Labelled samples needed to reach a test error or a generalization gap.
 
         Exactly one of ``test_error`` and ``gap`` is given. When this fit is of another
@@ -328,7 +343,10 @@ class CurveFit:
         test_error, gap : float
             The target.
         interval : float
-            Level of the bootstrap percentile interval on ``n``.
+            Level of the interval on ``n``.
+        horizon : float
+            Answers beyond this multiple of the largest measured size are given as
+            "more than N; this curve cannot say how much more" (default 100).
 
         Returns
         -------
@@ -360,8 +378,12 @@ class CurveFit:
         if not math.isfinite(target):
             raise InputError(f"target {kind} must be finite")
         level = check_level(interval)
+        factor = check_positive(horizon, "horizon")
+        if factor < 1:
+            raise InputError(f"horizon must be at least 1 (a multiple of the largest measured "
+                             f"size), got {horizon!r}")
         fit = self._companion("test" if kind == "test_error" else "gap")
-        return fit._solve(target, kind, level)
+        return fit._solve(target, kind, level, factor)
 
     def to_dict(self, interval: float = INTERVAL) -> dict:
         """A JSON-ready summary: ranking, chosen parameters, asymptote, predictions."""
@@ -486,9 +508,10 @@ class CurveFit:
                 weights=s["weights"], random_state=s["random_state"])
         return self._state.companions[on]
 
-    def _solve(self, target: float, kind: str, level: float) -> SampleEstimate:
-        """Samples needed for ``target``: from the measured means where the target lies
-        within the measured range, from the fitted curve beyond the largest size only.
+    def _solve(self, target: float, kind: str, level: float, factor: float) -> SampleEstimate:
+        """Samples needed for ``target``: from the measured means where they stay at or
+        below the target from some measured size on, from the fitted curve beyond the
+        largest size only, and as "more than N" beyond the horizon.
 
         The measured answer interpolates the per-size means linearly in ln n; its
         interval comes from the Student-t intervals of those means. The fitted answer
@@ -497,19 +520,27 @@ class CurveFit:
         """
         d = self._state.data
         grid = search_grid(d)
+        horizon = factor * d.n_max
         with np.errstate(all="ignore"):
             c = find_crossing(d, target, grid, self._predict_point(grid),
-                              self._predict_interval(grid, level), mean_band(d, level))
+                              self._predict_interval(grid, level), mean_band(d, level),
+                              horizon=horizon, widened=self._widened())
         asym = self.asymptote(level)
         reachable = c.source == "measured" or (
             math.isfinite(c.point) and not (asym is not None and math.isfinite(asym.low)
                                             and asym.low > target))
         metric = self.curve.metric
+        what = "test error" if kind == "test_error" else "generalization gap"
+        beyond = reachable and c.source == "fitted" and c.beyond_horizon
         if not reachable:
-            n = low = high = math.inf
-            what = "test error" if kind == "test_error" else "generalization gap"
+            n, high = math.inf, math.inf
+            low = c.low if math.isfinite(c.low) and c.low < horizon else math.inf
             message, cautions = unreachable_text(what, format_error(target, metric), asym,
-                                                 self.describe_asymptote(level), target, level)
+                                                 self.describe_asymptote(level), target, level,
+                                                 low)
+        elif beyond:
+            n, low, high, reachable = math.inf, c.low, math.inf, False
+            message, cautions = horizon_text(what, format_error(target, metric), c, d, level), []
         else:
             n = float(math.ceil(c.point))
             if c.source == "measured":
@@ -519,7 +550,14 @@ class CurveFit:
                                             self.approach == "logarithmic")
         return SampleEstimate(n=n, low=float(low), high=float(high), level=level, target=target,
                               kind=kind, reachable=bool(reachable), asymptote=asym,
-                              message=message, warnings=tuple(cautions))
+                              message=message, warnings=tuple(cautions), horizon=float(horizon),
+                              beyond_horizon=bool(beyond))
+
+    def _widened(self) -> bool:
+        """Whether the band beyond the data carries more than the bootstrap spread."""
+        fits = self._state.fits
+        return any(ff.tied and k != self.best for k, ff in fits.items()) or \
+            fits[self.best].drift > 0
 
 
 # ============================================================== the API

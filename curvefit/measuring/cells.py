@@ -4,7 +4,9 @@ A cell is a plain dict (``size``, ``repeat``, ``model_seed``, ``timeout``, the t
 and test row indices, and for group/order splits the row and group counts). `run_cell`
 turns it into a result row of the curve and never raises for a failing model: an
 exception, a non-finite loss or a time-out is recorded as ``status="failed"`` with a
-one-line ``message``. Tasks carry several cells (`bundle_cells`) so that per-task costs
+one-line ``message``. Each row also holds ``baseline_error``: the constant predictor's
+loss on the same test rows (`curvefit.measuring.metrics.constant_loss`), whatever the
+model did. Tasks carry several cells (`bundle_cells`) so that per-task costs
 are paid less often.
 
 Time limits: for trainer programs the per-fit ``timeout`` kills the program (its own
@@ -28,7 +30,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from curvefit.measuring.metrics import Metric
+from curvefit.measuring.metrics import Metric, constant_loss
 
 
 @dataclass(frozen=True, eq=False)
@@ -44,6 +46,8 @@ class CellData:
     # unfitted encoding steps decided once in the parent: () when nothing is needed,
     # None when each cell must ask `with_encoding` itself
     encoder_steps: tuple | None = None
+    # "classification" or "regression": what the constant predictor predicts
+    task: str = "classification"
 
 
 def encoder_steps(wrapped, probe) -> tuple | None:
@@ -153,6 +157,8 @@ def run_cell(data: CellData, spec, metric: Metric, cell: dict) -> dict:
                   n_test_errors=math.nan, fit_seconds=math.nan, status="ok", message="")
     X_tr, y_tr = _take(data.X, train_idx), data.y[train_idx]
     X_te, y_te = _take(data.X_test, test_idx), data.y_test[test_idx]
+    # outside the timed fit: the constant predictor sees the same rows, not the features
+    result["baseline_error"] = constant_loss(metric, y_tr, y_te, data.task)
     start = time.perf_counter()
     try:
         with warnings.catch_warnings():

@@ -17,6 +17,10 @@ turned into a loss as follows:
   the loss is ``1 − score``.
 
 The metric's name, the transform and the direction are recorded in the run metadata.
+
+`constant_loss` scores the constant predictor (the majority class of the training rows
+for a classifier, their mean for a regressor) with the same metric, so every cell also
+records what a model that ignores the features would get on the same test rows.
 """
 
 from __future__ import annotations
@@ -96,6 +100,57 @@ class Metric:
         if self.kind == "mse":
             return float(np.mean(diff ** 2)), None
         return float(np.mean(np.abs(diff))), None
+
+
+def constant_loss(metric: Metric, y_train, y_test, task: str) -> float:
+    """The loss of the constant predictor on ``y_test``, trained on ``y_train`` alone.
+
+    A classifier always predicts the majority class of ``y_train`` (scikit-learn's
+    ``DummyClassifier(strategy="prior")``: the majority class as its label, the class
+    shares as its probabilities); a regressor always predicts the mean of ``y_train``.
+    It is scored with ``metric`` exactly as the model is, so the two read side by side.
+    NaN when the metric cannot score a constant (for example a class of ``y_test``
+    that ``y_train`` lacks, under log loss).
+
+    Parameters
+    ----------
+    metric : Metric
+    y_train, y_test : array-like
+        Targets of the training subsample and of the test rows.
+    task : str
+        ``"classification"`` or ``"regression"``.
+
+    Returns
+    -------
+    float
+
+    References
+    ----------
+    .. [1] Pedregosa et al., "Scikit-learn: Machine Learning in Python", JMLR 12, 2011
+       (``DummyClassifier``/``DummyRegressor``: the baselines any model should beat).
+
+    Examples
+    --------
+    >>> m = resolve_metric("error", "classification")
+    >>> round(constant_loss(m, [0, 0, 0, 1], [0, 1, 0, 0, 0], "classification"), 6)  # always 0
+    0.2
+    >>> constant_loss(resolve_metric("mae", "regression"), [1.0, 3.0], [2.0, 4.0], "regression")
+    1.0
+    """
+    from sklearn.dummy import DummyClassifier, DummyRegressor
+
+    y_train, y_test = np.asarray(y_train), np.asarray(y_test)
+    if len(y_train) == 0 or len(y_test) == 0:
+        return float("nan")
+    dummy = (DummyClassifier(strategy="prior") if task == "classification"
+             else DummyRegressor(strategy="mean"))
+    try:
+        # the features play no part, so one column of zeros stands in for them
+        dummy.fit(np.zeros((len(y_train), 1)), y_train)
+        value, _ = metric.loss(dummy, np.zeros((len(y_test), 1)), y_test)
+    except (ValueError, TypeError):
+        return float("nan")
+    return float(value)
 
 
 def resolve_metric(name: str, task: str) -> Metric:

@@ -17,6 +17,10 @@
    What one cell does is in `curvefit.measuring.cells`.
 5. `_assemble_curve` — the points and the run metadata become a `Curve`.
 
+Every cell also records ``baseline_error``, the constant predictor's loss on its test
+rows (`curvefit.measuring.metrics.constant_loss`); the metadata says what that predictor
+is (``baseline``) and, for classification, the share of each class (``class_shares``).
+
 Randomness: the split of repeat ``r`` draws from ``SeedSequence(seed, spawn_key=(r,
 ...))``; a model whose ``random_state`` parameter is None gets a per-cell integer from
 ``SeedSequence(seed, spawn_key=(r, size, 2))``. Nothing depends on which worker runs a
@@ -457,7 +461,7 @@ def _execute(inputs: _Inputs, split: _SplitPlan, spec, settings: _Settings) -> t
         todo = sorted((k for k in wanted if k not in done), key=lambda k: (-k[0], k[1]))
         data = CellData(inputs.X, inputs.y, inputs.X if inputs.X_test is None else inputs.X_test,
                         inputs.y if inputs.y_test is None else inputs.y_test, settings.encode,
-                        inputs.encoder_steps)
+                        inputs.encoder_steps, inputs.task)
         in_process = settings.backend == "local" and settings.n_jobs == 1
         tasks = [(run_cells, (data, spec, inputs.metric, bundle), {})
                  for bundle in bundle_cells(_plan_cells(todo, split, spec, settings), one_each=in_process)]
@@ -530,6 +534,8 @@ def _assemble_curve(points: list[dict], inputs: _Inputs, split: _SplitPlan, spec
         "n_test": int(np.median([len(p.test) for p in split.plans])),
         "n_pool": int(min(p.n_units for p in split.plans)), "split": split.description,
         "timeout": settings.timeout,
+        "baseline": ("the majority class of each training subsample" if inputs.classification
+                     else "the mean target of each training subsample"),
         "model_seeding": "unset random_state parameters get a per-cell seed",
         "duplicate_test_fraction": split.duplicate_test_fraction, "n_jobs": settings.n_jobs,
         "backend": settings.backend, "versions": _versions(), "started": started,
@@ -540,9 +546,24 @@ def _assemble_curve(points: list[dict], inputs: _Inputs, split: _SplitPlan, spec
             meta["data"] = {**meta["data"], **value}
         else:
             meta[key] = value
+    if inputs.classification:
+        meta["class_shares"] = class_shares(inputs.y)
     meta.setdefault("target", meta["data"].get("target"))
     meta.setdefault("features", meta["data"].get("features"))
     return Curve(pd.DataFrame(points), meta)
+
+
+def class_shares(y) -> dict:
+    """Share of each class among the labels, largest first (keys as text, for JSON).
+
+    Examples
+    --------
+    >>> class_shares(np.array(["a", "b", "b", "b"]))
+    {'b': 0.75, 'a': 0.25}
+    """
+    values, counts = np.unique(np.asarray(y).astype(str), return_counts=True)
+    order = np.argsort(-counts, kind="stable")
+    return {str(values[i]): float(counts[i] / counts.sum()) for i in order}
 
 
 def _versions() -> dict:
