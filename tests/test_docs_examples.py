@@ -1,0 +1,206 @@
+"""The README and docs name only commands and options that exist.
+
+Every ``curvefit <command> ...`` line of README.md and docs/*.md (``$`` examples, usage
+synopses and inline code) is checked against that command's real ``--help``, and every
+other ``--option`` the docs name in code must belong to some command. The help of each
+command is read once, in one subprocess, so the whole file takes a few seconds. The
+pasted outputs themselves are refreshed and compared by ``scripts/refresh_docs.py``.
+"""
+
+import json
+import os
+import re
+import subprocess
+import sys
+from functools import lru_cache
+
+import pytest
+
+from conftest import ROOT
+from curvefit.cli import COMMANDS
+
+DOCS = [ROOT / "README.md", *sorted((ROOT / "docs").glob("*.md"))]
+OPTION = re.compile(r"(?<![\w-])--[a-z][a-z0-9-]*")
+HELP_OPTION = re.compile(r"^[│|]?\s*(?:\*\s+)?(--[a-z][a-z0-9-]*)")
+COMMAND_LINE = re.compile(r"^(?:\$ )?curvefit ([a-z][a-z-]*)(?=\s|$)(.*)$")
+FENCE = re.compile(r"^\s*(`{3,}|~{3,})(.*)$")
+INLINE = re.compile(r"(?<!`)`([^`\n]+)`(?!`)")
+QUOTED = re.compile(r"\"[^\"]*\"|'[^']*'")
+# Options of the benchmark scripts and of other programs named in the docs.
+NOT_CURVEFIT = re.compile(r"scripts/|pytest|pip |ruff |python -c")
+
+HELP_SCRIPT = """
+import contextlib, io, json, sys
+from curvefit.cli.main import main
+helps = {}
+for args in json.loads(sys.argv[1]):
+    out = io.StringIO()
+    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(io.StringIO()):
+        try:
+            main(args + ["--help"])
+        except SystemExit:
+            pass
+    helps[" ".join(args)] = out.getvalue()
+print(json.dumps(helps))
+"""
+
+
+def help_options(text: str) -> set[str]:
+    return {m.group(1) for line in text.splitlines() if (m := HELP_OPTION.match(line))}
+
+
+@lru_cache(maxsize=None)
+def helps() -> dict[str, str]:
+    """`curvefit <cmd> --help` for every command and every `bound` calculator."""
+    def run(arg_lists):
+        env = dict(os.environ, COLUMNS="200", NO_COLOR="1")
+        done = subprocess.run([sys.executable, "-c", HELP_SCRIPT, json.dumps(arg_lists)],
+                              capture_output=True, text=True, cwd=ROOT, env=env, timeout=120)
+        assert done.returncode == 0, done.stderr
+        return json.loads(done.stdout)
+
+    found = run([[c] for c in COMMANDS])
+    found.update(run([["bound", sub] for sub in bound_calculators(found["bound"])]))
+    return found
+
+
+def bound_calculators(bound_help: str) -> list[str]:
+    """The calculators listed under Commands in `curvefit bound --help`."""
+    names, in_commands = [], False
+    for line in bound_help.splitlines():
+        if "Commands" in line:
+            in_commands = True
+        elif in_commands and (m := re.match(r"^[│|]?\s+([a-z][a-z-]+)\s{2,}", line)):
+            names.append(m.group(1))
+    return names
+
+
+def command_lines(text: str):
+    """(line number, command, rest) of each curvefit command line written in the doc."""
+    lines = text.splitlines()
+    in_fence, file_block = False, False
+    for i, line in enumerate(lines):
+        fence = FENCE.match(line)
+        if fence:
+            in_fence = not in_fence
+            file_block = in_fence and "file=" in fence.group(2)
+            continue
+        if in_fence and not file_block:
+            m = COMMAND_LINE.match(line.strip())
+            if not m:
+                continue
+            rest, j = m.group(2), i
+            # `$` examples continue after a trailing backslash, synopses on indented lines
+            while j + 1 < len(lines) and (rest.endswith("\\") or (
+                    not line.startswith("$") and lines[j + 1].startswith(" ") and
+                    lines[j + 1].strip().startswith("["))):
+                j += 1
+                rest = rest.rstrip("\\") + " " + lines[j].strip()
+            yield i + 1, m.group(1), rest
+        elif not in_fence:
+            for span in INLINE.findall(line):
+                m = COMMAND_LINE.match(span.strip())
+                if m:
+                    yield i + 1, m.group(1), m.group(2)
+
+
+def named_options(rest: str) -> set[str]:
+    rest = QUOTED.sub("", rest.split("  #")[0])
+    return set(OPTION.findall(rest))
+
+
+def documented_commands(docs=DOCS):
+    for doc in docs:
+        text = doc if isinstance(doc, str) else doc.read_text(encoding="utf-8")
+        name = "<text>" if isinstance(doc, str) else doc.relative_to(ROOT)
+        for line, command, rest in command_lines(text):
+            yield f"{name}:{line}", command, rest
+
+
+def wrong_options(docs=DOCS) -> list[str]:
+    """Options of documented command lines that their command's --help does not list."""
+    known = helps()
+    calculators = bound_calculators(known["bound"])
+    assert calculators, "no calculators found in `curvefit bound --help`"
+    wrong = []
+    for where, command, rest in documented_commands(docs):
+        if command not in COMMANDS:
+            continue                                    # reported on its own
+        words = rest.split()
+        if command == "bound":
+            subs = [words[0]] if words and words[0] in calculators else calculators
+            if words and not words[0].startswith("-") and not set(words[0].split("|")) <= set(calculators):
+                wrong.append(f"{where}: curvefit bound {words[0]} (no such calculator)")
+            options = set().union(*(help_options(known[f"bound {s}"]) for s in subs))
+        else:
+            options = help_options(known[command])
+        wrong += [f"{where}: curvefit {command} {opt}"
+                  for opt in sorted(named_options(rest) - options - {"--help"})]
+    return wrong
+
+
+def stray_options(text: str) -> list[str]:
+    """Options named in code (fenced blocks, inline code) that no command has."""
+    everything = set().union(*(help_options(help_text) for help_text in helps().values()))
+    wrong = []
+    in_fence, file_block = False, False
+    for i, line in enumerate(text.splitlines()):
+        fence = FENCE.match(line)
+        if fence:
+            in_fence = not in_fence
+            file_block = in_fence and "file=" in fence.group(2)
+            continue
+        pieces = [line] if in_fence and not file_block else INLINE.findall(line)
+        for piece in pieces:
+            if NOT_CURVEFIT.search(piece):
+                continue
+            wrong += [f"{i + 1}: {opt}"
+                      for opt in sorted(named_options(piece) - everything - {"--help", "--version"})]
+    return wrong
+
+
+def test_the_docs_show_commands_at_all():
+    found = list(documented_commands())
+    assert len(found) > 40
+    assert {command for _, command, _ in found} >= {"measure", "fit", "need", "bound", "demo"}
+
+
+def test_every_documented_command_exists():
+    unknown = [f"{where}: curvefit {command}" for where, command, _ in documented_commands()
+               if command not in COMMANDS]
+    assert not unknown, "commands the CLI does not have:\n" + "\n".join(unknown)
+
+
+def test_every_option_of_a_documented_command_line_exists():
+    wrong = wrong_options()
+    assert not wrong, "options missing from `--help` of their command:\n" + "\n".join(wrong)
+
+
+def test_every_option_named_in_docs_code_belongs_to_some_command():
+    wrong = [f"{doc.relative_to(ROOT)}:{w}" for doc in DOCS
+             for w in stray_options(doc.read_text(encoding="utf-8"))]
+    assert not wrong, "options no curvefit command has:\n" + "\n".join(wrong)
+
+
+def test_a_renamed_option_is_caught():
+    doc = ("```\n$ curvefit fit run.json --level 0.9\n$ curvefit bound samples --eps 0.1 --n-test 5\n```\n"
+           "Options: `--level 0.9`, `--interval 0.9`; `curvefit need RUN --gap G --weights none`.\n")
+    assert wrong_options([doc]) == ["<text>:2: curvefit fit --level",
+                                    "<text>:3: curvefit bound --n-test"]
+    assert stray_options(doc) == ["2: --level", "5: --level"]
+
+
+@pytest.mark.parametrize("text, expected", [
+    ("```\n$ curvefit fit run.json --interval 0.8\n```", [("fit", " run.json --interval 0.8")]),
+    ("$ curvefit fit run.json, outside code", []),
+    ("x `curvefit need RUN --gap G` y", [("need", " RUN --gap G")]),
+    ("```\n$ curvefit measure a.csv \\\n    --target y\n```", [("measure", " a.csv  --target y")]),
+    ("```\ncurvefit demo: output line, not a command\n```", []),
+])
+def test_command_lines_are_found(text, expected):
+    assert [(c, r) for _, c, r in command_lines(text)] == expected
+
+
+def test_quoted_trainer_commands_are_not_read_as_options():
+    assert named_options(' x --command "prog --out={predictions}" --timeout 3  # --no') == {
+        "--command", "--timeout"}
