@@ -12,7 +12,7 @@ from curvefit.cli.common import emit_json, interval_option, level_alias, out, pi
 from curvefit.cli.common import print_table as _print_table
 from curvefit.core.defaults import BOOTSTRAP, SEED
 from curvefit.core.errors import FitWarning
-from curvefit.core.formatting import format_error, format_estimate, format_level, format_number
+from curvefit.core.formatting import format_error, format_estimate, format_level, format_number, format_range
 
 ON_HELP = "Quantity to fit: test, train or gap (test − train)."
 WEIGHTS_HELP = "Least-squares weights: sem (inverse variance, floored), index (by size rank) or none."
@@ -71,22 +71,38 @@ def _print_chosen(fit, interval: float) -> None:
                   markup=False)
 
 
-def _print_predictions(fit, interval: float) -> None:
-    metric = fit.curve.metric
-    n_max = float(fit.sizes.max())
-    out.print("predictions:", markup=False)
-    pred = fit.predict([2 * n_max, 10 * n_max], interval=interval)
-    rows = [[f"{r.size:,.0f} ({k}×)", format_error(r.estimate, metric),
-             f"{format_error(r.low, metric)}–{format_error(r.high, metric)}"]
-            for k, r in zip((2, 10), pred.itertuples())]
+def print_forecasts(fit, table, interval: float, title: str) -> None:
+    """Forecasts (``size, estimate, low, high``) as a table; sizes with their multiple of
+    the largest measured size."""
+    metric, n_max = fit.curve.metric, float(fit.largest_size)
+    out.print(title, markup=False)
+    rows = [[f"{r.size:,.0f} ({format_number(r.size / n_max, 3)}×)", format_error(r.estimate, metric),
+             format_range(r.low, r.high, "error", metric)] for r in table.itertuples()]
     print_table(["size", QUANTITY[fit.on], f"{format_level(interval)} interval"], rows)
 
 
-def print_fit(fit, interval: float) -> None:
-    """Ranking, the chosen family's parameters, and predictions at 2× and 10×."""
+def predictions(fit, interval: float):
+    """The fit's forecasts at 2× and 10× the largest measured size."""
+    n_max = float(fit.largest_size)
+    return fit.predict([2 * n_max, 10 * n_max], interval=interval)
+
+
+def print_sanity(sanity) -> None:
+    """The constant predictor beside the answer, then each flag, one line each."""
+    for line in sanity.lines():
+        out.print(line, markup=False)
+
+
+def print_fit(fit, interval: float, at=None, sanity=None) -> None:
+    """Ranking, the chosen family's parameters, predictions at 2× and 10× (and at the
+    sizes asked for), then the sanity lines."""
     _print_ranking(fit)
     _print_chosen(fit, interval)
-    _print_predictions(fit, interval)
+    print_forecasts(fit, predictions(fit, interval), interval, "predictions:")
+    if at is not None:
+        print_forecasts(fit, at, interval, "at the sizes asked for:")
+    if sanity is not None:
+        print_sanity(sanity)
 
 
 def register(app: typer.Typer) -> None:
@@ -102,27 +118,48 @@ def register(app: typer.Typer) -> None:
         interval: float = interval_option(),
         level: Optional[float] = level_alias(),
         seed: int = typer.Option(SEED, "--seed", help="Random seed of the bootstrap."),
+        at: Optional[str] = typer.Option(None, "--at",
+                                         help="Sizes to forecast at, a,b,c or START:STOP:COUNT "
+                                              "(e.g. 20000,50000)."),
         out_file: Optional[str] = typer.Option(None, "--out",
                                                help="Also write the fit as JSON to this file."),
         quiet: bool = typer.Option(False, "--quiet", help="No warnings on stderr."),
         json_out: bool = typer.Option(False, "--json", help="Print the fit as JSON only."),
     ):
-        """Fit the curve families, rank them and predict at 2× and 10× the largest size."""
+        """Fit the curve families, rank them and predict at 2× and 10× the largest size
+        (and at --at sizes), beside the constant predictor's error."""
+        import pandas as pd
+
         from curvefit.core.jsonio import write_json
-        from curvefit.core.validate import check_level
+        from curvefit.core.validate import check_level, parse_list
+        from curvefit.fitting.sanity import sanity_check
 
         interval = check_level(pick_interval(interval, level))
+        sizes = parse_list(at, float, name="--at size") if at is not None else None
         with warnings.catch_warnings():
             # the 10× prediction is asked for on purpose; its caution is in the fit's warnings
             warnings.simplefilter("ignore", FitWarning)
-            _, fit = read_and_fit(run, on=on, families=families, bootstrap=bootstrap,
-                                  weights=weights, seed=seed)
+            curve, fit = read_and_fit(run, on=on, families=families, bootstrap=bootstrap,
+                                      weights=weights, seed=seed)
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always", FitWarning)
+            at_table = fit.predict(sizes, interval=interval) if sizes is not None else None
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", FitWarning)
+            forecasts = predictions(fit, interval)
+            if at_table is not None:
+                forecasts = pd.concat([forecasts, at_table], ignore_index=True)
+            sanity = sanity_check(curve, fit, forecasts=forecasts, interval=interval)
             doc = fit.to_dict(interval)
+            if at_table is not None:
+                doc["at"] = at_table.to_dict(orient="records")
+            doc["sanity"] = sanity.to_dict()
             if out_file:
                 write_json(out_file, doc, what="fit file")
             if json_out:
                 emit_json(doc)
                 return
-            print_fit(fit, interval)
-        for w in fit.warnings:
+            print_fit(fit, interval, at=at_table, sanity=sanity)
+        notes = list(fit.warnings) + [str(w.message) for w in caught]
+        for w in dict.fromkeys(notes):
             warn(w, quiet)

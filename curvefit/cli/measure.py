@@ -34,11 +34,11 @@ def _read_config(path: str) -> dict:
 def _summary_rows(curve) -> list[dict]:
     s = curve.summary()
     keep = ["size", "n_repeats", "n_failed", "test_mean", "test_sem", "train_mean",
-            "gap_mean", "n_test", "test_low", "test_high"]
+            "gap_mean", "n_test", "test_low", "test_high", "baseline_mean"]
     return s[keep].to_dict(orient="records")
 
 
-def _print_summary(curve, path: Path) -> None:
+def _print_summary(curve, path: Path, sanity) -> None:
     rows = _summary_rows(curve)
     metric = curve.metric
     unit = curve.meta.get("size_unit", "rows")
@@ -46,17 +46,22 @@ def _print_summary(curve, path: Path) -> None:
               f"(lower is better), split {curve.meta['split']['kind']}, "
               f"{curve.meta['repeats']} repeats, test set {curve.meta['n_test']} rows",
               markup=False)
-    head = [f"size ({unit})", "test mean", "± sem", "train mean", "gap", "failed"]
+    head = [f"size ({unit})", "test mean", "± sem", "train mean", "gap", "constant", "failed"]
     table = []
     for r in rows:
         def f(v):
             return "-" if v is None or v != v else f"{v:.4f}"
         table.append([str(r["size"]), f(r["test_mean"]), f(r["test_sem"]), f(r["train_mean"]),
-                      f(r["gap_mean"]), str(r["n_failed"])])
+                      f(r["gap_mean"]), f(r["baseline_mean"]), str(r["n_failed"])])
     failed_sizes = set(curve.failed_points()["size"]) - {r["size"] for r in rows}
     for s in sorted(failed_sizes):
-        table.append([str(s), "-", "-", "-", "-", "all"])
+        table.append([str(s), "-", "-", "-", "-", "-", "all"])
     print_table(head, table)
+    if any(r["baseline_mean"] == r["baseline_mean"] for r in rows):
+        out.print(f"constant: the error of {curve.meta.get('baseline', 'a constant predictor')} "
+                  "on the same test sets", markup=False)
+    for line in sanity.notes:
+        out.print(line, markup=False)
     n_failed = len(curve.failed_points())
     out.print(f"wrote {path} ({len(curve.points)} cells, {n_failed} failed)", markup=False)
 
@@ -64,6 +69,7 @@ def _print_summary(curve, path: Path) -> None:
 def run_measure(opts: dict) -> int:
     """Do the work of the command from merged options; return the exit code."""
     from curvefit.core.errors import FitWarning
+    from curvefit.fitting.sanity import sanity_check
     from curvefit.measuring.journal import journal_path
     from curvefit.measuring.splits import LeakWarning
 
@@ -74,14 +80,15 @@ def run_measure(opts: dict) -> int:
         if issubclass(w.category, (LeakWarning, FitWarning)):
             warn(str(w.message), bool(opts["quiet"]))
     n_failed = len(curve.failed_points())
+    sanity = sanity_check(curve)
     if opts["json"]:
         emit_json({"run_file": str(out_path), "journal": str(journal_path(out_path)),
                    "n_cells": len(curve.points), "n_failed": n_failed,
                    "metric": curve.meta["metric_info"], "split": curve.meta["split"],
                    "sizes": curve.meta["sizes"], "repeats": curve.meta["repeats"],
-                   "summary": _summary_rows(curve)})
+                   "summary": _summary_rows(curve), "sanity": sanity.to_dict()})
     else:
-        _print_summary(curve, out_path)
+        _print_summary(curve, out_path, sanity)
     if n_failed:
         first = curve.failed_points().iloc[0]
         warn(f"{n_failed} cell(s) failed (first: size {first['size']}, repeat {first['repeat']}: "

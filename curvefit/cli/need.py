@@ -8,7 +8,7 @@ from typing import Optional
 import typer
 
 from curvefit.cli.common import emit_json, interval_option, level_alias, out, pick_interval, warn
-from curvefit.cli.fit import BOOTSTRAP_HELP, WEIGHTS_HELP, print_table
+from curvefit.cli.fit import BOOTSTRAP_HELP, WEIGHTS_HELP, print_sanity, print_table
 from curvefit.core.defaults import BOOTSTRAP, SEED
 from curvefit.core.errors import InputError
 from curvefit.core.formatting import format_count, format_error, format_interval, format_level, format_range
@@ -18,6 +18,8 @@ from curvefit.core.validate import parse_list
 def _print_answer(need, interval: float) -> None:
     """The answer's sentence, then the fitted family it came from."""
     used = need.fit
+    if need.answer is None:
+        return
     out.print(need.answer.message, markup=False)
     detail = f"Fitted family: {used.best} ({used.formula})"
     if used.runner_up:
@@ -33,7 +35,7 @@ def _print_price(need, interval: float) -> None:
     from curvefit.core.formatting import format_money as money
 
     have, metric = need.current_n, need.fit.curve.metric
-    if need.answer.reachable:
+    if need.answer is not None and need.answer.reachable:
         out.print(f"You have {have:,.0f} labelled samples; that is about "
                   f"{format_count(need.extra)} more." if need.extra > 0 else
                   f"You have {have:,.0f} labelled samples, already enough.", markup=False)
@@ -60,8 +62,10 @@ def _print_plan(need, interval: float) -> None:
     from curvefit.core.formatting import format_money
 
     metric = need.fit.curve.metric
-    out.print("", markup=False)
-    out.print("expected test error after buying more labels:", markup=False)
+    if need.answer is not None:
+        out.print("", markup=False)
+    out.print(f"expected test error after buying more labels (you have {need.current_n:,.0f}):",
+              markup=False)
     rows = [[f"{r.extra:,.0f}", f"{r.total_n:,.0f}", format_error(r.test_error, metric),
              format_range(r.low, r.high, "error", metric), format_money(r.cost),
              format_error(r.drop_per_1000, metric)]
@@ -80,11 +84,16 @@ def _print_vc(vc: dict) -> None:
 
 
 def print_need(need, interval: float) -> None:
-    """The answer first, then its price, the purchase plan and the worst case beside it."""
+    """The answer first, the constant predictor and the flags beside it, then its price,
+    the purchase plan and the worst case."""
     _print_answer(need, interval)
+    if need.sanity is not None and need.answer is not None:
+        print_sanity(need.sanity)
     _print_price(need, interval)
     if need.plan is not None:
         _print_plan(need, interval)
+    if need.sanity is not None and need.answer is None:
+        print_sanity(need.sanity)
     if need.vc is not None:
         _print_vc(need.vc)
 
@@ -103,7 +112,8 @@ def register(app: typer.Typer) -> None:
                                               help="Labelled samples you have now (default: the largest "
                                                    "measured size)."),
         extra: Optional[str] = typer.Option(None, "--extra",
-                                            help="Purchase amounts to price, a,b,c or START:STOP:COUNT."),
+                                            help="Purchase amounts to price, a,b,c or START:STOP:COUNT; "
+                                                 "without a target, what they buy."),
         vc_dim: Optional[float] = typer.Option(None, "--vc-dim",
                                                help="A known VC dimension, to show the worst-case bound "
                                                     "beside the answer."),
@@ -116,12 +126,16 @@ def register(app: typer.Typer) -> None:
         quiet: bool = typer.Option(False, "--quiet", help="No warnings on stderr."),
         json_out: bool = typer.Option(False, "--json", help="Print the answer as JSON only."),
     ):
-        """Labelled samples needed for a target test error (--error) or gap (--gap), priced."""
+        """Labelled samples needed for a target test error (--error) or gap (--gap), priced;
+        without a target, what --extra labels buy."""
         from curvefit.core.curve import Curve
         from curvefit.fitting.planning import labels_needed
 
-        if (error is None) == (gap is None):
+        if error is not None and gap is not None:
             raise InputError("give exactly one target: --error E (test error) or --gap G")
+        if error is None and gap is None and extra is None:
+            raise InputError("give a target, --error E (test error) or --gap G, or --extra "
+                             "amounts to see what they buy")
         interval = pick_interval(interval, level)
         extras = (parse_list(extra, float, name="extra amount", integer_range=True)
                   if extra is not None else None)

@@ -1,8 +1,10 @@
 """What buying more labels is worth: samples needed, their price, and each purchase's effect.
 
 Pure numerics on a fitted curve (``CurveFit``); imports neither the command line nor I/O.
-`plan_purchase` prices a list of purchases; `price_need` answers "how many labels for
-this target, and what do they cost" as one result object that the command line prints.
+`plan_purchase` prices a list of purchases; `labels_needed` answers "how many labels for
+this target, and what do they cost" (or, without a target, "what do these labels buy")
+as one result object that the command line prints, with the sanity checks of
+`curvefit.fitting.sanity` beside it.
 """
 
 from __future__ import annotations
@@ -19,6 +21,7 @@ from curvefit.core.defaults import BOOTSTRAP, INTERVAL, SEED
 from curvefit.core.errors import FitWarning, InputError
 from curvefit.core.estimate import Estimate
 from curvefit.core.validate import check_level, check_positive
+from curvefit.fitting.sanity import sanity_check
 
 # Confidence of the worst-case VC bound shown beside a measured answer.
 VC_DELTA = 0.1
@@ -184,8 +187,9 @@ class LabelNeed:
 
     Attributes
     ----------
-    answer : SampleEstimate
-        Samples needed for the target, with its interval and its sentence.
+    answer : SampleEstimate or None
+        Samples needed for the target, with its interval and its sentence; None when
+        no target was given (then ``plan`` says what the extra labels buy).
     fit : CurveFit
         The fit the answer was read from (of the test error, or of the gap).
     current_n : float
@@ -204,6 +208,9 @@ class LabelNeed:
         when a VC dimension is known.
     warnings : list of str
         Cautions of the fit, the answer and the extrapolations, once each.
+    sanity : Sanity or None
+        The constant predictor beside the answer, the imbalance hint, and answers or
+        forecasts below the fitted floor (`curvefit.fitting.sanity.sanity_check`).
     """
 
     answer: Any
@@ -218,17 +225,20 @@ class LabelNeed:
     vc: dict | None = None
     vc_known: bool = False
     warnings: list = field(default_factory=list)
+    sanity: Any = None
 
     @property
     def budget_covers(self) -> bool | None:
         """True when the budget buys the labels the target needs (None: nothing to compare)."""
-        if self.budget is None or not self.answer.reachable:
+        if self.budget is None or self.answer is None or not self.answer.reachable:
             return None
         return self.budget.labels >= self.extra
 
     def to_dict(self) -> dict:
-        doc: dict = {"answer": self.answer.to_dict(), "current_n": self.current_n,
-                     "fit": {"on": "test" if self.answer.kind == "test_error" else "gap",
+        answer = self.answer
+        doc: dict = {"answer": answer.to_dict() if answer is not None else None,
+                     "current_n": self.current_n,
+                     "fit": {"on": "gap" if answer is not None and answer.kind == "gap" else "test",
                              "best": self.fit.best}}
         if self.cost is not None:
             doc["cost"] = self.cost.to_dict()
@@ -238,6 +248,8 @@ class LabelNeed:
             doc["plan"] = self.plan.to_dict(orient="records")
         if self.vc_known:
             doc["vc"] = self.vc
+        if self.sanity is not None:
+            doc["sanity"] = self.sanity.to_dict()
         doc["warnings"] = list(self.warnings)
         return doc
 
@@ -263,11 +275,12 @@ def vc_comparison(vc_dim: float, target: float, delta: float = VC_DELTA) -> dict
 
 
 def _check_need(test_error, gap, cost_per_label, budget, current_n, extra, vc_dim, interval):
-    """Validate the settings of `labels_needed` (one message per problem)."""
-    if (test_error is None) == (gap is None):
+    """Validate the settings of `labels_needed` (one message per problem); the target, or
+    None when only purchases are priced."""
+    if test_error is not None and gap is not None:
         raise InputError("give exactly one target: test_error=E or gap=G")
-    name, target = ("test_error", test_error) if test_error is not None else ("gap", gap)
-    check_positive(target, name, allow_zero=True)
+    if test_error is None and gap is None and extra is None and budget is None:
+        raise InputError("give a target (test_error=E or gap=G), or extra amounts of labels to price")
     check_level(interval)
     if cost_per_label is not None:
         check_positive(cost_per_label, "cost_per_label", allow_zero=True)
@@ -281,7 +294,10 @@ def _check_need(test_error, gap, cost_per_label, budget, current_n, extra, vc_di
         check_positive(vc_dim, "vc_dim", allow_zero=True)
     if extra is not None and any(not math.isfinite(float(x)) or float(x) <= 0 for x in extra):
         raise InputError("extra amounts must be positive numbers of labels")
-    return float(target)
+    if test_error is None and gap is None:
+        return None
+    name, target = ("test_error", test_error) if test_error is not None else ("gap", gap)
+    return check_positive(target, name, allow_zero=True)
 
 
 def _amounts(extra, have: float, budget_labels: int | None, missing: float | None) -> list[int]:
@@ -306,12 +322,16 @@ def labels_needed(curve, *, test_error=None, gap=None, current_n=None, cost_per_
 
     Fits the test error (and, for a gap target, the gap) with `fit_curve`, answers with
     `CurveFit.samples_for`, and prices the answer, a budget and a list of purchases.
+    Without a target it only says what ``extra`` labels (or a budget) buy: the expected
+    test error after each purchase, with its interval. The sanity checks
+    (`curvefit.fitting.sanity.sanity_check`) go beside either.
 
     Parameters
     ----------
     curve : Curve
     test_error, gap : float
-        The target; exactly one is given. A gap target needs train error in the curve.
+        The target; at most one is given, and none only with ``extra`` or ``budget``.
+        A gap target needs train error in the curve.
     current_n : float, optional
         Labelled samples in hand (default: the largest measured size).
     cost_per_label : float, optional
@@ -344,6 +364,9 @@ def labels_needed(curve, *, test_error=None, gap=None, current_n=None, cost_per_
     ...                      families="power-law-floor")
     >>> need.answer.reachable, need.cost.cost == need.extra * 0.5
     (True, True)
+    >>> buys = labels_needed(curve, extra=[1000, 5000], bootstrap=50, families="power-law-floor")
+    >>> buys.answer is None, buys.plan["extra"].tolist()
+    (True, [1000, 5000])
     """
     from curvefit.fitting.engine import fit_curve
 
@@ -357,27 +380,45 @@ def labels_needed(curve, *, test_error=None, gap=None, current_n=None, cost_per_
         warnings.simplefilter("always", FitWarning)
         fit = fit_curve(curve, on="test", **settings)
         used = fit if gap is None else fit_curve(curve, on="gap", **settings)
-        answer = used.samples_for(test_error=test_error, gap=gap, interval=interval)
+        answer = (used.samples_for(test_error=test_error, gap=gap, interval=interval)
+                  if target is not None else None)
         have = float(current_n) if current_n is not None else fit.largest_size
         need = _price(fit, answer, have, cost_per_label, budget, extra, interval)
         dims = vc_dim if vc_dim is not None else curve.meta.get("vc_dim")
         vc = None
-        if dims is not None:
+        if dims is not None and target is not None:
             try:
                 vc = vc_comparison(float(dims), target)
             except (TypeError, ValueError):
                 vc = None
+        sanity = sanity_check(curve, fit, answer=answer, answer_fit=used,
+                              forecasts=_forecasts(need), interval=interval)
     notes = [str(w.message) for w in caught if issubclass(w.category, FitWarning)]
-    notes = list(dict.fromkeys(list(used.warnings) + list(answer.warnings) + notes))
-    return LabelNeed(answer=answer, fit=used, current_n=have, vc=vc, vc_known=dims is not None,
-                     warnings=notes, **need)
+    answer_notes = list(answer.warnings) if answer is not None else []
+    notes = list(dict.fromkeys(list(used.warnings) + answer_notes + notes))
+    return LabelNeed(answer=answer, fit=used, current_n=have, vc=vc,
+                     vc_known=dims is not None and target is not None, warnings=notes,
+                     sanity=sanity, **need)
+
+
+def _forecasts(need: dict) -> pd.DataFrame | None:
+    """The test-error forecasts of a priced answer (plan rows and the budget's outcome) as
+    ``size, estimate`` rows, for the floor check."""
+    rows = []
+    if need.get("plan") is not None:
+        rows += [{"size": float(r.total_n), "estimate": float(r.test_error)}
+                 for r in need["plan"].itertuples()]
+    if need.get("budget") is not None:
+        b = need["budget"]
+        rows.append({"size": float(b.total_n), "estimate": float(b.test_error.estimate)})
+    return pd.DataFrame(rows, columns=["size", "estimate"]) if rows else None
 
 
 def _price(fit, answer, have: float, cost_per_label, budget, extra, interval: float) -> dict:
     """The labels still to buy, their cost, the budget's outcome and the purchase plan."""
     out: dict = {}
     missing = None
-    if answer.reachable:
+    if answer is not None and answer.reachable:
         missing = max(answer.n - have, 0.0)
         out["extra"] = missing
         out["extra_low"] = max(answer.low - have, 0.0) if math.isfinite(answer.low) else math.nan
@@ -391,7 +432,8 @@ def _price(fit, answer, have: float, cost_per_label, budget, extra, interval: fl
         out["budget"] = BudgetOutcome(float(budget), bought, have + bought,
                                       fit.error_at(have + bought, interval=interval))
     if extra is not None or cost_per_label is not None or budget is not None:
-        amounts = _amounts(extra, have, bought, missing if answer.kind == "test_error" else None)
+        needed = missing if answer is not None and answer.kind == "test_error" else None
+        amounts = _amounts(extra, have, bought, needed)
         out["plan"] = plan_purchase(fit, current_n=have, extra=amounts,
                                     cost_per_label=cost_per_label, interval=interval)
     return out

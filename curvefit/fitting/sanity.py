@@ -100,7 +100,7 @@ class BaselineComparison:
         model = format_estimate(self.model.estimate, self.model.low, self.model.high,
                                 self.model.level, kind="error", metric=m)
         return (f"constant predictor ({self.predictor}): {format_error(self.baseline.estimate, m)} "
-                f"at {format_count(self.size)} labels; the model: {model}")
+                f"at {self.size:,.0f} labels; the model: {model}")
 
     def flag(self) -> str | None:
         """The one plain line saying the model is no better than the constant predictor."""
@@ -108,7 +108,7 @@ class BaselineComparison:
             return None
         m = self.metric
         where = ("at every measured size" if self.everywhere
-                 else f"at the largest measured size ({format_count(self.size)} labels)")
+                 else f"at the largest measured size ({self.size:,.0f} labels)")
         return (f"the model is no better than a constant predictor ({self.predictor}) {where}: "
                 f"{format_error(self.model.estimate, m)} against "
                 f"{format_error(self.baseline.estimate, m)}; answers and forecasts for it "
@@ -327,7 +327,7 @@ class Sanity:
                 "floor_notes": list(self.floor), "notes": self.notes}
 
 
-def sanity_check(curve: Curve, fit: Any = None, *, answer: Any = None,
+def sanity_check(curve: Curve, fit: Any = None, *, answer: Any = None, answer_fit: Any = None,
                  forecasts: pd.DataFrame | None = None, interval: float = INTERVAL) -> Sanity:
     """Every check beside an answer or a forecast of ``curve``.
 
@@ -335,9 +335,12 @@ def sanity_check(curve: Curve, fit: Any = None, *, answer: Any = None,
     ----------
     curve : Curve
     fit : CurveFit, optional
-        The fit the answer or the forecasts came from; needed for the floor checks.
+        The fit the forecasts (and by default the answer) came from; needed for the
+        floor checks.
     answer : SampleEstimate, optional
-        Checked against the fit's floor.
+        Checked against the floor of ``answer_fit`` (default ``fit``).
+    answer_fit : CurveFit, optional
+        The fit the answer was read from when it is not ``fit`` (a gap target).
     forecasts : pandas.DataFrame, optional
         ``size, estimate, low, high`` rows (``CurveFit.predict``), checked likewise.
     interval : float
@@ -349,9 +352,11 @@ def sanity_check(curve: Curve, fit: Any = None, *, answer: Any = None,
     """
     level = check_level(interval)
     floor: list[str] = []
-    if fit is not None:
-        note = answer_floor_note(fit, answer, level)
+    answer_fit = answer_fit if answer_fit is not None else fit
+    if answer_fit is not None:
+        note = answer_floor_note(answer_fit, answer, level)
         floor += [note] if note else []
+    if fit is not None:
         floor += forecast_floor_notes(fit, forecasts, level)
     return Sanity(baseline=compare_to_baseline(curve, level), imbalance=imbalance_hint(curve),
                   floor=tuple(dict.fromkeys(floor)))
