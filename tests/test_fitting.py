@@ -442,9 +442,10 @@ def test_answers_within_the_measured_range_come_from_the_measured_means(plateau_
     for target in (0.30, 0.10, 0.07):
         s = plateau_fit.samples_for(test_error=target)
         assert s.reachable and s.n >= sizes[0]
-        first = sizes[np.argmax(means <= target)]
-        assert s.n <= first                          # reached no later than the first size at the target
-        assert np.all(means[sizes < s.n] > target)   # and every smaller measured size is above it
+        last_above = sizes[np.nonzero(means > target)[0][-1]]
+        stays = sizes[np.nonzero(means > target)[0][-1] + 1]
+        assert last_above < s.n <= stays             # after the last measured size above it
+        assert np.all(means[sizes >= s.n] <= target)  # and every larger measured size agrees
         assert s.message.startswith("The measured curve already reaches")
         assert s.low <= s.n <= s.high
     # never below the smallest measured size, whatever the fitted curve says at n = 1

@@ -42,7 +42,7 @@ class Crossing:
     low: float
     high: float
     source: str           # "measured" or "fitted"
-    fitted_at_largest: float  # the fitted curve at the largest measured size
+    shifted: bool         # the fitted curve was moved to pass through the last measured mean
     horizon: float = math.inf
     beyond_horizon: bool = False
     open_reason: str = ""
@@ -54,7 +54,8 @@ def search_grid(d: FitData) -> np.ndarray:
 
 
 def find_crossing(d: FitData, target: float, grid, fitted, band, measured_band,
-                  horizon: float = math.inf, widened: bool = False) -> Crossing:
+                  horizon: float = math.inf, widened: bool = False, level: float = 0.9,
+                  shifted: bool = False) -> Crossing:
     """Where the target is reached: from the measured means when they stay at or below
     it, else from the fitted curve on ``grid``; each end of the interval likewise from
     the measured band (``measured_band``), else from the fitted ``band`` beyond the data.
@@ -62,7 +63,8 @@ def find_crossing(d: FitData, target: float, grid, fitted, band, measured_band,
     An end that the fitted band reaches only beyond ``horizon`` is open (``high``) or
     set to the horizon (``low``); ``widened`` says the band beyond the data carries more
     than the bootstrap (model error, family spread), which is then the reason for an
-    open upper end.
+    open upper end; ``shifted`` that ``fitted`` and ``band`` were moved to pass through
+    the last measured mean.
     """
     lo_band, hi_band = band
     mean_lo, mean_hi = measured_band
@@ -88,22 +90,21 @@ def find_crossing(d: FitData, target: float, grid, fitted, band, measured_band,
     beyond = math.isfinite(point) and point > horizon
     reason = ""
     if not math.isnan(high) and high > horizon:
-        if not has_band or not math.isfinite(point):
-            reason = ""
-        elif source == "measured" and not np.any(mean_hi <= target):
+        upto = f"up to the horizon ({format_count(horizon)} samples)"
+        edge = f"the band's upper edge stays above the target {upto}"
+        if source == "measured" and not np.any(mean_hi <= target):
             reason = ("within the measured sizes the intervals of the means never fall wholly "
-                      "below the target, and beyond them the band's upper edge stays above it "
-                      "up to the horizon")
+                      f"below the target, and beyond them {edge}")
         elif widened:
-            reason = ("the band's upper edge stays above the target up to the horizon: beyond "
-                      "the data the band carries the model error seen in forecast validation "
-                      "and the spread between the families")
+            reason = (f"{edge}: beyond the data the band carries, besides the bootstrap, the "
+                      "model error seen in forecast validation and the spread between families")
         else:
-            reason = "the band's upper edge stays above the target up to the horizon"
+            reason = (f"more than {(1 - level) / 2:.0%} of the bootstrap curves stay above the "
+                      f"target {upto}")
         high = math.inf
     if not math.isnan(low) and low > horizon:
         low = horizon
-    return Crossing(float(point), float(low), float(high), source, float(fitted[0]),
+    return Crossing(float(point), float(low), float(high), source, bool(shifted),
                     float(horizon), bool(beyond), reason)
 
 
@@ -170,10 +171,11 @@ def answer_text(d: FitData, n: float, c: Crossing, kind: str, target: float, lev
 def _answer_cautions(d: FitData, n: float, c: Crossing, target: float, metric: str,
                      family: str, logarithmic: bool) -> list:
     cautions = []
-    if c.source == "fitted" and c.fitted_at_largest <= target:
+    if c.source == "fitted" and c.shifted:
         cautions.append(f"the fitted curve is already at the target at the largest "
                         f"measured size ({d.n_max:,.0f}), where the measured mean "
-                        f"({format_error(float(d.y[-1]), metric)}) is not; the answer is rough")
+                        f"({format_error(float(d.y[-1]), metric)}) is not; the answer follows "
+                        "the fitted shape from the measured mean and is rough")
     if n > EXTRAPOLATION_FACTOR * d.n_max:
         cautions.append(f"this is more than {EXTRAPOLATION_FACTOR:g}× the largest measured "
                         f"size ({d.n_max:,.0f}), a long extrapolation")
@@ -182,8 +184,7 @@ def _answer_cautions(d: FitData, n: float, c: Crossing, target: float, metric: s
                         "changes in its fit move this answer a lot")
     if math.isinf(c.high):
         cautions.append((c.open_reason or "the band's upper edge never reaches the target")
-                        + f" ({format_count(c.horizon)} samples), so the interval has no "
-                          "upper limit")
+                        + ", so the interval has no upper limit")
     return cautions
 
 
@@ -234,7 +235,7 @@ def measured_crossing(sizes: np.ndarray, values: np.ndarray, target: float) -> f
     200
     >>> sizes = np.array([30.0, 100.0, 400.0, 1600.0])
     >>> round(measured_crossing(sizes, np.array([0.3, 0.15, 0.25, 0.1]), 0.2))   # after the rise
-    800
+    635
     >>> measured_crossing(sizes, np.array([0.3, 0.15, 0.1, 0.25]), 0.2)
     inf
     """

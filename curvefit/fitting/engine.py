@@ -522,9 +522,18 @@ class CurveFit:
         grid = search_grid(d)
         horizon = factor * d.n_max
         with np.errstate(all="ignore"):
-            c = find_crossing(d, target, grid, self._predict_point(grid),
-                              self._predict_interval(grid, level), mean_band(d, level),
-                              horizon=horizon, widened=self._widened())
+            fitted = self._predict_point(grid)
+            lo_band, hi_band = self._predict_interval(grid, level)
+            shift = float(d.y[-1] - fitted[0])
+            shifted = bool(fitted[0] <= target < d.y[-1])
+            if shifted:
+                # the fitted curve is already at the target where the measured mean is not:
+                # the answer follows the fitted shape from the measured mean, so it agrees
+                # with the measurement at the largest size
+                fitted, lo_band, hi_band = fitted + shift, lo_band + shift, hi_band + shift
+            c = find_crossing(d, target, grid, fitted, (lo_band, hi_band), mean_band(d, level),
+                              horizon=horizon, widened=self._widened(), level=level,
+                              shifted=shifted)
         asym = self.asymptote(level)
         reachable = c.source == "measured" or (
             math.isfinite(c.point) and not (asym is not None and math.isfinite(asym.low)
