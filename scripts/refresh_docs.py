@@ -28,7 +28,8 @@ nightly job writes its store and run file beside the job file), and ``./scripts/
 runs the repository's script. Examples run in document order, so a later example finds
 the files an earlier one wrote (``boosted.json`` from a ``measure`` example,
 ``curvefit-demo/`` from the demo). The scratch folder's path is written as the repository
-root in the output, so the docs read as if run from the root.
+root in the output, so the docs read as if run from the root; the folder's path has as
+many characters as the root's, so shortened paths and padded columns come out the same.
 
 Inputs a document describes but does not produce with a shown command:
 
@@ -51,8 +52,10 @@ from __future__ import annotations
 import argparse
 import difflib
 import os
+import random
 import re
 import shutil
+import string
 import subprocess
 import sys
 import tempfile
@@ -160,17 +163,36 @@ def parse(lines: list[str]) -> list[Block | tuple[int, str]]:
     return items
 
 
-class Workspace:
-    """A scratch folder standing in for the repository root while one document runs."""
+def scratch_folder(length: int) -> Path:
+    """A new empty folder whose path has ``length`` characters where possible.
 
-    def __init__(self, parent: Path, name: str, timeout: float):
-        self.path = parent / name
-        self.path.mkdir(parents=True)
+    Outputs that shorten a long path ("…/model.py") or pad a column to it then read the
+    same once the folder is written as the path it stands for."""
+    for base in dict.fromkeys([tempfile.gettempdir(), "/tmp"]):
+        free = length - len(base) - 1
+        if free < 4 or not os.path.isdir(base):
+            continue
+        for _ in range(50):
+            path = Path(base) / "".join(random.choices(string.ascii_lowercase, k=free))
+            try:
+                path.mkdir()
+                return path
+            except FileExistsError:
+                continue
+    return Path(tempfile.mkdtemp(prefix="refresh-docs-"))
+
+
+class Workspace:
+    """A scratch folder standing in for the repository root (or ``shown_as``) while one
+    document runs."""
+
+    def __init__(self, shown_as: str, timeout: float):
+        self.shown_as = shown_as
+        self.path = scratch_folder(len(shown_as))
         for entry in LINKED:
             (self.path / entry).symlink_to(ROOT / entry)
         for entry in COPIED:
             shutil.copytree(ROOT / entry, self.path / entry, ignore=COPY_IGNORE)
-        self.shown_as = str(ROOT)
         self.timeout = timeout
         self.env = dict(os.environ)
         self.env.update({
@@ -203,19 +225,17 @@ class Workspace:
         return lines
 
 
-def run_document(doc: Path, scratch: Path, timeout: float, log) -> tuple[list[str], list[Result]]:
+def run_document(doc: Path, ws: Workspace, log) -> tuple[list[str], list[Result]]:
     """Run the examples of one document; returns its new lines and one Result per example."""
     lines = doc.read_text(encoding="utf-8").splitlines()
     rel = doc.relative_to(ROOT).as_posix()
-    ws = Workspace(scratch, rel.replace("/", "__").removesuffix(".md"), timeout)
     results: list[Result] = []
     replacements: list[tuple[Block, list[str]]] = []
     for item in parse(lines):
         if isinstance(item, tuple):
             line, body = item
             if body.startswith("shown-as "):
-                ws.shown_as = body.removeprefix("shown-as ").strip()
-                continue
+                continue                         # read before the workspace was made
             log(f"{rel}:{line + 1}: setup: {body}")
             code, out = ws.run(body)
             if code != 0:
@@ -290,6 +310,14 @@ def differences(results: list[Result]) -> list[str]:
     return report
 
 
+def shown_as(text: str) -> str:
+    """The path a document's scratch folder is shown as (``shown-as``, or the root)."""
+    for item in parse(text.splitlines()):
+        if isinstance(item, tuple) and item[1].startswith("shown-as "):
+            return item[1].removeprefix("shown-as ").strip()
+    return str(ROOT)
+
+
 def documents(names: list[str]) -> list[Path]:
     if names:
         paths = [(Path(n) if Path(n).is_absolute() else Path.cwd() / n).resolve() for n in names]
@@ -322,14 +350,16 @@ def main(argv: list[str] | None = None) -> int:
         os.nice(19)                  # long measurements: leave the shared cores to others
     except OSError:
         pass
-    scratch = Path(tempfile.mkdtemp(prefix="refresh-docs-"))
     log = lambda message: print(message, file=sys.stderr, flush=True)  # noqa: E731
     results: list[Result] = []
+    folders: list[Path] = []
     try:
         for doc in docs:
             started = time.monotonic()
             before = doc.read_text(encoding="utf-8")
-            new_lines, doc_results = run_document(doc, scratch, args.timeout, log)
+            ws = Workspace(shown_as(before), args.timeout)
+            folders.append(ws.path)
+            new_lines, doc_results = run_document(doc, ws, log)
             results.extend(doc_results)
             text = "\n".join(new_lines) + "\n"
             if args.check or text == before:
@@ -340,10 +370,11 @@ def main(argv: list[str] | None = None) -> int:
             doc.write_text(text, encoding="utf-8")
             log(f"{doc.relative_to(ROOT)}: refreshed ({time.monotonic() - started:.0f} s)")
     finally:
-        if args.keep:
-            log(f"scratch folders kept in {scratch}")
-        else:
-            shutil.rmtree(scratch, ignore_errors=True)
+        for folder in folders:
+            if args.keep:
+                log(f"scratch folder kept: {folder}")
+            else:
+                shutil.rmtree(folder, ignore_errors=True)
     warnings = [w for r in results for w in r.warnings]
     for w in warnings:
         print(f"warning: {w}", file=sys.stderr)
