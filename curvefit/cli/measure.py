@@ -58,8 +58,9 @@ def _print_summary(curve, path: Path, sanity) -> None:
         table.append([str(s), "-", "-", "-", "-", "-", "all"])
     print_table(head, table)
     if any(r["baseline_mean"] == r["baseline_mean"] for r in rows):
-        out.print(f"constant: the error of {curve.meta.get('baseline', 'a constant predictor')} "
-                  "on the same test sets", markup=False)
+        predictor = curve.meta.get("baseline", "a constant")
+        out.print(f"constant: the error of always predicting {predictor}, on the same test sets",
+                  markup=False)
     for line in sanity.notes:
         out.print(line, markup=False)
     n_failed = len(curve.failed_points())

@@ -79,6 +79,7 @@ class _CurveOnly:
     forecast: Any = None
     gap_lines: list = field(default_factory=list)
     worst_case: Any = None
+    sanity: Any = None
 
 
 # --------------------------------------------------------------------------- cells
@@ -348,6 +349,8 @@ def _curve_table(res: Any, interval: float) -> str:
         "train": err(s["train_mean"]),
         "gap": err(s["gap_mean"]),
     })
+    if s["baseline_mean"].notna().any():
+        rows["constant predictor"] = err(s["baseline_mean"])
     heads = {"test-set interval": f"one test set, exact {format_level(interval)}"}
     return html_table(rows, headers=heads)
 
@@ -443,6 +446,7 @@ def _answer_section(page: _Page, purchase: pd.DataFrame | None, purchase_note: s
                         f"{_forecast_sentence(r, page.interval)}</li>" for r in res) + "</ul>"
                     '<p class="small">Give a target (<code>--target-error</code>) for a '
                     "sample size with an interval.</p>")
+    body += _sanity_lines(res)
     if purchase is not None and len(purchase):
         body.append(f"<h3>Buying more labels ({esc(res[0].label)})</h3>")
         if purchase_note:
@@ -461,18 +465,47 @@ def _answer_section(page: _Page, purchase: pd.DataFrame | None, purchase_note: s
     return f'<div class="answer">{"".join(body)}</div>'
 
 
+def _sanity_lines(res: Sequence[Any]) -> list[str]:
+    """Each model's constant-predictor comparison, then its flags (a warning each)."""
+    body = []
+    for r in res:
+        check = r.sanity if hasattr(r, "sanity") else None
+        if check is None:
+            continue
+        if check.baseline is not None:
+            body.append(f'<p class="note">{esc(r.label)}: {esc(check.baseline.line())}.</p>')
+        body += [f'<p class="note warn">{esc(r.label)}: {esc(n)}.</p>' for n in check.notes]
+    return body
+
+
+def _far_answers(res: Sequence[Any]) -> str:
+    """A sentence for the answers the learning-curve figure marks at its axis's edge."""
+    limit = plots.axis_limit({r.label: r.curve for r in res})
+    far = [r for r in res if plots.beyond_axis(r.answer, limit)]
+    if not far:
+        return ""
+    names = ", ".join(str(r.label) for r in far)  # plain text: the caption is escaped once
+    return (f" The axis ends at {format_count(limit)} labelled samples "
+            f"({plots.AXIS_CAP:g}× the largest size measured), so the measured points stay "
+            f"readable; the answer for {names} lies beyond it and is marked at the edge with "
+            "an arrow.")
+
+
 def _curves_section(page: _Page) -> str:
     res, level = page.results, format_level(page.interval)
     fig = plots.learning_curve_figure(
         {r.label: r.curve for r in res}, {r.label: r.fit for r in res},
         target_error=page.target_error, answers={r.label: r.answer for r in res},
         interval=page.interval)
+    constant = (" Thin dashed line without markers: the constant predictor's error on the "
+                "same test sets." if any(r.curve.has_baseline for r in res) else "")
+    far = _far_answers(res) if page.target_error is not None else ""
     body = [page.figure("learning-curve", fig, "learning curves: error against labelled samples",
                         f"Filled markers: mean test error over repeats (thick bar ± one standard "
                         f"error); thin capped bars: exact {level} interval of one repeat's "
                         f"test set; hollow markers: training error. Lines: the chosen family "
                         f"(solid, shaded {level} band) and the runner-up (dashed), "
-                        f"extrapolated.")]
+                        f"extrapolated.{constant}{far}")]
     for r in res:
         body.append(f"<h3>{esc(r.label)}</h3>"
                     f'<p class="note">Split: {esc(plots.split_label(r.curve))}.</p>'

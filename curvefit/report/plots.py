@@ -69,6 +69,10 @@ MARKERS = ["o", "s", "^", "D", "v"]
 LINESTYLES = ["-", (0, (5, 2)), (0, (1, 1.5)), (0, (6, 2, 1, 2)), (0, (3, 1, 1, 1, 1, 1))]
 TARGET_COLOUR = "#b0213c"
 NEUTRAL = "#5b6570"
+# The learning-curve figure's x-axis ends at this multiple of the largest measured size:
+# an answer or a forecast far beyond it is marked at the edge with an arrow, so the
+# measured points keep most of the width instead of becoming a sliver.
+AXIS_CAP = 20.0
 FIGSIZE = (8.6, 5.4)
 DPI = 110
 
@@ -182,10 +186,50 @@ def _answer_of(answer: Any) -> dict | None:
     if answer is None:
         return None
     n = field(answer, "n", field(answer, "estimate"))
+    horizon = field(answer, "horizon")
     return {"n": float(n) if is_finite(n) else math.nan,
             "low": float(field(answer, "low")) if is_finite(field(answer, "low")) else math.nan,
-            "high": float(field(answer, "high")) if is_finite(field(answer, "high")) else math.nan,
-            "reachable": bool(field(answer, "reachable", is_finite(n)))}
+            "high": _upper_end(field(answer, "high")),
+            "reachable": bool(field(answer, "reachable", is_finite(n))),
+            # reached only beyond the horizon: "more than <horizon>", no number
+            "beyond": bool(field(answer, "beyond_horizon", False)) and is_finite(horizon),
+            "horizon": float(horizon) if is_finite(horizon) else math.nan}
+
+
+def _upper_end(high: Any) -> float:
+    """An interval's upper end: finite, ``inf`` when open, else NaN."""
+    if is_finite(high):
+        return float(high)
+    try:
+        return math.inf if float(high) == math.inf else math.nan
+    except (TypeError, ValueError):
+        return math.nan
+
+
+def axis_limit(curves: Any) -> float:
+    """Where the learning-curve figure's x-axis ends: `AXIS_CAP` × the largest size
+    measured by any of ``curves`` (NaN when none has a successful cell).
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> from curvefit.core.curve import Curve
+    >>> axis_limit(Curve.from_table(pd.DataFrame({"size": [50, 400], "test_error": [.3, .2]})))
+    8000.0
+    """
+    tops = [float(c.sizes.max()) for _, c in as_items(curves) if len(c.ok_points())]
+    return AXIS_CAP * max(tops) if tops else math.nan
+
+
+def beyond_axis(answer: Any, limit: float) -> bool:
+    """True when the figure marks ``answer`` at the edge of an axis that ends at ``limit``:
+    its point (or, beyond the horizon, its "more than" size) lies past the axis."""
+    a = _answer_of(answer)
+    if a is None or not is_finite(limit):
+        return False
+    if a["beyond"]:
+        return a["horizon"] > limit
+    return a["reachable"] and is_finite(a["n"]) and a["n"] > limit
 
 
 @_styled
@@ -220,12 +264,17 @@ def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float 
     -----
     At each size the filled marker is the mean test error over repeats, the thick bar
     one standard error of that mean across repeats, and the thin capped bar the exact
-    (Clopper–Pearson) interval of a single repeat's finite test set.
+    (Clopper–Pearson) interval of a single repeat's finite test set. A thin dashed line
+    without markers is the constant predictor's error on the same test sets, where the
+    run recorded it. The x-axis ends at `AXIS_CAP` × the largest measured size
+    (`axis_limit`); an answer beyond it is marked at the right edge with an arrow and its
+    size, and the fitted lines stop there.
     """
     items = as_items(curves)
     fig, ax = _new_axes()
     metric = None
-    span = [math.inf, 0.0]  # smallest and largest size drawn, for the axis limits
+    limit = axis_limit(curves)
+    span = [math.inf, 0.0, limit]  # smallest and largest size drawn, and where the axis must end
     any_data = False
     for i, (label, curve) in enumerate(items):
         label = label or model_label(curve, i)
@@ -240,7 +289,7 @@ def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float 
         fit = _matching(fits, label, i)
         if fit is not None:
             _draw_fit(ax, fit, summ, a, st, label, interval, span)
-        if a and target_error is not None and a["reachable"] and is_finite(a["n"]):
+        if a and target_error is not None and (a["beyond"] or (a["reachable"] and is_finite(a["n"]))):
             _draw_answer(ax, a, target_error, st, i, span)
     if target_error is not None:
         ax.axhline(target_error, color=TARGET_COLOUR, linewidth=1.0, linestyle=(0, (4, 2, 1, 2)),
@@ -254,7 +303,7 @@ def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float 
                 ha="center", va="center", color=NEUTRAL)
     else:
         ax.set_xscale("log")
-        ax.set_xlim(span[0] / 1.25, span[1] * 1.25)
+        ax.set_xlim(span[0] / 1.25, min(span[1], limit) * 1.25)
         ax.xaxis.set_major_formatter(_count_formatter)
         ax.xaxis.set_minor_formatter(FuncFormatter(lambda v, _p: ""))
     ax.set_xlabel(f"labelled samples (training-set size, log scale) · {_split_caption(items)}")
@@ -293,6 +342,10 @@ def _draw_measured(ax, summ: pd.DataFrame, st: dict, label: str, show_train: boo
         ax.plot(x, summ["train_mean"].to_numpy(float), marker=st["marker"], ms=5, mfc="white",
                 mec=st["color"], color=st["color"], linestyle=(0, (1, 1.5)), linewidth=1.1,
                 label=f"{label}: train", zorder=4)
+    base = summ["baseline_mean"].to_numpy(float) if "baseline_mean" in summ else np.array([])
+    if np.isfinite(base).any():
+        ax.plot(x, base, color=st["color"], linestyle=(0, (2, 3)), linewidth=1.0, alpha=0.8,
+                label=f"{label}: constant predictor", zorder=3)
 
 
 def _draw_fit(ax, fit: Any, summ: pd.DataFrame, a: dict | None, st: dict, label: str,
@@ -304,7 +357,10 @@ def _draw_fit(ax, fit: Any, summ: pd.DataFrame, a: dict | None, st: dict, label:
         right = max(right, a["high"] * 1.3)
     elif a and is_finite(a["n"]):
         right = max(right, a["n"] * 1.5)
-    right = min(right, top * 1e3)
+    elif a and a["beyond"]:
+        right = a["horizon"]
+    if is_finite(span[2]):
+        right = min(right, span[2])  # never past the axis: far answers are marked at its edge
     lines = _fit_lines(fit, np.geomspace(float(summ["size"].min()), right, 160), interval)
     if lines is None:
         return
@@ -324,20 +380,35 @@ def _draw_fit(ax, fit: Any, summ: pd.DataFrame, a: dict | None, st: dict, label:
 
 
 def _draw_answer(ax, a: dict, target_error: float, st: dict, i: int, span: list) -> None:
-    """The samples needed, marked on the target line with its interval."""
-    n = a["n"]
-    if is_finite(a["low"]) and is_finite(a["high"]):
-        ax.plot([a["low"], a["high"]], [target_error, target_error], color=st["color"],
+    """The samples needed, marked on the target line with its interval; an answer past
+    the axis's end is marked at the edge with an arrow pointing on."""
+    limit = span[2] if is_finite(span[2]) else math.inf
+    n = a["horizon"] if a["beyond"] else a["n"]
+    text = f"n > {format_count(n)}" if a["beyond"] else f"n ≈ {format_count(n)}"
+    low = a["low"] if is_finite(a["low"]) else math.nan
+    high = min(a["high"], limit)  # an open upper end runs to the axis's end
+    if a["beyond"] and not is_finite(high):
+        high = limit
+    if is_finite(low) and low < limit and is_finite(high):
+        ax.plot([low, high], [target_error, target_error], color=st["color"],
                 linewidth=4.5, alpha=0.45, solid_capstyle="butt", zorder=5)
+    if n > limit:
+        ax.annotate(f"{text} →", (limit, target_error), xytext=(-4, 9 + 11 * i),
+                    textcoords="offset points", ha="right", fontsize=8.5, color=st["color"],
+                    fontweight="bold")
+        ax.annotate("", (limit * 1.2, target_error), xytext=(limit / 1.6, target_error),
+                    arrowprops={"arrowstyle": "-|>", "color": st["color"], "lw": 1.6}, zorder=6)
+        span[1] = max(span[1], limit)
+        return
     ax.plot([n], [target_error], marker=st["marker"], ms=9, mfc=st["color"],
             mec="white", mew=1.2, linestyle="none", zorder=6)
-    ax.annotate(f"n ≈ {format_count(n)}", (n, target_error), xytext=(0, 9 + 11 * i),
+    ax.annotate(text, (n, target_error), xytext=(0, 9 + 11 * i),
                 textcoords="offset points", ha="center", fontsize=8.5,
                 color=st["color"], fontweight="bold")
-    span[1] = max(span[1], a["high"] if is_finite(a["high"]) else n)
+    span[1] = max(span[1], high if is_finite(high) else n)
 
 
-_KIND_ORDER = ["test", "train", "measured", "fit", "runner-up", "VC", "power", "band"]
+_KIND_ORDER = ["test", "train", "constant", "measured", "fit", "runner-up", "VC", "power", "band"]
 
 
 def _legend_outside(ax) -> None:

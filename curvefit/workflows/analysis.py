@@ -1,7 +1,8 @@
 """The analysis behind a report: fit each run, answer the target, estimate capacity.
 
 `analyse` is the one place that calls the estimating API for a report (``fit_curve``,
-``samples_for``, ``effective_capacity``, the worst-case bound); the report
+``samples_for``, ``effective_capacity``, the worst-case bound, the sanity checks of
+`curvefit.fitting.sanity`); the report
 (`curvefit.report.html`) only renders the `ModelResult` objects it returns.
 `report_runs` is the whole ``curvefit report`` job: read run files, analyse, write the page.
 
@@ -77,6 +78,7 @@ class ModelResult:
     forecast: pd.DataFrame | None = None        # fit.predict at FORECAST_MULTIPLES × largest size
     gap_lines: list = field(default_factory=list)  # fitted gap curves: (name, sizes, gaps)
     worst_case: WorstCase | None = None
+    sanity: Any = None         # Sanity: the constant predictor beside the answer, and the flags
 
 
 @dataclass
@@ -166,6 +168,7 @@ def _fit_one(res: ModelResult, bootstrap: int, random_state, interval: float,
         res.forecast = run_step(lambda: res.fit.predict([have * k for k in FORECAST_MULTIPLES],
                                                         interval=interval),
                                 res.notes, "forecast")
+    check_sanity(res, interval)
     if capacity and curve.has_train:
         from curvefit.capacity import effective_capacity
 
@@ -184,8 +187,21 @@ def answer_target(results: Sequence[ModelResult], target_error: float, *,
             r.answer = run_step(lambda: r.fit.samples_for(test_error=target_error,
                                                           interval=interval),
                                 r.notes, "sample size for the target")
+            check_sanity(r, interval)
         r.worst_case = worst_case(r, probe if probe is not None else r.capacity,
                                   target_error, interval)
+
+
+def check_sanity(res: ModelResult, interval: float = INTERVAL) -> None:
+    """Set ``res.sanity``: the constant predictor beside the answer and the forecasts, the
+    imbalance hint, and answers or forecasts below the fitted floor."""
+    from curvefit.fitting.sanity import sanity_check
+
+    if not len(res.curve.ok_points()):
+        return
+    res.sanity = run_step(lambda: sanity_check(res.curve, res.fit, answer=res.answer,
+                                               forecasts=res.forecast, interval=interval),
+                          res.notes, "sanity check")
 
 
 def check_target(target_error: float | None, curves: Sequence[Curve]) -> None:
@@ -262,15 +278,18 @@ def worst_case(res: ModelResult, capacity: Any, target_error: float,
 
 
 def result_summary(res: ModelResult) -> dict:
-    """Plain JSON-ready headline of one model: chosen family, answer, capacity, notes."""
+    """Plain JSON-ready headline of one model: chosen family, answer, capacity, the
+    constant predictor and the sanity flags, notes."""
     ans, cap = res.answer, res.capacity
     return jsonable({
         "label": res.label, "source": res.source,
         "best": family_name(field_of(res.fit, "best")),
         "answer": None if ans is None else {
-            k: field_of(ans, k) for k in ("n", "low", "high", "reachable", "message")},
+            k: field_of(ans, k) for k in ("n", "low", "high", "reachable", "beyond_horizon",
+                                          "message")},
         "capacity": None if cap is None else {
             k: field_of(cap, k) for k in ("vc_dim", "low", "high", "level", "method", "above_range")},
+        "sanity": res.sanity.to_dict() if res.sanity is not None else None,
         "notes": list(res.notes),
     })
 

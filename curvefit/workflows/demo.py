@@ -143,7 +143,9 @@ def _write_fits(path: Path, target: float | None, results: list[ModelResult]) ->
     doc = {"format": "curvefit.demo-fits/1", "target_error": target,
            "fits": {r.label: (r.fit.to_dict() if r.fit is not None else None) for r in results},
            "answers": {r.label: (r.answer.to_dict() if hasattr(r.answer, "to_dict") else None)
-                       for r in results}}
+                       for r in results},
+           "sanity": {r.label: (r.sanity.to_dict() if r.sanity is not None else None)
+                      for r in results}}
     return write_json(path, doc, what="fit file")
 
 
