@@ -1,17 +1,21 @@
 """`curvefit track`: record a run in the history store and gate CI on regressions.
 
-Two forms:
+Three forms:
 
 - ``curvefit track RUN --store DB --series NAME`` fits an existing run file, records
   it and compares it with the series' baseline;
 - ``curvefit track --config nightly.toml`` measures first (the TOML keys are the
-  ``measure`` option names), then fits, records and compares, in one command.
+  ``measure`` option names), then fits, records and compares, in one command;
+- ``curvefit track --accept RUN --store DB`` accepts a recorded run as its series'
+  baseline (the default baseline of later runs; a failing run becomes one only so).
 
 The work is `curvefit.workflows.nightly.track_job`; this command merges the options into
 the job, prints a short markdown summary (for CI logs) or, with ``--json``, one JSON
-document, and exits with the comparison's code: 0 no regression (or first run); 1 a
-headline figure regressed; 2 bad input, or the run is not comparable with its baseline
-(data or metric changed) unless ``--allow-data-change``.
+document (``--junit FILE`` also writes JUnit XML, one test case per figure), and exits
+with the comparison's code: 0 no regression (or first run); 1 a gating figure regressed
+(by default the efficiency figures, with the ratio in the message); 2 bad input, or the
+run is not comparable with its baseline (data or metric changed) unless
+``--allow-data-change``.
 """
 
 from __future__ import annotations
@@ -42,8 +46,12 @@ def _job(run, config, options: dict) -> dict:
     return job
 
 
-def _report(result, json_out: bool, quiet: bool) -> None:
+def _report(result, json_out: bool, quiet: bool, junit: Optional[Path] = None) -> None:
     comparison = result.comparison
+    if junit is not None:
+        from curvefit.core.jsonio import write_text_atomic
+
+        write_text_atomic(junit, comparison.to_junit())
     if json_out:
         emit_json(result.to_dict())
     else:
@@ -54,8 +62,26 @@ def _report(result, json_out: bool, quiet: bool) -> None:
               f"{comparison.baseline_id}: {'; '.join(comparison.reasons)}; pass "
               "--allow-data-change to compare anyway", file=sys.stderr)
     elif not quiet and not json_out:
-        err.print(f"recorded run {comparison.run_id} in {result.store} (series {result.series})",
-                  markup=False, highlight=False)
+        err.print(f"recorded run {comparison.run_id} in {result.store} (series {result.series}): "
+                  f"{comparison.message}", markup=False, highlight=False)
+
+
+def _accept(run_id: int, run, config, store, json_out: bool, quiet: bool) -> None:
+    """``--accept RUN``: mark a recorded run as its series' baseline."""
+    from curvefit.workflows.nightly import accept_run, read_job
+
+    if run is not None:
+        raise InputError("--accept takes a run id; give no RUN file with it")
+    if store is None and config is not None:
+        store = read_job(config).get("store")
+    if not store:
+        raise InputError("no history store: pass --store history.db with --accept")
+    doc = accept_run(str(store), run_id)
+    if json_out:
+        emit_json(doc)
+    elif not quiet:
+        out.print(f"accepted run {doc['run_id']} (verdict: {doc['verdict'] or 'none'}) as the "
+                  f"baseline of series {doc['series']} in {doc['store']}", markup=False)
 
 
 def register(app: typer.Typer) -> None:
@@ -68,7 +94,15 @@ def register(app: typer.Typer) -> None:
         store: Optional[str] = typer.Option(None, "--store", help="History store file (history.db)."),
         series: Optional[str] = typer.Option(None, "--series", help="Series name, e.g. nightly."),
         baseline: Optional[str] = typer.Option(None, "--baseline",
-                                               help="previous (default), best, or a run id."),
+                                               help="accepted (default), previous (last passing "
+                                               "run), best, or a run id."),
+        accept: Optional[int] = typer.Option(None, "--accept", metavar="RUN",
+                                             help="Accept a recorded run as the series' baseline."),
+        gate: Optional[str] = typer.Option(None, "--gate",
+                                           help="Figures that gate: efficiency (default), all, "
+                                           "or names separated by commas."),
+        junit: Optional[Path] = typer.Option(None, "--junit", metavar="FILE",
+                                             help="Also write the verdict as JUnit XML."),
         target_error: Optional[float] = typer.Option(None, "--target-error",
                                                      help="Target test error of the series."),
         allow_data_change: bool = typer.Option(False, "--allow-data-change",
@@ -86,15 +120,21 @@ def register(app: typer.Typer) -> None:
         from curvefit.core.curve import Curve
         from curvefit.workflows.nightly import track_job
 
+        if accept is not None:
+            _accept(accept, run, config, store, json_out, quiet)
+            return
         job = _job(run, config, dict(store=store, series=series, baseline=baseline,
                                      target_error=target_error, bootstrap=bootstrap,
                                      allow_data_change=allow_data_change, interval=interval,
-                                     seed=seed))
+                                     seed=seed, gate=gate, junit=junit))
         quiet = quiet or bool(job.get("quiet", False))
         json_out = json_out or bool(job.get("json", False))
+        junit = job.get("junit")
+        if junit is not None and not Path(junit).parent.is_dir():
+            raise InputError(f"--junit {junit}: directory {Path(junit).parent} does not exist")
         curve = Curve.read(run) if run is not None else None
         result = track_job(job, curve=curve, progress=not quiet and sys.stderr.isatty())
         for note in result.warnings:
             warn(note, quiet)
-        _report(result, json_out, quiet)
+        _report(result, json_out, quiet, None if junit is None else Path(junit))
         raise typer.Exit(result.exit_code)

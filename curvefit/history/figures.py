@@ -50,7 +50,11 @@ from curvefit.core.stats import clopper_pearson, t_interval
 
 LOWER, HIGHER = "lower", "higher"
 # Figures that are parameters of the chosen family: compared only within one family.
-FAMILY_BOUND = ("decay_exponent", "asymptote")
+FAMILY_BOUND = ("decay_exponent", "asymptote", "samples_for_target")
+# Figures that compare the run's measured curve with its baseline's (see
+# `curvefit.history.efficiency`): the default gate.
+EFFICIENCY = ("efficiency_ratio", "error_area")
+DEFAULT_GATE = EFFICIENCY
 # Below this many repeats per size the exponent is reported but never gated.
 MIN_REPEATS_FOR_EXPONENT = 3
 
@@ -61,11 +65,14 @@ FIGURES: dict[str, tuple[str | None, str]] = {
     "asymptote": (LOWER, "asymptote"),
     "samples_for_target": (LOWER, "samples for target error"),
     "effective_capacity": (None, "effective capacity (VC units)"),
+    "efficiency_ratio": (LOWER, "labels needed vs baseline (×, geometric mean over sizes)"),
+    "error_area": (LOWER, "test error difference averaged over ln n"),
 }
 # name -> how its values read (a kind of `curvefit.core.formatting.format_value`)
 FIGURE_KINDS = {"test_error_at_ref": "error", "decay_exponent": "number",
                 "asymptote": "error", "samples_for_target": "count",
-                "effective_capacity": "capacity"}
+                "effective_capacity": "capacity", "efficiency_ratio": "number",
+                "error_area": "error"}
 
 # Defaults chosen as common practice: one percentage point of error, a fifth of the
 # exponent, a quarter of the labels. Numbers are absolute, strings "N%" relative.
@@ -93,6 +100,9 @@ DEFAULT_TOLERANCES.update({
     "asymptote": Tolerance(0.01),
     "samples_for_target": Tolerance(0.25, relative=True),
     "effective_capacity": Tolerance(0.25, relative=True),
+    # a tenth more labels; a fifth of a percentage point of error (common practice)
+    "efficiency_ratio": Tolerance(0.10),
+    "error_area": Tolerance(0.002),
 })
 
 
@@ -217,6 +227,11 @@ def headline_figures(fit: Any, *, reference_size: int, target_error: float | Non
         if curve is not None and math.isfinite(fig.estimate) and len(curve.sizes):
             fig = _widen_samples(fig, fit, curve, float(target_error), interval)
             fig = _check_below_range(fig, curve, float(target_error))
+        family = getattr(fit, "best", None)
+        if family:
+            # the answer is read off the chosen family: compared only within one family
+            fig = Figure(fig.name, fig.estimate, fig.low, fig.high, fig.level, fig.better,
+                         f"{fig.note}; family {family}")
         figs.append(fig)
     if capacity is not None:
         vc = _float(getattr(capacity, "vc_dim", math.nan))
@@ -412,23 +427,31 @@ def samples_figure(sample_estimate: Any, target_error: float, interval: float = 
     return make_figure("samples_for_target", n, lo, hi, interval, note=note)
 
 
+BASELINE_RULES = ("accepted", "previous", "best")
+
+
 def check_baseline(baseline: Any) -> str | int:
-    """``"previous"``, ``"best"`` or a run id (int); anything else is an `InputError`.
+    """``"accepted"``, ``"previous"``, ``"best"`` or a run id (int); anything else is an
+    `InputError`.
+
+    ``accepted`` (the default) is the run a person last accepted (``track --accept``),
+    or the series' first run; ``previous`` is the latest earlier run that passed. A run
+    that failed the gate becomes a baseline only when accepted.
 
     Examples
     --------
-    >>> check_baseline("Best"), check_baseline("12")
-    ('best', 12)
+    >>> check_baseline("Best"), check_baseline("12"), check_baseline("accepted")
+    ('best', 12, 'accepted')
     """
     text = str(baseline).strip().lower()
-    if text in ("previous", "best"):
+    if text in BASELINE_RULES:
         return text
     try:
         rid = int(text)
     except ValueError:
         rid = 0
     if rid <= 0 or isinstance(baseline, bool):
-        raise InputError(f"baseline must be 'previous', 'best' or a run id; got {baseline!r}")
+        raise InputError(f"baseline must be 'accepted', 'previous', 'best' or a run id; got {baseline!r}")
     return rid
 
 
@@ -492,6 +515,72 @@ def tolerances_to_config(tol: Mapping[str, Any] | None) -> dict[str, Any]:
     return outd
 
 
+def check_gate(gate: Any) -> tuple[str, ...]:
+    """The figures that gate: a list of names, ``"efficiency"`` (the default:
+    `EFFICIENCY`) or ``"all"`` (every figure with a direction).
+
+    Examples
+    --------
+    >>> check_gate("efficiency")
+    ('efficiency_ratio', 'error_area')
+    >>> check_gate(["test_error_at_ref"])
+    ('test_error_at_ref',)
+    """
+    if gate is None or gate == "efficiency":
+        return DEFAULT_GATE
+    if gate == "all":
+        return tuple(n for n, (better, _) in FIGURES.items() if better is not None)
+    names = [gate] if isinstance(gate, str) else list(gate) if isinstance(gate, (list, tuple)) else None
+    if names is None:
+        raise InputError(f"gate must be 'efficiency', 'all' or a list of figure names; got {gate!r}")
+    names = [str(n).strip() for n in names for n in str(n).split(",") if str(n).strip()]
+    unknown = [n for n in names if n not in FIGURES]
+    if unknown or not names:
+        raise InputError(f"unknown figure {', '.join(unknown) or '(none)'} in the gate; known: "
+                         f"{', '.join(FIGURES)}, or 'efficiency' / 'all'")
+    return tuple(dict.fromkeys(names))
+
+
+def null_figure(name: str, level: float = INTERVAL) -> Figure:
+    """The "no change" value of a comparative figure, as the baseline side of a comparison."""
+    from curvefit.history.efficiency import NULL_VALUE
+
+    v = NULL_VALUE[name]
+    return make_figure(name, v, v, v, level, note="no change")
+
+
+def efficiency_figures(eff: Any, baseline_id: int | None = None) -> list[Figure]:
+    """``efficiency_ratio`` and ``error_area`` from a `curvefit.history.efficiency.Efficiency`.
+
+    Examples
+    --------
+    >>> from curvefit.history.efficiency import Efficiency
+    >>> figs = efficiency_figures(Efficiency(1.9, 1.5, 2.4, 0.01, 0.005, 0.02, 0.9), 3)
+    >>> figs[0].note
+    'vs run 3'
+    """
+    note = f"vs run {baseline_id}" if baseline_id is not None else ""
+    extra = f"; {eff.clipped} size(s) beyond the measured range, clipped" if eff.clipped else ""
+    worse = getattr(eff, "holm_worse", [])
+    holm = f"; worse at n={', '.join(str(n) for n in worse)} (Holm)" if worse else ""
+    return [make_figure("efficiency_ratio", eff.ratio, eff.ratio_low, eff.ratio_high, eff.level,
+                        note=note + extra),
+            make_figure("error_area", eff.area, eff.area_low, eff.area_high, eff.level,
+                        note=note + holm)]
+
+
+def ratio_sentence(f: Figure) -> str:
+    """The ratio in words, e.g. "needs 1.9× the labels (90% interval 1.5–2.4×)".
+
+    Examples
+    --------
+    >>> ratio_sentence(make_figure("efficiency_ratio", 1.9, 1.5, 2.4, 0.9))
+    "needs 1.9× the baseline's labels (90% interval 1.5–2.4×)"
+    """
+    return (f"needs {f.estimate:.2g}× the baseline's labels ({f.level:.0%} interval "
+            f"{f.low:.2g}–{f.high:.2g}×)")
+
+
 # --------------------------------------------------------------------- comparison
 @dataclass(frozen=True)
 class FigureChange:
@@ -511,9 +600,10 @@ class FigureChange:
     tolerance: Tolerance | None
     overlap: bool
     status: str
+    gated: bool = True
 
     def to_dict(self) -> dict:
-        return {"name": self.name,
+        return {"name": self.name, "gated": self.gated,
                 "current": self.current.to_dict() if self.current else None,
                 "baseline": self.baseline.to_dict() if self.baseline else None,
                 "better": self.better, "worse_by": self.worse_by,
@@ -613,7 +703,27 @@ class Comparison:
         """Names of the figures that regressed (empty when not comparable)."""
         if not self.comparable:
             return []
-        return [c.name for c in self.changes if c.status == "regressed"]
+        return [c.name for c in self.changes if c.status == "regressed" and c.gated]
+
+    @property
+    def worse_info(self) -> list[str]:
+        """Figures worse than the baseline's that do not gate (information)."""
+        return [c.name for c in self.changes if c.status == "regressed" and not c.gated]
+
+    @property
+    def efficiency(self) -> Figure | None:
+        """The run's ``efficiency_ratio`` against its baseline, when computed."""
+        return next((c.current for c in self.changes if c.name == "efficiency_ratio"
+                     and c.current is not None), None)
+
+    @property
+    def message(self) -> str:
+        """One line: the verdict, and the efficiency ratio when there is one."""
+        eff = self.efficiency
+        text = self.verdict if self.baseline_id is not None else "first run"
+        if self.regressed:
+            text = f"REGRESSED ({', '.join(self.regressed)})"
+        return f"{text}: {ratio_sentence(eff)}" if eff is not None else text
 
     @property
     def improved(self) -> list[str]:
@@ -642,6 +752,7 @@ class Comparison:
                 "comparable": self.comparable, "data_change_allowed": self.data_change_allowed,
                 "reasons": list(self.reasons), "verdict": self.verdict,
                 "regressed": self.regressed, "improved": self.improved,
+                "worse_not_gated": self.worse_info, "message": self.message,
                 "metric": self.metric, "figures": [c.to_dict() for c in self.changes]}
 
     def to_markdown(self) -> str:
@@ -668,7 +779,44 @@ class Comparison:
         else:
             better = f" (improved: {', '.join(self.improved)})" if self.improved else ""
             lines.append(f"**Result: no regression**{better}")
+        if self.efficiency is not None:
+            lines.append(f"\nThe run {ratio_sentence(self.efficiency)}; a statistical screen, "
+                         "not a guarantee.")
+        if self.worse_info:
+            lines.append(f"\nWorse but not gating (information): {', '.join(self.worse_info)}")
         return "\n".join(lines) + "\n"
+
+
+    def to_junit(self) -> str:
+        """JUnit XML: one test case per figure, a failure for each gating regression,
+        ``skipped`` for figures that do not gate (information)."""
+        from xml.etree import ElementTree as ET
+
+        suite = ET.Element("testsuite", name=f"curvefit track {self.series}",
+                           tests=str(len(self.changes)))
+        failures = skipped = 0
+        for c in self.changes:
+            case = ET.SubElement(suite, "testcase", classname=f"curvefit.track.{self.series}",
+                                 name=c.name)
+            detail = (f"{FIGURES.get(c.name, (None, c.name))[1]}: baseline "
+                      f"{format_figure(c.baseline, self.metric)}, current "
+                      f"{format_figure(c.current, self.metric)}; {c.status}")
+            if not self.comparable:
+                ET.SubElement(case, "error", message="not comparable").text = "; ".join(self.reasons)
+                failures += 1
+            elif c.status == "regressed" and c.gated:
+                text = ratio_sentence(c.current) if c.name == "efficiency_ratio" else detail
+                ET.SubElement(case, "failure", message=text).text = detail
+                failures += 1
+            elif not c.gated or c.better is None or c.status in ("info", "missing"):
+                ET.SubElement(case, "skipped", message=f"information only; {c.status}")
+                skipped += 1
+            ET.SubElement(case, "system-out").text = detail
+        suite.set("failures", str(failures))
+        suite.set("skipped", str(skipped))
+        suites = ET.Element("testsuites", name="curvefit track")
+        suites.append(suite)
+        return ET.tostring(suites, encoding="unicode", xml_declaration=True) + "\n"
 
 
 def _figure_table(rows: Iterable[tuple[str, Figure | None, Figure | None, FigureChange | None]],
@@ -685,9 +833,11 @@ def _figure_table(rows: Iterable[tuple[str, Figure | None, Figure | None, Figure
         if with_base:
             worse = format_value(change.worse_by, figure_kind(name), metric) if change else ""
             tol = change.tolerance if change and change.tolerance and change.better else ""
+            status = change.status if change else ""
+            if change and not change.gated and status in ("regressed", "improved"):
+                status += " (info)"
             lines.append(f"| {label} | {format_figure(base, metric)} | "
-                         f"{format_figure(cur, metric)} | {worse} | {tol} | "
-                         f"{change.status if change else ''} |")
+                         f"{format_figure(cur, metric)} | {worse} | {tol} | {status} |")
         else:
             lines.append(f"| {label} | {format_figure(cur, metric)} |")
     return lines
@@ -700,7 +850,7 @@ def _table_note(name: str, cur: Figure | None, base: Figure | None,
     if name in FAMILY_BOUND and change and change.current and change.baseline \
             and _family(change.current) != _family(change.baseline):
         note = f"{_family(change.baseline)} → {_family(change.current)}"
-    elif name in FAMILY_BOUND:
+    elif name in FAMILY_BOUND and name != "samples_for_target":
         note = _family(cur or base) or ""
     else:
         note = note.split(";")[0] if name in ("test_error_at_ref", "samples_for_target") else ""

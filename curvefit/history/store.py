@@ -1,4 +1,4 @@
-"""The history store: measured runs of named series in one SQLite file.
+"""The history store: measured runs of named series in one SQLite file or a PostgreSQL database.
 
 A *series* is one thing tracked over time (a nightly model on a fixed data set). Each
 recorded *run* keeps its metadata (as JSON text), data fingerprint, model spec, metric,
@@ -16,19 +16,24 @@ Storage choices, and why:
 - The file is marked with ``PRAGMA application_id``; a file that is not a curvefit store
   (another SQLite database, random bytes, text) is refused with `InputError`.
 - Only parameterised queries, and only JSON text columns: nothing is ever unpickled.
+- A team store on PostgreSQL (``postgresql://user@host/db``, `curvefit.history.postgres`)
+  has the same tables, the same migrations and the same methods; only the connection,
+  the write transaction and the schema version's place differ.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import math
 import os
 import sqlite3
 import subprocess
 import time
+from contextlib import contextmanager
 from datetime import datetime, timezone
 from pathlib import Path
-from typing import Any, Mapping, Sequence
+from typing import Any, Iterator, Mapping, Sequence
 
 import pandas as pd
 
@@ -91,7 +96,7 @@ CREATE TABLE headline (
 """
 
 
-def _migrate_1_to_2(con: sqlite3.Connection) -> None:
+def _migrate_1_to_2(con: Any) -> None:
     """v2: code version per run, direction and note per figure, extra point columns."""
     con.execute("ALTER TABLE runs ADD COLUMN code_version TEXT")
     con.execute("ALTER TABLE headline ADD COLUMN better TEXT")
@@ -103,14 +108,26 @@ def _migrate_1_to_2(con: sqlite3.Connection) -> None:
         con.execute("UPDATE headline SET better = ? WHERE name = ?", (better, name))
 
 
-def _create_v1(con: sqlite3.Connection) -> None:
+def _migrate_2_to_3(con: Any) -> None:
+    """v3: each run's gate verdict and baseline; the runs a person accepted as baselines."""
+    con.execute("ALTER TABLE runs ADD COLUMN verdict TEXT")
+    con.execute("ALTER TABLE runs ADD COLUMN baseline_id INTEGER")
+    con.execute("CREATE TABLE accepted (id INTEGER PRIMARY KEY,"
+                " series_id INTEGER NOT NULL REFERENCES series(id) ON DELETE CASCADE,"
+                " run_id INTEGER NOT NULL REFERENCES runs(id) ON DELETE CASCADE,"
+                " created TEXT NOT NULL, note TEXT NOT NULL DEFAULT '')")
+
+
+def _create_v1(con: Any) -> None:
     # Statement by statement: executescript would commit the open write transaction.
     for statement in _V1.split(";"):
         if statement.strip():
             con.execute(statement)
 
 
-MIGRATIONS = [_create_v1, _migrate_1_to_2]
+MIGRATIONS = [_create_v1, _migrate_1_to_2, _migrate_2_to_3]
+# Verdicts of runs that may serve as the "previous" baseline (NULL: recorded before v3).
+PASSING = ("ok", "first run")
 SCHEMA_VERSION = len(MIGRATIONS)
 
 
@@ -170,12 +187,25 @@ class Store:
     >>> s.close()
     """
 
+    # what a failed statement raises, and the subset meaning a broken constraint
+    DATABASE_ERRORS: tuple = (sqlite3.DatabaseError,)
+    ROW_ORDER = "rowid"  # the order rows were inserted in
+    INTEGRITY_ERRORS: tuple = (sqlite3.IntegrityError,)
+
+    def __new__(cls, path: str | os.PathLike = "", *args, **kwargs):
+        if cls is Store and is_postgres_address(path):
+            from curvefit.history.postgres import PostgresStore
+
+            return super().__new__(PostgresStore)
+        return super().__new__(cls)
+
     def __init__(self, path: str | os.PathLike, *, create: bool = True):
         text = str(path)
         if text.startswith("sqlite:///"):
             text = text[len("sqlite:///"):]
         elif "://" in text:
-            raise InputError(f"unsupported store address {text!r}; give a file path or sqlite:///PATH")
+            raise InputError(f"unsupported store address {text!r}; give a file path, sqlite:///PATH "
+                             "or postgresql://USER@HOST/DB")
         self.path = Path(text)
         self._check_file(create)
         try:
@@ -256,14 +286,22 @@ class Store:
         con = self._con
         if con.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION:
             return
-        con.execute("BEGIN IMMEDIATE")
-        try:
+        with self._transaction() as tx:
             # Re-read under the write lock: another process may have upgraded meanwhile.
             version = con.execute("PRAGMA user_version").fetchone()[0]
             for step in range(version, SCHEMA_VERSION):
-                MIGRATIONS[step](con)
+                MIGRATIONS[step](tx)
             con.execute(f"PRAGMA application_id = {APPLICATION_ID}")
             con.execute(f"PRAGMA user_version = {SCHEMA_VERSION}")
+
+    @contextmanager
+    def _transaction(self) -> Iterator["Transaction"]:
+        """One write transaction (``BEGIN IMMEDIATE``): committed at the end of the
+        block, rolled back on any error."""
+        con = self._con
+        con.execute("BEGIN IMMEDIATE")
+        try:
+            yield Transaction(con.execute, con.executemany)
             con.execute("COMMIT")
         except BaseException:
             if con.in_transaction:
@@ -287,7 +325,7 @@ class Store:
         return f"Store({str(self.path)!r})"
 
     # ------------------------------------------------------------------ helpers
-    def _query(self, sql: str, params: Sequence[Any] = ()) -> list[sqlite3.Row]:
+    def _query(self, sql: str, params: Sequence[Any] = ()) -> list[tuple]:
         try:
             cur = self._con.execute(sql, params)
             return cur.fetchall()
@@ -397,28 +435,27 @@ class Store:
                "headline": list(headline), "created": created or _now()}
         try:
             return self._write_run(series, config, is_new, run)
-        except sqlite3.IntegrityError as exc:
-            raise InputError(f"cannot record the run: {exc} (duplicate size/repeat cells "
-                             "or figure names?)") from None
-        except sqlite3.DatabaseError as exc:
-            raise InputError(f"history store {self.path}: {exc}") from None
+        except self.INTEGRITY_ERRORS as exc:
+            raise InputError(f"cannot record the run: {first_line(exc)} (duplicate size/repeat "
+                             "cells or figure names?)") from None
+        except self.DATABASE_ERRORS as exc:
+            raise InputError(f"history store {self.path}: {first_line(exc)}; nothing of this "
+                             "run was recorded") from None
 
     def _write_run(self, series: str, config: dict, is_new: bool, run: dict) -> int:
         """Insert one run (series config, run row, points, fit, figures) in one transaction."""
-        con, meta, now = self._con, run["meta"], run["created"]
-        con.execute("BEGIN IMMEDIATE")
-        try:
-            con.execute("INSERT OR IGNORE INTO series (name, config, created) VALUES (?, ?, ?)",
-                        (series, _json(config), now))
+        meta, now = run["meta"], run["created"]
+        with self._transaction() as con:
+            con.execute("INSERT INTO series (name, config, created) VALUES (?, ?, ?)"
+                        " ON CONFLICT (name) DO NOTHING", (series, _json(config), now))
             if not is_new:
                 con.execute("UPDATE series SET config = ? WHERE name = ?", (_json(config), series))
-            sid = con.execute("SELECT id FROM series WHERE name = ?", (series,)).fetchone()[0]
-            cur = con.execute(
+            sid = con.execute("SELECT id FROM series WHERE name = ?", (series,))[0][0]
+            run_id = int(con.execute(
                 "INSERT INTO runs (series_id, created, meta, data_fingerprint, model, metric,"
-                " code_version) VALUES (?, ?, ?, ?, ?, ?, ?)",
+                " code_version) VALUES (?, ?, ?, ?, ?, ?, ?) RETURNING id",
                 (sid, now, _json(meta), _fingerprint(meta), _model_text(meta.get("model")),
-                 str(meta.get("metric", "error")), run["code_version"]))
-            run_id = int(cur.lastrowid)
+                 str(meta.get("metric", "error")), run["code_version"]))[0][0])
             con.executemany(
                 "INSERT INTO points (run_id, size, repeat, train_error, test_error, n_test,"
                 " n_test_errors, fit_seconds, status, message, extra)"
@@ -433,11 +470,6 @@ class Store:
                 [(run_id, f.name, _num(f.estimate, keep_inf=True), _num(f.low, keep_inf=True),
                   _num(f.high, keep_inf=True), float(f.level), f.better, f.note or "")
                  for f in run["headline"]])
-            con.execute("COMMIT")
-        except BaseException:
-            if con.in_transaction:
-                con.execute("ROLLBACK")
-            raise
         return run_id
 
     # ------------------------------------------------------------------ reading
@@ -483,7 +515,7 @@ class Store:
         """The headline figures of one run, by name."""
         self._run_row(run_id)
         rows = self._query("SELECT name, estimate, low, high, level, better, note FROM headline"
-                           " WHERE run_id = ? ORDER BY rowid", (int(run_id),))
+                           f" WHERE run_id = ? ORDER BY {self.ROW_ORDER}", (int(run_id),))
         return {r[0]: tracking.Figure(r[0], _unnull(r[1]), _unnull(r[2]), _unnull(r[3]),
                                       float(r[4] if r[4] is not None else INTERVAL), r[5],
                                       rename_legacy(r[6] or ""))
@@ -526,24 +558,91 @@ class Store:
                 "code_version"]
         return dict(zip(keys, rows[0]))
 
-    # ------------------------------------------------------------------ comparing
-    def baseline_for(self, run_id: int, baseline: str | int = "previous") -> int | None:
-        """Run id of the baseline of ``run_id``: ``"previous"`` (latest earlier run of
-        the series), ``"best"`` (earlier run with the lowest test error at the
-        reference size) or an explicit run id. None when the series has no earlier run."""
+    # ------------------------------------------------------------------ baselines
+    def accept(self, run_id: int, note: str = "") -> int:
+        """Accept a run as its series' baseline (what ``track --accept RUN`` does).
+
+        From now on the default baseline (``"accepted"``) of the series is this run, and
+        ``"previous"`` may fall back on it even if it failed the gate. Returns the run id.
+        """
+        row = self._run_row(run_id)
+        try:
+            with self._transaction() as tx:
+                sid = tx.execute("SELECT series_id FROM runs WHERE id = ?", (row["id"],))[0][0]
+                tx.execute("INSERT INTO accepted (series_id, run_id, created, note) VALUES (?, ?, ?, ?)",
+                           (sid, row["id"], _now(), str(note or "")))
+        except self.DATABASE_ERRORS as exc:
+            raise InputError(f"history store {self.path}: {first_line(exc)}") from None
+        return row["id"]
+
+    def accepted_run(self, series: str) -> int | None:
+        """The run last accepted for ``series`` (``track --accept``), or None."""
+        r = self._query("SELECT a.run_id FROM accepted a JOIN series s ON s.id = a.series_id"
+                        " WHERE s.name = ? ORDER BY a.id DESC LIMIT 1", (series,))
+        return int(r[0][0]) if r else None
+
+    def series_of(self, run_id: int) -> str:
+        """The series a run belongs to."""
+        return self._run_row(run_id)["series"]
+
+    def verdict(self, run_id: int) -> str | None:
+        """The gate's verdict recorded for a run (None before it was compared)."""
+        self._run_row(run_id)
+        r = self._query("SELECT verdict FROM runs WHERE id = ?", (int(run_id),))
+        return r[0][0] if r else None
+
+    def record_verdict(self, comparison: tracking.Comparison,
+                       figures: Sequence[tracking.Figure] = ()) -> None:
+        """Store a comparison's verdict and baseline with its run, and the comparative
+        figures (efficiency against that baseline) among the run's figures."""
+        rid = int(comparison.run_id)
+        names = [f.name for f in figures]
+        try:
+            with self._transaction() as tx:
+                tx.execute("UPDATE runs SET verdict = ?, baseline_id = ? WHERE id = ?",
+                           (comparison.verdict, comparison.baseline_id, rid))
+                for name in names:
+                    tx.execute("DELETE FROM headline WHERE run_id = ? AND name = ?", (rid, name))
+                tx.executemany(
+                    "INSERT INTO headline (run_id, name, estimate, low, high, level, better, note)"
+                    " VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
+                    [(rid, f.name, _num(f.estimate, keep_inf=True), _num(f.low, keep_inf=True),
+                      _num(f.high, keep_inf=True), float(f.level), f.better, f.note or "")
+                     for f in figures])
+        except self.DATABASE_ERRORS as exc:
+            raise InputError(f"history store {self.path}: {first_line(exc)}; the run is "
+                             "recorded, its verdict is not") from None
+
+    def baseline_for(self, run_id: int, baseline: str | int = "accepted") -> int | None:
+        """Run id of the baseline of ``run_id``; None when the series has no earlier run.
+
+        ``"accepted"``: the run last accepted for the series (``track --accept``), else
+        the series' first run. ``"previous"``: the latest earlier run that passed the gate
+        (or was accepted); a failing run is never a baseline by itself. ``"best"``: the
+        earlier passing run with the lowest test error at the reference size. An int:
+        that run."""
         row = self._run_row(run_id)
         rule = tracking.check_baseline(baseline)
+        earlier = ("SELECT r.id FROM runs r JOIN series s ON s.id = r.series_id"
+                   " WHERE s.name = ? AND r.id < ?")
+        passing = (" AND (r.verdict IS NULL OR r.verdict IN (?, ?) OR r.id IN"
+                   " (SELECT a.run_id FROM accepted a))")
+        params = (row["series"], row["id"], *PASSING)
+        if rule == "accepted":
+            acc = self.accepted_run(row["series"])
+            if acc is not None and acc != row["id"]:
+                return acc
+            r = self._query(earlier + " ORDER BY r.id ASC LIMIT 1", params[:2])
+            return int(r[0][0]) if r else None
         if rule == "previous":
-            r = self._query("SELECT r.id FROM runs r JOIN series s ON s.id = r.series_id"
-                            " WHERE s.name = ? AND r.id < ? ORDER BY r.id DESC LIMIT 1",
-                            (row["series"], row["id"]))
+            r = self._query(earlier + passing + " ORDER BY r.id DESC LIMIT 1", params)
             return int(r[0][0]) if r else None
         if rule == "best":
             r = self._query(
                 "SELECT r.id FROM runs r JOIN series s ON s.id = r.series_id"
                 " JOIN headline h ON h.run_id = r.id AND h.name = 'test_error_at_ref'"
-                " WHERE s.name = ? AND r.id < ? AND h.estimate IS NOT NULL"
-                " ORDER BY h.estimate ASC, r.id DESC LIMIT 1", (row["series"], row["id"]))
+                " WHERE s.name = ? AND r.id < ? AND h.estimate IS NOT NULL" + passing +
+                " ORDER BY h.estimate ASC, r.id DESC LIMIT 1", params)
             if r:
                 return int(r[0][0])
             return self.baseline_for(run_id, "previous")
@@ -553,54 +652,88 @@ class Store:
         self._run_row(bid)
         return bid
 
-    def compare(self, run_id: int, baseline: str | int = "previous", *,
+    # ------------------------------------------------------------------ comparing
+    def compare(self, run_id: int, baseline: str | int = "accepted", *,
                 tolerances: Mapping[str, Any] | None = None,
-                allow_data_change: bool = False) -> tracking.Comparison:
+                allow_data_change: bool = False, gate: Any = None,
+                efficiency: bool = True, random_state: int = 0) -> tracking.Comparison:
         """Compare a stored run with its baseline.
 
         Parameters
         ----------
         run_id : int
-        baseline : "previous", "best" or int
+        baseline : "accepted", "previous", "best" or int
+            See `baseline_for`.
         tolerances : mapping, optional
             Per-figure tolerances overriding the series' stored ones and the defaults
             (`curvefit.history.figures.DEFAULT_TOLERANCES`); numbers are absolute, ``"N%"``
             relative.
         allow_data_change : bool
             Compare even when the data fingerprint or the metric differ.
+        gate : list of str, "efficiency" or "all", optional
+            The figures that can fail the run (default: the efficiency figures, see
+            `curvefit.history.efficiency`; the point figures are then information). When
+            the curves cannot be compared (fewer than two sizes, no common size), the
+            point figures gate instead.
+        efficiency : bool
+            Compute the efficiency figures from the two stored curves.
+        random_state : int
+            Seed of the efficiency intervals.
 
         Returns
         -------
         Comparison
-            ``.regressed`` names the regressed figures, ``.comparable`` is False when
-            the data or metric changed and that was not allowed.
+            ``.regressed`` names the regressed gating figures, ``.comparable`` is False
+            when the data or metric changed and that was not allowed.
         """
         row = self._run_row(run_id)
         rule = tracking.check_baseline(baseline)
-        rule_name = rule if rule in ("previous", "best") else "run"
+        rule_name = rule if isinstance(rule, str) else "run"
+        gated = set(tracking.check_gate(gate))
         bid = self.baseline_for(run_id, baseline)
         config = self.series_config(row["series"]) or {}
         tol = tracking.resolve_tolerances(config.get("tolerances"), tolerances)
-        current = self.headline(row["id"])
+        current = {n: f for n, f in self.headline(row["id"]).items()
+                   if n not in tracking.EFFICIENCY}
         metric = row["metric"] or "error"
         if bid is None:
             changes = [tracking.compare_figure(f, None, tol.get(n)) for n, f in current.items()]
             return tracking.Comparison(row["series"], row["id"], None, rule_name, True, [], changes,
                                        metric=metric)
         brow = self._run_row(bid)
-        base = self.headline(bid)
+        base = {n: f for n, f in self.headline(bid).items() if n not in tracking.EFFICIENCY}
         reasons = []
         if (row["data_fingerprint"] or None) != (brow["data_fingerprint"] or None):
             reasons.append(f"data fingerprint differs from run {bid}'s "
                            f"({_short(brow['data_fingerprint'])} → {_short(row['data_fingerprint'])})")
         if (row["metric"] or "error") != (brow["metric"] or "error"):
             reasons.append(f"metric differs from run {bid}'s ({brow['metric']} → {row['metric']})")
+        level = next((f.level for f in current.values()), INTERVAL)
+        eff_figs = self._efficiency(row["id"], bid, level, random_state) if efficiency else []
+        if not eff_figs:
+            gated = (gated - set(tracking.EFFICIENCY)) or set(tracking.check_gate("all"))
         names = list(current) + [n for n in base if n not in current]
         changes = [tracking.compare_figure(current.get(n), base.get(n), tol.get(n)) for n in names]
+        changes = [tracking.compare_figure(f, tracking.null_figure(f.name, f.level), tol.get(f.name))
+                   for f in eff_figs] + changes
+        changes = [dataclasses.replace(c, gated=c.name in gated) for c in changes]
         comparable = not reasons or allow_data_change
         return tracking.Comparison(row["series"], row["id"], bid, rule_name, comparable,
                                    reasons, changes, data_change_allowed=bool(reasons) and allow_data_change,
                                    metric=metric)
+
+    def _efficiency(self, run_id: int, baseline_id: int, level: float,
+                    random_state: int) -> list[tracking.Figure]:
+        """The efficiency figures of a run against its baseline; none when the curves
+        cannot be compared (fewer than two sizes, no common size)."""
+        from curvefit.history.efficiency import compare_curves
+
+        try:
+            eff = compare_curves(self.curve(run_id), self.curve(baseline_id), interval=level,
+                                 random_state=random_state)
+        except InputError:
+            return []
+        return tracking.efficiency_figures(eff, baseline_id)
 
 
 def _short(fp: str | None) -> str:
@@ -648,3 +781,35 @@ def _num(v: Any, keep_inf: bool = False) -> float | None:
 
 def _unnull(v: Any) -> float:
     return math.nan if v is None else float(v)
+
+
+def first_line(exc: BaseException) -> str:
+    text = str(exc).strip()
+    return text.splitlines()[0] if text else type(exc).__name__
+
+
+def is_postgres_address(path: Any) -> bool:
+    """True for ``postgresql://...`` or ``postgres://...`` addresses.
+
+    Examples
+    --------
+    >>> is_postgres_address("postgresql://ci@db.example/curvefit"), is_postgres_address("h.db")
+    (True, False)
+    """
+    return isinstance(path, str) and path.split("://", 1)[0].lower() in ("postgresql", "postgres") \
+        and "://" in path
+
+
+class Transaction:
+    """The statements of one write transaction: ``execute`` returns the rows (if any)."""
+
+    def __init__(self, execute, executemany):
+        self._execute, self._executemany = execute, executemany
+
+    def execute(self, sql: str, params: Sequence[Any] = ()) -> list[tuple]:
+        cur = self._execute(sql, params)
+        return cur.fetchall() if cur.description else []
+
+    def executemany(self, sql: str, rows: Sequence[Sequence[Any]]) -> None:
+        if rows:
+            self._executemany(sql, rows)

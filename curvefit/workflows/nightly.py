@@ -3,8 +3,14 @@
 `track_run` is the whole job for a measured `Curve`; `track_job` runs it from a job file
 (TOML with the ``measure`` option names plus the tracking keys), measuring first when the
 job says how. Both return a `TrackResult` whose ``exit_code`` gates a CI job: 0 no
-regression (or a first run), 1 a headline figure regressed, 2 the run is not comparable
+regression (or a first run), 1 a gating figure regressed, 2 the run is not comparable
 with its baseline (data or metric changed) unless that was allowed.
+
+The gate reads the whole measured curve against the baseline's
+(`curvefit.history.efficiency`: the labels the new model needs to match the baseline's
+error, and the error difference averaged over ``ln n``); the fitted point figures are
+information. The default baseline is the series' accepted run (`accept_run`, or the
+first run): a failing run never becomes a baseline by itself.
 
 Examples
 --------
@@ -39,7 +45,8 @@ MEASURE_KEYS = {"data", "target", "model", "param", "command", "features", "test
                 "scheduler", "seed", "timeout", "resume", "out", "quiet", "json", "groups",
                 "order", "size_unit"}
 TRACK_KEYS = {"store", "series", "target_error", "baseline", "tolerances",
-              "allow_data_change", "bootstrap", "interval", "reference_size", "families"}
+              "allow_data_change", "bootstrap", "interval", "reference_size", "families",
+              "gate", "junit"}
 
 
 @dataclass
@@ -122,7 +129,7 @@ def tracking_settings(job: Mapping[str, Any]) -> dict:
     >>> tracking_settings({"store": "h.db", "series": "s", "bootstrap": 50})["bootstrap"]
     50
     """
-    from curvefit.history.figures import check_baseline, resolve_tolerances
+    from curvefit.history.figures import check_baseline, check_gate, resolve_tolerances
 
     store, series = job.get("store"), job.get("series")
     if not store:
@@ -142,7 +149,8 @@ def tracking_settings(job: Mapping[str, Any]) -> dict:
         resolve_tolerances(tolerances)
     reference = job.get("reference_size")
     return {"store": str(store), "series": series,
-            "baseline": check_baseline(job.get("baseline", "previous")),
+            "baseline": check_baseline(job.get("baseline", "accepted")),
+            "gate": check_gate(job.get("gate")),
             "target_error": target, "tolerances": tolerances,
             "allow_data_change": bool(job.get("allow_data_change", False)),
             "bootstrap": check_count(job.get("bootstrap", BOOTSTRAP), "bootstrap"),
@@ -154,9 +162,11 @@ def tracking_settings(job: Mapping[str, Any]) -> dict:
 
 def check_store_path(path: str) -> None:
     """Refuse a store that cannot be opened or created, before a long measurement."""
-    from curvefit.history.store import Store
+    from curvefit.history.store import Store, is_postgres_address
 
-    if Path(path).exists():
+    if is_postgres_address(path):
+        Store(path).close()  # connects (and creates the tables): fails fast when unreachable
+    elif Path(path).exists():
         Store(path, create=False).close()
     elif not Path(path).parent.is_dir():
         raise InputError(f"cannot create history store {path}: its directory does not exist")
@@ -223,22 +233,24 @@ def measure_job(job: Mapping[str, Any], *, progress: bool = False):
 
 
 # --------------------------------------------------------------------------- the pipeline
-def track_run(curve, *, store: str, series: str, baseline: str | int = "previous",
+def track_run(curve, *, store: str, series: str, baseline: str | int = "accepted",
               target_error: float | None = None, tolerances: Mapping | None = None,
               allow_data_change: bool = False, bootstrap: int = BOOTSTRAP,
               interval: float = INTERVAL, random_state: int = SEED,
-              reference_size: int | None = None, families: Any = "auto") -> TrackResult:
+              reference_size: int | None = None, families: Any = "auto",
+              gate: Any = None) -> TrackResult:
     """Fit ``curve``, record it in ``store`` under ``series`` and compare with the baseline.
 
     Parameters
     ----------
     curve : Curve
     store : str or path
-        The history store (created if absent).
+        The history store: a file (created if absent) or ``postgresql://user@host/db``.
     series : str
         The series the run belongs to.
-    baseline : "previous", "best" or int
-        What the run is compared with.
+    baseline : "accepted", "previous", "best" or int
+        What the run is compared with: the series' accepted run (default), the latest
+        run that passed, the best passing run, or a run id.
     target_error : float, optional
         The series' target test error (gives the ``samples_for_target`` figure).
     tolerances : dict, optional
@@ -249,6 +261,8 @@ def track_run(curve, *, store: str, series: str, baseline: str | int = "previous
         Settings of the fit (and of the capacity estimate).
     reference_size : int, optional
         Size at which errors are read (fixed by the series' first run).
+    gate : list of str, "efficiency" or "all", optional
+        The figures that can fail the run (default: the efficiency figures).
 
     Returns
     -------
@@ -256,12 +270,13 @@ def track_run(curve, *, store: str, series: str, baseline: str | int = "previous
         Effective capacity is added when the curve has train error and the estimate
         succeeds; otherwise it is skipped with a warning.
     """
-    from curvefit.history.figures import check_baseline, headline_figures
+    from curvefit.history.figures import EFFICIENCY, check_baseline, check_gate, headline_figures
     from curvefit.history.store import Store
 
     interval = check_level(interval)
     bootstrap = check_count(bootstrap, "bootstrap")
     rule = check_baseline(baseline)
+    gate = check_gate(gate)
     with Store(store) as st:  # open first: a bad store or baseline fails before the slow fit
         if isinstance(rule, int):
             st.headline(rule)  # the named baseline run must exist
@@ -277,10 +292,29 @@ def track_run(curve, *, store: str, series: str, baseline: str | int = "previous
             run_id = st.record(curve, fit.to_dict(), series=series, headline=figures,
                                target_error=target_error, reference_size=reference_size,
                                tolerances=tolerances, interval=interval)
-        comparison = st.compare(run_id, rule, allow_data_change=allow_data_change)
+        comparison = st.compare(run_id, rule, allow_data_change=allow_data_change, gate=gate,
+                                random_state=random_state)
+        st.record_verdict(comparison, [c.current for c in comparison.changes
+                                       if c.name in EFFICIENCY and c.current is not None])
     notes += [str(w.message).splitlines()[0] for w in caught]
     return TrackResult(comparison, str(store), series, curve, fit, capacity,
                        list(dict.fromkeys(notes)))
+
+
+def accept_run(store: str, run_id: int, note: str = "") -> dict:
+    """Accept a recorded run as its series' baseline (``curvefit track --accept RUN``).
+
+    Returns
+    -------
+    dict
+        ``run_id``, ``series``, the run's recorded ``verdict`` and the ``store``.
+    """
+    from curvefit.history.store import Store
+
+    with Store(store, create=False) as st:
+        rid = st.accept(run_id, note)
+        series = st.series_of(rid)
+        return {"run_id": rid, "series": series, "verdict": st.verdict(rid), "store": str(st.path)}
 
 
 def _fit_and_capacity(curve, families, bootstrap: int, random_state, interval: float):

@@ -1,0 +1,295 @@
+"""Data-efficiency of a run against its baseline, read from the two measured curves.
+
+No curve is fitted here: the figures compare the per-size means of the measured test
+error, so they do not change when another family would be chosen.
+
+``efficiency_ratio``
+    For each baseline size ``n``, the labels the current model needs to reach the
+    baseline's mean error at ``n`` (the current means interpolated linearly in ``ln n``),
+    divided by ``n``; the figure is the geometric mean of these ratios over the sizes.
+    ``2.0`` reads "needs twice the labels". Answers outside the current curve's
+    measured range are clipped to its ends, which pulls the ratio towards 1 (a
+    conservative screen).
+``error_area``
+    The mean of the per-size differences ``current − baseline`` of the mean test error,
+    averaged over ``ln n`` (the area between the curves in ``ln n`` divided by the width
+    of the common range). It uses every common size's test sets, not only the largest.
+
+Each has an interval from a parametric bootstrap of the per-size means: a mean is
+drawn as ``mean + sem · T`` with ``T`` Student-t on ``R − 1`` degrees of freedom (``R``
+repeats), so few repeats widen the interval as they should; the standard error is
+never taken below the binomial noise of the pooled test rows at that size (0-1 error).
+The per-size table also carries a one-sided Welch test per size with Holm's
+correction over the sizes (information: the gate reads the two figures above).
+
+A run regressed on one of these figures when its interval lies wholly on the worse
+side of "no change" (1 for the ratio, 0 for the area) **and** the estimate is worse by
+more than the tolerance. Like every figure here, this is a statistical screen, not a
+guarantee.
+
+This module is pure: it reads curves and returns figures; it performs no I/O.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from curvefit.core.defaults import INTERVAL, SEED
+from curvefit.core.errors import InputError
+from curvefit.core.validate import check_count, check_level
+
+# Replicates of the parametric bootstrap (cheap: a few sizes per replicate).
+EFFICIENCY_BOOTSTRAP = 2000
+# The null value of each comparative figure ("no change").
+NULL_VALUE = {"efficiency_ratio": 1.0, "error_area": 0.0}
+
+
+@dataclass(frozen=True)
+class SizeRow:
+    """One baseline size: means, standard errors, the labels the current model needs,
+    and the per-size test (Holm-adjusted one-sided p value)."""
+
+    size: int
+    baseline_mean: float
+    baseline_sem: float
+    current_mean: float
+    current_sem: float
+    labels_needed: float
+    ratio: float
+    p_holm: float
+
+    def to_dict(self) -> dict:
+        return dict(self.__dict__)
+
+
+@dataclass(frozen=True)
+class Efficiency:
+    """The two comparative figures with their intervals, and the per-size table."""
+
+    ratio: float
+    ratio_low: float
+    ratio_high: float
+    area: float
+    area_low: float
+    area_high: float
+    level: float
+    sizes: list[SizeRow] = field(default_factory=list)
+    clipped: int = 0
+
+    @property
+    def holm_worse(self) -> list[int]:
+        """Sizes where the current run is worse at the family-wise level (Holm)."""
+        alpha = (1 - self.level) / 2
+        return [r.size for r in self.sizes if r.p_holm < alpha]
+
+    def to_dict(self) -> dict:
+        d = {k: v for k, v in self.__dict__.items() if k != "sizes"}
+        d["sizes"] = [r.to_dict() for r in self.sizes]
+        d["holm_worse"] = self.holm_worse
+        return d
+
+
+@dataclass(frozen=True)
+class _Means:
+    sizes: np.ndarray
+    mean: np.ndarray
+    sem: np.ndarray
+    dof: np.ndarray
+
+
+def size_means(curve) -> _Means:
+    """Per-size mean test error, its standard error (floored at the pooled binomial
+    noise of the test rows for 0-1 error) and degrees of freedom, from a `Curve`.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> from curvefit.core.curve import Curve
+    >>> c = Curve.from_table(pd.DataFrame({"size": [10, 10, 20, 20],
+    ...                                    "test_error": [0.3, 0.5, 0.2, 0.2]}))
+    >>> m = size_means(c)
+    >>> m.mean.tolist(), round(float(m.sem[0]), 3)
+    ([0.4, 0.2], 0.1)
+    """
+    ok = curve.ok_points()
+    ok = ok[np.isfinite(ok["test_error"].astype(float))]
+    sizes, means, sems, dofs = [], [], [], []
+    binary = str(getattr(curve, "metric", "error")) in ("error", "zero_one", "0-1")
+    for n, g in ok.groupby("size"):
+        e = g["test_error"].to_numpy(float)
+        r = len(e)
+        m = float(e.mean())
+        s = float(e.std(ddof=1) / math.sqrt(r)) if r > 1 else math.nan
+        rows = float(g["n_test"].sum()) if "n_test" in g and g["n_test"].notna().all() else math.nan
+        if binary and math.isfinite(rows) and rows > 0 and 0 <= m <= 1:
+            floor = math.sqrt(max(m * (1 - m), 1.0 / rows) / rows)
+            s = floor if not math.isfinite(s) else max(s, floor)
+        sizes.append(float(n))
+        means.append(m)
+        sems.append(s)
+        dofs.append(max(r - 1, 1))
+    return _Means(np.array(sizes), np.array(means), np.array(sems), np.array(dofs, float))
+
+
+def labels_to_reach(sizes: np.ndarray, means: np.ndarray, error: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Labels at which a measured curve first reaches each ``error``, interpolating in ``ln n``.
+
+    The curve is made non-increasing first (its running minimum), so the answer is
+    defined; answers beyond the measured range are clipped to its ends (second array:
+    True where clipped).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> n, _ = labels_to_reach(np.array([100., 400.]), np.array([0.3, 0.2]), np.array([0.25]))
+    >>> round(float(n[0]))
+    200
+    """
+    env = np.minimum.accumulate(means)
+    logn = np.log(sizes)
+    err = np.atleast_1d(np.asarray(error, float))
+    out = np.empty_like(err)
+    clipped = np.zeros(err.shape, bool)
+    for i, e in enumerate(err):
+        if e >= env[0]:
+            out[i], clipped[i] = logn[0], e > env[0]
+            continue
+        if e < env[-1]:
+            out[i], clipped[i] = logn[-1], True
+            continue
+        j = int(np.argmax(env <= e))  # first size at or below e; j >= 1
+        e0, e1 = env[j - 1], env[j]
+        t = 1.0 if e0 == e1 else (e0 - e) / (e0 - e1)
+        out[i] = logn[j - 1] + t * (logn[j] - logn[j - 1])
+    return np.exp(out), clipped
+
+
+def _figures(base_sizes, base_means, cur_sizes, cur_means, common, lw):
+    """The ratio (geometric mean) and the area for one set of means (rows = replicates)."""
+    ratios, areas = [], []
+    for bm, cm in zip(np.atleast_2d(base_means), np.atleast_2d(cur_means)):
+        need, _ = labels_to_reach(cur_sizes, cm, bm)
+        ratios.append(float(np.exp(np.mean(np.log(need / base_sizes)))))
+        bi = np.searchsorted(base_sizes, common)
+        ci = np.searchsorted(cur_sizes, common)
+        d = cm[ci] - bm[bi]
+        areas.append(float(np.sum(lw * d)) if len(common) > 1 else float(d.mean()))
+    return np.array(ratios), np.array(areas)
+
+
+def _trapezoid_weights(common: np.ndarray) -> np.ndarray:
+    """Weights of the trapezoid rule in ``ln n``, normalised to sum to one."""
+    if len(common) < 2:
+        return np.ones(len(common))
+    x = np.log(common)
+    w = np.zeros(len(x))
+    w[:-1] += np.diff(x) / 2
+    w[1:] += np.diff(x) / 2
+    return w / w.sum()
+
+
+def _holm(p: np.ndarray) -> np.ndarray:
+    """Holm's step-down adjusted p values."""
+    order = np.argsort(p)
+    m = len(p)
+    adj = np.empty(m)
+    running = 0.0
+    for k, i in enumerate(order):
+        running = max(running, min(1.0, (m - k) * p[i]))
+        adj[i] = running
+    return adj
+
+
+def compare_curves(current, baseline, *, interval: float = INTERVAL,
+                   bootstrap: int = EFFICIENCY_BOOTSTRAP, random_state: int = SEED) -> Efficiency:
+    """The efficiency figures of ``current`` against ``baseline`` (two `Curve` objects).
+
+    Parameters
+    ----------
+    current, baseline : Curve
+        Measured curves (test error per size and repeat; ``n_test`` when known).
+    interval : float
+        Level of the intervals.
+    bootstrap : int
+        Parametric bootstrap replicates.
+    random_state : int
+        Seed: same seed, same numbers.
+
+    Returns
+    -------
+    Efficiency
+
+    Raises
+    ------
+    InputError
+        A curve has fewer than two measured sizes, or the two share no size range.
+
+    Examples
+    --------
+    >>> import numpy as np, pandas as pd
+    >>> from curvefit.core.curve import Curve
+    >>> n = np.repeat([100, 200, 400, 800], 4)
+    >>> jitter = np.tile([-0.004, -0.001, 0.001, 0.004], 4)
+    >>> base = Curve.from_table(pd.DataFrame({"size": n, "test_error": 0.1 + 2 / np.sqrt(n) + jitter}))
+    >>> worse = Curve.from_table(pd.DataFrame({"size": n, "test_error": 0.1 + 2 / np.sqrt(n / 2) + jitter}))
+    >>> eff = compare_curves(worse, base)
+    >>> round(eff.ratio, 2), eff.ratio_low > 1   # 2 at three sizes, clipped to 1 at the last
+    (1.68, True)
+    """
+    level = check_level(interval)
+    bootstrap = check_count(bootstrap, "bootstrap", minimum=10)
+    b, c = size_means(baseline), size_means(current)
+    for name, m in (("current", c), ("baseline", b)):
+        if len(m.sizes) < 2:
+            raise InputError(f"the {name} run has fewer than two measured sizes; the "
+                             "efficiency figures need a curve")
+    common = np.intersect1d(b.sizes, c.sizes)
+    if len(common) == 0:
+        raise InputError("the run and its baseline share no measured size; measure the same "
+                         "sizes to compare the curves")
+    lw = _trapezoid_weights(common)
+    ratio, area = _figures(b.sizes, b.mean, c.sizes, c.mean, common, lw)
+    need, clipped = labels_to_reach(c.sizes, c.mean, b.mean)
+    rng = np.random.default_rng(random_state)
+
+    def draw(m: _Means) -> np.ndarray:
+        s = np.nan_to_num(m.sem, nan=0.0)
+        return m.mean + s * rng.standard_t(m.dof, size=(bootstrap, len(m.sizes)))
+
+    rb, ra = _figures(b.sizes, draw(b), c.sizes, draw(c), common, lw)
+    q = [(1 - level) / 2, (1 + level) / 2]
+    r_lo, r_hi = np.quantile(rb, q)
+    a_lo, a_hi = np.quantile(ra, q)
+    rows = _size_rows(b, c, need)
+    return Efficiency(float(ratio[0]), float(r_lo), float(r_hi), float(area[0]), float(a_lo),
+                      float(a_hi), level, rows, int(clipped.sum()))
+
+
+def _size_rows(b: _Means, c: _Means, need: np.ndarray) -> list[SizeRow]:
+    from scipy import stats
+
+    p = np.ones(len(b.sizes))
+    for i, n in enumerate(b.sizes):
+        j = np.searchsorted(c.sizes, n)
+        if j < len(c.sizes) and c.sizes[j] == n:
+            se = math.hypot(_z(b.sem[i]), _z(c.sem[j]))
+            if se > 0:
+                dof = b.dof[i] + c.dof[j]
+                p[i] = float(stats.t.sf((c.mean[j] - b.mean[i]) / se, dof))
+    adj = _holm(p)
+    rows = []
+    for i, n in enumerate(b.sizes):
+        j = np.searchsorted(c.sizes, n)
+        same = j < len(c.sizes) and c.sizes[j] == n
+        rows.append(SizeRow(int(n), float(b.mean[i]), float(b.sem[i]),
+                            float(c.mean[j]) if same else math.nan,
+                            float(c.sem[j]) if same else math.nan,
+                            float(need[i]), float(need[i] / n), float(adj[i])))
+    return rows
+
+
+def _z(v: float) -> float:
+    return 0.0 if not math.isfinite(v) else float(v)
