@@ -107,3 +107,27 @@ def test_error_of_a_regressor_is_reported_as_mse():
     reg = Curve(pts, {"metric": "error", "metric_info": {"name": "error", "kind": "mse"}})
     clf = Curve(pts, {"metric": "error", "metric_info": {"name": "error", "kind": "zero_one"}})
     assert reg.metric == "mse" and clf.metric == "error"
+
+
+def test_older_run_files_without_the_constant_predictor_still_load(tmp_path):
+    doc = _curve().to_dict()
+    assert all("baseline_error" not in p for p in doc["points"])  # as written before it existed
+    path = tmp_path / "old.json"
+    path.write_text(json.dumps(doc))
+    old = Curve.read(path)
+    assert not old.has_baseline
+    assert old.summary()["baseline_mean"].isna().all()
+
+
+def test_constant_predictor_column_round_trips_and_is_summarised(tmp_path):
+    c = _curve()
+    points = c.points.copy()
+    points["baseline_error"] = [0.4, 0.42, 0.44] * 3 + [0.4]
+    c2 = Curve(points, c.meta)
+    assert list(c2.points.columns[:10]) == list(c.points.columns) + ["baseline_error"]
+    back = Curve.read(c2.write(tmp_path / "run.json"))
+    assert back.has_baseline and json.loads((tmp_path / "run.json").read_text())["format"] == RUN_FORMAT
+    s = back.summary()
+    # per-size mean and standard error over the successful repeats (numpy as the reference)
+    np.testing.assert_allclose(s["baseline_mean"], [0.42] * 3)
+    np.testing.assert_allclose(s["baseline_sem"], [np.std([0.4, 0.42, 0.44], ddof=1) / math.sqrt(3)] * 3)

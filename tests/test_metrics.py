@@ -92,3 +92,39 @@ def test_probability_metric_needs_predict_proba():
     check_response(m, SVC(probability=True))
     # roc_auc takes decision_function or predict_proba
     check_response(resolve_metric("roc_auc", "classification"), SVC())
+
+
+def test_constant_loss_is_the_dummy_models_loss():
+    # reference: scikit-learn's DummyClassifier / DummyRegressor scored with sklearn.metrics
+    from sklearn.dummy import DummyClassifier, DummyRegressor
+
+    from curvefit.measuring.metrics import constant_loss
+
+    X, y = load_breast_cancer(return_X_y=True)
+    tr, te = slice(0, 400), slice(400, None)
+    majority = DummyClassifier(strategy="most_frequent").fit(X[tr], y[tr])
+    for name, expected in [
+        ("error", 1 - np.mean(majority.predict(X[te]) == y[te])),
+        ("balanced_error", 1 - balanced_accuracy_score(y[te], majority.predict(X[te]))),
+        ("neg_log_loss", log_loss(y[te], DummyClassifier(strategy="prior").fit(X[tr], y[tr])
+                                  .predict_proba(X[te]))),
+    ]:
+        got = constant_loss(resolve_metric(name, "classification"), y[tr], y[te], "classification")
+        assert got == pytest.approx(expected, abs=1e-12), name
+    # a constant scores 0.5 balanced error whatever the class shares (one recall 1, the rest 0)
+    assert constant_loss(resolve_metric("balanced_error", "classification"), y[tr], y[te],
+                         "classification") == pytest.approx(0.5)
+    Xd, yd = load_diabetes(return_X_y=True)
+    mean = DummyRegressor(strategy="mean").fit(Xd[:300], yd[:300]).predict(Xd[300:])
+    for name, fn in [("mse", mean_squared_error), ("mae", mean_absolute_error)]:
+        got = constant_loss(resolve_metric(name, "regression"), yd[:300], yd[300:], "regression")
+        assert got == pytest.approx(fn(yd[300:], mean), rel=1e-12), name
+
+
+def test_constant_loss_is_nan_when_the_metric_cannot_score_a_constant():
+    from curvefit.measuring.metrics import constant_loss
+
+    # log loss with a test class the training rows lack: scikit-learn refuses the labels
+    m = resolve_metric("neg_log_loss", "classification")
+    assert np.isnan(constant_loss(m, [0, 0, 1], [0, 2, 1], "classification"))
+    assert np.isnan(constant_loss(m, [], [0, 1], "classification"))

@@ -263,3 +263,37 @@ def test_settings_are_checked_before_any_fit(kwargs, match):
     X, y = load_iris(return_X_y=True)
     with pytest.raises(InputError, match=match):
         cf.measure(_Fragile(sleep=60), X, y, sizes=[20], repeats=kwargs.pop("repeats", 1), **kwargs)
+
+
+def test_every_cell_records_the_constant_predictors_error():
+    # scikit-learn's breast_cancer data (212 malignant, 357 benign): with a separate test set
+    # the majority class of every training subsample is "benign" (1), so the constant
+    # predictor's error is the test set's share of malignant rows in every cell
+    from sklearn.datasets import load_breast_cancer
+
+    X, y = load_breast_cancer(return_X_y=True)
+    rng = np.random.default_rng(1)
+    idx = rng.permutation(len(y))
+    tr, te = idx[:400], idx[400:]
+    curve = cf.measure(LogisticRegression(max_iter=2000), X[tr], y[tr], X_test=X[te], y_test=y[te],
+                       sizes=[40, 120, 400], repeats=2, random_state=0)
+    expected = float(np.mean(y[te] != 1))
+    np.testing.assert_allclose(curve.points["baseline_error"], expected, rtol=0, atol=1e-15)
+    summary = curve.summary()
+    np.testing.assert_allclose(summary["baseline_mean"], expected, atol=1e-15)
+    assert curve.meta["baseline"] == "the majority class of each training subsample"
+    shares = curve.meta["class_shares"]
+    assert list(shares) == ["1", "0"] and shares["0"] == pytest.approx(np.mean(y[tr] == 0))
+
+
+def test_regressor_cells_record_the_mean_predictors_mse():
+    # the constant regressor predicts the training subsample's mean (scikit-learn's DummyRegressor)
+    from sklearn.dummy import DummyRegressor
+
+    X, y = load_diabetes(return_X_y=True)
+    curve = cf.measure(Ridge(alpha=0.1), X[:300], y[:300], X_test=X[300:], y_test=y[300:],
+                       sizes=[300], repeats=1)
+    mean = DummyRegressor().fit(X[:300], y[:300]).predict(X[300:])
+    assert curve.points["baseline_error"].iloc[0] == pytest.approx(np.mean((mean - y[300:]) ** 2))
+    assert "class_shares" not in curve.meta
+    assert curve.meta["baseline"] == "the mean target of each training subsample"
