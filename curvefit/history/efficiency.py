@@ -18,7 +18,8 @@ error, so they do not change when another family would be chosen.
 Each has an interval from a parametric bootstrap of the per-size means: a mean is
 drawn as ``mean + sem · T`` with ``T`` Student-t on ``R − 1`` degrees of freedom (``R``
 repeats), so few repeats widen the interval as they should; the standard error is
-never taken below the binomial noise of the pooled test rows at that size (0-1 error).
+never taken below the binomial noise of the pooled test rows at that size (0-1 error),
+and where that floor is used ``T`` is normal (the floor is known, not estimated).
 The per-size table also carries a one-sided Welch test per size with Holm's
 correction over the sizes (information: the gate reads the two figures above).
 
@@ -45,6 +46,8 @@ from curvefit.core.validate import check_count, check_level
 EFFICIENCY_BOOTSTRAP = 2000
 # The null value of each comparative figure ("no change").
 NULL_VALUE = {"efficiency_ratio": 1.0, "error_area": 0.0}
+# Degrees of freedom of a standard error that is known rather than estimated (≈ normal).
+KNOWN_DOF = 1e6
 
 
 @dataclass(frozen=True)
@@ -124,13 +127,16 @@ def size_means(curve) -> _Means:
         m = float(e.mean())
         s = float(e.std(ddof=1) / math.sqrt(r)) if r > 1 else math.nan
         rows = float(g["n_test"].sum()) if "n_test" in g and g["n_test"].notna().all() else math.nan
+        dof = float(max(r - 1, 1))
         if binary and math.isfinite(rows) and rows > 0 and 0 <= m <= 1:
             floor = math.sqrt(max(m * (1 - m), 1.0 / rows) / rows)
-            s = floor if not math.isfinite(s) else max(s, floor)
+            if not math.isfinite(s) or floor >= s:
+                # the binomial noise is known, not estimated from the repeats: normal draws
+                s, dof = floor, KNOWN_DOF
         sizes.append(float(n))
         means.append(m)
         sems.append(s)
-        dofs.append(max(r - 1, 1))
+        dofs.append(dof)
     return _Means(np.array(sizes), np.array(means), np.array(sems), np.array(dofs, float))
 
 
