@@ -168,11 +168,11 @@ def run_probe(spec, inputs: ProbeInputs, settings: ProbeSettings, *, sizes=None,
         ns = _fixed_sizes(sizes, inputs)
         max_n = max(ns)
         df = cells.run({n: settings.repeats for n in ns})
-        h = _fit_probe(df, max_n)
+        h = fit_probe(df, max_n)
     else:
         df, h = _adaptive_design(cells, inputs.n_features, settings.repeats, max_n,
                                  progress or (lambda _msg: None))
-    return _probe_estimate(df, h, max_n, capped_by_rows, inputs, settings)
+    return probe_estimate(df, h, max_n, capped_by_rows, inputs, settings)
 
 
 class _ProbeCells:
@@ -218,7 +218,7 @@ def _adaptive_design(cells: _ProbeCells, d: int, repeats: int, max_n: int, say):
     r1 = max(3, repeats // 3)
     h_guess = float(d + 1)
     df = cells.run({n: r1 for n in _design_sizes(h_guess, ROUND1_TAUS, max_n)})
-    h = _fit_probe(df, max_n)
+    h = fit_probe(df, max_n)
     # Widen while ξ is still high at the largest n tried (the fit is not inside the design).
     while int(df["n"].max()) < max_n and h > df["n"].max() / 2.0:
         h_guess = max(h, h_guess * 8.0)
@@ -226,11 +226,11 @@ def _adaptive_design(cells: _ProbeCells, d: int, repeats: int, max_n: int, say):
         if not new:
             break
         df = cells.run(new)
-        h = _fit_probe(df, max_n)
+        h = fit_probe(df, max_n)
     say(f"probe round 1: {len(df)} cells, h ≈ {format_capacity(h)}")
     ns2 = _design_sizes(h, np.geomspace(0.5, 30.0, ROUND2_POINTS), max_n)
     df = cells.run(dict(zip(ns2, _allocate(df, ns2, repeats))))
-    h = _fit_probe(df, max_n)
+    h = fit_probe(df, max_n)
     say(f"probe round 2: {len(df)} cells, h ≈ {format_capacity(h)}")
     return df, h
 
@@ -252,21 +252,28 @@ def _design_sizes(h: float, taus, max_n: int) -> list[int]:
     return sorted({int(min(max(1, round(h * t)), max_n)) for t in taus})
 
 
-def _fit_probe(df: pd.DataFrame, max_n: int) -> float:
+def fit_probe(df: pd.DataFrame, max_n: int) -> float:
+    """h of ξ(n) ≈ Φ(n/h) over the finished cells (``n, xi, status``), searched in 0.25…4·max_n."""
     ok = df[df["status"] == "ok"]
     h, _ = fit_vc_curve(ok["n"].to_numpy(), ok["xi"].to_numpy(), h_bounds=(0.25, 4.0 * max_n))
     return h
 
 
-def _probe_estimate(df: pd.DataFrame, h: float, max_n: int, capped_by_rows: bool,
-                    inputs: ProbeInputs, settings: ProbeSettings) -> CapacityEstimate:
-    """The estimate from the finished cells: interval, lower bound above the range, notes."""
+def probe_estimate(df: pd.DataFrame, h: float, max_n: int, capped_by_rows: bool,
+                   inputs: ProbeInputs, settings: ProbeSettings) -> CapacityEstimate:
+    """The estimate from the finished cells (a table with ``n, xi, status, seconds``):
+    interval, lower bound above the range, notes, and a ``status`` for every outcome
+    (identical repeats or a degenerate design give a status, never an exception)."""
     ok = df[df["status"] == "ok"]
     n_failed = int((df["status"] != "ok").sum())
     groups = {int(n): g["xi"].to_numpy() for n, g in ok.groupby("n")}
     ns = sorted(groups)
     n_top, level = ns[-1], settings.interval
     low, high = _bootstrap_h(groups, settings.random_state, settings.bootstrap, max_n, level)
+    if all(len(v) < 2 for v in groups.values()):
+        low = high = math.nan   # one repeat per n: resampling cannot show the noise
+    elif math.isfinite(low):
+        low, high = min(low, h), max(high, h)  # the optimiser's tolerance can leave h a hair outside
     above = h >= n_top
     # The bootstrap sees repeat noise only; widen it when Φ misses the means by more.
     xi_means = np.array([groups[n].mean() for n in ns])
@@ -274,6 +281,7 @@ def _probe_estimate(df: pd.DataFrame, h: float, max_n: int, capped_by_rows: bool
     misfit = lack_of_fit(xi_means, xi_sems, phi(np.array(ns, float) / h), n_params=1)
     if not above and math.isfinite(low):
         low, high = widen_interval(h, low, high, misfit, bounds=(0.25, 4.0 * max_n))
+    status = "above_range" if above else ("ok" if math.isfinite(low) else "no_interval")
     notes = _probe_notes(inputs, capped_by_rows, max_n, n_failed,
                          misfit if not above else math.nan)
     top = groups[n_top]
@@ -300,7 +308,7 @@ def _probe_estimate(df: pd.DataFrame, h: float, max_n: int, capped_by_rows: bool
              "fit_seconds": float(df["seconds"].sum()), "h_fit": float(h), "lack_of_fit": misfit}
     return CapacityEstimate(vc_dim=float(vc), low=float(low), high=float(high), level=level,
                             method="probe", above_range=bool(above), design=design, notes=notes,
-                            message=message, extra=extra)
+                            message=message, extra=extra, status=status)
 
 
 def _bootstrap_h(groups: dict, seed: int, bootstrap: int, max_n: int, level: float):

@@ -48,6 +48,10 @@ class CapacityEstimate:
         Caveats to show with the figure.
     message : str
         One sentence answer.
+    status : str
+        ``"ok"``; ``"above_range"`` (only a lower bound); ``"not_identifiable"`` (the
+        sizes cannot pin the capacity: no figure, the message says which sizes would);
+        ``"no_interval"`` (a figure without an interval, e.g. one repeat per size).
     """
 
     vc_dim: float
@@ -63,6 +67,7 @@ class CapacityEstimate:
     notes: list = field(default_factory=list)
     message: str = ""
     extra: dict = field(default_factory=dict, repr=False)
+    status: str = "ok"
 
     def to_dict(self) -> dict:
         """Plain JSON-ready dict (inf and NaN become None)."""
@@ -70,7 +75,7 @@ class CapacityEstimate:
         return jsonable({
             "format": "curvefit.capacity/1",
             "vc_dim": self.vc_dim, "low": self.low, "high": self.high, "level": self.level,
-            "method": self.method, "above_range": bool(self.above_range),
+            "method": self.method, "above_range": bool(self.above_range), "status": self.status,
             "scale": self.scale,
             "exponent": self.exponent.to_dict() if self.exponent is not None else None,
             "regime": self.regime, "notes": list(self.notes), "message": self.message,
@@ -101,6 +106,7 @@ class CapacityEstimate:
             exponent=exponent, regime=str(d.get("regime") or ""),
             notes=list(d.get("notes") or []), message=str(d.get("message") or ""),
             extra=dict(d.get("extra") or {}),
+            status=str(d.get("status") or ("above_range" if above else "ok")),
         )
 
     @property
@@ -114,7 +120,9 @@ def lack_of_fit(means, sems, fitted, n_params: int = 1) -> float:
     """Reduced chi-square χ²/dof of per-point means against a fitted curve.
 
     Points with a zero or undefined standard error (e.g. ξ = 1 in every repeat) are
-    left out; NaN when fewer than ``n_params + 1`` points remain.
+    left out, and so are standard errors below 1e-9 of the values' scale: identical
+    repeats give a rounding-level standard error (~1e-17) that is not a measure of
+    noise. NaN when fewer than ``n_params + 1`` points remain.
 
     References
     ----------
@@ -130,7 +138,9 @@ def lack_of_fit(means, sems, fitted, n_params: int = 1) -> float:
     m = np.asarray(means, float)
     e = np.asarray(sems, float)
     f = np.asarray(fitted, float)
-    keep = np.isfinite(e) & (e > 0) & np.isfinite(m) & np.isfinite(f)
+    with np.errstate(invalid="ignore"):
+        scale = np.maximum(np.maximum(np.abs(m), np.abs(f)), 1e-300)
+        keep = np.isfinite(e) & np.isfinite(m) & np.isfinite(f) & (e > 1e-9 * scale)
     dof = int(keep.sum()) - n_params
     if dof < 1:
         return math.nan
@@ -144,10 +154,23 @@ def widen_interval(estimate: float, low: float, high: float, ratio: float,
     With ``bounds`` (the range h was searched in) the result is clipped to it, and an
     upper end that reaches the top of the range becomes infinite: the data cannot
     bound h from above there, and a figure beyond the search range would be invented.
+    The widening is done on logarithms, so a huge ratio gives a wide interval (0 or
+    infinite ends), never an overflow.
+
+    Examples
+    --------
+    >>> [round(v, 6) for v in widen_interval(10.0, 5.0, 20.0, ratio=4.0)]
+    [2.5, 40.0]
+    >>> widen_interval(10.0, 9.0, 11.0, ratio=1e300)
+    (0.0, inf)
     """
-    if math.isfinite(ratio) and ratio > 1 and estimate > 0 and low > 0 and high > 0:
+    if (math.isfinite(ratio) and ratio > 1 and math.isfinite(estimate) and estimate > 0
+            and math.isfinite(low) and math.isfinite(high) and low > 0 and high > 0):
         f = math.sqrt(ratio)
-        low, high = estimate * (low / estimate) ** f, estimate * (high / estimate) ** f
+        log_low = math.log(estimate) + f * math.log(min(low / estimate, 1.0))
+        log_high = math.log(estimate) + f * math.log(max(high / estimate, 1.0))
+        low = math.exp(log_low) if log_low > -700 else 0.0
+        high = math.exp(log_high) if log_high < 700 else math.inf
     if bounds is not None and math.isfinite(low) and math.isfinite(high):
         low = max(low, bounds[0])
         high = math.inf if high >= bounds[1] * (1 - 1e-9) else high

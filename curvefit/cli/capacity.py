@@ -2,9 +2,10 @@
 
 Two forms:
 
-``curvefit capacity RUN``
-    The VC-shaped gap model fitted to a run file's train and test errors.
-``curvefit capacity --probe [DATA] --model SPEC``
+``curvefit capacity RUN [--with-probe PROBE.json]``
+    The calibrated gap model on a run file's train and test errors (with a saved probe
+    figure beside it).
+``curvefit capacity --probe [DATA] --model SPEC`` (or ``--command "prog {train} {test} {predictions}"``)
     The max-deviation probe of the learner; inputs are rows resampled from DATA's
     feature columns, or standard-normal inputs with ``--n-features D`` and no DATA.
 """
@@ -31,17 +32,23 @@ def _print_probe_design(est) -> None:
 
 
 def _print_gap_design(est, metric: str) -> None:
-    if est.exponent is not None:
+    if est.scale is not None:
+        out.print(f"gap model: gap ≈ c·h/n past the knee, calibrated c = {format_number(est.scale, 3)}"
+                  " at the measured training error", markup=False)
+    if est.exponent is not None and est.exponent.estimate == est.exponent.estimate:
         b = est.exponent
-        out.print(f"gap power law: b = {format_estimate(b.estimate, b.low, b.high, b.level)}: "
-                  f"{est.regime}; VC-shaped scale s = {format_number(est.scale, 3)}", markup=False)
+        out.print(f"log-log slope of the gap (descriptive): b = "
+                  f"{format_estimate(b.estimate, b.low, b.high, b.level)}", markup=False)
 
     def gap(v):
         return format_error(v, metric)
 
-    rows = [[str(int(r.size)), gap(r.gap_mean), gap(r.gap_sem), gap(r.gap_fit), gap(r.gap_power),
-             str(int(r.repeats))] for r in est.design.itertuples()]
-    print_table(["size", "gap", "± sem", "s·Φ(n/h)", "a·n^-b", "repeats"], rows)
+    design = est.design
+    used = design["used"] if "used" in design else [True] * len(design)
+    rows = [[str(int(r.size)), gap(r.gap_mean), gap(r.gap_sem), gap(getattr(r, "train_mean", None)),
+             gap(r.gap_fit), "yes" if u else "no", str(int(r.repeats))]
+            for r, u in zip(design.itertuples(), used)]
+    print_table(["size", "gap", "± sem", "train", "c·h/n", "used", "repeats"], rows)
 
 
 def print_estimate(est, metric: str = "error") -> None:
@@ -104,6 +111,15 @@ def register(app: typer.Typer) -> None:
                                    help="Run the max-deviation probe on --model instead of reading a run."),
         model: Optional[str] = typer.Option(None, "--model",
                                             help="Model spec (package.module:Name or file.py:func)."),
+        command: Optional[str] = typer.Option(
+            None, "--command",
+            help="Probe a trainer program instead of --model: \"prog {train} {test} {predictions}\" "
+                 "(as in measure --command)."),
+        timeout: Optional[float] = typer.Option(None, "--timeout",
+                                                help="Seconds allowed per run of the --command trainer."),
+        with_probe: Optional[str] = typer.Option(
+            None, "--with-probe",
+            help="A saved probe estimate (capacity --probe --out FILE) to show beside the gap figure."),
         param: Optional[List[str]] = typer.Option(None, "--param",
                                                   help="Model parameter KEY=VALUE (repeatable)."),
         target: Optional[str] = typer.Option(None, "--target",
@@ -144,21 +160,25 @@ def register(app: typer.Typer) -> None:
             settings["bootstrap"] = bootstrap
         if probe:
             show = not (quiet or json_out)
-            est = _run_probe(source, model, param, target, features, n_features, sizes,
+            if with_probe:
+                raise InputError("--with-probe belongs to the gap model; drop it or --probe")
+            est = _run_probe(source, model, command, timeout, param, target, features, n_features,
+                             sizes,
                              dict(settings, n_jobs=jobs, backend=backend, scheduler=scheduler,
                                   progress=(lambda m: err.print(m, markup=False)) if show else None,
                                   **{k: v for k, v in (("repeats", repeats), ("max_n", max_n))
                                      if v is not None}))
             metric = "error"
         else:
-            stray = [name for name, v in (("--model", model), ("--param", param),
+            stray = [name for name, v in (("--model", model), ("--command", command),
+                                          ("--timeout", timeout), ("--param", param),
                                           ("--target", target), ("--features", features),
                                           ("--n-features", n_features), ("--sizes", sizes))
                      if v]
             if stray:
                 raise InputError(f"{stray[0]} belongs to the probe; add --probe, or give only "
                                  "a run file for the gap model")
-            est, metric = _run_gap(source, settings)
+            est, metric = _run_gap(source, settings, with_probe)
         if out_file:
             write_json(out_file, est.to_dict(), what="capacity file")
         if json_out:
@@ -169,14 +189,19 @@ def register(app: typer.Typer) -> None:
                 out.print(f"wrote {out_file}", markup=False)
 
 
-def _run_probe(source, model, param, target, features, n_features, sizes, settings: dict):
-    """The max-deviation probe of ``model`` on DATA's feature rows or on normal inputs."""
+def _run_probe(source, model, command, timeout, param, target, features, n_features, sizes,
+               settings: dict):
+    """The max-deviation probe of ``model`` (or a trainer ``command``) on DATA's feature rows
+    or on normal inputs."""
     from curvefit.capacity import probe_capacity
     from curvefit.measuring.models import parse_params, resolve_model
 
-    if not model:
-        raise InputError("the probe needs a model: pass --model SPEC (e.g. sklearn.svm:LinearSVC)")
-    spec = resolve_model(model, parse_params(param or []))
+    if not model and not command:
+        raise InputError("the probe needs a model: pass --model SPEC (e.g. sklearn.svm:LinearSVC) "
+                         "or --command \"prog {train} {test} {predictions}\"")
+    if timeout is not None and not command:
+        raise InputError("--timeout applies to a --command trainer; drop it or give --command")
+    spec = resolve_model(model, parse_params(param or []), command=command, timeout=timeout)
     X = _probe_inputs(source, target, features, n_features)
     size_list = None
     if sizes is not None:
@@ -187,13 +212,21 @@ def _run_probe(source, model, param, target, features, n_features, sizes, settin
     return probe_capacity(spec, X, n_features=n_features, sizes=size_list, **settings)
 
 
-def _run_gap(source, settings: dict):
-    """The VC-shaped gap model fitted to a run file; returns the estimate and the metric."""
-    from curvefit.capacity import effective_capacity
+def _run_gap(source, settings: dict, with_probe: str | None = None):
+    """The calibrated gap model on a run file (with a saved probe beside it); returns the
+    estimate and the metric."""
+    from curvefit.capacity import CapacityEstimate, effective_capacity
     from curvefit.core.curve import Curve
+    from curvefit.core.jsonio import read_json
 
     if source is None:
         raise InputError("no run file given; usage: curvefit capacity RUN, or "
                          "curvefit capacity --probe DATA --model SPEC")
+    probe = None
+    if with_probe:
+        probe = CapacityEstimate.from_dict(read_json(with_probe, what="probe file"))
+        if probe.method != "probe":
+            raise InputError(f"{with_probe} holds a {probe.method} estimate, not a probe; save one "
+                             "with curvefit capacity --probe ... --out FILE")
     curve = Curve.read(source)
-    return effective_capacity(curve, **settings), curve.metric
+    return effective_capacity(curve, probe=probe, **settings), curve.metric
