@@ -106,3 +106,59 @@ def test_fit_shows_lack_of_fit_and_need_answers_from_measured_means(tmp_path):
     first = r.stdout.splitlines()[0]
     assert first.startswith("The measured curve already reaches 30.0% test error at about")
     assert "between the measured sizes" in first
+
+
+def test_fit_at_prints_the_forecast_with_its_interval(files):
+    from curvefit.core.curve import Curve
+    from curvefit.core.errors import FitWarning
+    from curvefit.fitting.engine import fit_curve
+
+    r = run_cli("fit", files["run"], "--bootstrap", "30", "--at", "20000,50000", "--json")
+    assert r.returncode == 0, r.stderr
+    at = json.loads(r.stdout)["at"]
+    assert [row["size"] for row in at] == [20000, 50000]
+    # the same numbers as the API's CurveFit.predict with the same seed
+    fit = fit_curve(Curve.read(files["run"]), bootstrap=30, random_state=0)
+    with pytest.warns(FitWarning, match="beyond 10×"):
+        pred = fit.predict([20000, 50000])
+    for row, ref in zip(at, pred.itertuples()):
+        assert row["estimate"] == pytest.approx(ref.estimate) and row["low"] == pytest.approx(ref.low)
+        assert row["low"] <= row["estimate"] <= row["high"]
+    r = run_cli("fit", files["run"], "--bootstrap", "30", "--at", "20000,50000")
+    assert r.returncode == 0, r.stderr
+    block = r.stdout.split("at the sizes asked for:")[1].splitlines()
+    assert block[1].split()[:2] == ["size", "test"] and "90% interval" in block[1]
+    assert block[2].lstrip().startswith("20,000 (") and block[3].lstrip().startswith("50,000 (")
+    assert "beyond 10× the largest measured size" in r.stderr  # 50,000 is far: said on stderr
+
+
+def test_need_extra_without_a_target_prints_what_the_labels_buy(files):
+    from curvefit.core.curve import Curve
+    from curvefit.fitting.engine import fit_curve
+    from curvefit.fitting.planning import plan_purchase
+
+    r = run_cli("need", files["run"], "--extra", "1000,5000", "--bootstrap", "30")
+    assert r.returncode == 0, r.stderr
+    lines = r.stdout.splitlines()
+    assert lines[0].startswith("expected test error after buying more labels (you have")
+    assert lines[1].split()[:4] == ["extra", "total", "test", "error"]
+    assert lines[2].split()[0] == "1,000" and lines[3].split()[0] == "5,000"
+    r = run_cli("need", files["run"], "--extra", "1000,5000", "--bootstrap", "30", "--json")
+    doc = json.loads(r.stdout)
+    assert doc["answer"] is None and "vc" not in doc
+    fit = fit_curve(Curve.read(files["run"]), bootstrap=30, random_state=0)
+    ref = plan_purchase(fit, current_n=fit.largest_size, extra=[1000, 5000])
+    assert [row["test_error"] for row in doc["plan"]] == pytest.approx(ref["test_error"].tolist())
+    assert [row["high"] for row in doc["plan"]] == pytest.approx(ref["high"].tolist())
+
+
+@pytest.mark.parametrize("args", [
+    ["fit", "{csv}", "--at", "0,5000"],
+    ["fit", "{csv}", "--at", "many"],
+    ["need", "{csv}", "--extra", "-5"],
+])
+def test_bad_forecast_sizes_exit_2(files, args):
+    args = [a.format(**{k: str(v) for k, v in files.items()}) for a in args]
+    r = run_cli(*args, "--bootstrap", "5")
+    assert r.returncode == 2, (args, r.stdout, r.stderr)
+    assert len(r.stderr.strip().splitlines()) == 1 and "Traceback" not in r.stderr
