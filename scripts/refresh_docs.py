@@ -194,17 +194,25 @@ class Workspace:
         for entry in COPIED:
             shutil.copytree(ROOT / entry, self.path / entry, ignore=COPY_IGNORE)
         self.timeout = timeout
+        self.venv_ready = False
         self.env = dict(os.environ)
         self.env.update({
             "PATH": f"{ROOT / '.venv' / 'bin'}{os.pathsep}{os.environ.get('PATH', '')}",
             "PYTHONUNBUFFERED": "1",      # stdout and stderr interleave as on a terminal
             "MPLBACKEND": "Agg",
             "NO_COLOR": "1",
+            "GIT_DIR": str(ROOT / ".git"),  # the code version a store records: this checkout's
         })
         self.env.pop("VIRTUAL_ENV", None)
 
     def run(self, command: str) -> tuple[int, str]:
         command = re.sub(r"(^|\s)\./scripts/", lambda m: f"{m.group(1)}{ROOT}/scripts/", command)
+        if re.search(r"scripts/(demo|test)\b", command) and not self.venv_ready:
+            # a first run (or a changed pyproject.toml) installs the package; the docs show
+            # a later run, so the installer's output is kept out of them
+            subprocess.run(["bash", "-c", f'source "{ROOT}/scripts/_venv.sh" ""'], cwd=ROOT,
+                           stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, timeout=self.timeout)
+            self.venv_ready = True
         try:
             done = subprocess.run(["bash", "-c", command], cwd=self.path, env=self.env,
                                   stdout=subprocess.PIPE, stderr=subprocess.STDOUT,
