@@ -94,8 +94,11 @@ def test_learning_curve_draws_means_fits_target_and_answer(measured, fitted):
     # target line
     assert any(np.allclose(ln.get_ydata(), target) and len(ln.get_ydata()) == 2
                for ln in ax.get_lines())
-    if answer.reachable:
-        assert ax.get_xlim()[1] >= answer.n
+    if answer.reachable:  # an answer past the axis's end is marked at the edge
+        assert ax.get_xlim()[1] >= min(answer.n, plots.axis_limit(tree))
+    # the constant predictor's error on the same test sets, per size
+    const = next(ln for ln in ax.get_lines() if ln.get_label() == "tree: constant predictor")
+    np.testing.assert_allclose(const.get_ydata(), tree.summary()["baseline_mean"])
     _png_ok(fig)
 
 
@@ -142,13 +145,44 @@ def test_learning_curve_all_failed_and_unreachable(measured, fitted):
     _png_ok(fig)
 
 
+@pytest.mark.parametrize("answer, mark", [
+    # reachable, but 1,250,000× the largest size: marked at the edge, not drawn there
+    ({"n": 5e8, "low": 2e5, "high": math.inf, "reachable": True}, "n ≈ 500,000,000 →"),
+    # reached only beyond the horizon: "more than" the horizon, at the edge
+    ({"n": math.inf, "low": 9e3, "high": math.inf, "reachable": False, "beyond_horizon": True,
+      "horizon": 40000.0}, "n > 40,000 →"),
+])
+def test_far_answers_keep_the_measured_range_readable(measured, fitted, answer, mark):
+    tree = measured["tree"]
+    target = float(tree.summary()["test_mean"].min()) * 0.5
+    fig = plots.learning_curve_figure({"tree": tree}, {"tree": fitted["tree"]}, target_error=target,
+                                      answers={"tree": answer})
+    ax = fig.axes[0]
+    low, high = ax.get_xlim()
+    top = float(tree.sizes.max())
+    assert plots.axis_limit(tree) == plots.AXIS_CAP * top
+    assert high <= 30 * top  # not stretched to the answer
+    # the measured sizes keep more than a third of the log-scaled width
+    assert (np.log(top) - np.log(low)) / (np.log(high) - np.log(low)) > 1 / 3
+    texts = [t.get_text() for t in ax.texts]
+    assert mark in texts
+    arrow = next(t for t in ax.texts if t.get_text() == "" and t.arrow_patch is not None)
+    assert arrow.xy[0] > plots.axis_limit(tree)  # points on, past the edge
+    # no fitted line runs past the axis either
+    assert all(np.max(ln.get_xdata()) <= plots.axis_limit(tree) * 1.0001 for ln in ax.get_lines()
+               if len(ln.get_xdata()) > 2)
+    assert plots.beyond_axis(answer, plots.axis_limit(tree))
+    _png_ok(fig)
+
+
 def test_gap_figure_with_capacity_lines(measured):
     tree = measured["tree"]
-    cap = cf.effective_capacity(tree, bootstrap=20)
     grid = np.geomspace(30, 800, 50)
-    vc = cap.scale * phi(grid / cap.extra["h_fit"])
+    vc = 0.3 * phi(grid / 25.0)  # a VC-shaped gap curve s·Φ(n/h) as a capacity fit draws it
     fig = plots.gap_figure({"tree": tree}, {"tree": [("VC-shaped fit", grid, vc)]})
     ax = fig.axes[0]
+    line = next(ln for ln in ax.get_lines() if ln.get_label() == "tree: VC-shaped fit")
+    np.testing.assert_allclose(line.get_ydata(), vc)
     assert ax.get_xscale() == "log" and "gap" in ax.get_ylabel()
     pts = next(c for c in ax.containers if c.get_label() == "tree: measured gap")
     np.testing.assert_allclose(pts.lines[0].get_ydata(), tree.summary()["gap_mean"])

@@ -218,10 +218,11 @@ def check_target(target_error: float | None, curves: Sequence[Curve]) -> None:
 
 
 def gap_lines(curve: Curve, capacity: Any) -> list:
-    """The fitted gap curves of a capacity estimate on a grid over the measured sizes.
+    """The fitted gap curves of a capacity estimate, as ``(name, sizes, gaps)``.
 
-    The VC-shaped ``s·Φ(n/h)`` and the power law ``a·n^-b``, each from the estimate's
-    own fitted parameters, as ``(name, sizes, gaps)``.
+    The estimate's own fit at the sizes it used (``design["gap_fit"]``, c(ν)·h/n), or,
+    for estimates with a free scale, the VC-shaped ``s·Φ(n/h)`` on a grid over the
+    measured sizes; and the power law ``a·n^-b`` where the estimate holds one.
     """
     from curvefit.capacity import phi
 
@@ -232,9 +233,15 @@ def gap_lines(curve: Curve, capacity: Any) -> list:
     lines = []
     h = extra.get("h_fit", field_of(capacity, "vc_dim"))
     s = field_of(capacity, "scale")
+    design = field_of(capacity, "design")
     if is_finite(h) and is_finite(s) and float(h) > 0:
         lines.append((f"VC-shaped fit s·Φ(n/h), h = {format_capacity(h)}", grid,
                       float(s) * np.asarray(phi(grid / float(h)), float)))
+    elif is_finite(h) and isinstance(design, pd.DataFrame) and {"size", "gap_fit"} <= set(design):
+        used = design[np.isfinite(pd.to_numeric(design["gap_fit"], errors="coerce"))]
+        if len(used):
+            lines.append((f"fit c(ν)·h/n, h = {format_capacity(h)}", used["size"].to_numpy(float),
+                          used["gap_fit"].to_numpy(float)))
     a, b = extra.get("power_scale"), field_of(field_of(capacity, "exponent"), "estimate")
     if is_finite(a) and is_finite(b):
         lines.append((f"power-law fit a·n^-b, b = {format_number(b, 3)}", grid,
