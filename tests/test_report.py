@@ -261,3 +261,23 @@ def test_cli_run_with_script_in_names_and_spec(tmp_path):
     text = "".join(dom.text)
     assert json.dumps(cols[0])[1:-1] in text      # the column name, as text (JSON-quoted)
     assert 'm<script>x"y' in text                 # the model spec, as text
+
+
+def test_cli_report_keeps_the_measured_range_readable_for_a_far_answer(tmp_path):
+    # a pure power law 0.3·n^-0.15 (shape from common practice) measured up to 1,600: the
+    # target 5.5% lies near 80,000 labels, 50× the data, beyond the figure's 20× axis
+    n = np.repeat([100, 200, 400, 800, 1600], 3)
+    table = tmp_path / "curve.csv"
+    pd.DataFrame({"size": n, "test_error": 0.3 * n ** -0.15 + np.tile([-0.001, 0, 0.001], 5)}) \
+        .to_csv(table, index=False)
+    page = tmp_path / "far.html"
+    r = run_cli("report", table, "--target-error", "0.055", "--out", page, "--bootstrap", "40",
+                "--json", "--quiet")
+    assert r.returncode == 0, r.stderr
+    [model] = json.loads(r.stdout)["models"]
+    answer = model["answer"]
+    assert answer["beyond_horizon"] or answer["n"] > 20 * 1600
+    text = page.read_text()
+    assert ("The axis ends at 32,000 labelled samples (20× the largest size measured), so the "
+            "measured points stay readable; the answer for model 1 lies beyond it") in text
+    assert (tmp_path / "far_files" / "learning-curve.png").stat().st_size > 0
