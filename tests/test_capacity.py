@@ -12,6 +12,8 @@ Outside references used here:
 
 import json
 import math
+import sys
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -217,7 +219,7 @@ def test_gap_model_linear_classifiers_land_near_d_plus_1():
     for d, noise in ((5, 0.0), (5, 0.2), (15, 0.0), (15, 0.2)):
         est = effective_capacity(_gaussian_linear_curve(d, noise, seed=10 * d + int(100 * noise)),
                                  bootstrap=100)
-        assert est.method == "gap" and est.status == "ok" and est.scale > 0
+        assert est.method == "gap" and est.status == "ok" and est.extra["gap_constant"] > 0
         results.append((d, noise, est.vc_dim / (d + 1), est.low <= d + 1 <= est.high))
     assert all(0.6 <= r[2] <= 1.5 for r in results), results
     assert sum(r[3] for r in results) >= 3, results
@@ -366,7 +368,7 @@ def test_cli_gap_model_text_and_json(tmp_path):
     p = run_cli("capacity", run, "--bootstrap", "40", "--json")
     assert p.returncode == 0, p.stderr
     doc = json.loads(p.stdout)
-    assert doc["method"] == "gap" and doc["status"] == "ok" and doc["scale"] > 0
+    assert doc["method"] == "gap" and doc["status"] == "ok" and doc["extra"]["gap_constant"] > 0
     assert CapacityEstimate.from_dict(doc).vc_dim == pytest.approx(doc["vc_dim"])
 
 
@@ -417,3 +419,34 @@ def test_widened_interval_stays_inside_the_searched_range():
     assert low >= 0.25 and high == float("inf")
     low, high = widen_interval(10.0, 8.0, 12.0, ratio=4.0, bounds=(0.25, 400.0))
     assert low == pytest.approx(6.4) and high == pytest.approx(14.4)
+
+
+TRAINER = Path(__file__).resolve().parents[1] / "examples" / "trainer.py"
+
+
+def test_cli_probes_a_command_line_trainer(tmp_path):
+    # examples/trainer.py --model linear is a linear threshold rule with a bias: its
+    # class has VC dimension d + 1 = 3 in R^2 (Cover 1965); least squares is not an
+    # error minimiser, so the check is loose.
+    cmd = f"{sys.executable} {TRAINER} --model linear {{train}} {{test}} {{predictions}}"
+    p = run_cli("capacity", "--probe", "--n-features", "2", "--command", cmd, "--timeout", "60",
+                "--repeats", "3", "--max-n", "80", "--bootstrap", "30", "--json",
+                "--out", tmp_path / "probe.json")
+    assert p.returncode == 0, p.stderr
+    doc = json.loads(p.stdout)
+    assert doc["method"] == "probe" and doc["status"] == "ok" and 1.0 < doc["vc_dim"] < 8.0
+    assert doc["extra"]["failed_cells"] == 0
+    # The saved probe is shown beside the gap figure of a run.
+    run = _planted_curve(20.0, [80, 160, 320, 640]).write(tmp_path / "run.json")
+    p = run_cli("capacity", run, "--with-probe", tmp_path / "probe.json", "--bootstrap", "20")
+    assert p.returncode == 0, p.stderr
+    assert "max-deviation probe gives" in p.stdout
+
+
+def test_cli_probe_command_bad_input_exit_2():
+    line = _one_line_error(run_cli("capacity", "--probe", "--n-features", "2", "--command",
+                                   f"{sys.executable} {TRAINER} {{train}} {{test}}"))
+    assert "{predictions}" in line
+    line = _one_line_error(run_cli("capacity", "--probe", "--n-features", "2", "--model",
+                                   "sklearn.svm:LinearSVC", "--timeout", "5"))
+    assert "--timeout" in line

@@ -9,6 +9,8 @@ Outside references:
 
 import json
 import math
+import sys
+from pathlib import Path
 
 import pandas as pd
 import pytest
@@ -158,3 +160,27 @@ def test_cli_bad_input_is_one_line_exit_2(iris_csv, extra, needle):
     lines = [ln for ln in p.stderr.splitlines() if ln.strip()]
     assert len(lines) == 1 and "Traceback" not in p.stderr, p.stderr
     assert needle in lines[0]
+
+
+TRAINER = Path(__file__).resolve().parents[1] / "examples" / "trainer.py"
+
+
+def test_cli_varies_a_parameter_of_a_command_line_trainer(iris_csv):
+    # The trainer is examples/trainer.py, run as a program; {value} carries k.
+    cmd = f"{sys.executable} {TRAINER} --model knn --k {{value}} {{train}} {{test}} {{predictions}}"
+    p = run_cli("tradeoff", iris_csv, "--target", "target", "--command", cmd, "--vary", "k=1,25",
+                "--sizes", "30,90", "--repeats", "2", "--timeout", "60", "--json")
+    assert p.returncode == 0, p.stderr
+    doc = json.loads(p.stdout)
+    assert doc["param"] == "k" and [r["value"] for r in doc["table"]] == [1, 1, 25, 25]
+    assert all(r["n_failed"] == 0 and r["test_mean"] < 0.5 for r in doc["table"])
+    # 1-NN memorises its training rows (common practice): zero training error.
+    assert all(r["train_mean"] == 0 for r in doc["table"] if r["value"] == 1)
+
+
+def test_cli_command_without_value_placeholder_is_one_line_exit_2(iris_csv):
+    cmd = f"{sys.executable} {TRAINER} --model knn {{train}} {{test}} {{predictions}}"
+    p = run_cli("tradeoff", iris_csv, "--target", "target", "--command", cmd, "--vary", "k=1,5",
+                "--sizes", "30")
+    assert p.returncode == 2 and "{value}" in p.stderr and "Traceback" not in p.stderr
+    assert len([ln for ln in p.stderr.splitlines() if ln.strip()]) == 1

@@ -202,8 +202,10 @@ def effective_capacity(curve, *, bootstrap: int = BOOTSTRAP, random_state: int =
     Returns
     -------
     CapacityEstimate
-        ``method="gap"``, ``scale`` = c(ν) at the sizes used, ``exponent`` the
-        descriptive log-log slope b of the gap, ``regime`` and ``status`` set.
+        ``method="gap"``; ``extra["gap_constant"]`` = c(ν) at the sizes used (``scale``
+        is None: the model has no free scale), ``exponent`` the descriptive log-log slope
+        b of the gap, ``regime`` and ``status`` set; ``design["gap_fit"]`` is c(ν)·h/n
+        at the sizes used.
 
     References
     ----------
@@ -268,8 +270,9 @@ def effective_capacity(curve, *, bootstrap: int = BOOTSTRAP, random_state: int =
                    + (f"{regime}." if regime else "regime (realizable or noisy) not determined."))
     design = _design(sizes, means, sems, nus, reps, used, x * h)
     extra = _extra(curve, h, se_h, used, sizes, boot_h, misfit, seed, probe)
+    extra["gap_constant"] = c_used
     return CapacityEstimate(vc_dim=float(h), low=float(low), high=float(high), level=level,
-                            method="gap", above_range=False, design=design, scale=c_used,
+                            method="gap", above_range=False, design=design, scale=None,
                             exponent=Estimate(b, b_low, b_high, level), regime=regime,
                             notes=notes, message=message, extra=extra, status="ok")
 

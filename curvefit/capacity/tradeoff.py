@@ -28,6 +28,8 @@ TABLE_COLUMNS = ["param", "value", "size", "n_repeats", "n_failed", "train_mean"
 CAPACITY_COLUMNS = ["capacity", "capacity_low", "capacity_high", "capacity_above_range"]
 # Bootstrap replicates of each setting's probe: a lighter interval, as every value is probed.
 PROBE_BOOTSTRAP = 100
+# In a trainer command, the varied value takes the place of this placeholder.
+VALUE_PLACEHOLDER = "{value}"
 
 
 def value_label(value: Any) -> str:
@@ -39,6 +41,29 @@ def value_label(value: Any) -> str:
     ('None', '4', 'rbf')
     """
     return "None" if value is None else str(value)
+
+
+def setting_spec(base, param: str, value):
+    """The model of one setting: ``base`` with ``param`` set to ``value``; for a trainer
+    command, the command with ``{value}`` replaced by the value's text.
+
+    Examples
+    --------
+    >>> from curvefit.measuring.models import as_model_spec
+    >>> cmd = as_model_spec("python3 train.py --depth {value} {train} {test} {predictions}")
+    >>> setting_spec(cmd, "depth", 4).command
+    'python3 train.py --depth 4 {train} {test} {predictions}'
+    """
+    from curvefit.measuring.models import resolve_model
+
+    if base.kind == "command":
+        if VALUE_PLACEHOLDER not in base.command:
+            raise InputError(f"the trainer command has no {VALUE_PLACEHOLDER} placeholder for the "
+                             f"varied {param}; e.g. \"python train.py --{param} {VALUE_PLACEHOLDER} "
+                             "{train} {test} {predictions}\"")
+        return resolve_model(None, command=base.command.replace(VALUE_PLACEHOLDER, value_label(value)),
+                             timeout=base.timeout)
+    return base.with_params(**{param: value})
 
 
 def parse_vary(text: str) -> dict[str, list]:
@@ -175,7 +200,9 @@ def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: 
     Parameters
     ----------
     model : estimator, factory, spec string or ModelSpec
-        The base model; the varied parameter is set on fresh copies.
+        The base model; the varied parameter is set on fresh copies. A trainer command
+        (``"prog --depth {value} {train} {test} {predictions}"``) gets each value in
+        place of ``{value}``.
     X, y : array-like or DataFrame, array-like
         Labelled data.
     vary : dict
@@ -223,7 +250,8 @@ def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: 
     if sizes is None or len(list(sizes)) == 0:
         raise InputError("give the sample sizes to compare at, e.g. sizes=[50, 200, 800]")
     sizes = [int(s) for s in sizes]
-    base = as_model_spec(model)  # the one conversion; every setting is a copy of it
+    base = as_model_spec(model, timeout=timeout)  # the one conversion; every setting is a copy of it
+    specs = [setting_spec(base, param, value) for value in values]  # bad values fail before work
     say = progress or (lambda _m: None)
     inputs = settings = None
     if probe:
@@ -234,8 +262,7 @@ def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: 
                                  bootstrap=PROBE_BOOTSTRAP, random_state=random_state,
                                  n_jobs=n_jobs, backend=backend, scheduler=scheduler)
     rows, capacities, failed_total = [], {}, 0
-    for value, label in zip(values, labels):
-        spec = base.with_params(**{param: value})
+    for value, label, spec in zip(values, labels, specs):
         curve = measure(spec, X, y, sizes=sizes, repeats=repeats, test_size=test_size,
                         metric=metric, n_jobs=n_jobs, backend=backend, scheduler=scheduler,
                         random_state=random_state, timeout=timeout)

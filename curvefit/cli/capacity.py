@@ -32,8 +32,9 @@ def _print_probe_design(est) -> None:
 
 
 def _print_gap_design(est, metric: str) -> None:
-    if est.scale is not None:
-        out.print(f"gap model: gap ≈ c·h/n past the knee, calibrated c = {format_number(est.scale, 3)}"
+    c = est.extra.get("gap_constant")
+    if c is not None:
+        out.print(f"gap model: gap ≈ c·h/n past the knee, calibrated c = {format_number(c, 3)}"
                   " at the measured training error", markup=False)
     if est.exponent is not None and est.exponent.estimate == est.exponent.estimate:
         b = est.exponent

@@ -53,6 +53,10 @@ def register(app: typer.Typer) -> None:
         target: Optional[str] = typer.Option(None, "--target", help="Label column."),
         model: Optional[str] = typer.Option(None, "--model",
                                             help="Model spec (package.module:Name or file.py:func)."),
+        command: Optional[str] = typer.Option(
+            None, "--command",
+            help="A trainer program instead of --model: \"prog --opt {value} {train} {test} "
+                 "{predictions}\"; each --vary value replaces {value}."),
         param: Optional[List[str]] = typer.Option(None, "--param",
                                                   help="Fixed model parameter KEY=VALUE (repeatable)."),
         vary: Optional[str] = typer.Option(None, "--vary",
@@ -78,15 +82,16 @@ def register(app: typer.Typer) -> None:
                                                     "--tradeoff)."),
     ):
         """Train and test error against a complexity parameter; the best setting per size."""
-        from curvefit.capacity.tradeoff import parse_vary, tradeoff
+        from curvefit.capacity.tradeoff import parse_vary, setting_spec, tradeoff
         from curvefit.core.jsonio import write_json
         from curvefit.measuring import data as cfdata
         from curvefit.measuring.models import parse_params, resolve_model
 
         if not target:
             raise InputError("no target column given; pass --target COL")
-        if not model:
-            raise InputError("no model given; pass --model SPEC (e.g. sklearn.tree:DecisionTreeClassifier)")
+        if not model and not command:
+            raise InputError("no model given; pass --model SPEC (e.g. sklearn.tree:DecisionTreeClassifier) "
+                             "or --command \"prog --opt {value} {train} {test} {predictions}\"")
         if not vary:
             raise InputError("nothing to vary; pass --vary PARAM=V1,V2,... (e.g. max_depth=1,2,4,8)")
         if not sizes:
@@ -103,10 +108,10 @@ def register(app: typer.Typer) -> None:
         size_list = parse_list(sizes, float, name="size", integer_range=True)
         if any(s < 1 or float(s) != int(s) for s in size_list):
             raise InputError("sizes must be whole numbers >= 1 (training rows)")
-        spec = resolve_model(model, fixed, timeout=timeout)
+        spec = resolve_model(model, fixed, command=command, timeout=timeout)
         # Fail on a parameter or value the model does not take before any work starts.
         for value in varied[name]:
-            spec.with_params(**{name: value})
+            setting_spec(spec, name, value)
         df = cfdata.load_table(data)
         feats = [f.strip() for f in features.split(",") if f.strip()] if features else None
         ds = cfdata.prepare(df, target, feats)
