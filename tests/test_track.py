@@ -5,6 +5,7 @@ to CSV; the model is scikit-learn's LogisticRegression, scaled in a pipeline fil
 """
 
 import json
+import shutil
 import sqlite3
 import textwrap
 
@@ -46,15 +47,18 @@ def _job(tmp_path, name, *, C=1.0, data="cancer.csv", extra=""):
 
 @pytest.fixture(scope="module")
 def nightly(tmp_path_factory):
-    """Three nightly jobs on one store: good, good again with another seed, crippled."""
+    """Four nightly jobs on one store: good, good again with another seed, crippled, and
+    crippled again compared with the previous run (which must be the last passing one)."""
     tmp = tmp_path_factory.mktemp("nightly")
     frame = load_breast_cancer(as_frame=True).frame
     frame.to_csv(tmp / "cancer.csv", index=False)
     (tmp / "model.py").write_text(MODEL_FILE)
     results = {}
-    for name, C, seed in [("first", 1.0, 3), ("again", 1.0, 4), ("crippled", 1e-4, 3)]:
-        results[name] = run_cli("track", "--config", _job(tmp, name, C=C), "--json",
-                                "--seed", seed, cwd=tmp)
+    for name, C, seed, extra in [("first", 1.0, 3, ""), ("again", 1.0, 4, ""),
+                                 ("crippled", 1e-4, 3, ""),
+                                 ("crippled2", 1e-4, 5, 'baseline = "previous"\n')]:
+        results[name] = run_cli("track", "--config", _job(tmp, name, C=C, extra=extra), "--json",
+                                "--seed", seed, "--junit", tmp / f"{name}.xml", cwd=tmp)
     return tmp, results
 
 
@@ -81,11 +85,54 @@ def test_crippled_model_regresses(nightly):
     bad = res["crippled"]
     assert bad.returncode == 1, bad.stderr
     doc = json.loads(bad.stdout)
-    assert doc["verdict"] == "regressed" and doc["baseline_id"] == 2
-    assert "test_error_at_ref" in doc["regressed"]
+    # the default baseline is the accepted one: the series' first run
+    assert doc["verdict"] == "regressed" and doc["baseline_id"] == 1
+    assert doc["regressed"] and set(doc["regressed"]) <= {"efficiency_ratio", "error_area"}
+    ratio = next(f for f in doc["figures"] if f["name"] == "efficiency_ratio")
+    assert ratio["current"]["estimate"] > 1.1 and ratio["gated"]
+    assert "needs" in doc["message"] and "× the baseline's labels" in doc["message"]
     row = next(f for f in doc["figures"] if f["name"] == "test_error_at_ref")
-    assert row["current"]["low"] > row["baseline"]["high"]  # separated intervals
-    assert row["worse_by"] > 0.01
+    assert not row["gated"]  # the point figures are information
+
+
+def test_second_bad_run_after_a_failure_also_fails(nightly):
+    _, res = nightly
+    bad = res["crippled2"]
+    assert bad.returncode == 1, bad.stderr
+    doc = json.loads(bad.stdout)
+    # "previous" is the last run that passed (2), never the failing run 3
+    assert doc["baseline_rule"] == "previous" and doc["baseline_id"] == 2
+    assert doc["verdict"] == "regressed"
+
+
+def test_junit_has_one_case_per_figure(nightly):
+    import xml.etree.ElementTree as ET
+
+    tmp, res = nightly
+    doc = json.loads(res["crippled"].stdout)
+    root = ET.parse(tmp / "crippled.xml").getroot()
+    cases = root.findall("./testsuite/testcase")
+    assert [c.get("name") for c in cases] == [f["name"] for f in doc["figures"]]
+    failed = [c.get("name") for c in cases if c.find("failure") is not None]
+    assert failed == doc["regressed"]
+    assert root.find("testsuite").get("failures") == str(len(failed))
+    ok = ET.parse(tmp / "again.xml").getroot()
+    assert ok.find("testsuite").get("failures") == "0"
+
+
+def test_accept_makes_a_run_the_baseline(nightly, tmp_path):
+    tmp, _ = nightly
+    db = tmp_path / "h.db"
+    shutil.copy(tmp / "history.db", db)
+    res = run_cli("track", "--accept", "3", "--store", db, "--json")
+    assert res.returncode == 0, res.stderr
+    assert json.loads(res.stdout)["verdict"] == "regressed"
+    res = run_cli("track", tmp / "crippled2.json", "--store", db, "--series", "cancer",
+                  "--bootstrap", "20", "--json", "--quiet")
+    assert res.returncode == 0, res.stderr  # same model as the accepted run 3
+    assert json.loads(res.stdout)["baseline_id"] == 3
+    res = run_cli("track", "--accept", "99", "--store", db)
+    assert res.returncode == 2 and "run 99 not found" in res.stderr
 
 
 def test_markdown_summary_names_regressed_figures(nightly):
@@ -104,7 +151,8 @@ def test_history_lists_runs_and_plots(nightly):
     assert res.returncode == 0, res.stderr
     doc = json.loads(res.stdout)
     runs = doc["series"][0]["runs"]
-    assert [r["run_id"] for r in runs][:3] == [1, 2, 3]
+    assert [r["run_id"] for r in runs][:4] == [1, 2, 3, 4]
+    assert runs[2]["figures"]["efficiency_ratio"]["note"] == "vs run 1"
     assert runs[2]["figures"]["test_error_at_ref"]["estimate"] > \
         runs[0]["figures"]["test_error_at_ref"]["estimate"]
     res = run_cli("history", "--store", tmp / "history.db", "--series", "cancer",

@@ -19,7 +19,8 @@ from curvefit.core.errors import InputError
 
 _SHORT = {"test_error_at_ref": "error@ref", "decay_exponent": "decay exp.",
           "asymptote": "asymptote", "samples_for_target": "samples@target",
-          "effective_capacity": "capacity"}
+          "effective_capacity": "capacity", "efficiency_ratio": "labels ×",
+          "error_area": "error Δ"}
 
 
 def _cell(row, name: str) -> str:
@@ -87,13 +88,17 @@ def _write_plot(doc: dict, plot: Path) -> None:
         raise InputError(f"--plot {plot}: use a .png or .svg file name")
     if not plot.parent.is_dir():
         raise InputError(f"--plot {plot}: directory {plot.parent} does not exist")
-    plot.write_bytes(plots.figure_bytes(plots.trend_figure(doc), fmt))
+    from curvefit.history.listing import trend_document
+
+    # one panel per kind of value: never a line joining two families or two baselines
+    plot.write_bytes(plots.figure_bytes(plots.trend_figure(trend_document(doc)), fmt))
 
 
 def register(app: typer.Typer) -> None:
     @app.command("history")
     def history(
-        store_path: str = typer.Option(..., "--store", help="History store file (e.g. history.db)."),
+        store_path: str = typer.Option(..., "--store", help="History store: a file (history.db) or "
+                                       "postgresql://user@host/db."),
         series: Optional[str] = typer.Option(None, "--series", help="Only this series."),
         json_out: bool = typer.Option(False, "--json", help="Print the runs as JSON on stdout."),
         plot: Optional[Path] = typer.Option(None, "--plot",

@@ -91,7 +91,8 @@ def register(app: typer.Typer) -> None:
                                              "omit with --config."),
         config: Optional[Path] = typer.Option(None, "--config",
                                               help="Job file (TOML): measure, fit, record, compare."),
-        store: Optional[str] = typer.Option(None, "--store", help="History store file (history.db)."),
+        store: Optional[str] = typer.Option(None, "--store", help="History store: a file (history.db) "
+                                             "or postgresql://user@host/db."),
         series: Optional[str] = typer.Option(None, "--series", help="Series name, e.g. nightly."),
         baseline: Optional[str] = typer.Option(None, "--baseline",
                                                help="accepted (default), previous (last passing "

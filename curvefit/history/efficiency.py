@@ -15,11 +15,15 @@ error, so they do not change when another family would be chosen.
     averaged over ``ln n`` (the area between the curves in ``ln n`` divided by the width
     of the common range). It uses every common size's test sets, not only the largest.
 
-Each has an interval from a parametric bootstrap of the per-size means: a mean is
-drawn as ``mean + sem · T`` with ``T`` Student-t on ``R − 1`` degrees of freedom (``R``
-repeats), so few repeats widen the interval as they should; the standard error is
-never taken below the binomial noise of the pooled test rows at that size (0-1 error),
-and where that floor is used ``T`` is normal (the floor is known, not estimated).
+Each has an interval from a parametric bootstrap of the mean curves. A repeat keeps its
+test set over all sizes (nested subsamples), so its errors move together across sizes;
+the mean curve is therefore drawn as a whole, from a multivariate Student-t with the
+repeats' covariance and ``R − 1`` degrees of freedom (``R`` repeats), so few repeats
+widen the interval as they should. No size's standard error is taken below the binomial
+noise of its pooled test rows (0-1 error). A curve without repeat numbers is drawn size
+by size. When both runs split the same data the same way (same seed, data and split, as
+two nightly runs of one job file), the comparison is *paired*: repeat ``r`` of both runs
+gets the same draw, so what their shared test rows did to both cancels.
 The per-size table also carries a one-sided Welch test per size with Holm's
 correction over the sizes (information: the gate reads the two figures above).
 
@@ -81,6 +85,7 @@ class Efficiency:
     level: float
     sizes: list[SizeRow] = field(default_factory=list)
     clipped: int = 0
+    paired: bool = False
 
     @property
     def holm_worse(self) -> list[int]:
@@ -101,6 +106,12 @@ class _Means:
     mean: np.ndarray
     sem: np.ndarray
     dof: np.ndarray
+    # repeats × sizes deviations from the per-size means (0 where a cell is missing),
+    # the repeat numbers of its rows, and per size the factor that lifts the repeats'
+    # spread to the binomial floor
+    deviations: np.ndarray | None = None
+    repeats: np.ndarray | None = None
+    floor_factor: np.ndarray | None = None
 
 
 def size_means(curve) -> _Means:
@@ -137,15 +148,74 @@ def size_means(curve) -> _Means:
         means.append(m)
         sems.append(s)
         dofs.append(dof)
-    return _Means(np.array(sizes), np.array(means), np.array(sems), np.array(dofs, float))
+    m = _Means(np.array(sizes), np.array(means), np.array(sems), np.array(dofs, float))
+    return _Means(m.sizes, m.mean, m.sem, m.dof, *_deviations(ok, m))
+
+
+def _deviations(ok, m: _Means) -> tuple:
+    """Each repeat's curve minus the mean curve: the repeats keep their test set across
+    sizes (nested subsamples), so their errors move together over sizes, and the draws
+    must keep that."""
+    if "repeat" not in ok or len(m.sizes) == 0:
+        return None, None, None
+    table = ok.pivot_table(index="repeat", columns="size", values="test_error", aggfunc="mean")
+    table = table.reindex(columns=m.sizes)
+    r = len(table)
+    if r < 2:
+        return None, None, None
+    dev = np.nan_to_num(table.to_numpy(float) - m.mean[None, :], nan=0.0)
+    spread = np.sqrt((dev ** 2).sum(axis=0) / (r - 1) / r)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        factor = np.where(spread > 0, np.maximum(1.0, np.nan_to_num(m.sem) / spread), 1.0)
+    return dev, table.index.to_numpy(), factor
+
+
+def same_splits(current, baseline) -> bool:
+    """True when both runs split the same data the same way (same seed, data and split):
+    repeat ``r`` of one then saw the test rows of repeat ``r`` of the other, and the
+    comparison can be paired by repeat, which cancels the test-set noise.
+
+    Examples
+    --------
+    >>> from types import SimpleNamespace as NS
+    >>> a = NS(meta={"seed": 0, "data": {"fingerprint": "x"}, "split": "random"})
+    >>> same_splits(a, a), same_splits(a, NS(meta={**a.meta, "seed": 1}))
+    (True, False)
+    """
+    keys = []
+    for c in (current, baseline):
+        meta = getattr(c, "meta", {}) or {}
+        data = meta.get("data") if isinstance(meta.get("data"), dict) else {}
+        keys.append((meta.get("seed"), data.get("fingerprint"), str(meta.get("split")),
+                     meta.get("test_size"), meta.get("repeats")))
+    return keys[0] == keys[1] and keys[0][0] is not None and keys[0][1] is not None
+
+
+def decreasing_fit(values: np.ndarray) -> np.ndarray:
+    """The non-increasing sequence closest to ``values`` in least squares (pool adjacent
+    violators). Unlike a running minimum, one low value does not pull down all later ones.
+
+    Examples
+    --------
+    >>> decreasing_fit(np.array([0.3, 0.2, 0.25, 0.1])).round(3).tolist()
+    [0.3, 0.225, 0.225, 0.1]
+    """
+    blocks: list[list[float]] = []  # [sum, count]
+    for v in np.asarray(values, float):
+        blocks.append([v, 1.0])
+        while len(blocks) > 1 and blocks[-2][0] / blocks[-2][1] < blocks[-1][0] / blocks[-1][1]:
+            total, count = blocks.pop()
+            blocks[-1][0] += total
+            blocks[-1][1] += count
+    return np.concatenate([np.full(int(c), t / c) for t, c in blocks])
 
 
 def labels_to_reach(sizes: np.ndarray, means: np.ndarray, error: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Labels at which a measured curve first reaches each ``error``, interpolating in ``ln n``.
 
-    The curve is made non-increasing first (its running minimum), so the answer is
-    defined; answers beyond the measured range are clipped to its ends (second array:
-    True where clipped).
+    The curve is made non-increasing first (the closest non-increasing sequence in least
+    squares: pooled adjacent violators), so the answer is defined; answers beyond the
+    measured range are clipped to its ends (second array: True where clipped).
 
     Examples
     --------
@@ -154,7 +224,7 @@ def labels_to_reach(sizes: np.ndarray, means: np.ndarray, error: np.ndarray) -> 
     >>> round(float(n[0]))
     200
     """
-    env = np.minimum.accumulate(means)
+    env = decreasing_fit(means)
     logn = np.log(sizes)
     err = np.atleast_1d(np.asarray(error, float))
     out = np.empty_like(err)
@@ -210,7 +280,8 @@ def _holm(p: np.ndarray) -> np.ndarray:
 
 
 def compare_curves(current, baseline, *, interval: float = INTERVAL,
-                   bootstrap: int = EFFICIENCY_BOOTSTRAP, random_state: int = SEED) -> Efficiency:
+                   bootstrap: int = EFFICIENCY_BOOTSTRAP, random_state: int = SEED,
+                   paired: bool | None = None) -> Efficiency:
     """The efficiency figures of ``current`` against ``baseline`` (two `Curve` objects).
 
     Parameters
@@ -223,6 +294,9 @@ def compare_curves(current, baseline, *, interval: float = INTERVAL,
         Parametric bootstrap replicates.
     random_state : int
         Seed: same seed, same numbers.
+    paired : bool, optional
+        Pair the runs repeat by repeat (default: when `same_splits` says they split the
+        same data the same way, as two nightly runs with the job's fixed seed do).
 
     Returns
     -------
@@ -261,17 +335,54 @@ def compare_curves(current, baseline, *, interval: float = INTERVAL,
     need, clipped = labels_to_reach(c.sizes, c.mean, b.mean)
     rng = np.random.default_rng(random_state)
 
-    def draw(m: _Means) -> np.ndarray:
-        s = np.nan_to_num(m.sem, nan=0.0)
-        return m.mean + s * rng.standard_t(m.dof, size=(bootstrap, len(m.sizes)))
-
-    rb, ra = _figures(b.sizes, draw(b), c.sizes, draw(c), common, lw)
+    pair = _paired_repeats(current, baseline, b, c) if paired is None or paired else None
+    if paired and pair is None:
+        raise InputError("the two runs cannot be paired by repeat (different seed, data or "
+                         "split); compare them unpaired")
+    if pair is not None:
+        # one draw per repeat, shared by both runs: what the same split did to both cancels
+        bi, ci = pair
+        g = rng.standard_normal((bootstrap, len(bi)))
+        t = _t_scale(rng, len(bi), bootstrap)
+        draws = [m.mean + (g @ m.deviations[rows]) / math.sqrt((len(bi) - 1) * len(bi)) * t
+                 for m, rows in ((b, bi), (c, ci))]
+    else:
+        draws = [_draw(m, rng, bootstrap) for m in (b, c)]
+    rb, ra = _figures(b.sizes, draws[0], c.sizes, draws[1], common, lw)
     q = [(1 - level) / 2, (1 + level) / 2]
     r_lo, r_hi = np.quantile(rb, q)
     a_lo, a_hi = np.quantile(ra, q)
     rows = _size_rows(b, c, need)
     return Efficiency(float(ratio[0]), float(r_lo), float(r_hi), float(area[0]), float(a_lo),
-                      float(a_hi), level, rows, int(clipped.sum()))
+                      float(a_hi), level, rows, int(clipped.sum()), pair is not None)
+
+
+def _t_scale(rng, r: int, n: int) -> np.ndarray:
+    """Per replicate, the factor that turns a normal draw into a Student-t on r − 1 dof."""
+    return np.sqrt((r - 1) / rng.chisquare(r - 1, size=n))[:, None]
+
+
+def _draw(m: _Means, rng, bootstrap: int) -> np.ndarray:
+    """Mean curves of one run: a multivariate Student-t with the repeats' covariance of
+    the mean curve (rank R − 1), lifted to the binomial floor; size by size without
+    repeat numbers."""
+    if m.deviations is None:
+        s = np.nan_to_num(m.sem, nan=0.0)
+        return m.mean + s * rng.standard_t(m.dof, size=(bootstrap, len(m.sizes)))
+    r = m.deviations.shape[0]
+    g = rng.standard_normal((bootstrap, r))
+    dev = m.deviations * m.floor_factor[None, :]
+    return m.mean + (g @ dev) / math.sqrt((r - 1) * r) * _t_scale(rng, r, bootstrap)
+
+
+def _paired_repeats(current, baseline, b: _Means, c: _Means):
+    """Row indices of the repeats both runs share, when they split alike; else None."""
+    if b.deviations is None or c.deviations is None or not same_splits(current, baseline):
+        return None
+    common = np.intersect1d(b.repeats, c.repeats)
+    if len(common) < 2 or len(common) != len(b.repeats) or len(common) != len(c.repeats):
+        return None
+    return np.searchsorted(b.repeats, common), np.searchsorted(c.repeats, common)
 
 
 def _size_rows(b: _Means, c: _Means, need: np.ndarray) -> list[SizeRow]:

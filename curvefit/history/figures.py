@@ -560,6 +560,8 @@ def efficiency_figures(eff: Any, baseline_id: int | None = None) -> list[Figure]
     'vs run 3'
     """
     note = f"vs run {baseline_id}" if baseline_id is not None else ""
+    if getattr(eff, "paired", False):
+        note += "; paired by repeat (same splits)"
     extra = f"; {eff.clipped} size(s) beyond the measured range, clipped" if eff.clipped else ""
     worse = getattr(eff, "holm_worse", [])
     holm = f"; worse at n={', '.join(str(n) for n in worse)} (Holm)" if worse else ""

@@ -84,3 +84,42 @@ def _finite(v: Any) -> float | None:
         return None
     f = float(v)
     return f if math.isfinite(f) else None  # unbounded values are flagged beside it
+
+
+def trend_document(doc: dict) -> dict:
+    """A history document for the trend figure, in which one panel never joins values of
+    different kinds: a figure read off the chosen family is split by family, and a
+    figure against a baseline is split by baseline (``asymptote (family power_law)``,
+    ``efficiency_ratio (vs run 1)``).
+
+    Examples
+    --------
+    >>> run = {"run_id": 1, "figures": {"asymptote": {"estimate": 0.1, "note": "family exp"},
+    ...                                 "test_error_at_ref": {"estimate": 0.2, "note": "n=100"}}}
+    >>> sorted(trend_document({"series": [{"name": "s", "runs": [run]}]})["series"][0]["runs"][0]["figures"])
+    ['asymptote (family exp)', 'test_error_at_ref']
+    """
+    from curvefit.history.figures import EFFICIENCY, FAMILY_BOUND
+
+    out = {k: v for k, v in doc.items() if k != "series"}
+    out["series"] = []
+    for s in doc.get("series", []):
+        runs = []
+        for r in s["runs"]:
+            figures = {}
+            for name, f in r["figures"].items():
+                figures[_kind_name(name, f.get("note") or "", FAMILY_BOUND, EFFICIENCY)] = f
+            runs.append({**r, "figures": figures})
+        out["series"].append({**s, "runs": runs})
+    return out
+
+
+def _kind_name(name: str, note: str, family_bound, comparative) -> str:
+    parts = [p.strip() for p in note.split(";")]
+    if name in family_bound:
+        family = next((p for p in parts if p.startswith("family ")), None)
+        return f"{name} ({family})" if family else name
+    if name in comparative:
+        base = next((p for p in parts if p.startswith("vs run ")), None)
+        return f"{name} ({base})" if base else name
+    return name
