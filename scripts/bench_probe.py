@@ -12,7 +12,8 @@ Everything is run side by side in one process so that ratios (n_jobs=2 against
 n_jobs=1) are comparable on a shared machine; the load average is printed with the
 figures.
 
-Run: .venv/bin/python scripts/bench_probe.py [--quick] [--seeds N] | [--gap-sweep SEEDS]
+Run: .venv/bin/python scripts/bench_probe.py [--quick] [--seeds N]
+(The gap model's calibration sweep is scripts/bench_capacity.py.)
 """
 
 from __future__ import annotations
@@ -21,8 +22,6 @@ import argparse
 import math
 import os
 import time
-
-import numpy as np
 
 
 def cases(quick: bool):
@@ -43,56 +42,11 @@ def cases(quick: bool):
     return out
 
 
-def gap_sweep(seeds: int) -> None:
-    """Gap-model h against d+1: Gaussian inputs, linear labels, label noise (see notes)."""
-    import pandas as pd
-    from sklearn.linear_model import LogisticRegression
-
-    from curvefit.capacity import effective_capacity
-    from curvefit.core.curve import Curve
-
-    print(f"{'seed':>4s} {'d':>3s} {'noise':>5s} {'h/(d+1)':>8s} {'90% interval':>16s} {'covers':>6s}")
-    inside = cover = total = 0
-    t0 = time.perf_counter()
-    for seed in range(seeds):
-        for d in (3, 5, 8):
-            for noise in (0.1, 0.2, 0.3):
-                rng = np.random.default_rng(1000 * seed + 10 * d + int(100 * noise))
-                w = rng.standard_normal(d)
-                rows = []
-                for n in np.unique(np.geomspace(max(3, d // 2), 40 * (d + 1), 9).astype(int)):
-                    for r in range(6):
-                        X = rng.standard_normal((n + 1000, d))
-                        y = (X @ w > 0).astype(int)
-                        y = np.where(rng.random(len(y)) < noise, 1 - y, y)
-                        if len(np.unique(y[:n])) < 2:
-                            y[0] = 1 - y[0]
-                        m = LogisticRegression(C=1e4, max_iter=5000).fit(X[:n], y[:n])
-                        rows.append({"size": int(n), "repeat": r,
-                                     "train_error": float(np.mean(m.predict(X[:n]) != y[:n])),
-                                     "test_error": float(np.mean(m.predict(X[n:]) != y[n:]))})
-                est = effective_capacity(Curve.from_table(pd.DataFrame(rows)), bootstrap=100)
-                ratio = est.vc_dim / (d + 1)
-                ok = est.low <= d + 1 <= est.high
-                total += 1
-                inside += 0.5 <= ratio <= 2
-                cover += ok
-                print(f"{seed:4d} {d:3d} {noise:5.1f} {ratio:8.2f} "
-                      f"{est.low:7.2f}–{est.high:<8.2f} {'yes' if ok else 'no':>6s}", flush=True)
-    print(f"within a factor 2: {inside}/{total}; interval covers d+1: {cover}/{total} "
-          f"({time.perf_counter() - t0:.0f} s)")
-
-
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="skip the 1-NN case and the n_jobs ratio")
     ap.add_argument("--seeds", type=int, default=1, help="seeds per case (spread of the estimate)")
-    ap.add_argument("--gap-sweep", type=int, default=0, metavar="SEEDS",
-                    help="instead: the gap-model check over SEEDS seeds x d x noise (slow)")
     args = ap.parse_args()
-    if args.gap_sweep:
-        gap_sweep(args.gap_sweep)
-        return
 
     from curvefit.capacity import probe_capacity
 
