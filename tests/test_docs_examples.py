@@ -28,6 +28,8 @@ INLINE = re.compile(r"(?<!`)`([^`\n]+)`(?!`)")
 QUOTED = re.compile(r"\"[^\"]*\"|'[^']*'")
 # Options of the benchmark scripts and of other programs named in the docs.
 NOT_CURVEFIT = re.compile(r"scripts/|pytest|pip |ruff |python -c")
+# Options of examples/trainer.py (docs/capacity.md), and curvefit's own --help/--version.
+NOT_CHECKED = {"--k", "--help", "--version"}
 
 HELP_SCRIPT = """
 import contextlib, io, json, sys
@@ -155,7 +157,7 @@ def stray_options(text: str) -> list[str]:
             if NOT_CURVEFIT.search(piece):
                 continue
             wrong += [f"{i + 1}: {opt}"
-                      for opt in sorted(named_options(piece) - everything - {"--help", "--version"})]
+                      for opt in sorted(named_options(piece) - everything - NOT_CHECKED)]
     return wrong
 
 
@@ -204,3 +206,35 @@ def test_command_lines_are_found(text, expected):
 def test_quoted_trainer_commands_are_not_read_as_options():
     assert named_options(' x --command "prog --out={predictions}" --timeout 3  # --no') == {
         "--command", "--timeout"}
+
+
+def python_sessions():
+    """(doc, line, text) of each ```python block of the docs written as a `>>>` session."""
+    for doc in DOCS:
+        lines = doc.read_text(encoding="utf-8").splitlines()
+        start = None
+        for i, line in enumerate(lines):
+            fence = FENCE.match(line)
+            if fence and start is None:
+                start = i if fence.group(2).strip().startswith("python") else -1
+            elif fence:
+                body = "\n".join(lines[start + 1:i]) if start >= 0 else ""
+                if ">>>" in body:
+                    yield pytest.param(body, id=f"{doc.name}:{start + 1}")
+                start = None
+
+
+@pytest.mark.parametrize("session", list(python_sessions()))
+def test_python_sessions_in_the_docs_print_what_they_show(session, monkeypatch):
+    import doctest
+
+    import numpy as np
+
+    monkeypatch.chdir(ROOT)                      # the sessions read datasets_demo/ relatively
+    failures: list[str] = []
+    test = doctest.DocTestParser().get_doctest(session, {}, "docs", "docs", 0)
+    runner = doctest.DocTestRunner(optionflags=doctest.NORMALIZE_WHITESPACE)
+    legacy = "1.25" if np.lib.NumpyVersion(np.__version__) >= "2.0.0" else False
+    with np.printoptions(legacy=legacy):         # docs show 0.04295, not np.float64(0.04295)
+        runner.run(test, out=lambda text: failures.append(text))
+    assert not failures, "".join(failures)
