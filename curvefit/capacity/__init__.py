@@ -1,4 +1,4 @@
-"""Effective capacity: the VC-shaped gap model, the max-deviation probe, the trade-off.
+"""Effective capacity: the calibrated gap model, the max-deviation probe, the trade-off.
 
 ``vc_curve`` (Φ of the max-deviation experiment, its inverse, the fit of s·Φ(n/h)),
 ``gap_model`` (``effective_capacity`` from a measured gap), ``probe``

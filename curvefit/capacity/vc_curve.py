@@ -1,7 +1,8 @@
 """The universal curve Φ of the max-deviation experiment, its inverse, and the fit of s·Φ(n/h).
 
-Both capacity estimates use it: the probe fits the measured deviation ξ(n) ≈ Φ(n/h),
-the gap model fits the measured gap ≈ s·Φ(n/h).
+The probe fits the measured deviation ξ(n) ≈ Φ(n/h). (The gap model no longer fits
+s·Φ(n/h): with the scale free, Φ's knee landed at the first measured size whatever the
+learner; it uses the calibrated 1/n law of ``capacity.gap_model`` instead.)
 """
 
 from __future__ import annotations
