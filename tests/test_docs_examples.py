@@ -238,3 +238,47 @@ def test_python_sessions_in_the_docs_print_what_they_show(session, monkeypatch):
     with np.printoptions(legacy=legacy):         # docs show 0.04295, not np.float64(0.04295)
         runner.run(test, out=lambda text: failures.append(text))
     assert not failures, "".join(failures)
+
+
+DOTTED = re.compile(r"\bcurvefit(?:\.[A-Za-z_]\w*)+(?![\w/])")
+FROM_IMPORT = re.compile(r"^\s*(?:>>> )?from (curvefit[\w.]*) import ([\w, ]+?)(?:\s+#.*)?$")
+
+
+def resolve(dotted: str):
+    """The object a dotted ``curvefit...`` name names (module, then attributes)."""
+    import importlib
+
+    parts = dotted.split(".")
+    for cut in range(len(parts), 0, -1):
+        try:
+            obj = importlib.import_module(".".join(parts[:cut]))
+        except ModuleNotFoundError:
+            continue
+        for name in parts[cut:]:
+            obj = getattr(obj, name)
+        return obj
+    raise ModuleNotFoundError(dotted)
+
+
+def test_module_and_function_paths_named_in_the_docs_exist():
+    missing = []
+    for doc in DOCS:
+        for i, line in enumerate(doc.read_text(encoding="utf-8").splitlines()):
+            names = DOTTED.findall(line)
+            m = FROM_IMPORT.match(line)
+            if m:
+                names += [f"{m.group(1)}.{n.split(' as ')[0].strip()}" for n in m.group(2).split(",")]
+            for name in names:
+                try:
+                    resolve(name)
+                except (ImportError, AttributeError) as exc:
+                    missing.append(f"{doc.relative_to(ROOT)}:{i + 1}: {name} ({type(exc).__name__})")
+    assert not missing, "names in the docs that do not exist:\n" + "\n".join(missing)
+
+
+def test_a_moved_function_is_caught():
+    assert resolve("curvefit.workflows.analysis.analyse")
+    with pytest.raises(AttributeError):
+        resolve("curvefit.report.html.analyse")       # where it lived before the parts
+    assert DOTTED.findall("tag `curvefit.run/1`, module curvefit.fitting.engine.") == [
+        "curvefit.fitting.engine"]
