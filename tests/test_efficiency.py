@@ -81,7 +81,11 @@ def test_too_few_sizes_or_no_common_size():
     one = Curve.from_table(pd.DataFrame({"size": [50, 50], "test_error": [0.2, 0.3]}))
     with pytest.raises(InputError, match="fewer than two measured sizes"):
         compare_curves(one, _curve())
-    other = Curve.from_table(pd.DataFrame({"size": [7, 9], "test_error": [0.2, 0.3]}))
+    single = Curve.from_table(pd.DataFrame({"size": [60, 105], "test_error": [0.2, 0.3]}))
+    with pytest.raises(InputError, match="one repeat and no test-set size"):
+        compare_curves(single, _curve())
+    other = Curve.from_table(pd.DataFrame({"size": [7, 9], "test_error": [0.2, 0.3],
+                                           "n_test": [500, 500]}))
     with pytest.raises(InputError, match="share no measured size"):
         compare_curves(other, _curve())
 

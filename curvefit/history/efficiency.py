@@ -107,11 +107,11 @@ class _Means:
     sem: np.ndarray
     dof: np.ndarray
     # repeats × sizes deviations from the per-size means (0 where a cell is missing),
-    # the repeat numbers of its rows, and per size the factor that lifts the repeats'
-    # spread to the binomial floor
+    # the repeat numbers of its rows, and per size the standard error missing from the
+    # repeats' spread to reach the binomial floor (known noise: drawn normal, independent)
     deviations: np.ndarray | None = None
     repeats: np.ndarray | None = None
-    floor_factor: np.ndarray | None = None
+    floor_excess: np.ndarray | None = None
 
 
 def size_means(curve) -> _Means:
@@ -165,9 +165,8 @@ def _deviations(ok, m: _Means) -> tuple:
         return None, None, None
     dev = np.nan_to_num(table.to_numpy(float) - m.mean[None, :], nan=0.0)
     spread = np.sqrt((dev ** 2).sum(axis=0) / (r - 1) / r)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        factor = np.where(spread > 0, np.maximum(1.0, np.nan_to_num(m.sem) / spread), 1.0)
-    return dev, table.index.to_numpy(), factor
+    excess = np.sqrt(np.maximum(np.nan_to_num(m.sem) ** 2 - spread ** 2, 0.0))
+    return dev, table.index.to_numpy(), excess
 
 
 def same_splits(current, baseline) -> bool:
@@ -305,7 +304,8 @@ def compare_curves(current, baseline, *, interval: float = INTERVAL,
     Raises
     ------
     InputError
-        A curve has fewer than two measured sizes, or the two share no size range.
+        A curve has fewer than two measured sizes or a size with neither repeats nor a
+        test-set size (no interval), or the two share no size.
 
     Examples
     --------
@@ -326,6 +326,9 @@ def compare_curves(current, baseline, *, interval: float = INTERVAL,
         if len(m.sizes) < 2:
             raise InputError(f"the {name} run has fewer than two measured sizes; the "
                              "efficiency figures need a curve")
+        if not np.isfinite(m.sem).all():
+            raise InputError(f"the {name} run has a size with one repeat and no test-set size; "
+                             "the efficiency figures need repeats (or n_test) for an interval")
     common = np.intersect1d(b.sizes, c.sizes)
     if len(common) == 0:
         raise InputError("the run and its baseline share no measured size; measure the same "
@@ -364,15 +367,15 @@ def _t_scale(rng, r: int, n: int) -> np.ndarray:
 
 def _draw(m: _Means, rng, bootstrap: int) -> np.ndarray:
     """Mean curves of one run: a multivariate Student-t with the repeats' covariance of
-    the mean curve (rank R − 1), lifted to the binomial floor; size by size without
-    repeat numbers."""
+    the mean curve (rank R − 1), plus independent normal noise up to the binomial floor;
+    size by size without repeat numbers."""
     if m.deviations is None:
         s = np.nan_to_num(m.sem, nan=0.0)
         return m.mean + s * rng.standard_t(m.dof, size=(bootstrap, len(m.sizes)))
     r = m.deviations.shape[0]
     g = rng.standard_normal((bootstrap, r))
-    dev = m.deviations * m.floor_factor[None, :]
-    return m.mean + (g @ dev) / math.sqrt((r - 1) * r) * _t_scale(rng, r, bootstrap)
+    known = m.floor_excess * rng.standard_normal((bootstrap, len(m.sizes)))
+    return m.mean + (g @ m.deviations) / math.sqrt((r - 1) * r) * _t_scale(rng, r, bootstrap) + known
 
 
 def _paired_repeats(current, baseline, b: _Means, c: _Means):
