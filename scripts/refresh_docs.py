@@ -236,7 +236,7 @@ class Workspace:
 def run_document(doc: Path, ws: Workspace, log) -> tuple[list[str], list[Result]]:
     """Run the examples of one document; returns its new lines and one Result per example."""
     lines = doc.read_text(encoding="utf-8").splitlines()
-    rel = doc.relative_to(ROOT).as_posix()
+    rel = label(doc)
     results: list[Result] = []
     replacements: list[tuple[Block, list[str]]] = []
     for item in parse(lines):
@@ -318,6 +318,11 @@ def differences(results: list[Result]) -> list[str]:
     return report
 
 
+def label(doc: Path) -> str:
+    """The document's path as the messages show it (relative to the root when inside)."""
+    return doc.relative_to(ROOT).as_posix() if doc.is_relative_to(ROOT) else str(doc)
+
+
 def shown_as(text: str) -> str:
     """The path a document's scratch folder is shown as (``shown-as``, or the root)."""
     for item in parse(text.splitlines()):
@@ -352,7 +357,7 @@ def main(argv: list[str] | None = None) -> int:
         for doc in docs:
             for item in parse(doc.read_text(encoding="utf-8").splitlines()):
                 if isinstance(item, Block) and item.is_example:
-                    print(f"{doc.relative_to(ROOT)}:{item.start + 1}: {item.body[0][:100]}")
+                    print(f"{label(doc)}:{item.start + 1}: {item.body[0][:100]}")
         return 0
     try:
         os.nice(19)                  # long measurements: leave the shared cores to others
@@ -373,10 +378,10 @@ def main(argv: list[str] | None = None) -> int:
             if args.check or text == before:
                 continue
             if doc.read_text(encoding="utf-8") != before:   # edited while its examples ran
-                log(f"warning: {doc.relative_to(ROOT)} changed while its examples ran; not written")
+                log(f"warning: {label(doc)} changed while its examples ran; not written")
                 continue
             doc.write_text(text, encoding="utf-8")
-            log(f"{doc.relative_to(ROOT)}: refreshed ({time.monotonic() - started:.0f} s)")
+            log(f"{label(doc)}: refreshed ({time.monotonic() - started:.0f} s)")
     finally:
         for folder in folders:
             if args.keep:

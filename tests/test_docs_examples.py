@@ -282,3 +282,78 @@ def test_a_moved_function_is_caught():
         resolve("curvefit.report.html.analyse")       # where it lived before the parts
     assert DOTTED.findall("tag `curvefit.run/1`, module curvefit.fitting.engine.") == [
         "curvefit.fitting.engine"]
+
+
+@lru_cache(maxsize=None)
+def refresh_docs_module():
+    """scripts/refresh_docs.py as a module (registered first: its dataclasses need it)."""
+    import importlib.util
+
+    spec = importlib.util.spec_from_file_location("refresh_docs", ROOT / "scripts" / "refresh_docs.py")
+    module = importlib.util.module_from_spec(spec)
+    sys.modules[spec.name] = module
+    spec.loader.exec_module(module)
+    return module
+
+
+GUIDE = """\
+Intro.
+
+```text file=input.txt
+one
+two
+```
+<!-- refresh-docs: printf 'x\\n' > made.txt -->
+```
+$ wc -l < input.txt
+99
+$ cat made.txt \\
+    input.txt
+old output
+```
+
+```
+$ false
+$ echo $?
+0
+```
+
+```
+$ .venv/bin/python scripts/bench_fit.py
+measured on purpose: left alone
+```
+"""
+
+
+def test_refresh_docs_reruns_the_examples_in_document_order(tmp_path):
+    import shutil
+
+    rd = refresh_docs_module()
+    doc = tmp_path / "guide.md"
+    doc.write_text(GUIDE, encoding="utf-8")
+    workspace = rd.Workspace(str(ROOT), timeout=60)
+    try:
+        lines, results = rd.run_document(doc, workspace, log=lambda message: None)
+    finally:
+        shutil.rmtree(workspace.path)
+    text = "\n".join(lines) + "\n"
+    assert len(str(workspace.path)) == len(str(ROOT))   # paths shown in its place keep their width
+    assert "$ wc -l < input.txt\n2\n$ cat made.txt \\\n    input.txt\nx\none\ntwo\n```" in text
+    assert "$ false\n$ echo $?\n1\n```" in text
+    assert "measured on purpose: left alone" in text
+    assert [r.line for r in results] == [8, 16]          # opening fences of the two examples
+    assert not any(r.warnings for r in results)
+    found = [line for line in rd.differences(results) if not line.startswith(" ")]
+    assert [line.split("guide.md:")[1][:20] for line in found] == ["8: text differs: wc ",
+                                                                   "16: numbers differ: "]
+
+
+def test_refresh_docs_check_ignores_what_varies_between_runs():
+    rd = refresh_docs_module()
+    old = ["  done in 4 s -> curvefit-demo/run.json",
+           "1    2026-12-02 04:18  /work/main/examples/model.py:make_model  0.2814  898224ce"]
+    new = ["  done in 17 s -> curvefit-demo/run.json",
+           "1  2026-12-03 11:02  /tmp/abcdefghi/examples/model.py:make_model  0.2814  1ca2ebb0"]
+    assert rd.masked(old) == rd.masked(new)
+    assert rd.masked(["0.2814"]) != rd.masked(["0.2815"])
+    assert rd.masked(["0.2814"], numbers=True) == rd.masked(["0.2815"], numbers=True)
