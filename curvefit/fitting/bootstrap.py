@@ -17,7 +17,8 @@ from curvefit.fitting.least_squares import FamilyFit, Target, batch_lm, predict_
 BOOTSTRAP_KIND = "student"
 
 
-def bootstrap_parameters(chosen: FamilyFit, data: FitData, B: int, rng: np.random.Generator):
+def bootstrap_parameters(chosen: FamilyFit, data: FitData, B: int, rng: np.random.Generator,
+                         draws=None):
     """Parameter replicates of the chosen family from a parametric bootstrap of the means.
 
     Each size's mean is redrawn as mean + s·t, t from Student's t with k − 1 degrees of
@@ -27,7 +28,9 @@ def bootstrap_parameters(chosen: FamilyFit, data: FitData, B: int, rng: np.rando
     that s itself is estimated from k − 1 degrees of freedom; with 3 repeats its 90%
     intervals of a single mean are about half as wide as Student's. Sizes with a single
     repeat get a normal perturbation with the pooled standard error (or, with no
-    repeats at all, the residual scale of the fit).
+    repeats at all, the residual scale of the fit). ``draws`` are redrawn means from
+    :func:`redrawn_means` to share between families (the averaged forecast refits every
+    family it averages on the same draws); by default they are drawn here.
 
     References
     ----------
@@ -37,7 +40,7 @@ def bootstrap_parameters(chosen: FamilyFit, data: FitData, B: int, rng: np.rando
     .. [2] "Student", "The probable error of a mean", Biometrika 6(1), 1908.
     """
     fam = chosen.family
-    T, R, Y = _redrawn_means(chosen, data, B, rng)
+    T, R, Y = redrawn_means(chosen, data, B, rng) if draws is None else draws
     out = np.full((B, fam.n_params), math.nan)
     if fam.baseline:
         out[:, 0] = Y[:, -1]
@@ -62,9 +65,9 @@ def bootstrap_parameters(chosen: FamilyFit, data: FitData, B: int, rng: np.rando
     return out
 
 
-def _redrawn_means(chosen: FamilyFit, data: FitData, B: int, rng: np.random.Generator):
+def redrawn_means(chosen: FamilyFit, data: FitData, B: int, rng: np.random.Generator):
     """``(T, R, Y)``: B redrawn per-size means of test error, train error and the fitted
-    quantity, each (B, m)."""
+    quantity, each (B, m); ``chosen`` gives the residual scale when no size has repeats."""
     m = data.m
     T = np.empty((B, m))
     R = np.empty((B, m))

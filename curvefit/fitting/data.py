@@ -40,6 +40,11 @@ class FitData:
     sign: float                # +1, or −1 when fitting the (growing) train error
     on: str
     weights: str
+    # (m,) variance a fresh data set would add to each mean (shared test and training
+    # rows between repeats; see dataset_variance); zeros when it cannot be told
+    data_var: np.ndarray | None = None
+    # how data_var was found: "meta" (pool and test size from the run) or "assumed"
+    data_source: str = "none"
 
     @property
     def m(self) -> int:
@@ -80,11 +85,93 @@ def prepare_data(curve: Curve, on: str, weights: str) -> FitData:
         sem_gap = np.array([sem(c[:, 0] - c[:, 1]) for c in cells])
     y, y_sem = {"test": (test, sem_test), "train": (train, sem_train),
                 "gap": (test - train, sem_gap)}[on]
+    n_test = ok["n_test"].to_numpy(dtype=float)[keep] if "n_test" in ok else np.array([])
+    data_var, source = dataset_variance(sizes, y_sem, test, np.array([len(c) for c in cells]),
+                                        on, curve.metric, split_sizes(curve.meta, n_test, sizes))
     return FitData(sizes=sizes, y=y, sem=y_sem, w=least_squares_weights(sizes, y_sem, weights),
                    test=test, train=train,
                    w_test=least_squares_weights(sizes, sem_test, weights),
                    w_train=least_squares_weights(sizes, sem_train, weights),
-                   cells=cells, sign=-1.0 if on == "train" else 1.0, on=on, weights=weights)
+                   cells=cells, sign=-1.0 if on == "train" else 1.0, on=on, weights=weights,
+                   data_var=data_var, data_source=source)
+
+
+# Share of the rows held out for testing when a curve does not say (the runner's default).
+ASSUMED_TEST_FRACTION = 0.25
+# 1/(1 − ρ) is capped here: where repeats share almost all training rows their spread no
+# longer tells the training-set variance.
+MAX_SHARED_FRACTION = 0.9
+
+
+def split_sizes(meta: dict, n_test_points, sizes) -> dict:
+    """The rows behind a curve: ``pool`` (training pool), ``n_test`` (test rows per
+    repeat), ``n_rows`` (pool + test rows a repeat splits), ``fixed_test`` (one test set
+    for every repeat) and ``known`` (the pool came from the run, not assumed).
+
+    Without a pool in the run's metadata the largest measured size is taken as the whole
+    pool (a curve usually runs to the data in hand); without a test size, the runner's
+    default test fraction.
+    """
+    meta = meta or {}
+    pool = meta.get("n_pool")
+    known = isinstance(pool, (int, float)) and pool > 0
+    pool = float(pool) if known else float(np.max(sizes))
+    n_test = meta.get("n_test")
+    if not (isinstance(n_test, (int, float)) and n_test > 0):
+        finite = np.asarray(n_test_points, dtype=float)
+        finite = finite[np.isfinite(finite) & (finite > 0)]
+        n_test = float(np.median(finite)) if len(finite) else \
+            pool * ASSUMED_TEST_FRACTION / (1 - ASSUMED_TEST_FRACTION)
+    split = meta.get("split") if isinstance(meta.get("split"), dict) else {}
+    fixed = split.get("kind") == "given" or meta.get("test_data") is not None
+    return {"pool": pool, "n_test": float(n_test), "n_rows": pool + float(n_test),
+            "fixed_test": bool(fixed), "known": bool(known)}
+
+
+def dataset_variance(sizes, sems, test_means, repeats, on: str, metric: str, rows: dict):
+    """Variance a fresh data set would add to each per-size mean, and its source.
+
+    Repeats re-split one table, so their spread misses what they share: with a test set
+    drawn afresh per repeat from N rows, two repeats share a fraction τ = n_test/N of
+    their test rows and ρ = n/N of their training rows of size n (one fixed test set:
+    τ = 1, ρ = n/pool). With s² the spread across repeats, V_test = e(1 − e)/n_test the
+    binomial variance of one test set's error rate (0 for other losses) and
+    V_train = (s² − (1 − τ)·V_test)/(1 − ρ) the training-set part, the shared part is
+    ρ·V_train + τ·V_test: what a fresh data set would move and the standard error
+    across repeats cannot see.
+
+    Examples
+    --------
+    >>> rows = {"pool": 300.0, "n_test": 100.0, "n_rows": 400.0, "fixed_test": False,
+    ...         "known": True}
+    >>> v, source = dataset_variance(np.array([100.0, 300.0]), np.array([0.01, 0.01]),
+    ...                              np.array([0.2, 0.1]), np.array([5, 5]), "test",
+    ...                              "error", rows)
+    >>> source, np.round(v, 6).tolist()     # here the shared test rows dominate
+    ('meta', [0.0004, 0.000225])
+
+    References
+    ----------
+    .. [1] C. Nadeau and Y. Bengio, "Inference for the generalization error", Machine
+           Learning 52, 2003 (the variance that resampling one data set misses, from
+           the overlap of training and test sets).
+    """
+    sizes = np.asarray(sizes, dtype=float)
+    k = np.asarray(repeats, dtype=float)
+    spread = np.where(np.isfinite(sems) & (k >= 2), np.asarray(sems, dtype=float) ** 2 * k, 0.0)
+    n_rows = rows["n_rows"]
+    if rows["fixed_test"]:
+        tau, rho = 1.0, np.minimum(sizes / rows["pool"], 1.0)
+    else:
+        tau, rho = rows["n_test"] / n_rows, np.minimum(sizes / n_rows, 1.0)
+    rho = np.minimum(rho, MAX_SHARED_FRACTION)
+    v_test = np.zeros(len(sizes))
+    if on != "train" and metric in ("error", "zero_one", "balanced_error"):
+        e = np.clip(np.asarray(test_means, dtype=float), 0.0, 1.0)
+        v_test = e * (1 - e) / rows["n_test"]
+    v_train = np.maximum(spread - (1 - tau) * v_test, 0.0) / (1 - rho)
+    shared = rho * v_train + tau * v_test
+    return np.where(np.isfinite(shared), shared, 0.0), ("meta" if rows["known"] else "assumed")
 
 
 def least_squares_weights(sizes: np.ndarray, sems: np.ndarray, kind: str) -> np.ndarray:

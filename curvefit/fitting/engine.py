@@ -36,6 +36,7 @@ from dataclasses import asdict, dataclass, field
 
 import numpy as np
 import pandas as pd
+from scipy.special import ndtri
 
 from curvefit.core.curve import Curve
 from curvefit.core.defaults import BOOTSTRAP, INTERVAL, SEED
@@ -59,14 +60,16 @@ from curvefit.fitting.answers import (
     search_grid,
     unreachable_text,
 )
-from curvefit.fitting.bootstrap import bootstrap_parameters, percentile_interval
+from curvefit.fitting.bootstrap import bootstrap_parameters, percentile_interval, redrawn_means
+from curvefit.fitting.calibration import Calibration, resolve_calibration
 from curvefit.fitting.data import ON_CHOICES, WEIGHT_CHOICES, FitData, prepare_data
-from curvefit.fitting.intervals import mean_band, prediction_band
+from curvefit.fitting.intervals import averaged_point, band_parts, falls, mean_band, prediction_band
 from curvefit.fitting.least_squares import asymptote_function, exponent_function, predict_natural
 from curvefit.fitting.selection import (
     MIN_VALIDATION_POINTS,
     choose,
     family_list,
+    family_weights,
     fit_families,
     holdout_count,
     ranking_table,
@@ -145,11 +148,13 @@ class SampleEstimate:
 class _State:
     """Everything a CurveFit needs besides its public fields (internal, not frozen)."""
 
-    def __init__(self, data: FitData, fits, boot, settings):
+    def __init__(self, data: FitData, fits, boots, settings, calibration: Calibration):
         self.data = data
         self.fits = fits
-        self.boot = boot          # (B, p) parameter replicates of the chosen family
+        self.boots = boots        # family -> (B, p) replicates, for the averaged families
+        self.boot = None if boots is None else boots.get(settings["best"])  # the chosen one's
         self.settings = settings
+        self.calibration = calibration
         self.companions: dict[str, "CurveFit"] = {}
 
 
@@ -402,9 +407,47 @@ class CurveFit:
             "exponent": expo.to_dict() if expo else None,
             "predictions": preds.to_dict(orient="records"),
             "warnings": list(self.warnings),
+            "notes": self.notes,
+            "family_weights": self.family_weights,
+            "calibration": self._state.calibration.to_dict(),
             "sizes": self._state.data.sizes.tolist(),
             "settings": dict(self._state.settings, n_bootstrap_ok=self.n_bootstrap_ok),
         }
+
+    # ------------------------------------------------------------ how the forecast is made
+    @property
+    def family_weights(self) -> dict:
+        """Shares of the averaged forecast by family (they sum to 1)."""
+        return {k: ff.weight for k, ff in self._state.fits.items() if ff.weight > 0}
+
+    @property
+    def calibration(self) -> Calibration:
+        """The correction the bands use (``fitting.calibration``)."""
+        return self._state.calibration
+
+    @property
+    def notes(self) -> list:
+        """How the forecast and its intervals were made, in plain sentences (not cautions:
+        those are in ``warnings``)."""
+        s, d = self._state, self._state.data
+        out = []
+        weights = sorted(self.family_weights.items(), key=lambda kv: -kv[1])
+        if len(weights) > 1:
+            out.append("the forecast averages " + ", ".join(f"{k} ({v:.0%})" for k, v in weights)
+                       + ", weighted by their forecast errors on held-out sizes")
+        if d.data_source == "meta":
+            out.append("intervals include the variance a fresh data set would bring, from the "
+                       "run's split of its rows")
+        elif d.data_source == "assumed":
+            out.append("intervals include the variance a fresh data set would bring, taking the "
+                       "largest measured size as the whole training pool (the curve does not "
+                       "say)")
+        if s.calibration.active:
+            out.append(s.calibration.describe())
+        if d.m >= 2 and self.on != "train" and not falls(d) and bool(np.nanmin(d.y) >= 0):
+            out.append("the measured curve has not fallen beyond its noise, so beyond the "
+                       "largest measured size its band is open down to 0")
+        return out
 
     # ------------------------------------------------------------ the data fitted
     @property
@@ -476,12 +519,11 @@ class CurveFit:
         return sizes
 
     def _predict_point(self, sizes):
-        fit = self._state.fits[self.best]
-        return predict_natural(fit.family, fit.theta, sizes, self.on, self._state.data.sign)
+        return averaged_point(sizes, self._state.data, self._state.fits)
 
     def _predict_interval(self, sizes, level):
         s = self._state
-        return prediction_band(sizes, level, s.data, s.fits, self.best, s.boot)
+        return prediction_band(sizes, level, s.data, s.fits, s.boots, s.calibration)
 
     def _derived(self, fn, interval):
         if fn is None:
@@ -505,7 +547,8 @@ class CurveFit:
             s = self._state.settings
             self._state.companions[on] = fit_curve(
                 self.curve, families=s["families"], on=on, bootstrap=s["bootstrap"],
-                weights=s["weights"], random_state=s["random_state"])
+                weights=s["weights"], random_state=s["random_state"],
+                calibration=self._state.calibration)
         return self._state.companions[on]
 
     def _solve(self, target: float, kind: str, level: float, factor: float) -> SampleEstimate:
@@ -532,8 +575,9 @@ class CurveFit:
                 # with the measurement at the largest size
                 fitted, lo_band, hi_band = fitted + shift, lo_band + shift, hi_band + shift
             c = find_crossing(d, target, grid, fitted, (lo_band, hi_band), mean_band(d, level),
-                              horizon=horizon, widened=self._widened(), level=level,
-                              shifted=shifted)
+                              horizon=horizon, widened=self._widened(target - shift * shifted,
+                                                                     horizon, level),
+                              level=level, shifted=shifted)
         asym = self.asymptote(level)
         reachable = c.source == "measured" or (
             math.isfinite(c.point) and not (asym is not None and math.isfinite(asym.low)
@@ -562,17 +606,21 @@ class CurveFit:
                               message=message, warnings=tuple(cautions), horizon=float(horizon),
                               beyond_horizon=bool(beyond))
 
-    def _widened(self) -> bool:
-        """Whether the band beyond the data carries more than the bootstrap spread."""
-        fits = self._state.fits
-        return any(ff.tied and k != self.best for k, ff in fits.items()) or \
-            fits[self.best].drift > 0
+    def _widened(self, target: float, horizon: float, level: float) -> bool:
+        """Whether the band's upper edge at the horizon is above ``target`` only because of
+        the parts besides the bootstrap (family spread, model error, a fresh data set)."""
+        s = self._state
+        parts = band_parts(np.array([horizon]), level, s.data, s.fits, s.boots)
+        z = float(ndtri((1 + level) / 2))
+        kappa = s.calibration.model_error_scale
+        boot_only = parts["estimate"][0] + z * kappa * parts["bootstrap_high"][0]
+        return not (boot_only > target)
 
 
 # ============================================================== the API
 def fit_curve(curve, *, families="auto", on: str = "test", bootstrap: int = BOOTSTRAP,
               weights: str = "sem", random_state=SEED, n_holdout: int | None = None,
-              holdout: int | None = None) -> CurveFit:
+              holdout: int | None = None, calibration="auto") -> CurveFit:
     """Fit learning-curve families to a measured curve and choose one.
 
     Parameters
@@ -596,6 +644,9 @@ def fit_curve(curve, *, families="auto", on: str = "test", bootstrap: int = BOOT
         Number of largest sizes held out for forecast validation (default: a quarter,
         at least 3 while 4 sizes stay before them). ``holdout`` is its former name,
         still accepted with a DeprecationWarning.
+    calibration : "auto", "none" or Calibration
+        Correction of the bands beyond the data: ``"auto"`` uses the one learned on the
+        bundled curve corpus (``fitting.calibration``), ``"none"`` none.
 
     Returns
     -------
@@ -644,18 +695,35 @@ def fit_curve(curve, *, families="auto", on: str = "test", bootstrap: int = BOOT
     drift_from = m - (held if n_holdout is not None else min(held, max(1, math.ceil(m / 4))))
     lof = score_families(fits, data, held, drift_from)
     best, order, flat, notes = _choose_family(fits, data, m - held, lof, curve.metric)
-    rng = np.random.default_rng(random_state)
-    boot = bootstrap_parameters(fits[best], data, bootstrap, rng) if bootstrap > 0 else None
+    family_weights(fits, best)
+    boots = _bootstrap(fits, best, data, bootstrap, np.random.default_rng(random_state))
+    boot = None if boots is None else boots[best]
     notes += _fit_warnings(data, fits[best], best, boot, bootstrap, flat, curve.metric)
     settings = {"families": families if isinstance(families, str) else list(families),
                 "bootstrap": bootstrap, "weights": weights, "random_state": random_state,
-                "holdout": held}
+                "holdout": held, "best": best}
     result = CurveFit(best=best, runner_up=order[1] if len(order) > 1 else None, on=on,
                       table=ranking_table(fits, best, order), warnings=notes, curve=curve,
-                      _state=_State(data, fits, boot, settings))
+                      _state=_State(data, fits, boots, settings, resolve_calibration(calibration)))
     if bootstrap > 0 and m:
         notes += _wide_interval_warning(result)
     return result
+
+
+# At most this many families are refitted to the bootstrap draws for the averaged band
+# (the chosen one and the heaviest others); the rest keep their share of the forecast.
+MAX_BOOTSTRAPPED = 4
+
+
+def _bootstrap(fits: dict, best: str, data: FitData, B: int, rng) -> dict | None:
+    """Bootstrap replicates of the chosen family and the heaviest averaged ones, all
+    refitted to the same redrawn means."""
+    if B <= 0:
+        return None
+    heavy = sorted((k for k, ff in fits.items() if ff.weight > 0 and k != best),
+                   key=lambda k: -fits[k].weight)[:MAX_BOOTSTRAPPED - 1]
+    draws = redrawn_means(fits[best], data, B, rng)
+    return {k: bootstrap_parameters(fits[k], data, B, rng, draws) for k in [best] + heavy}
 
 
 def _as_curve(curve) -> Curve:

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import math
 import warnings
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 from scipy.optimize import least_squares
@@ -37,6 +37,10 @@ class FamilyFit:
     eligible: bool = True     # False when the extrapolation is impossible (e.g. below zero)
     tied: bool = False        # forecasts about as well as the chosen family
     lack_of_fit: float = math.nan  # reduced chi-square against the per-size standard errors
+    # rolling-origin forecasts: (origin c, forecast − mean at the sizes c.., their
+    # estimation variance from the origin's fit), one entry per origin that could be fitted
+    origins: list = field(default_factory=list)
+    weight: float = 0.0       # share of this family in the averaged forecast
 
 
 class Target:
@@ -252,6 +256,50 @@ def fit_family(fam: Family, n, y, w, data: FitData, idx=None, starts_extra=(),
             if sv[-1] <= 0 or sv[0] / sv[-1] > MAX_CONDITION:
                 status, message = "poorly determined", "parameters are not separately identifiable"
     return FamilyFit(fam, res.x, status, message)
+
+
+def natural_gradient(fam: Family, theta, n, on: str, sign: float) -> np.ndarray:
+    """(len(n), p) derivative of the natural-scale prediction with respect to θ."""
+    n = np.asarray(n, dtype=float)
+    theta = np.asarray(theta, dtype=float)
+    with np.errstate(all="ignore"):
+        if fam.joint:
+            if on == "test":
+                return fam.jac(n, theta)
+            if on == "train":
+                return fam.train_jac(n, theta)
+            return fam.jac(n, theta) - fam.train_jac(n, theta)
+        return sign * fam.jac(n, theta)
+
+
+def prediction_variance(fam: Family, theta, data: FitData, idx, n_pred) -> np.ndarray:
+    """Variance of the fitted prediction at ``n_pred`` from the noise of the fitted means.
+
+    The delta method on the weighted fit to the sizes ``idx``: with J the Jacobian at
+    those sizes scaled by 1/σ (σ the floored standard errors, ``fitting.data.noise_scale``)
+    and g the gradient at ``n_pred``, the variance is g (JᵀJ)⁺ gᵀ. Zeros when the
+    family has no Jacobian or the data no standard errors. A joint family is judged on
+    the fitted quantity alone (its other curve would narrow the variance a little).
+
+    References
+    ----------
+    .. [1] G. A. F. Seber and C. J. Wild, "Nonlinear Regression", Wiley, 1989, ch. 5
+           (linearised variance of a least-squares prediction).
+    """
+    from curvefit.fitting.data import noise_scale
+
+    n_pred = np.asarray(n_pred, dtype=float)
+    scale = noise_scale(data.sem)
+    if fam.jac is None or fam.baseline or scale is None:
+        return np.zeros(len(n_pred))
+    idx = np.asarray(idx)
+    with np.errstate(all="ignore"):
+        J = natural_gradient(fam, theta, data.sizes[idx], data.on, data.sign) / scale[idx, None]
+        g = natural_gradient(fam, theta, n_pred, data.on, data.sign)
+    if not (np.all(np.isfinite(J)) and np.all(np.isfinite(g))):
+        return np.full(len(n_pred), math.nan)
+    cov = np.linalg.pinv(J.T @ J, rcond=1e-10)
+    return np.maximum(np.einsum("ip,pq,iq->i", g, cov, g), 0.0)
 
 
 def predict_natural(fam: Family, theta, n, on: str, sign: float):

@@ -1,0 +1,135 @@
+"""The correction of forecast bands learned from the bundled curve corpus.
+
+Beyond the largest measured size a band carries the model error its components cannot
+know exactly: the spread of the bootstrap, the spread between the averaged families and
+the model error seen in forecast validation (``fitting.intervals``). On the curve corpus
+(``corpus/``, real tables from scikit-learn and statsmodels and generated tasks, several
+model types) these together came out about twice as wide as the forecast errors they
+should cover, so they are scaled by one factor, ``model_error_scale``, learned there.
+``scripts/calibrate_forecasts.py`` fits it leave-one-data-set-out (every data set is
+scored with a factor fitted on the others), reports that score, and writes the factor
+fitted on all data sets to ``calibration.json`` beside this module; the engine reads it
+and says so in the fit's notes. The variance a fresh data set would bring is not scaled:
+it comes from the run's own split (``fitting.data.dataset_variance``).
+"""
+
+from __future__ import annotations
+
+import contextlib
+import json
+import math
+from dataclasses import asdict, dataclass
+from functools import lru_cache
+from pathlib import Path
+
+from curvefit.core.errors import InputError
+
+CALIBRATION_FILE = Path(__file__).with_name("calibration.json")
+CALIBRATION_FORMAT = "curvefit.calibration/1"
+
+
+@dataclass(frozen=True)
+class Calibration:
+    """A learned correction of the forecast bands.
+
+    Attributes
+    ----------
+    model_error_scale : float
+        Factor on the bootstrap, family-spread and model-error parts of a band (1 leaves
+        them as they are).
+    level : float
+        Interval level it was fitted at (it scales the band's width, so it carries over
+        to other levels through the normal quantile).
+    source : str
+        Where it comes from: ``"corpus"`` (learned) or ``"none"`` (no correction).
+    curves, datasets : int
+        Curves and data sets it was learned on.
+    note : str
+        One line on how it was learned, for notes and reports.
+    """
+
+    model_error_scale: float = 1.0
+    level: float = 0.9
+    source: str = "none"
+    curves: int = 0
+    datasets: int = 0
+    note: str = ""
+
+    @property
+    def active(self) -> bool:
+        return self.source != "none"
+
+    def describe(self) -> str:
+        """The sentence a fit's notes carry ("" for no correction)."""
+        if not self.active:
+            return ""
+        return (f"bands beyond the measured sizes use a correction learned on {self.curves} "
+                f"curves of {self.datasets} data sets (their model-error parts scaled by "
+                f"{self.model_error_scale:.2f}; scripts/calibrate_forecasts.py)")
+
+    def to_dict(self) -> dict:
+        return {"format": CALIBRATION_FORMAT, **asdict(self)}
+
+    @classmethod
+    def from_dict(cls, doc: dict) -> "Calibration":
+        """Read a calibration written by :meth:`to_dict` (unknown keys are ignored).
+
+        Examples
+        --------
+        >>> Calibration.from_dict({"model_error_scale": 0.5, "source": "corpus"}).active
+        True
+        """
+        fields = {k: doc[k] for k in cls.__dataclass_fields__ if k in doc}
+        cal = cls(**fields)
+        if not (math.isfinite(cal.model_error_scale) and cal.model_error_scale > 0):
+            raise InputError(f"calibration model_error_scale must be > 0, got "
+                             f"{cal.model_error_scale!r}")
+        return cal
+
+
+NO_CALIBRATION = Calibration()
+
+
+@lru_cache(maxsize=1)
+def packaged_calibration() -> Calibration:
+    """The calibration shipped in the package (no correction when the file is absent)."""
+    if not CALIBRATION_FILE.exists():
+        return NO_CALIBRATION
+    return Calibration.from_dict(json.loads(CALIBRATION_FILE.read_text()))
+
+
+_override: list = []
+
+
+@contextlib.contextmanager
+def use_calibration(calibration):
+    """Fits made inside the block use ``calibration`` by default (a leave-one-out
+    evaluation swaps in the factor fitted without the data set it scores).
+
+    Examples
+    --------
+    >>> with use_calibration({"model_error_scale": 0.7, "source": "corpus"}):
+    ...     resolve_calibration("auto").model_error_scale
+    0.7
+    >>> resolve_calibration("none").active
+    False
+    """
+    _override.append(resolve_calibration(calibration))
+    try:
+        yield _override[-1]
+    finally:
+        _override.pop()
+
+
+def resolve_calibration(calibration) -> Calibration:
+    """``"auto"`` (the packaged one, or the one set by :func:`use_calibration`),
+    ``"none"``/None (no correction), a :class:`Calibration` or its dict."""
+    if isinstance(calibration, Calibration):
+        return calibration
+    if isinstance(calibration, dict):
+        return Calibration.from_dict(calibration)
+    if calibration is None or calibration == "none":
+        return NO_CALIBRATION
+    if calibration == "auto":
+        return _override[-1] if _override else packaged_calibration()
+    raise InputError(f"calibration must be 'auto', 'none' or a Calibration, got {calibration!r}")
