@@ -73,6 +73,32 @@ def test_need_json_with_vc_dimension(files):
     assert doc["vc"]["rule_of_thumb_samples"] == 100
 
 
+def test_need_error_target_puts_the_gap_left_into_the_vc_bound(files):
+    # the VC bound limits E_out - E_in (Vapnik & Chervonenkis 1971): a test-error target E
+    # goes in as eps = E - training error at the answer's size, not as E itself
+    from curvefit.core.curve import Curve
+    from curvefit.fitting.planning import train_error_at
+
+    r = run_cli("need", files["csv"], "--error", "0.05", "--vc-dim", "10", "--bootstrap", "20",
+                "--json")
+    assert r.returncode == 0, r.stderr
+    doc = json.loads(r.stdout)
+    n = doc["answer"]["n"] if doc["answer"]["reachable"] else None
+    train = train_error_at(Curve.read(files["csv"]), n or Curve.read(files["csv"]).sizes.max())
+    assert doc["vc"]["eps"] == pytest.approx(0.05 - train)
+    assert doc["vc"]["vc_sample_size"] == bounds.vc_sample_size(10, eps=0.05 - train,
+                                                                delta=0.1).n_samples
+    text = run_cli("need", files["csv"], "--error", "0.05", "--vc-dim", "10", "--bootstrap", "20")
+    assert "minus the training error" in text.stdout
+
+
+def test_need_error_target_without_train_error_refuses_the_vc_bound(files):
+    r = run_cli("need", files["test_only"], "--error", "0.05", "--vc-dim", "10", "--bootstrap",
+                "20")
+    assert r.returncode == 0, r.stderr
+    assert "no VC bound: the VC bound limits the gap" in r.stdout
+
+
 @pytest.mark.parametrize("args", [
     ["fit", "{dir}/missing.csv"],
     ["fit", "{broken}"],

@@ -76,8 +76,13 @@ def _print_plan(need, interval: float) -> None:
 
 def _print_vc(vc: dict) -> None:
     out.print("", markup=False)
-    worst = (f"{vc['vc_sample_size']:,} samples (VC bound, ε = {vc['eps']:g}, δ = {vc['delta']:g})"
-             if vc["vc_sample_size"] is not None else "not defined for this target")
+    if vc.get("refused"):
+        worst = f"no VC bound: {vc['refused']}"
+    elif vc["vc_sample_size"] is not None:
+        worst = (f"{vc['vc_sample_size']:,} samples (VC bound on the gap, ε = {vc['eps']:.3g}: "
+                 f"{vc['eps_source']}; δ = {vc['delta']:g})")
+    else:
+        worst = "not defined for this target"
     out.print(f"Beside it, for VC dimension {vc['vc_dim']}: worst case {worst}; rule of "
               f"thumb 10 × d_vc = {vc['rule_of_thumb_samples']:,} samples. The measured answer "
               "above is what this learner did on this data.", markup=False)

@@ -254,10 +254,13 @@ class LabelNeed:
         return doc
 
 
-def vc_comparison(vc_dim: float, target: float, delta: float = VC_DELTA) -> dict:
+def vc_comparison(vc_dim: float, eps: float | None, delta: float = VC_DELTA,
+                  eps_source: str = "", refused: str | None = None) -> dict:
     """Worst-case VC sample size and the 10 × d rule of thumb beside a measured answer.
 
-    The VC size is None for a target outside (0, 1), where the bound says nothing.
+    ``eps`` is the generalization gap the bound is asked for (see `vc_epsilon`); the VC
+    size is None when the bound says nothing (``eps`` outside (0, 1), or ``refused``
+    gives the reason).
 
     Examples
     --------
@@ -267,11 +270,58 @@ def vc_comparison(vc_dim: float, target: float, delta: float = VC_DELTA) -> dict
     from curvefit import bounds
 
     d = int(round(vc_dim))
-    row = {"vc_dim": d, "eps": target, "delta": delta, "vc_sample_size": None,
+    row = {"vc_dim": d, "eps": eps, "eps_source": eps_source, "delta": delta,
+           "vc_sample_size": None, "refused": refused,
            "rule_of_thumb_samples": int(bounds.rule_of_thumb_samples(d))}
-    if 0 < target < 1:
-        row["vc_sample_size"] = bounds.vc_sample_size(d, eps=target, delta=delta).n_samples
+    if refused is None and eps is not None and 0 < eps < 1:
+        row["vc_sample_size"] = bounds.vc_sample_size(d, eps=eps, delta=delta).n_samples
     return row
+
+
+def train_error_at(curve, n: float) -> float:
+    """Measured mean training error at ``n`` labelled samples: interpolated in ln n between
+    measured sizes, the largest size's value beyond them (NaN without training error)."""
+    s = curve.summary()
+    s = s[np.isfinite(s["train_mean"].to_numpy(float))]
+    if not len(s):
+        return math.nan
+    sizes, train = s["size"].to_numpy(float), s["train_mean"].to_numpy(float)
+    return float(np.interp(math.log(max(float(n), 1.0)), np.log(sizes), train))
+
+
+def vc_epsilon(curve, *, test_error: float | None = None, gap: float | None = None,
+               n: float | None = None) -> tuple[float | None, str, str | None]:
+    """The ε to put into the VC bound for a target: ``(eps, source, refusal)``.
+
+    The VC bound limits the generalization gap E_out − E_in, not the test error: a gap
+    target is ε itself; a test-error target E leaves ε = E − training error at the size
+    that reaches it (``n``, default the largest measured size). Without training error,
+    or when the training error already reaches E, there is no ε and ``refusal`` says why.
+
+    References
+    ----------
+    .. [1] V. N. Vapnik and A. Ya. Chervonenkis, "On the uniform convergence of relative
+           frequencies of events to their probabilities", Theory Probab. Appl. 16(2), 1971.
+
+    Examples
+    --------
+    >>> vc_epsilon(None, gap=0.05)
+    (0.05, 'the gap target', None)
+    """
+    if gap is not None:
+        return float(gap), "the gap target", None
+    if curve is None or not curve.has_train:
+        return None, "", ("the VC bound limits the gap between test and training error, "
+                          "not the test error; give a gap target, or a run with train_error")
+    size = float(n) if n is not None and math.isfinite(float(n)) else float(curve.sizes.max())
+    train = train_error_at(curve, size)
+    if not math.isfinite(train) or train >= float(test_error):
+        return None, "", (f"the training error at {size:,.0f} samples ({train:.3g}) already "
+                          f"reaches the target {float(test_error):g}, so no gap is left for "
+                          "the VC bound")
+    return (float(test_error) - train,
+            f"target {float(test_error):g} minus the training error {train:.3g} at "
+            f"{size:,.0f} samples", None)
 
 
 def _check_need(test_error, gap, cost_per_label, budget, current_n, extra, vc_dim, interval):
@@ -387,8 +437,10 @@ def labels_needed(curve, *, test_error=None, gap=None, current_n=None, cost_per_
         dims = vc_dim if vc_dim is not None else curve.meta.get("vc_dim")
         vc = None
         if dims is not None and target is not None:
+            at = answer.n if answer is not None and answer.reachable else None
+            eps, source, refused = vc_epsilon(curve, test_error=test_error, gap=gap, n=at)
             try:
-                vc = vc_comparison(float(dims), target)
+                vc = vc_comparison(float(dims), eps, eps_source=source, refused=refused)
             except (TypeError, ValueError):
                 vc = None
         sanity = sanity_check(curve, fit, answer=answer, answer_fit=used,

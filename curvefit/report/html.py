@@ -399,14 +399,18 @@ def _capacity_row(label: str, c: Any, interval: float) -> dict:
 
 
 def _worst_case_text(wc: Any) -> str:
-    return (f"For <strong>{esc(wc.label)}</strong> with effective capacity d ≈ "
-            f"{esc(format_capacity(wc.vc_dim))} ({esc(wc.method)}): the VC "
-            f"bound asks for the gap between training and test error to be at most "
-            f"ε = {esc(format_number(wc.eps, 3))} (the target minus the fitted floor) with "
-            f"probability {format_level(1 - wc.delta)}. It holds for every distribution, so it "
-            f"is usually one to two orders of magnitude above what a real problem needs; "
-            f"the rule of thumb (common practice) and the measured answer are the "
-            f"numbers to plan with.")
+    which = ("the max-deviation probe's VC dimension (distribution-free)" if wc.method == "probe"
+             else "the effective capacity from the measured gap (calibrated in VC units; "
+                  "not the class's VC dimension)")
+    bound = "at least " if getattr(wc, "lower_bound", False) else ""
+    source = getattr(wc, "eps_source", "") or "the target minus the training error"
+    return (f"For <strong>{esc(wc.label)}</strong> the bound uses {esc(which)}, d ≈ {bound}"
+            f"{esc(format_capacity(wc.vc_dim))}. The VC bound limits the gap between test and "
+            f"training error: it is asked for ε = {esc(format_number(wc.eps, 3))} "
+            f"({esc(source)}) with probability {format_level(1 - wc.delta)}. It holds for "
+            f"every distribution, so it is usually one to two orders of magnitude above what a "
+            f"real problem needs; the rule of thumb (common practice) and the measured answer "
+            f"are the numbers to plan with.")
 
 
 # --------------------------------------------------------------------------- sections

@@ -62,6 +62,8 @@ class WorstCase:
     eps: float
     delta: float
     rows: list
+    eps_source: str = ""
+    lower_bound: bool = False
 
 
 @dataclass
@@ -253,35 +255,43 @@ def worst_case(res: ModelResult, capacity: Any, target_error: float,
                interval: float = INTERVAL) -> WorstCase | None:
     """The VC bound and the 10 × d rule beside the measured answer, for one model.
 
-    The bound asks for a gap of at most ε = target − fitted floor (at least `MIN_EPS`)
-    with probability ``interval``. None without a capacity or an answer.
+    The bound limits the gap between test and training error: it is asked for
+    ε = target − training error at the answer's size (`curvefit.fitting.planning.vc_epsilon`)
+    with probability ``interval``. None without a usable capacity (a capacity whose status
+    is not "ok" or "above_range" is not put into a bound), an answer, or training error.
     """
     from curvefit import bounds
+    from curvefit.fitting.planning import vc_epsilon
 
     d = field_of(capacity, "vc_dim")
-    if not is_finite(d) or float(d) <= 0 or res.answer is None:
+    status = field_of(capacity, "status", "ok")
+    if not is_finite(d) or float(d) <= 0 or res.answer is None or status not in ("ok", "above_range"):
         return None
-    asym = field_of(res.answer, "asymptote")
-    floor = field_of(asym, "estimate", asym)
-    eps = max(float(target_error) - max(float(floor) if is_finite(floor) else 0.0, 0.0), MIN_EPS)
+    reachable = bool(field_of(res.answer, "reachable", False))
+    n = field_of(res.answer, "n")
+    eps, source, refused = vc_epsilon(res.curve, test_error=float(target_error),
+                                      n=float(n) if reachable and is_finite(n) else None)
+    if refused is not None:
+        return None
+    eps = max(eps, MIN_EPS)
     delta = round(1.0 - interval, 6)
     dims = int(math.ceil(float(d)))
+    above = bool(field_of(capacity, "above_range", False)) or status == "above_range"
     rows = []
     try:
-        rows.append({"label": f"VC bound (d={format_capacity(d)}, ε={format_number(eps, 3)}, "
-                              f"δ={delta:g})",
+        rows.append({"label": f"VC bound (d{'≥' if above else '='}{format_capacity(d)}, "
+                              f"ε={format_number(eps, 3)}, δ={delta:g})",
                      "n": float(bounds.vc_sample_size(dims, eps, delta).n_samples), "kind": "bound"})
     except Exception:  # noqa: BLE001 - skip a bound that cannot be computed
         pass
     rows.append({"label": "rule of thumb, 10 × d",
                  "n": float(bounds.rule_of_thumb_samples(dims)), "kind": "rule"})
-    n = field_of(res.answer, "n")
-    if bool(field_of(res.answer, "reachable", False)) and is_finite(n):
+    if reachable and is_finite(n):
         rows.append({"label": f"measured: {res.label}", "n": float(n),
                      "low": field_of(res.answer, "low"), "high": field_of(res.answer, "high"),
                      "kind": "measured"})
     return WorstCase(res.label, float(d), str(field_of(capacity, "method", "estimate")),
-                     eps, delta, rows)
+                     eps, delta, rows, eps_source=source, lower_bound=above)
 
 
 def result_summary(res: ModelResult) -> dict:
