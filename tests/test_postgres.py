@@ -87,15 +87,15 @@ def test_record_read_compare_accept(db):
     with Store(db) as s:
         assert type(s).__name__ == "PostgresStore" and s.schema_version == SCHEMA_VERSION
         r1 = s.record(_curve(), None, series="s", headline=_figs(err=0.05), code_version=None)
-        r2 = s.record(_curve(shift=0.03), None, series="s", headline=_figs(err=0.08,
+        r2 = s.record(_curve(shift=0.06), None, series="s", headline=_figs(err=0.08,
                                                                           samples=float("inf")))
         runs = s.runs("s")
         assert runs["run_id"].tolist() == [r1, r2] and runs["n_points"].tolist() == [6, 6]
         assert list(s.headline(r2)) == ["test_error_at_ref", "decay_exponent", "samples_for_target"]
         assert s.headline(r2)["samples_for_target"].estimate == float("inf")
-        assert s.curve(r2).points["test_error"].iloc[0] == pytest.approx(0.5 / 50 ** 0.5 + 0.03)
+        assert s.curve(r2).points["test_error"].iloc[0] == pytest.approx(0.5 / 50 ** 0.5 + 0.06)
         c = s.compare(r2)
-        assert c.baseline_id == r1 and "error_area" in c.regressed  # 3 points worse everywhere
+        assert c.baseline_id == r1 and "error_area" in c.regressed  # 6 points worse everywhere
         s.record_verdict(c, [])
         r3 = s.record(_curve(shift=0.03), None, series="s", headline=_figs(err=0.08))
         assert s.baseline_for(r3, "previous") == r1  # the failing run is no baseline

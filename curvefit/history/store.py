@@ -709,6 +709,9 @@ class Store:
         if (row["metric"] or "error") != (brow["metric"] or "error"):
             reasons.append(f"metric differs from run {bid}'s ({brow['metric']} → {row['metric']})")
         level = next((f.level for f in current.values()), INTERVAL)
+        # Either efficiency figure fails the run: Bonferroni over the two keeps the chance
+        # that a same-model run fails at most (1 - level) / 2, one-sided (90% → 95% intervals)
+        level = 1 - (1 - level) / len(tracking.EFFICIENCY)
         eff_figs = self._efficiency(row["id"], bid, level, random_state) if efficiency else []
         if not eff_figs:
             gated = (gated - set(tracking.EFFICIENCY)) or set(tracking.check_gate("all"))
