@@ -563,12 +563,17 @@ def efficiency_figures(eff: Any, baseline_id: int | None = None) -> list[Figure]
     if getattr(eff, "paired", False):
         note += "; paired by repeat (same splits)"
     extra = f"; {eff.clipped} size(s) beyond the measured range, clipped" if eff.clipped else ""
+    if getattr(eff, "lower_bound", False):
+        extra = f"; {LOWER_BOUND}"
     worse = getattr(eff, "holm_worse", [])
     holm = f"; worse at n={', '.join(str(n) for n in worse)} (Holm)" if worse else ""
     return [make_figure("efficiency_ratio", eff.ratio, eff.ratio_low, eff.ratio_high, eff.level,
                         note=note + extra),
             make_figure("error_area", eff.area, eff.area_low, eff.area_high, eff.level,
                         note=note + holm)]
+
+
+LOWER_BOUND = "lower bound: the run never reached the baseline's errors within its sizes"
 
 
 def ratio_sentence(f: Figure) -> str:
@@ -578,7 +583,12 @@ def ratio_sentence(f: Figure) -> str:
     --------
     >>> ratio_sentence(make_figure("efficiency_ratio", 1.9, 1.5, 2.4, 0.9))
     "needs 1.9× the baseline's labels (90% interval 1.5–2.4×)"
+    >>> ratio_sentence(make_figure("efficiency_ratio", 3.5, 3.5, 3.5, 0.9, note=LOWER_BOUND))
+    "needs more than 3.5× the baseline's labels (it never reached the baseline's errors within its sizes)"
     """
+    if LOWER_BOUND in f.note:
+        return (f"needs more than {f.estimate:.2g}× the baseline's labels (it never reached "
+                "the baseline's errors within its sizes)")
     return (f"needs {f.estimate:.2g}× the baseline's labels ({f.level:.0%} interval "
             f"{f.low:.2g}–{f.high:.2g}×)")
 
