@@ -112,3 +112,14 @@ def test_gate_fails_a_less_efficient_model_and_remembers_it(tmp_path):
         s.accept(r3)
         assert s.compare(r4).baseline_id == r3 and s.compare(r4).exit_code == 0
         assert s.verdict(r3) == "regressed"
+
+
+def test_ratio_beyond_the_measured_range_is_a_bound():
+    from curvefit.history.figures import efficiency_figures, ratio_sentence
+
+    base = _curve(seed=1)
+    far = compare_curves(_curve(offset=0.2, seed=2), base)  # never gets near the baseline
+    assert far.lower_bound and not far.upper_bound
+    assert "needs more than" in ratio_sentence(efficiency_figures(far, 1)[0])
+    near = compare_curves(_curve(offset=-0.2, seed=2), base)
+    assert near.upper_bound and "needs less than" in ratio_sentence(efficiency_figures(near, 1)[0])

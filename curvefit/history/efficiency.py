@@ -88,12 +88,20 @@ class Efficiency:
     paired: bool = False
     # baseline sizes whose error the current curve never reached within its sizes
     never_reached: int = 0
+    # baseline sizes whose error the current curve beat already at its smallest size
+    beaten_at_start: int = 0
 
     @property
     def lower_bound(self) -> bool:
         """True when the current run never reached any of the baseline's errors: the
         ratio is then only a lower bound (every answer was clipped at the largest size)."""
         return bool(self.sizes) and self.never_reached == len(self.sizes)
+
+    @property
+    def upper_bound(self) -> bool:
+        """True when the current run beat every baseline error at its smallest size: the
+        ratio is then only an upper bound."""
+        return bool(self.sizes) and self.beaten_at_start == len(self.sizes)
 
     @property
     def holm_worse(self) -> list[int]:
@@ -344,7 +352,9 @@ def compare_curves(current, baseline, *, interval: float = INTERVAL,
     lw = _trapezoid_weights(common)
     ratio, area = _figures(b.sizes, b.mean, c.sizes, c.mean, common, lw)
     need, clipped = labels_to_reach(c.sizes, c.mean, b.mean)
-    never = int(np.sum(clipped & (b.mean < decreasing_fit(c.mean)[-1])))
+    env = decreasing_fit(c.mean)
+    never = int(np.sum(clipped & (b.mean < env[-1])))
+    beaten = int(np.sum(clipped & (b.mean > env[0])))
     rng = np.random.default_rng(random_state)
 
     pair = _paired_repeats(current, baseline, b, c) if paired is None or paired else None
@@ -366,7 +376,8 @@ def compare_curves(current, baseline, *, interval: float = INTERVAL,
     a_lo, a_hi = np.quantile(ra, q)
     rows = _size_rows(b, c, need)
     return Efficiency(float(ratio[0]), float(r_lo), float(r_hi), float(area[0]), float(a_lo),
-                      float(a_hi), level, rows, int(clipped.sum()), pair is not None, never)
+                      float(a_hi), level, rows, int(clipped.sum()), pair is not None, never,
+                      beaten)
 
 
 def _t_scale(rng, r: int, n: int) -> np.ndarray:

@@ -565,6 +565,8 @@ def efficiency_figures(eff: Any, baseline_id: int | None = None) -> list[Figure]
     extra = f"; {eff.clipped} size(s) beyond the measured range, clipped" if eff.clipped else ""
     if getattr(eff, "lower_bound", False):
         extra = f"; {LOWER_BOUND}"
+    elif getattr(eff, "upper_bound", False):
+        extra = f"; {UPPER_BOUND}"
     worse = getattr(eff, "holm_worse", [])
     holm = f"; worse at n={', '.join(str(n) for n in worse)} (Holm)" if worse else ""
     return [make_figure("efficiency_ratio", eff.ratio, eff.ratio_low, eff.ratio_high, eff.level,
@@ -574,6 +576,7 @@ def efficiency_figures(eff: Any, baseline_id: int | None = None) -> list[Figure]
 
 
 LOWER_BOUND = "lower bound: the run never reached the baseline's errors within its sizes"
+UPPER_BOUND = "upper bound: the run beat every baseline error at its smallest size"
 
 
 def ratio_sentence(f: Figure) -> str:
@@ -589,6 +592,9 @@ def ratio_sentence(f: Figure) -> str:
     if LOWER_BOUND in f.note:
         return (f"needs more than {f.estimate:.2g}× the baseline's labels (it never reached "
                 "the baseline's errors within its sizes)")
+    if UPPER_BOUND in f.note:
+        return (f"needs less than {f.estimate:.2g}× the baseline's labels (it beat every "
+                "baseline error at its smallest size)")
     return (f"needs {f.estimate:.2g}× the baseline's labels ({f.level:.0%} interval "
             f"{f.low:.2g}–{f.high:.2g}×)")
 
