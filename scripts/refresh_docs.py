@@ -45,6 +45,12 @@ Inputs a document describes but does not produce with a shown command:
 output differs from what the document shows, after masking what varies from run to run
 (seconds, dates and times, absolute paths, commit hashes, column padding), and says
 whether only numbers differ or the text too. Exit code 0 when nothing differs, 1 otherwise.
+
+A document edited while its examples run is not written (the run says so; run it again).
+Not refreshed: prose, the Python sessions (``>>>``, checked by tests/test_docs_examples.py),
+benchmark outputs, and tables computed from an example's files in Python (README's
+"worst / measured" table, the measured-against-VC table of docs/bounds.md): after a
+refresh, check those by hand.
 """
 
 from __future__ import annotations
