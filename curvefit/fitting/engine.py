@@ -260,6 +260,31 @@ class CurveFit:
         low, high = self._predict_interval(sizes, level)
         return Estimate(float(self._predict_point(sizes)[0]), float(low[0]), float(high[0]), level)
 
+    def band_parts(self, n, interval: float = INTERVAL) -> pd.DataFrame:
+        """What the prediction band at ``n`` is made of, each part as a standard deviation
+        before the calibration: ``size, estimate, bootstrap_low, bootstrap_high`` (the
+        averaged curve's bootstrap spread below and above), ``families`` (spread between
+        the averaged families), ``model_error`` (from forecast validation, growing with
+        ln n beyond the data) and ``data_set`` (what a fresh data set would add). The
+        band is z·√(κ²·(bootstrap² + families² + model_error²) + data_set²) on each side,
+        κ the calibration's ``model_error_scale``.
+
+        Examples
+        --------
+        >>> import numpy as np, pandas as pd
+        >>> n = np.repeat([50, 100, 200, 400, 800, 1600], 3)
+        >>> table = pd.DataFrame({"size": n, "test_error": 0.05 + 2.0 * n ** -0.6
+        ...                       + np.tile([-0.002, 0.0, 0.002], 6)})
+        >>> parts = fit_curve(table, bootstrap=50).band_parts([1600, 16000])
+        >>> bool(parts["model_error"].iloc[0] == 0.0)    # no extrapolation at the data
+        True
+        """
+        level = check_level(interval)
+        sizes = self._checked_sizes(n)
+        s = self._state
+        parts = band_parts(sizes, level, s.data, s.fits, s.boots)
+        return pd.DataFrame({"size": sizes, **parts})
+
     def predict_family(self, name: str, n) -> np.ndarray:
         """Point predictions of any family that did not fail (e.g. to draw the runner-up)."""
         fit = self._state.fits.get(name)
