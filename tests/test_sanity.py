@@ -85,8 +85,13 @@ def test_imbalance_hint_only_for_the_plain_error_rate_of_imbalanced_classes():
     shares = {"0": 0.94, "1": 0.06}
     hint = imbalance_hint(_table(lambda n: 0.05 + 0 * n, 0.06, class_shares=shares))
     assert hint.endswith("measure with --metric balanced_error")
-    balanced = {"0": 1 - IMBALANCE_SHARE, "1": IMBALANCE_SHARE}
-    assert imbalance_hint(_table(lambda n: 0.05 + 0 * n, 0.2, class_shares=balanced)) is None
+    edge = {"0": 1 - IMBALANCE_SHARE / 2, "1": IMBALANCE_SHARE / 2}   # 20% of two classes
+    assert imbalance_hint(_table(lambda n: 0.05 + 0 * n, 0.2, class_shares=edge)) is None
+    # ten nearly even classes (scikit-learn's digits: the smallest holds 9.7%) are balanced
+    digits = {str(k): (0.097 if k == 0 else 0.903 / 9) for k in range(10)}
+    assert imbalance_hint(_table(lambda n: 0.05 + 0 * n, 0.9, class_shares=digits)) is None
+    digits["0"], digits["1"] = 0.02, 0.177
+    assert imbalance_hint(_table(lambda n: 0.05 + 0 * n, 0.9, class_shares=digits)) is not None
     assert imbalance_hint(_table(lambda n: 0.3 + 0 * n, 0.5, class_shares=shares,
                                  metric="balanced_error")) is None
     assert imbalance_hint(_table(lambda n: 5 + 0 * n, 9.0, task="regression", metric="mse")) is None

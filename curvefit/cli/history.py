@@ -16,6 +16,7 @@ import typer
 
 from curvefit.cli.common import emit_json, out, print_table
 from curvefit.core.errors import InputError
+from curvefit.core.formatting import format_error
 
 _SHORT = {"test_error_at_ref": "error@ref", "decay_exponent": "decay exp.",
           "asymptote": "asymptote", "samples_for_target": "samples@target",
@@ -60,7 +61,7 @@ def _print_series(name: str, config: dict, runs: pd.DataFrame, entries: list) ->
     ref = config.get("reference_size")
     target = config.get("target_error")
     bits = [f"reference size {ref}" if ref else None,
-            f"target error {target:g}" if target is not None else None]
+            f"target error {format_error(target)}" if target is not None else None]
     out.print(f"series {name}: {len(runs)} run(s)"
               + (f" ({', '.join(b for b in bits if b)})" if any(bits) else ""), markup=False)
     if runs.empty:

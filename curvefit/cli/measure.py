@@ -15,6 +15,7 @@ import typer
 from curvefit.cli.common import emit_json, out, print_table, warn
 from curvefit.core import defaults
 from curvefit.core.errors import InputError
+from curvefit.core.formatting import MISSING, format_error
 from curvefit.workflows.jobs import MEASURE_DEFAULTS, measure_from_settings, read_toml, resolve_job_paths
 
 
@@ -50,12 +51,12 @@ def _print_summary(curve, path: Path, sanity) -> None:
     table = []
     for r in rows:
         def f(v):
-            return "-" if v is None or v != v else f"{v:.4f}"
+            return format_error(v, metric)
         table.append([str(r["size"]), f(r["test_mean"]), f(r["test_sem"]), f(r["train_mean"]),
                       f(r["gap_mean"]), f(r["baseline_mean"]), str(r["n_failed"])])
     failed_sizes = set(curve.failed_points()["size"]) - {r["size"] for r in rows}
     for s in sorted(failed_sizes):
-        table.append([str(s), "-", "-", "-", "-", "-", "all"])
+        table.append([str(s)] + [MISSING] * 5 + ["all"])
     print_table(head, table)
     if any(r["baseline_mean"] == r["baseline_mean"] for r in rows):
         predictor = curve.meta.get("baseline", "a constant")

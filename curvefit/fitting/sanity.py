@@ -49,9 +49,10 @@ from curvefit.core.formatting import format_count, format_error, format_estimate
 from curvefit.core.stats import t_interval
 from curvefit.core.validate import check_level
 
-# A classification curve whose smallest class holds less than this share of the labels is
-# imbalanced enough that the plain error rate mostly measures the majority class.
-IMBALANCE_SHARE = 0.2
+# A classification curve whose smallest class holds less than this fraction of an even
+# share (1/k of the labels for k classes; 0.2 of the labels for two classes) is imbalanced
+# enough that the plain error rate mostly measures the majority classes (common practice).
+IMBALANCE_SHARE = 0.4
 
 
 # --------------------------------------------------------------------------- the baseline
@@ -220,7 +221,9 @@ def imbalance_hint(curve: Curve) -> str | None:
     if curve.metric != "error" or predictor_words(curve) != "always the majority class":
         return None
     share = minority_share(curve)
-    if share is None or not share < IMBALANCE_SHARE:
+    shares = (curve.meta or {}).get("class_shares")
+    n_classes = len(shares) if isinstance(shares, dict) and shares else 2
+    if share is None or not share < IMBALANCE_SHARE / n_classes:
         return None
     return (f"the classes are imbalanced (the smallest holds {format_error(share)} of the labels), "
             "so the plain error rate mostly rewards predicting the majority class; measure "
