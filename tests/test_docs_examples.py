@@ -327,7 +327,7 @@ measured on purpose: left alone
 
 def test_refresh_docs_reruns_the_examples_in_document_order(tmp_path):
     import shutil
-import tempfile
+    import tempfile
 
     rd = refresh_docs_module()
     doc = tmp_path / "guide.md"
