@@ -4,8 +4,10 @@ Beyond the largest measured size a band carries the model error its components c
 know exactly: the spread of the bootstrap, the spread between the averaged families and
 the model error seen in forecast validation (``fitting.intervals``). On the curve corpus
 (``corpus/``, real tables from scikit-learn and statsmodels and generated tasks, several
-model types) these together came out about twice as wide as the forecast errors they
-should cover, so they are scaled by one factor, ``model_error_scale``, learned there.
+model types) these together came out wider than the forecast errors they should cover,
+so they are scaled by one factor, ``model_error_scale``, learned there; and where the
+corpus shows the averaged forecast systematically too cautious or too optimistic beyond
+the data, its change beyond the largest size is scaled by ``drop_scale``.
 ``scripts/calibrate_forecasts.py`` fits it leave-one-data-set-out (every data set is
 scored with a factor fitted on the others), reports that score, and writes the factor
 fitted on all data sets to ``calibration.json`` beside this module; the engine reads it
@@ -37,6 +39,9 @@ class Calibration:
     model_error_scale : float
         Factor on the bootstrap, family-spread and model-error parts of a band (1 leaves
         them as they are).
+    drop_scale : float
+        Factor on the averaged forecast's change beyond the largest measured size (1
+        leaves it; above 1 the curves went on falling more than the families said).
     level : float
         Interval level it was fitted at (it scales the band's width, so it carries over
         to other levels through the normal quantile).
@@ -49,6 +54,7 @@ class Calibration:
     """
 
     model_error_scale: float = 1.0
+    drop_scale: float = 1.0
     level: float = 0.9
     source: str = "none"
     curves: int = 0
@@ -63,9 +69,11 @@ class Calibration:
         """The sentence a fit's notes carry ("" for no correction)."""
         if not self.active:
             return ""
-        return (f"bands beyond the measured sizes use a correction learned on {self.curves} "
-                f"curves of {self.datasets} data sets (their model-error parts scaled by "
-                f"{self.model_error_scale:.2f}; scripts/calibrate_forecasts.py)")
+        drop = (f", the forecast change beyond the largest size by {self.drop_scale:.2f}"
+                if self.drop_scale != 1.0 else "")
+        return (f"forecasts beyond the measured sizes use a correction learned on {self.curves} "
+                f"curves of {self.datasets} data sets (the model-error parts of the band "
+                f"scaled by {self.model_error_scale:.2f}{drop}; scripts/calibrate_forecasts.py)")
 
     def to_dict(self) -> dict:
         return {"format": CALIBRATION_FORMAT, **asdict(self)}
@@ -81,9 +89,10 @@ class Calibration:
         """
         fields = {k: doc[k] for k in cls.__dataclass_fields__ if k in doc}
         cal = cls(**fields)
-        if not (math.isfinite(cal.model_error_scale) and cal.model_error_scale > 0):
-            raise InputError(f"calibration model_error_scale must be > 0, got "
-                             f"{cal.model_error_scale!r}")
+        for name in ("model_error_scale", "drop_scale"):
+            value = getattr(cal, name)
+            if not (isinstance(value, (int, float)) and math.isfinite(value) and value > 0):
+                raise InputError(f"calibration {name} must be > 0, got {value!r}")
         return cal
 
 

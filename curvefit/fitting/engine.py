@@ -13,16 +13,25 @@ The engine works on per-size means over repeats (``fitting.data``):
    the sizes before the origin and scored by its mean absolute forecast error; families
    within a small tolerance of the best go to power-law-floor/power-law, then to the
    lower AICc (``fitting.selection``);
-4. the chosen family is refitted to a parametric bootstrap (each size's mean redrawn
-   with Student-t noise of its standard error, each refit warm-started at the
-   full-data solution) and percentile intervals are read off for parameters,
-   predictions and derived quantities (``fitting.bootstrap``); prediction bands are
-   never narrower than the Student-t interval of the measured mean (``fitting.intervals``);
-5. answers inside the measured range come from the measured means; the fitted curve
-   answers only beyond the largest measured size (``fitting.answers``).
+4. forecasts average the families that forecast well, each weighted by the inverse of
+   its mean squared rolling-origin error (``fitting.selection.family_weights``); the
+   chosen family names the curve, its parameters and its asymptote;
+5. the chosen and the heaviest averaged families are refitted to a parametric bootstrap
+   (each size's mean redrawn with Student-t noise of its standard error, each refit
+   warm-started at the full-data solution; ``fitting.bootstrap``); the prediction band
+   adds in quadrature the bootstrap spread of the averaged curve, the spread between
+   families, the model error from forecast validation and the variance a fresh data set
+   would bring, scaled by a correction learned on the bundled curve corpus
+   (``fitting.intervals``, ``fitting.calibration``), never narrower than the interval of
+   the measured mean;
+6. answers inside the measured range come from the measured means (the size after which
+   they stay at or below the target); the averaged forecast answers only beyond the
+   largest measured size, and beyond a horizon (100× the largest size) an answer is
+   "more than N" (``fitting.answers``).
 
-Estimates are statistical, not guarantees: they assume the chosen family keeps
-describing the curve beyond the measured sizes.
+Estimates are statistical, not guarantees: they assume the averaged families keep
+describing the curve beyond the measured sizes about as well as they forecast the
+held-out sizes.
 
 This module holds the public objects (``fit_curve``, ``CurveFit``, ``SampleEstimate``);
 it is pure numerics on a ``Curve`` and imports neither the command line nor I/O.
@@ -63,7 +72,13 @@ from curvefit.fitting.answers import (
 from curvefit.fitting.bootstrap import bootstrap_parameters, percentile_interval, redrawn_means
 from curvefit.fitting.calibration import Calibration, resolve_calibration
 from curvefit.fitting.data import ON_CHOICES, WEIGHT_CHOICES, FitData, prepare_data
-from curvefit.fitting.intervals import averaged_point, band_parts, falls, mean_band, prediction_band
+from curvefit.fitting.intervals import (
+    band_parts,
+    corrected_point,
+    falls,
+    mean_band,
+    prediction_band,
+)
 from curvefit.fitting.least_squares import asymptote_function, exponent_function, predict_natural
 from curvefit.fitting.selection import (
     MIN_VALIDATION_POINTS,
@@ -198,14 +213,19 @@ class CurveFit:
 
     # ------------------------------------------------------------ predictions
     def predict(self, n, interval: float = INTERVAL) -> pd.DataFrame:
-        """Predicted error of the chosen family at one or more sample sizes.
+        """Predicted error at one or more sample sizes: the averaged forecast of the
+        families that forecast well (``family_weights``) and its prediction band.
+
+        The band holds the bootstrap spread, the spread between the families, the model
+        error seen in forecast validation (growing beyond the largest measured size) and
+        the variance a fresh data set would bring; ``notes`` say how it was made.
 
         Parameters
         ----------
         n : float or array-like
             Sample size(s) (> 0).
         interval : float
-            Level of the bootstrap percentile interval.
+            Level of the prediction band.
 
         Returns
         -------
@@ -230,14 +250,14 @@ class CurveFit:
                              "low": low, "high": high})
 
     def error_at(self, n, interval: float = INTERVAL) -> Estimate:
-        """Predicted error of the chosen family at one sample size, with its interval.
+        """Predicted error at one sample size, with its interval (as :meth:`predict`).
 
         Parameters
         ----------
         n : float
             One sample size (> 0); use :meth:`predict` for several.
         interval : float
-            Level of the bootstrap percentile interval.
+            Level of the prediction band.
 
         Returns
         -------
@@ -544,7 +564,8 @@ class CurveFit:
         return sizes
 
     def _predict_point(self, sizes):
-        return averaged_point(sizes, self._state.data, self._state.fits)
+        s = self._state
+        return corrected_point(sizes, s.data, s.fits, s.calibration)
 
     def _predict_interval(self, sizes, level):
         s = self._state
@@ -635,10 +656,12 @@ class CurveFit:
         """Whether the band's upper edge at the horizon is above ``target`` only because of
         the parts besides the bootstrap (family spread, model error, a fresh data set)."""
         s = self._state
-        parts = band_parts(np.array([horizon]), level, s.data, s.fits, s.boots)
+        at = np.array([horizon])
+        parts = band_parts(at, level, s.data, s.fits, s.boots)
         z = float(ndtri((1 + level) / 2))
         kappa = s.calibration.model_error_scale
-        boot_only = parts["estimate"][0] + z * kappa * parts["bootstrap_high"][0]
+        boot_only = corrected_point(at, s.data, s.fits, s.calibration)[0] \
+            + z * kappa * parts["bootstrap_high"][0]
         return not (boot_only > target)
 
 

@@ -47,6 +47,18 @@ def averaged_point(sizes, data: FitData, fits: dict) -> np.ndarray:
     return _combine(curves, at_max, weights, fits, sizes, data.n_max)
 
 
+def corrected_point(sizes, data: FitData, fits: dict,
+                    calibration: Calibration = NO_CALIBRATION) -> np.ndarray:
+    """The averaged forecast with the calibration's ``drop_scale`` applied to its change
+    beyond the largest measured size."""
+    sizes = np.asarray(sizes, dtype=float)
+    est = averaged_point(sizes, data, fits)
+    if calibration.drop_scale == 1.0 or not data.m:
+        return est
+    at_max = averaged_point(np.array([data.n_max]), data, fits)[0]
+    return np.where(sizes > data.n_max, at_max + calibration.drop_scale * (est - at_max), est)
+
+
 def _combine(curves: dict, at_max: dict, weights: dict, fits: dict, sizes, n_max: float):
     """Weighted average of family curves ((G,) or (B, G)); the last value shrinks the
     change beyond ``n_max`` by its weight."""
@@ -126,8 +138,9 @@ def prediction_band(sizes, level: float, data: FitData, fits: dict, boots: dict 
     """``(low, high)`` arrays: the prediction band of the averaged forecast at ``sizes``.
 
     On each side: z·√(κ²·(bootstrap² + families² + model_error²) + data_set²) around the
-    averaged forecast (parts as in :func:`band_parts`, κ the calibration's
-    ``model_error_scale``, z the normal quantile of the level); NaN ends without
+    averaged forecast corrected by the calibration's ``drop_scale`` (parts as in
+    :func:`band_parts`, κ the calibration's ``model_error_scale``, z the normal quantile
+    of the level); NaN ends without
     bootstrap. Then the band is opened down to 0 beyond the data for a curve that has not
     fallen (``FLAT_Z``), floored at the interval of the measured mean nearby, and clipped
     at 0 for errors.
@@ -143,7 +156,7 @@ def prediction_band(sizes, level: float, data: FitData, fits: dict, boots: dict 
     """
     sizes = np.asarray(sizes, dtype=float)
     parts = band_parts(sizes, level, data, fits, boots)
-    est = parts["estimate"]
+    est = corrected_point(sizes, data, fits, calibration)
     if not np.all(np.isfinite(parts["bootstrap_low"])):
         nan = np.full(len(sizes), math.nan)
         return nan, nan
