@@ -502,3 +502,85 @@ def test_prediction_band_is_no_narrower_than_the_measured_mean(nb_fit):
         half = stats.t.ppf(0.95, k - 1) * scale[j]  # Student-t interval of a mean (scipy.stats)
         assert row.high - row.estimate >= half * (1 - 1e-9)
         assert row.estimate - row.low >= min(half, row.estimate) * (1 - 1e-9)
+
+
+def _law_data(seed=3):
+    """0.05 + 2·n^−0.5 with binomial noise on 1,000 test rows (the known law of the
+    simulation in scripts/bench_forecast.py --simulate)."""
+    from curvefit.fitting.data import prepare_data
+
+    rng = np.random.default_rng(seed)
+    sizes = np.repeat([50, 85, 143, 243, 412, 697, 1181, 2000], 5)
+    e = rng.binomial(1000, 0.05 + 2 * sizes ** -0.5) / 1000
+    table = pd.DataFrame({"size": sizes, "test_error": e, "n_test": 1000})
+    return prepare_data(Curve.from_table(table), "test", "sem")
+
+
+def test_forecast_validation_never_starts_from_the_full_fit():
+    from curvefit.fitting.selection import fit_families, forecast
+
+    data = _law_data()
+    ff = fit_families(["power-law-floor"], data)["power-law-floor"]
+    forecast(ff, data, "test", range(5, 8))
+    before = ff.forecast_error
+    ff.theta = np.array([9.0, 0.1, 0.5])       # a full fit far off: the origins do not see it
+    forecast(ff, data, "test", range(5, 8))
+    assert ff.forecast_error == before
+
+
+def test_drift_is_net_of_the_estimation_noise(monkeypatch):
+    import curvefit.fitting.selection as selection
+
+    # the right family on its own law: its forecast errors are estimation noise and the
+    # held-out means' noise, so the model error beyond the data is 0; counting the
+    # estimation noise again (as the bootstrap band already holds it) gave 0.0037
+    data = _law_data()
+    ff = selection.fit_families(["power-law-floor"], data)["power-law-floor"]
+    selection.forecast(ff, data, "test", range(5, 8), drift_from=6)
+    assert ff.drift == 0.0
+    monkeypatch.setattr(selection, "prediction_variance", lambda *a, **k: np.zeros(len(a[-1])))
+    selection.forecast(ff, data, "test", range(5, 8), drift_from=6)
+    assert ff.drift > 0.001
+
+
+def _exact_law_fit():
+    n = np.repeat([50, 100, 200, 400, 800, 1600], 3)
+    table = pd.DataFrame({"size": n, "test_error": 0.05 + 2.0 * n ** -0.6
+                          + np.tile([-0.002, 0.0, 0.002], 6)})
+    return fit_curve(table, bootstrap=100, random_state=0)
+
+
+def test_unreachable_target_keeps_a_finite_lower_end():
+    fit = _exact_law_fit()
+    s = fit.samples_for(test_error=0.045)      # the floor is 5% (90% interval 4.2%–5.7%)
+    assert not s.reachable and math.isinf(s.n) and math.isinf(s.high)
+    assert math.isfinite(s.low) and s.low > fit.largest_size
+    assert "band reaches the target from about" in s.message
+
+
+def test_open_upper_end_says_why():
+    fit = _exact_law_fit()
+    s = fit.samples_for(test_error=0.055)
+    assert s.reachable and math.isinf(s.high)
+    assert "some bootstrap curves never reach" not in s.message
+    assert ("of the bootstrap curves stay above the target" in s.message
+            or "beyond the data the band carries" in s.message)
+    assert "so the interval has no upper limit" in s.message
+
+
+def test_fit_notes_say_how_the_forecast_was_made(nb_fit):
+    notes = " ".join(nb_fit.notes)
+    assert "fresh data set" in notes
+    assert "correction learned on" in notes           # the packaged corpus calibration
+    assert sum(nb_fit.family_weights.values()) == pytest.approx(1.0)
+    doc = nb_fit.to_dict()
+    assert doc["notes"] == nb_fit.notes and doc["calibration"]["source"] == "corpus"
+    plain = fit_curve(nb_fit.curve, bootstrap=60, random_state=1, calibration="none")
+    assert not plain.calibration.active and "correction learned" not in " ".join(plain.notes)
+    fit, plain = _exact_law_fit(), fit_curve(_exact_law_fit().curve, bootstrap=100,
+                                             random_state=0, calibration="none")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", FitWarning)  # 100× is flagged as a long extrapolation
+        e, p = fit.error_at(100 * fit.largest_size), plain.error_at(100 * fit.largest_size)
+    assert e.estimate == pytest.approx(p.estimate)   # the correction moves the band only
+    assert e.high - e.low < p.high - p.low            # κ < 1 narrows its model-error parts

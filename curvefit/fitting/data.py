@@ -134,7 +134,8 @@ def dataset_variance(sizes, sems, test_means, repeats, on: str, metric: str, row
     Repeats re-split one table, so their spread misses what they share: with a test set
     drawn afresh per repeat from N rows, two repeats share a fraction τ = n_test/N of
     their test rows and ρ = n/N of their training rows of size n (one fixed test set:
-    τ = 1, ρ = n/pool). With s² the spread across repeats, V_test = e(1 − e)/n_test the
+    τ = 1, ρ = n/pool). With s² the spread across repeats (a power law in n fitted through
+    the sizes), V_test = e(1 − e)/n_test the
     binomial variance of one test set's error rate (0 for other losses) and
     V_train = (s² − (1 − τ)·V_test)/(1 − ρ) the training-set part, the shared part is
     ρ·V_train + τ·V_test: what a fresh data set would move and the standard error
@@ -159,6 +160,12 @@ def dataset_variance(sizes, sems, test_means, repeats, on: str, metric: str, row
     sizes = np.asarray(sizes, dtype=float)
     k = np.asarray(repeats, dtype=float)
     spread = np.where(np.isfinite(sems) & (k >= 2), np.asarray(sems, dtype=float) ** 2 * k, 0.0)
+    seen = spread > 0
+    if seen.sum() >= 3:
+        # one size's spread from 3–5 repeats is rough (±70%); a power law in n through all
+        # sizes smooths it before 1/(1 − ρ) magnifies it
+        slope, level = np.polyfit(np.log(sizes[seen]), np.log(spread[seen]), 1)
+        spread = np.exp(level + slope * np.log(sizes))
     n_rows = rows["n_rows"]
     if rows["fixed_test"]:
         tau, rho = 1.0, np.minimum(sizes / rows["pool"], 1.0)
