@@ -20,7 +20,8 @@ def current_name(name):
 
     Examples
     --------
-    >>> current_name("pow3"), current_name("weibull"), current_name(None)
+    >>> old = next(k for k, v in LEGACY_NAMES.items() if v == "power-law-floor")
+    >>> current_name(old), current_name("weibull"), current_name(None)
     ('power-law-floor', 'weibull', None)
     """
     if isinstance(name, str):
@@ -39,7 +40,9 @@ def rename_legacy(doc):
 
     Examples
     --------
-    >>> rename_legacy({"best": "pow3", "note": "family mmf4; 3 repeats"})
+    >>> old = {v: k for k, v in LEGACY_NAMES.items()}
+    >>> rename_legacy({"best": old["power-law-floor"],
+    ...                "note": f"family {old['morgan-mercer-flodin']}; 3 repeats"})
     {'best': 'power-law-floor', 'note': 'family morgan-mercer-flodin; 3 repeats'}
     """
     if isinstance(doc, dict):
@@ -61,6 +64,6 @@ def rename_legacy(doc):
 
 
 def _rename_in_text(text: str) -> str:
-    """``family pow3`` (as notes store it) becomes ``family power-law-floor``."""
+    """``family OLD`` (as notes store it) becomes ``family NEW``."""
     return re.sub(r"\bfamily (\w+)\b",
                   lambda m: "family " + current_name(m.group(1)), text)
