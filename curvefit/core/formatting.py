@@ -1,12 +1,18 @@
 """How numbers read: one style for the terminal, the report and JSON labels.
 
 Every printed error, count, capacity and interval goes through these functions, so
-``0.005`` reads ``0.50%`` wherever it appears.
+``0.005`` reads ``0.50%`` wherever it appears. This module is also the one place that
+knows how a metric's values read: the 0-1 error (and its balanced form) as percentages,
+every other loss (MSE, MAE, 1 − ROC AUC, ...) as a plain number in its own units, with
+thousands separators and never in e-notation; `metric_name` and `quantity_name` give
+the words for it ("test error" only for the 0-1 error, "test MSE", "test 1 − ROC AUC").
 
 Examples
 --------
 >>> format_error(0.005), format_error(0.1234), format_error(1234.5, "mse")
 ('0.50%', '12.3%', '1,234')
+>>> quantity_name("test_error", "error"), quantity_name("test_error", "mse")
+('test error', 'test MSE')
 >>> format_count(12_345), format_count(float("inf"))
 ('12,300', 'unbounded')
 >>> format_interval(0.05, 0.12, 0.9, kind="error")
@@ -20,6 +26,12 @@ from typing import Any
 
 # Metrics whose values are rates in [0, 1], printed as percentages.
 RATE_METRICS = frozenset({"error", "balanced_error", "zero_one"})
+# The 0-1 loss (misclassified fraction): the loss that VC theory bounds.
+ZERO_ONE_METRICS = frozenset({"error", "zero_one"})
+# How the built-in losses are named in sentences; a scikit-learn scorer's name comes from
+# the scorer itself (``label`` in the run's ``metric_info``, see curvefit.measuring.metrics).
+METRIC_NAMES = {"error": "error", "zero_one": "error", "balanced_error": "balanced error",
+                "mse": "MSE", "mae": "MAE"}
 # Values closer to zero than this print as exactly zero (fit noise, not a measurement).
 ZERO_PRINT = 5e-7
 MISSING = "–"
@@ -40,6 +52,49 @@ def is_rate(metric: str | None) -> bool:
     return metric is None or metric in RATE_METRICS
 
 
+def is_zero_one(metric: str | None) -> bool:
+    """True for the 0-1 loss, the one loss the VC bounds speak about.
+
+    >>> is_zero_one("error"), is_zero_one(None), is_zero_one("mse"), is_zero_one("balanced_error")
+    (True, True, False, False)
+    """
+    return metric is None or metric in ZERO_ONE_METRICS
+
+
+def metric_name(metric: str | None, info: Any = None) -> str:
+    """The name a metric's values go by in sentences and headers.
+
+    ``info`` is the run's ``metric_info`` (`curvefit.measuring.metrics.Metric.to_dict`);
+    its ``label``, read from the scorer object when the curve was measured, wins.
+    Without it the built-in names are known, and any other name is shown as given.
+
+    >>> metric_name("error"), metric_name("mse"), metric_name("balanced_error")
+    ('error', 'MSE', 'balanced error')
+    >>> metric_name("roc_auc", {"label": "1 − ROC AUC"}), metric_name("roc_auc")
+    ('1 − ROC AUC', 'roc_auc')
+    """
+    if isinstance(info, dict) and info.get("label"):
+        return str(info["label"])
+    m = (metric or "error").strip()
+    return METRIC_NAMES.get(m, m)
+
+
+def quantity_name(kind: str, metric: str | None, info: Any = None) -> str:
+    """What a value is, in words: ``kind`` is ``"test_error"``, ``"train_error"`` or
+    ``"gap"``. Only the 0-1 error is called "error"; the gap is the generalization gap
+    whatever the loss.
+
+    >>> quantity_name("test_error", "error"), quantity_name("train_error", "mae")
+    ('test error', 'training MAE')
+    >>> quantity_name("test_error", "max_error", {"label": "max error"}), quantity_name("gap", "mse")
+    ('test max error', 'generalization gap')
+    """
+    if kind == "gap":
+        return "generalization gap"
+    where = "training" if kind in ("train", "train_error") else "test"
+    return f"{where} {metric_name(metric, info)}"
+
+
 def round_significant(value: float, digits: int = 3) -> float:
     """``value`` rounded to ``digits`` significant figures (0, inf and NaN unchanged).
 
@@ -52,24 +107,35 @@ def round_significant(value: float, digits: int = 3) -> float:
 
 
 def format_number(value: Any, digits: int = 4) -> str:
-    """A plain number: ``digits`` significant figures, separators from 1,000, no e-notation
-    between 1e-4 and 1e15; ``–`` when missing, ``∞`` for infinity.
+    """A plain number: ``digits`` significant figures, separators from 1,000, never
+    e-notation (outside 1e-6 to 1e15 a power of ten, ``4.43×10⁻¹²``); ``–`` when
+    missing, ``∞`` for infinity.
 
     >>> format_number(0.0812345), format_number(10780.4), format_number(3), format_number(None)
     ('0.08123', '10,780', '3', '–')
+    >>> format_number(999.7, 3), format_number(0.0000123), format_number(4.433e-12)
+    ('1,000', '0.0000123', '4.433×10⁻¹²')
     """
     if is_missing(value):
         return MISSING
     v = float(value)
     if math.isinf(v):
         return "∞" if v > 0 else "−∞"
-    if v == 0:
+    r = round_significant(v, digits)
+    if r == 0:
         return "0"
-    if 1000 <= abs(v) < 1e15:  # whole units with separators, rounded to `digits` figures
-        return f"{round_significant(v, digits):,.0f}"
-    if abs(v) >= 1e-4:
-        return f"{v:.{digits}g}"
-    return f"{v:.{max(digits - 1, 1)}e}"
+    if 1000 <= abs(r) < 1e15:  # whole units with separators, rounded to `digits` figures
+        return f"{r:,.0f}"
+    if 1e-6 <= abs(r) < 1000:
+        decimals = max(digits - 1 - math.floor(math.log10(abs(r))), 0)
+        text = f"{r:.{decimals}f}"
+        return text.rstrip("0").rstrip(".") if "." in text else text
+    power = math.floor(math.log10(abs(r)))
+    mantissa = format_number(r / 10.0 ** power, digits)
+    return f"{mantissa}×10{str(power).translate(_SUPERSCRIPT)}"
+
+
+_SUPERSCRIPT = str.maketrans("-0123456789", "⁻⁰¹²³⁴⁵⁶⁷⁸⁹")
 
 
 def format_error(value: Any, metric: str | None = "error") -> str:
@@ -88,7 +154,10 @@ def format_error(value: Any, metric: str | None = "error") -> str:
     if abs(v) < ZERO_PRINT:
         return "0%"
     pct = 100.0 * v
-    return f"{pct:.1f}%" if abs(pct) >= 0.995 else f"{pct:#.2g}%"
+    if abs(pct) >= 0.995:
+        return f"{pct:.1f}%"
+    decimals = 1 - math.floor(math.log10(abs(pct)))  # two significant figures, kept zeros
+    return f"{round_significant(pct, 2):.{decimals}f}%"
 
 
 def format_count(value: Any) -> str:
@@ -104,7 +173,7 @@ def format_count(value: Any) -> str:
     if math.isinf(v):
         return "unbounded"
     if abs(v) >= 1e15:
-        return f"{v:.3g}"
+        return format_number(v, 3)
     return f"{round_significant(v, 3):,.0f}" if abs(v) >= 1000 else f"{round(v):,.0f}"
 
 
@@ -115,7 +184,7 @@ def format_capacity(value: Any) -> str:
     v = float(value)
     if math.isinf(v):
         return "∞"
-    return f"{v:,.0f}" if abs(v) >= 100 else f"{v:.3g}"
+    return f"{v:,.0f}" if abs(v) >= 100 else format_number(v, 3)
 
 
 def format_level(level: float) -> str:
@@ -175,15 +244,32 @@ def format_estimate(estimate: Any, low: Any = None, high: Any = None, level: flo
     return f"{text} ({inner})"
 
 
+# Amounts of money below this print as "less than" it: a price that small is rounding.
+MONEY_FLOOR = 0.0001
+
+
 def format_money(value) -> str:
-    """An amount of money: whole units from 100 up, else cents; ``–`` when missing.
+    """An amount of money: whole units from 100 up, cents from 1 up, two significant
+    figures below 1 (``0.0012``), and ``less than 0.0001`` for tinier positive amounts;
+    ``–`` when missing.
 
     Examples
     --------
     >>> format_money(500), format_money(0.4), format_money(1234.5), format_money(None)
     ('500', '0.40', '1,234', '–')
+    >>> format_money(0.001), format_money(0.8275), format_money(3e-9), format_money(0)
+    ('0.0010', '0.83', 'less than 0.0001', '0')
     """
     if is_missing(value) or math.isinf(float(value)):
         return MISSING
     v = float(value)
-    return f"{v:,.0f}" if abs(v) >= 100 else f"{v:,.2f}"
+    if v == 0:
+        return "0"
+    if abs(v) >= 100:
+        return f"{v:,.0f}"
+    if abs(v) >= 0.995:
+        return f"{v:,.2f}"
+    if abs(v) < MONEY_FLOOR:
+        return f"less than {MONEY_FLOOR:g}" if v > 0 else f"more than −{MONEY_FLOOR:g}"
+    decimals = 1 - math.floor(math.log10(abs(round_significant(v, 2))))
+    return f"{round_significant(v, 2):.{max(decimals, 2)}f}"
