@@ -128,3 +128,39 @@ def test_constant_loss_is_nan_when_the_metric_cannot_score_a_constant():
     m = resolve_metric("neg_log_loss", "classification")
     assert np.isnan(constant_loss(m, [0, 0, 1], [0, 2, 1], "classification"))
     assert np.isnan(constant_loss(m, [], [0, 1], "classification"))
+
+
+def test_sign_and_label_come_from_the_scorer_object():
+    # reference: scikit-learn's scorers; get_scorer(name)._sign is -1 exactly when the
+    # scorer was made with greater_is_better=False (a negated loss)
+    from sklearn.metrics import get_scorer, max_error
+
+    X, y = load_diabetes(return_X_y=True)
+    est = LinearRegression().fit(X, y)
+    pred = est.predict(X)
+    for name in ("max_error", "neg_max_error"):
+        m = resolve_metric(name, "regression")
+        assert (m.sign, m.label, m.scorer) == (get_scorer("neg_max_error")._sign, "max error",
+                                               "neg_max_error")
+        # the max error itself, not 1 - score
+        assert m.loss(est, X, y)[0] == pytest.approx(max_error(y, pred), rel=1e-12)
+        assert m.loss(est, X, y, pred)[0] == pytest.approx(max_error(y, pred), rel=1e-12)
+    r2 = resolve_metric("r2", "regression")
+    assert (r2.sign, r2.label) == (get_scorer("r2")._sign, "1 − R²")
+    auc = resolve_metric("roc_auc", "classification")
+    assert (auc.sign, auc.label, auc.direction) == (1, "1 − ROC AUC", "lower is better")
+    assert resolve_metric("neg_log_loss", "classification").label == "log loss"
+    assert resolve_metric("error", "regression").label == "MSE"
+    assert resolve_metric("error", "classification").label == "error"
+
+
+def test_every_scorer_turns_into_a_loss_by_its_sign():
+    # reference: every scorer scikit-learn ships; a negated loss becomes the loss itself,
+    # a greater-is-better score becomes 1 - score, whatever its name says
+    from sklearn.metrics import get_scorer, get_scorer_names
+
+    for name in get_scorer_names():
+        m = resolve_metric(name, "classification")
+        sign = get_scorer(name)._sign
+        assert m.sign == sign, name
+        assert m.label.startswith("1 − ") == (sign > 0), name

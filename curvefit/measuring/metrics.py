@@ -8,15 +8,20 @@ Built-in names:
 * ``"mse"``, ``"mae"`` — mean squared / mean absolute error.
 * ``"balanced_error"`` — 1 − balanced accuracy (mean per-class recall).
 
-Any scikit-learn scorer name (``sklearn.metrics.get_scorers()``) is accepted too and
-turned into a loss as follows:
+Any scikit-learn scorer name (``sklearn.metrics.get_scorer_names()``) is accepted too,
+and so is the name of a loss whose scorer is its negation (``max_error`` for
+``neg_max_error``). The scorer object, not its name, says how it becomes a loss: its
+sign (``greater_is_better=False`` makes scikit-learn negate the loss) and its score
+function give
 
-* scorers named ``neg_*`` report a negated error; the loss is ``−score``
-  (e.g. ``neg_log_loss`` → log loss, ``neg_mean_absolute_error`` → MAE);
-* every other scorer is a score with best value 1 (accuracy, f1, roc_auc, r2, ...);
-  the loss is ``1 − score``.
+* a negated loss (sign −1): the loss is ``−score``, the metric itself, named by its
+  function (``neg_log_loss`` → "log loss", ``neg_max_error`` → "max error");
+* a score where greater is better (sign +1; accuracy, f1, roc_auc, r2, ...): the loss
+  is ``1 − score``, labelled so ("1 − ROC AUC", "1 − R²").
 
-The metric's name, the transform and the direction are recorded in the run metadata.
+The metric's name, label, transform and direction are recorded in the run metadata
+(``metric_info``), and every sentence names the metric by that label
+(`curvefit.core.formatting.metric_name`).
 
 `constant_loss` scores the constant predictor (the majority class of the training rows
 for a classifier, their mean for a regressor) with the same metric, so every cell also
@@ -53,6 +58,17 @@ class Metric:
         ``"decision_function|predict_proba"``.
     counts_errors : bool
         True for the 0-1 error, whose per-row error count is recorded.
+    direction : str
+        Always ``"lower is better"``: the value recorded is a loss.
+    label : str
+        The loss's name in sentences: ``"error"``, ``"MSE"``, ``"1 − ROC AUC"``,
+        ``"max error"``.
+    scorer : str
+        The scikit-learn scorer behind a ``"scorer"`` metric (``"neg_max_error"`` for
+        ``max_error``); "" otherwise.
+    sign : int
+        The scorer's sign: −1 when scikit-learn negates a loss (the loss is −score),
+        +1 for a score where greater is better (the loss is 1 − score).
     """
 
     name: str
@@ -61,6 +77,9 @@ class Metric:
     response: str = "predict"
     counts_errors: bool = False
     direction: str = "lower is better"
+    label: str = ""
+    scorer: str = ""
+    sign: int = 1
 
     def to_dict(self) -> dict:
         return asdict(self)
@@ -78,14 +97,13 @@ class Metric:
         if self.kind == "scorer":
             from sklearn.metrics import get_scorer
 
-            scorer = get_scorer(self.name)
+            scorer = get_scorer(self.scorer or self.name)
             if predictions is not None and self.response == "predict":
                 # a program's predictions: score them without calling predict again
                 score = scorer._sign * scorer._score_func(y, predictions, **scorer._kwargs)
             else:
                 score = scorer(estimator, X, y)
-            value = -float(score) if self.name.startswith("neg_") else 1.0 - float(score)
-            return value, None
+            return score_to_loss(float(score), self.sign), None
         pred = np.asarray(estimator.predict(X) if predictions is None else predictions)
         if self.kind == "zero_one":
             pred = pred.reshape(y.shape)
@@ -101,6 +119,53 @@ class Metric:
         if self.kind == "mse":
             return float(np.mean(diff ** 2)), None
         return float(np.mean(np.abs(diff))), None
+
+
+def score_to_loss(score: float, sign: int) -> float:
+    """The loss behind a scorer's value: ``−score`` for a negated loss (``sign`` −1),
+    ``1 − score`` for a score where greater is better (``sign`` +1).
+
+    >>> score_to_loss(-3.5, -1), score_to_loss(0.75, 1)
+    (3.5, 0.25)
+    """
+    return -score if sign < 0 else 1.0 - score
+
+
+# How scikit-learn's score functions are named in sentences (the rest: the function's
+# name without "_score", in words).
+SCORE_NAMES = {
+    "accuracy_score": "accuracy", "balanced_accuracy_score": "balanced accuracy",
+    "roc_auc_score": "ROC AUC", "average_precision_score": "average precision",
+    "r2_score": "R²", "f1_score": "F1", "explained_variance_score": "explained variance",
+    "matthews_corrcoef": "Matthews correlation", "log_loss": "log loss",
+    "brier_score_loss": "Brier score", "mean_squared_error": "MSE",
+    "root_mean_squared_error": "RMSE", "mean_absolute_error": "MAE",
+    "mean_absolute_percentage_error": "mean absolute percentage error",
+    "top_k_accuracy_score": "top-k accuracy",
+}
+
+
+def scorer_label(scorer: Any) -> str:
+    """The loss a scikit-learn scorer object stands for, in words: the loss itself when the
+    scorer negates it, ``1 − score`` for a score where greater is better.
+
+    Examples
+    --------
+    >>> from sklearn.metrics import get_scorer
+    >>> scorer_label(get_scorer("roc_auc")), scorer_label(get_scorer("neg_max_error"))
+    ('1 − ROC AUC', 'max error')
+    >>> scorer_label(get_scorer("f1_macro")), scorer_label(get_scorer("neg_log_loss"))
+    ('1 − F1 (macro)', 'log loss')
+    """
+    func = getattr(scorer, "_score_func", None)
+    func_name = getattr(func, "__name__", "") or "score"
+    base = SCORE_NAMES.get(func_name, func_name.removesuffix("_score").replace("_", " "))
+    kwargs = getattr(scorer, "_kwargs", {}) or {}
+    detail = [str(kwargs[k]) for k in ("multi_class", "average")
+              if kwargs.get(k) not in (None, "binary")]
+    if detail:
+        base += f" ({', '.join(detail)})"
+    return base if getattr(scorer, "_sign", 1) < 0 else f"1 − {base}"
 
 
 def constant_loss(metric: Metric, y_train, y_test, task: str) -> float:
@@ -163,8 +228,8 @@ def resolve_metric(name: str, task: str) -> Metric:
     Parameters
     ----------
     name : str
-        ``"error"``, ``"mse"``, ``"mae"``, ``"balanced_error"`` or a scikit-learn
-        scorer name.
+        ``"error"``, ``"mse"``, ``"mae"``, ``"balanced_error"``, a scikit-learn
+        scorer name, or a loss whose scorer is its negation (``max_error``).
     task : str
         ``"classification"`` or ``"regression"``.
 
@@ -192,33 +257,41 @@ def resolve_metric(name: str, task: str) -> Metric:
     '-neg_log_loss'
     >>> resolve_metric("f1_macro", "classification").transform
     '1 - f1_macro'
+    >>> m = resolve_metric("max_error", "regression")
+    >>> m.label, m.sign, m.scorer
+    ('max error', -1, 'neg_max_error')
     """
     name = str(name).strip()
     classification = task == "classification"
     if name == "error":
         if classification:
-            return Metric("error", "zero_one", "1 - accuracy (0-1 error)", counts_errors=True)
-        return Metric("error", "mse", "mean squared error")
+            return Metric("error", "zero_one", "1 - accuracy (0-1 error)", counts_errors=True,
+                          label="error")
+        return Metric("error", "mse", "mean squared error", label="MSE")
     if name in ("mse", "mae"):
         label = "mean squared error" if name == "mse" else "mean absolute error"
-        return Metric(name, name, label)
+        return Metric(name, name, label, label=name.upper())
     if name == "balanced_error":
         if not classification:
             raise InputError("metric 'balanced_error' needs a classification target; "
                              "use --metric mse or mae for a numeric target")
-        return Metric(name, "balanced_error", "1 - balanced accuracy")
+        return Metric(name, "balanced_error", "1 - balanced accuracy", label="balanced error")
     from sklearn.metrics import get_scorer, get_scorer_names
 
-    if name not in get_scorer_names():
+    names = set(get_scorer_names())
+    scorer_name = name if name in names else f"neg_{name}"
+    if scorer_name not in names:
         known = ", ".join(BUILTIN)
         raise InputError(f"unknown metric {name!r}; use one of {known} or a scikit-learn "
-                         "scorer name such as f1_macro, roc_auc, neg_log_loss")
-    scorer = get_scorer(name)
+                         "scorer name such as f1_macro, roc_auc, neg_log_loss, max_error")
+    scorer = get_scorer(scorer_name)
     response = getattr(scorer, "_response_method", "predict")
     if isinstance(response, (tuple, list)):
         response = "|".join(response)
-    transform = f"-{name}" if name.startswith("neg_") else f"1 - {name}"
-    return Metric(name, "scorer", transform, response=str(response))
+    sign = -1 if getattr(scorer, "_sign", 1) < 0 else 1
+    transform = f"-{scorer_name}" if sign < 0 else f"1 - {name}"
+    return Metric(name, "scorer", transform, response=str(response), label=scorer_label(scorer),
+                  scorer=scorer_name, sign=sign)
 
 
 def check_response(metric: Metric, estimator: Any) -> None:
