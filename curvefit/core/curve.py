@@ -129,6 +129,14 @@ class Curve:
         return name
 
     @property
+    def metric_info(self) -> dict:
+        """How the metric was turned into a loss (``name, kind, label, sign, ...``; see
+        `curvefit.measuring.metrics.Metric`), or {} for a plain table; its ``label`` names
+        the loss in sentences (`curvefit.core.formatting.metric_name`)."""
+        info = self.meta.get("metric_info")
+        return info if isinstance(info, dict) else {}
+
+    @property
     def has_train(self) -> bool:
         return bool(self.ok_points()["train_error"].notna().any())
 
