@@ -188,3 +188,100 @@ def test_bad_forecast_sizes_exit_2(files, args):
     r = run_cli(*args, "--bootstrap", "5")
     assert r.returncode == 2, (args, r.stdout, r.stderr)
     assert len(r.stderr.strip().splitlines()) == 1 and "Traceback" not in r.stderr
+
+
+def test_fit_prints_how_the_forecast_was_made(files):
+    """The notes (averaged families, fresh-data variance, the learned correction) are in the
+    text output, not only in --json (issue 13: say so when a learned correction is used)."""
+    from curvefit.core.curve import Curve
+    from curvefit.fitting.engine import fit_curve
+
+    r = run_cli("fit", files["run"], "--bootstrap", "30")
+    assert r.returncode == 0, r.stderr
+    printed = [line[len("note: "):] for line in r.stdout.splitlines() if line.startswith("note: ")]
+    fit = fit_curve(Curve.read(files["run"]), bootstrap=30, random_state=0)
+    assert printed == fit.notes and printed
+    if fit.calibration.active:
+        assert any("correction learned on" in line for line in printed)
+
+
+def _ranking_follows_the_rule(rows: list[dict]) -> None:
+    """Near-ties first (power-law-floor, power-law, then AICc), the other choosable families
+    by forecast error, then the families that cannot be chosen (failed fits last)."""
+    pref = {"power-law-floor": 0, "power-law": 1}
+    choosable = [r for r in rows if r["status"] == "converged" and r["eligible"]
+                 and r["family"] != "last-value"]
+    head = rows[:len(choosable)]
+    assert [r["family"] for r in head] == [r["family"] for r in choosable]
+    tied = [r for r in head if r["tied"]]
+    assert head[:len(tied)] == tied
+    keys = [(pref.get(r["family"], 2), r["aicc"]) for r in tied]
+    assert keys == sorted(keys)
+    rest = [r["forecast_error"] for r in head[len(tied):]]
+    assert rest == sorted(rest)
+    tail = rows[len(choosable):]
+    keys = [(r["status"] == "failed", r["forecast_error"] if r["forecast_error"] is not None
+             else float("inf")) for r in tail]
+    assert keys == sorted(keys)
+
+
+@pytest.mark.parametrize("which", ["run", "plateau"])
+def test_ranking_table_is_in_the_order_of_the_rule_that_chooses(files, tmp_path, which):
+    """Issue 16: the ranking is sorted by the rule that chooses and the runner-up is the
+    second by that rule (checked through the real CLI, --json and the text table)."""
+    from test_fitting import plateau_curve
+
+    run = files["run"] if which == "run" else plateau_curve().write(tmp_path / "plateau.json")
+    r = run_cli("fit", run, "--bootstrap", "30", "--json")
+    assert r.returncode == 0, r.stderr
+    doc = json.loads(r.stdout)
+    rows = doc["families"]
+    assert rows[0]["chosen"] and rows[0]["family"] == doc["best"]
+    assert doc["runner_up"] == rows[1]["family"]
+    _ranking_follows_the_rule(rows)
+    assert doc["settings"]["ranking_rule"]
+    r = run_cli("fit", run, "--bootstrap", "30")
+    lines = r.stdout.splitlines()
+    assert doc["settings"]["ranking_rule"] in lines[1]
+    table = [line.split() for line in lines[3:3 + len(rows)]]
+    assert [t[1] for t in table] == [row["family"] for row in rows]
+    assert table[0][-1] == "chosen" and table[1][-1] == "runner-up"
+    assert f"(runner-up: {doc['runner_up']})" in r.stdout
+
+
+def _pinned_curve():
+    """A power law without a floor (0.8·n^−0.35) with Gaussian noise: weibull's scale and
+    the floor of power-law-floor sit at or near their bounds."""
+    import numpy as np
+    import pandas as pd
+
+    n = np.repeat([50, 100, 200, 400, 800, 1600, 3200, 6400], 5)
+    rng = np.random.default_rng(3)
+    y = np.clip(0.8 * n ** -0.35 + rng.normal(0, 0.004, len(n)), 0, None)
+    return pd.DataFrame({"size": n, "repeat": np.tile(range(5), 8), "test_error": y})
+
+
+@pytest.mark.parametrize("family", ["weibull", "power-law-floor", "auto"])
+def test_every_parameter_lies_inside_its_own_interval(tmp_path, family):
+    """Issue 16: an estimate printed with an interval lies inside it ("4.433e-12 with 90% low
+    0, high 2.86e-13" must not happen); a value at a bound prints as the bound, and a
+    widened interval says so."""
+    csv = tmp_path / "pinned.csv"
+    _pinned_curve().to_csv(csv, index=False)
+    r = run_cli("fit", csv, "--families", family, "--bootstrap", "100", "--json")
+    assert r.returncode == 0, r.stderr
+    doc = json.loads(r.stdout)
+    for p in doc["parameters"]:
+        assert p["low"] <= p["estimate"] <= p["high"], p
+        assert p["note"] in ("", "at its bound", "widened to the estimate", "degenerate")
+    for key in ("asymptote", "exponent"):
+        if doc[key] and doc[key]["low"] is not None:
+            assert doc[key]["low"] <= doc[key]["estimate"] <= doc[key]["high"], doc[key]
+    notes = {p["note"] for p in doc["parameters"]} - {""}
+    r = run_cli("fit", csv, "--families", family, "--bootstrap", "100")
+    block = r.stdout.split("chosen:")[1].splitlines()[1:1 + len(doc["parameters"]) + 1]
+    for note in notes:
+        assert any(line.rstrip().endswith(note) for line in block), (note, block)
+    if family == "power-law-floor":     # the floor of a power law without one is at 0
+        floor = doc["parameters"][2]
+        assert floor["estimate"] == 0.0 and floor["note"] == "at its bound"

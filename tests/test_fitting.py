@@ -175,7 +175,7 @@ def test_predict_gives_a_table_and_error_at_one_estimate(nb_fit):
 
 def test_parameters_asymptote_exponent(nb_fit):
     p = nb_fit.parameters()
-    assert list(p.columns) == ["param", "estimate", "low", "high"]
+    assert list(p.columns) == ["param", "estimate", "low", "high", "note"]
     assert list(p["param"]) == list(get_family(nb_fit.best).params)
     a = nb_fit.asymptote()
     if a is not None:

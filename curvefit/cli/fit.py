@@ -41,17 +41,21 @@ def _print_ranking(fit) -> None:
     held = fit.n_holdout
     out.print(f"{QUANTITY[fit.on]} of {len(sizes)} sizes, {sizes.min():,.0f}–{sizes.max():,.0f} "
               "labelled samples", markup=False)
-    out.print(f"ranking (rolling forecast error over the {held} largest size{'s' if held != 1 else ''}; "
-              "near-ties go to power-law-floor/power-law, then to the lower AICc; a 'poor fit' misses the "
-              "measured points, lack of fit = reduced chi-square against their standard errors):",
+    out.print(f"ranking by the rule that chooses (forecast error = mean absolute error of rolling "
+              f"forecasts over the {held} largest size{'s' if held != 1 else ''}): "
+              f"{fit.ranking_rule}; families that cannot be chosen come last (a 'poor fit' misses "
+              "the measured points, lack of fit = reduced chi-square against their standard "
+              "errors; 'implausible' goes below 0 or above the measured range beyond the data):",
               markup=False)
     rows = []
     for rank, r in enumerate(fit.table.itertuples(), start=1):
         role = "chosen" if r.chosen else ("runner-up" if r.family == fit.runner_up else "")
+        status = r.status if r.eligible else "implausible"
         rows.append([str(rank), r.family, r.formula, format_number(r.forecast_error),
-                     format_number(r.aicc, 5), format_number(r.lack_of_fit, 3), r.status, role])
+                     format_number(r.aicc, 5), format_number(r.lack_of_fit, 3), status,
+                     "tie" if r.tied else "", role])
     print_table(["rank", "family", "formula", "forecast error", "AICc", "lack of fit",
-                 "status", ""], rows)
+                 "status", "", ""], rows)
     out.print("", markup=False)
 
 
@@ -59,9 +63,11 @@ def _print_chosen(fit, interval: float) -> None:
     out.print(f"chosen: {fit.best}   {fit.formula}"
               + (f"   (runner-up: {fit.runner_up})" if fit.runner_up else ""), markup=False)
     level = format_level(interval)
+    params = fit.parameters(interval)
     prow = [[p.param, format_number(p.estimate), format_number(p.low), format_number(p.high)]
-            for p in fit.parameters(interval).itertuples()]
-    print_table(["parameter", "estimate", f"{level} low", f"{level} high"], prow)
+            + ([p.note] if params["note"].any() else []) for p in params.itertuples()]
+    print_table(["parameter", "estimate", f"{level} low", f"{level} high"]
+                + ([""] if params["note"].any() else []), prow)
     asym, expo = fit.asymptote(interval), fit.exponent(interval)
     if asym is not None and math.isfinite(asym.estimate):
         out.print(f"as n grows, the {QUANTITY[fit.on]} {fit.describe_asymptote(interval)}",
@@ -93,14 +99,22 @@ def print_sanity(sanity) -> None:
         out.print(line, markup=False)
 
 
+def print_notes(fit) -> None:
+    """How the forecast and its band were made (the averaged families, the fresh-data
+    variance, a learned correction), one line each."""
+    for note in fit.notes:
+        out.print(f"note: {note}", markup=False)
+
+
 def print_fit(fit, interval: float, at=None, sanity=None) -> None:
     """Ranking, the chosen family's parameters, predictions at 2× and 10× (and at the
-    sizes asked for), then the sanity lines."""
+    sizes asked for), how they were made, then the sanity lines."""
     _print_ranking(fit)
     _print_chosen(fit, interval)
     print_forecasts(fit, predictions(fit, interval), interval, "predictions:")
     if at is not None:
         print_forecasts(fit, at, interval, "at the sizes asked for:")
+    print_notes(fit)
     if sanity is not None:
         print_sanity(sanity)
 

@@ -69,7 +69,7 @@ from curvefit.fitting.answers import (
     search_grid,
     unreachable_text,
 )
-from curvefit.fitting.bootstrap import bootstrap_parameters, percentile_interval, redrawn_means
+from curvefit.fitting.bootstrap import bootstrap_parameters, interval_around, redrawn_means
 from curvefit.fitting.calibration import Calibration, resolve_calibration
 from curvefit.fitting.data import ON_CHOICES, WEIGHT_CHOICES, FitData, prepare_data
 from curvefit.fitting.intervals import (
@@ -182,12 +182,14 @@ class CurveFit:
     best : str
         Name of the chosen family.
     runner_up : str or None
-        The next family in the ranking.
+        The second family of the ranking (``table``'s second row, unless that fit failed).
     on : str
         The fitted quantity: ``"test"``, ``"train"`` or ``"gap"`` (test − train).
     table : pandas.DataFrame
         One row per family: ``family, n_params, params, forecast_error, aicc, status,
-        chosen, message, lack_of_fit``; ranked, the chosen family first. ``status`` is
+        chosen, tied, eligible, message, lack_of_fit``; ranked by the rule that chooses
+        (``ranking_rule``), the chosen family first, then the families that cannot be
+        chosen. ``status`` is
         "converged", "poorly determined", "poor fit" (misses the measured points:
         ``lack_of_fit``, the reduced chi-square against the per-size standard errors,
         is far above the best family's) or "failed".
@@ -315,15 +317,48 @@ class CurveFit:
         return predict_natural(fit.family, fit.theta, sizes, self.on, self._state.data.sign)
 
     def parameters(self, interval: float = INTERVAL) -> pd.DataFrame:
-        """Parameters of the chosen family with bootstrap percentile intervals."""
+        """Parameters of the chosen family with bootstrap percentile intervals.
+
+        Returns a table ``param, estimate, low, high, note``. The estimate always lies
+        inside its interval: values within rounding of one of the family's bounds are
+        set to that bound, and where the refits' percentiles leave the estimate out (a
+        parameter pinned at a bound, a skewed bootstrap) the interval is widened to
+        reach it. ``note`` says "at its bound" (the estimate sits on a bound of the
+        family), "widened to the estimate", "degenerate" (low = high: the refits did not
+        move it) or "".
+
+        Examples
+        --------
+        >>> import numpy as np, pandas as pd
+        >>> n = np.repeat([50, 100, 200, 400, 800, 1600], 3)
+        >>> table = pd.DataFrame({"size": n, "test_error": 0.05 + 2.0 * n ** -0.6
+        ...                       + np.tile([-0.002, 0.0, 0.002], 6)})
+        >>> p = fit_curve(table, families="power-law-floor", bootstrap=50).parameters()
+        >>> bool(((p["low"] <= p["estimate"]) & (p["estimate"] <= p["high"])).all())
+        True
+        """
         level = check_level(interval)
         fit = self._state.fits[self.best]
         boot = self._state.boot
+        d = self._state.data
+        lower, upper = fit.family.bounds(signed=(d.sign < 0 or bool(np.nanmin(d.y) < 0))
+                                         and not fit.family.joint) if d.m else ((), ())
+        tol = 1e-9 * max(1.0, float(np.nanmax(np.abs(d.y)))) if d.m else 0.0
         rows = []
         for j, name in enumerate(fit.family.params):
-            lo, hi = percentile_interval(boot[:, j] if boot is not None else None, level)
-            rows.append({"param": name, "estimate": float(fit.theta[j]), "low": lo, "high": hi})
-        return pd.DataFrame(rows, columns=["param", "estimate", "low", "high"])
+            bounds = [b for b in (lower[j], upper[j]) if math.isfinite(b)] if d.m else []
+
+            def snap(v, bounds=bounds):
+                near = [b for b in bounds if math.isfinite(v) and abs(v - b) <= tol]
+                return float(near[0]) if near else float(v)
+
+            est = snap(float(fit.theta[j]))
+            vals = None if boot is None else np.array([snap(v) for v in boot[:, j]])
+            lo, hi, widened = interval_around(vals, level, est)
+            note = ("at its bound" if est in bounds else "widened to the estimate" if widened
+                    else "degenerate" if math.isfinite(lo) and lo == hi else "")
+            rows.append({"param": name, "estimate": est, "low": lo, "high": hi, "note": note})
+        return pd.DataFrame(rows, columns=["param", "estimate", "low", "high", "note"])
 
     def asymptote(self, interval: float = INTERVAL) -> Estimate | None:
         """The error the chosen family tends to as n → ∞, or None if it has none.
@@ -461,6 +496,11 @@ class CurveFit:
 
     # ------------------------------------------------------------ how the forecast is made
     @property
+    def ranking_rule(self) -> str:
+        """The rule the ranking in ``table`` follows (the one that chose ``best``), in words."""
+        return self._state.settings["ranking_rule"]
+
+    @property
     def family_weights(self) -> dict:
         """Shares of the averaged forecast by family (they sum to 1)."""
         return {k: ff.weight for k, ff in self._state.fits.items() if ff.weight > 0}
@@ -580,7 +620,7 @@ class CurveFit:
         vals = None
         if self._state.boot is not None:
             vals = np.array([fn(t) if np.all(np.isfinite(t)) else math.nan for t in self._state.boot])
-        lo, hi = percentile_interval(vals, level)
+        lo, hi, _ = interval_around(vals, level, est)
         return Estimate(est, lo, hi, level)
 
     def _companion(self, on: str) -> "CurveFit":
@@ -742,16 +782,19 @@ def fit_curve(curve, *, families="auto", on: str = "test", bootstrap: int = BOOT
     # drift is read from the origins a default hold-out would use (see selection.forecast)
     drift_from = m - (held if n_holdout is not None else min(held, max(1, math.ceil(m / 4))))
     lof = score_families(fits, data, held, drift_from)
-    best, order, flat, notes = _choose_family(fits, data, m - held, lof, curve.metric)
+    best, order, flat, notes, rule = _choose_family(fits, data, m - held, lof, curve.metric)
     family_weights(fits, best)
     boots = _bootstrap(fits, best, data, bootstrap, np.random.default_rng(random_state))
     boot = None if boots is None else boots[best]
     notes += _fit_warnings(data, fits[best], best, boot, bootstrap, flat, curve.metric)
     settings = {"families": families if isinstance(families, str) else list(families),
                 "bootstrap": bootstrap, "weights": weights, "random_state": random_state,
-                "holdout": held, "best": best}
-    result = CurveFit(best=best, runner_up=order[1] if len(order) > 1 else None, on=on,
-                      table=ranking_table(fits, best, order), warnings=notes, curve=curve,
+                "holdout": held, "best": best, "ranking_rule": rule}
+    table = ranking_table(fits, best, order)
+    # the runner-up is the second family of the ranking (a failed fit is no runner-up)
+    second = [k for k in table["family"][1:] if fits[k].theta is not None][:1]
+    result = CurveFit(best=best, runner_up=second[0] if second else None, on=on,
+                      table=table, warnings=notes, curve=curve,
                       _state=_State(data, fits, boots, settings, resolve_calibration(calibration)))
     if bootstrap > 0 and m:
         notes += _wide_interval_warning(result)
@@ -794,21 +837,22 @@ def _holdout_setting(n_holdout, holdout) -> int | None:
 
 
 def _choose_family(fits: dict, data: FitData, cut: int, lof, metric: str):
-    """``(best, order, flat, notes)``: the chosen family, the ranking, whether the curve is
-    flat, and the notes the choice needs."""
-    best, order = choose(fits, data, cut)
+    """``(best, order, flat, notes, rule)``: the chosen family, the ranking, whether the
+    curve is flat, the notes the choice needs, and the ranking rule in words."""
+    best, order, rule = choose(fits, data, cut)
     notes: list[str] = []
     flat = data.m >= 1 and float(np.ptp(data.y)) <= 1e-12 * max(1.0, float(np.max(np.abs(data.y))))
     if flat and data.m >= 2:
         # an exactly constant curve carries no shape; any family would fit rounding noise
         best, order = "last-value", ["last-value"] + [k for k in order if k != "last-value"]
+        rule = "the curve is flat, so the last value comes first, then the families as ranked"
         notes.append(f"the {data.on} curve is flat at {format_error(data.y[-1], metric)}; "
                      "the last value is used")
     if lof is not None and fits[best].status == "poor fit" and not flat:
         notes.append(f"no curve family describes the measured points within their standard "
                      f"errors (best reduced chi-square {format_number(lof[0], 3)}); {best} is "
                      "the best forecaster, read its answers as rough")
-    return best, order, flat, notes
+    return best, order, flat, notes, rule
 
 
 def _fit_warnings(data: FitData, chosen, best: str, boot, bootstrap: int, flat: bool,

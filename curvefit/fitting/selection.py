@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 
 from curvefit.core.errors import InputError
+from curvefit.core.formatting import format_number
 from curvefit.fitting.data import FitData, noise_scale
 from curvefit.fitting.families import FAMILIES, LEGACY_NAMES, current_name
 from curvefit.fitting.least_squares import FamilyFit, fit_family, predict_natural, prediction_variance
@@ -239,7 +240,17 @@ def _preference(name: str) -> int:
 
 
 def choose(fits: dict, data: FitData, cut: int):
-    """Chosen family and the ranking: forecast error first, AICc among near-ties."""
+    """``(best, order, rule)``: the chosen family, the ranking by the rule that chose it,
+    and that rule in one plain sentence.
+
+    Among the families that can be chosen (converged, plausible beyond the data, not the
+    last value), the ranking puts first the near-ties of the best forecast error (within
+    ``NEAR_TIE`` of it, or a quarter of the held-out means' noise), ordered power-law-floor,
+    power-law, then by AICc; then the other families by forecast error. With fewer than
+    ``MIN_VALIDATION_POINTS`` sizes before the held-out ones, the converged default
+    families come first in ``DEFAULT_PREFERENCE`` order, then the rest by forecast error.
+    Families that cannot be chosen are ranked after all of these by :func:`ranking_table`.
+    """
     real = {k: v for k, v in fits.items()
             if not v.family.baseline and v.theta is not None and v.eligible}
     pool = {k: v for k, v in real.items() if v.status == "converged" and math.isfinite(v.forecast_error)}
@@ -251,7 +262,9 @@ def choose(fits: dict, data: FitData, cut: int):
             rest = sorted((k for k in real if k not in preferred),
                           key=lambda k: (_finite_or_inf(real[k].forecast_error),
                                          _finite_or_inf(real[k].aicc)))
-            return preferred[0], preferred + rest
+            rule = (f"too few sizes before the held-out ones to rank by forecast, so "
+                    f"{', '.join(preferred)} come first, then the others by forecast error")
+            return preferred[0], preferred + rest, rule
     if pool:
         best_fe = min(v.forecast_error for v in pool.values())
         held = data.sem[cut:]
@@ -266,13 +279,17 @@ def choose(fits: dict, data: FitData, cut: int):
             pool[k].tied = True
         rest = sorted((k for k in pool if k not in near), key=lambda k: pool[k].forecast_error)
         order = near + rest
+        rule = (f"families whose forecast error is within {format_number(tol, 3)} of the best "
+                f"({format_number(best_fe, 4)}) are near-ties and come first, power-law-floor, "
+                "then power-law, then the lower AICc; the others follow by forecast error")
     else:
         cands = {k: v for k, v in real.items() if v.status == "converged"} or real
         order = sorted(cands, key=lambda k: _finite_or_inf(cands[k].aicc))
+        rule = "no family could be scored on held-out sizes, so they are ranked by AICc"
     if not order:
         base = [k for k, v in fits.items() if v.family.baseline]
-        return base[0], base[:1]
-    return order[0], order
+        return base[0], base[:1], "no curve family could be fitted; the last value is used"
+    return order[0], order, rule
 
 
 def family_weights(fits: dict, best: str) -> dict[str, float]:
@@ -324,6 +341,11 @@ def _finite_or_inf(x: float) -> float:
 
 
 def ranking_table(fits: dict, best: str, order: list) -> pd.DataFrame:
+    """One row per family in ranking order: ``order`` (the families that can be chosen,
+    as :func:`choose` ranked them), then those that cannot (poor fit, poorly determined,
+    implausible beyond the data, the last value) by forecast error, failed fits last.
+    ``tied`` marks the near-ties of the best forecast error, ``eligible`` False a family
+    whose extrapolation goes where the quantity cannot."""
     ranked = list(order) + sorted(
         (k for k in fits if k not in order),
         key=lambda k: (fits[k].status == "failed", _finite_or_inf(fits[k].forecast_error)))
@@ -335,9 +357,10 @@ def ranking_table(fits: dict, best: str, order: list) -> pd.DataFrame:
             "params": ({p: float(v) for p, v in zip(ff.family.params, ff.theta)}
                        if ff.theta is not None else {}),
             "forecast_error": float(ff.forecast_error), "aicc": float(ff.aicc),
-            "status": ff.status, "chosen": k == best, "message": ff.message,
+            "status": ff.status, "chosen": k == best, "tied": bool(ff.tied),
+            "eligible": bool(ff.eligible), "message": ff.message,
             "lack_of_fit": float(ff.lack_of_fit),
         })
     return pd.DataFrame(rows, columns=["family", "n_params", "params", "forecast_error", "aicc",
-                                       "status", "chosen", "message", "lack_of_fit", "formula"])
-
+                                       "status", "chosen", "tied", "eligible", "message",
+                                       "lack_of_fit", "formula"])
