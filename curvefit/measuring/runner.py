@@ -372,9 +372,7 @@ def _plan_split(inputs: _Inputs, settings: _Settings, splitter, sizes) -> _Split
     sizes = _check_sizes(sizes, plans, unit)
     leak = _duplicate_test_fraction(inputs, splitter, plans)
     if leak is not None and leak > _splits.LEAK_FRACTION:
-        warnings.warn(f"{leak:.1%} of the test rows have an identical copy in the training "
-                      "pool; if rows repeat per patient, machine or site, the curve is "
-                      "optimistic: split by that column with --groups", _splits.LeakWarning,
+        warnings.warn(_splits.shared_rows_message(leak, inputs.X), _splits.LeakWarning,
                       stacklevel=3)  # the caller of measure
     return _SplitPlan(splitter=splitter, plans=plans, sizes=sizes, unit=unit,
                       description=splitter.describe(), duplicate_test_fraction=leak)

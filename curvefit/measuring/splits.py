@@ -37,12 +37,15 @@ from curvefit.core.errors import InputError
 MIN_PER_CLASS = 2
 # Smallest default subsample for a numeric target (common practice).
 MIN_ROWS_REGRESSION = 10
-# Shared duplicate feature rows between train and test above which a split looks leaky.
+# Share of test rows with an identical copy among the training rows above which the
+# measure warns (common practice: a few coincidences are normal in any table).
 LEAK_FRACTION = 0.05
 
 
 class LeakWarning(UserWarning):
-    """The split looks leaky: identical feature rows on both sides of it."""
+    """Identical feature rows on both sides of a split: a leak when they are copies of one
+    entity (then split by it with ``groups``), harmless when distinct entities merely
+    share coarse feature values."""
 
 
 @dataclass(frozen=True, eq=False)
@@ -468,6 +471,43 @@ def default_sizes(floor: int, largest: int, count: int = 10) -> list[int]:
     return sorted({int(round(v)) for v in np.geomspace(floor, largest, count)})
 
 
+def _row_hashes(X) -> np.ndarray:
+    import pandas as pd
+
+    frame = X if isinstance(X, pd.DataFrame) else pd.DataFrame(np.asarray(X))
+    return pd.util.hash_pandas_object(frame, index=False).to_numpy()
+
+
+def shared_rows_message(fraction: float, X) -> str:
+    """The warning about test rows with an identical copy among the training rows.
+
+    It says what was seen (the share, and how many distinct feature rows the table
+    has) and when it matters, without presuming a leak: copies of one entity (a person,
+    machine or site measured twice) make the test error optimistic and call for a
+    group split, while distinct entities that give the same coarse answers (survey
+    scales, a few categories) are harmless.
+
+    Examples
+    --------
+    >>> X = np.array([[1, 0], [1, 0], [0, 1], [1, 1]])
+    >>> print(shared_rows_message(0.33, X))  # doctest: +NORMALIZE_WHITESPACE
+    33% of the test rows have an identical copy among the training rows (the 2 features
+    take 3 distinct combinations over 4 rows). If a copy is the same entity measured twice
+    (a person, machine or site), the test error is optimistic: split by the column that
+    names the entity with --groups. If distinct entities share coarse feature values,
+    the copies are harmless.
+    """
+    n_rows, n_features = int(np.shape(X)[0]), int(np.shape(X)[1]) if np.ndim(X) > 1 else 1
+    n_distinct = len(np.unique(_row_hashes(X))) if n_rows else 0
+    share = f"{fraction:.0%}" if fraction >= 0.1 else f"{fraction:.1%}"
+    return (f"{share} of the test rows have an identical copy among the training rows "
+            f"(the {n_features} feature{'s' if n_features != 1 else ''} take {n_distinct:,} "
+            f"distinct {'combinations' if n_features != 1 else 'values'} over {n_rows:,} rows). If a copy is the same entity measured "
+            "twice (a person, machine or site), the test error is optimistic: split by the "
+            "column that names the entity with --groups. If distinct entities share coarse "
+            "feature values, the copies are harmless.")
+
+
 def shared_duplicate_fraction(X, test: np.ndarray, pool: np.ndarray) -> float:
     """Fraction of test rows whose feature values appear identically in the training pool.
 
@@ -481,10 +521,7 @@ def shared_duplicate_fraction(X, test: np.ndarray, pool: np.ndarray) -> float:
     >>> shared_duplicate_fraction(X, np.array([0, 2]), np.array([1, 3]))
     0.5
     """
-    import pandas as pd
-
-    frame = X if isinstance(X, pd.DataFrame) else pd.DataFrame(np.asarray(X))
-    hashes = pd.util.hash_pandas_object(frame, index=False).to_numpy()
+    hashes = _row_hashes(X)
     if len(test) == 0:
         return 0.0
     return float(np.isin(hashes[test], hashes[pool]).mean())
