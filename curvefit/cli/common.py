@@ -1,7 +1,13 @@
-"""Helpers shared by the subcommands: output streams, JSON, option names, list parsing."""
+"""Helpers shared by the subcommands: output streams, JSON, option names, warnings, status.
+
+Start-up matters (``curvefit --help`` and ``curvefit bound`` should answer at once), so
+this module and every command module import numpy, pandas, scipy, scikit-learn and
+matplotlib only inside the functions that need them.
+"""
 
 from __future__ import annotations
 
+import os
 import re
 import sys
 from typing import Any
@@ -10,7 +16,7 @@ import typer
 from rich.console import Console
 
 from curvefit.core.defaults import INTERVAL
-from curvefit.core.jsonio import dumps
+from curvefit.core.progress import Status
 
 # Human-readable output goes to stdout unless --json is set; progress and warnings to stderr.
 out = Console(highlight=False, soft_wrap=True)
@@ -72,13 +78,65 @@ def pick_interval(interval: float, level: float | None) -> float:
 
 def emit_json(obj: Any) -> None:
     """Print one JSON document on stdout (and nothing else there)."""
+    from curvefit.core.jsonio import dumps
+
     sys.stdout.write(dumps(obj))
     sys.stdout.flush()
 
 
+PACKAGE_DIR = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+# --no-warnings switches warnings off for the whole command; --quiet never does.
+WARNINGS = {"shown": True}
+
+
+def show_warnings(shown: bool) -> None:
+    """Switch the warning lines on or off (``--no-warnings``)."""
+    WARNINGS["shown"] = bool(shown)
+
+
 def warn(message: str, quiet: bool = False) -> None:
-    if not quiet:
-        err.print(f"[yellow]warning:[/yellow] {message}", markup=True, highlight=False)
+    """One warning line on stderr: ``curvefit: warning: <message>``.
+
+    Warnings are shown whatever ``--quiet`` says (``quiet`` is accepted and ignored: it
+    hides progress only); only ``--no-warnings`` silences them. The message is folded
+    onto one line.
+    """
+    if not WARNINGS["shown"]:
+        return
+    from rich.markup import escape
+
+    text = " ".join(str(message).split())
+    err.print(f"curvefit: [yellow]warning:[/yellow] {escape(text)}", markup=True, highlight=False)
+
+
+def show_python_warning(message, category, filename, lineno, file=None, line=None) -> None:
+    """`warnings.showwarning` for the command line: curvefit's own warnings become one
+    `warn` line; the numerical chatter of libraries (numpy's "invalid value", matplotlib,
+    scikit-learn's convergence notes inside a cell) is dropped, not dumped with a
+    source line."""
+    if own_warning(category, filename):
+        warn(str(message))
+
+
+def own_warning(category, filename: str) -> bool:
+    """True for a warning curvefit raised (its class or the code that raised it is ours).
+
+    Examples
+    --------
+    >>> from curvefit.core.errors import FitWarning
+    >>> own_warning(FitWarning, "/x/numpy/lib.py"), own_warning(RuntimeWarning, "/x/numpy/lib.py")
+    (True, False)
+    """
+    if getattr(category, "__module__", "").startswith("curvefit"):
+        return True
+    return os.path.abspath(str(filename)).startswith(PACKAGE_DIR + os.sep)
+
+
+def status(text: str, quiet: bool = False):
+    """``with status("fitting ..."):`` says what the command is doing when the block takes
+    more than a second or two (a plain line in a log, a transient line on a terminal);
+    nothing with ``--quiet``."""
+    return Status(enabled=not quiet).phase(text)
 
 
 def print_table(head: list[str], rows: list[list[str]], *, align: str = "right",

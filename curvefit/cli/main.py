@@ -2,13 +2,21 @@
 
 Exit codes: 0 done; 1 a quality gate or tracked regression failed; 2 bad input or
 usage (one line on stderr, no traceback); 3 finished with some failed fits; 130
-interrupted (finished work is kept; ``--resume`` continues).
+interrupted (finished work is kept; ``--resume`` continues); 143 and 129 stopped by
+SIGTERM or SIGHUP, which end a run the way Ctrl-C does.
+
+Warnings print as one line each (``curvefit: warning: ...``) whatever ``--quiet`` says;
+``--no-warnings``, before or after the command name, switches them off. Each command
+module imports its heavy libraries inside its command function, so registering all of
+them here costs little and ``curvefit --help`` answers at once.
 """
 
 from __future__ import annotations
 
 import importlib
+import signal
 import sys
+import warnings
 
 import typer
 
@@ -18,8 +26,10 @@ except ImportError:  # pragma: no cover - older typer uses click itself
     from click import exceptions as _cx
 
 from curvefit.cli import COMMANDS
-from curvefit.cli.common import option_message
+from curvefit.cli.common import option_message, show_python_warning, show_warnings
 from curvefit.core.errors import InputError
+
+NO_WARNINGS = "--no-warnings"
 
 app = typer.Typer(
     name="curvefit",
@@ -42,9 +52,15 @@ def _version(value: bool):
 
 @app.callback()
 def _root(version: bool = typer.Option(False, "--version", callback=_version, is_eager=True,
-                                       help="Print the version and exit.")):
+                                       help="Print the version and exit."),
+          no_warnings: bool = typer.Option(False, NO_WARNINGS,
+                                           help="Print no warnings (they show even with --quiet, "
+                                                "which hides progress only). Also accepted after "
+                                                "the command name.")):
     """Measure learning curves, fit them with intervals, and answer how many labels a
     model needs. Estimates are statistical, not guarantees."""
+    if no_warnings:
+        show_warnings(False)
 
 
 for _name in COMMANDS:
@@ -53,8 +69,14 @@ for _name in COMMANDS:
 
 def main(argv: list[str] | None = None) -> None:
     """Console-script entry point."""
+    _stop_like_ctrl_c()
+    argv = take_no_warnings(sys.argv[1:] if argv is None else list(argv))
     try:
-        code = app(args=argv, prog_name="curvefit", standalone_mode=False)
+        with warnings.catch_warnings():
+            # library warnings must not reach the user as Python's two-line dumps
+            warnings.simplefilter("default")
+            warnings.showwarning = show_python_warning
+            code = app(args=argv, prog_name="curvefit", standalone_mode=False)
     except InputError as exc:
         _fail(option_message(str(exc)))
     except _cx.UsageError as exc:
@@ -71,13 +93,44 @@ def main(argv: list[str] | None = None) -> None:
     except (KeyboardInterrupt, typer.Abort):
         print("curvefit: interrupted; finished work is kept (use --resume to continue)",
               file=sys.stderr)
-        sys.exit(130)
+        sys.exit(128 + _STOPPED_BY[0] if _STOPPED_BY else 130)
     except typer.Exit as exc:
         sys.exit(exc.exit_code)
     if code == 130:  # typer turns Ctrl-C into exit code 130 without a word
         print("curvefit: interrupted; finished work is kept (use --resume to continue)",
               file=sys.stderr)
     sys.exit(code if isinstance(code, int) else 0)
+
+
+def take_no_warnings(argv: list[str]) -> list[str]:
+    """``argv`` without ``--no-warnings`` (anywhere before ``--``), which switches warnings off.
+
+    Examples
+    --------
+    >>> take_no_warnings(["fit", "run.json", "--no-warnings"])
+    ['fit', 'run.json']
+    """
+    cut = argv.index("--") if "--" in argv else len(argv)
+    show_warnings(NO_WARNINGS not in argv[:cut])
+    return [a for a in argv[:cut] if a != NO_WARNINGS] + argv[cut:]
+
+
+_STOPPED_BY: list[int] = []  # the signal that stopped the command, if any
+
+
+def _stop_on_signal(signum, frame) -> None:
+    if not _STOPPED_BY:  # a second signal must not cut the clean-up short
+        _STOPPED_BY.append(signum)
+        raise KeyboardInterrupt
+
+
+def _stop_like_ctrl_c() -> None:
+    """SIGTERM and SIGHUP take Ctrl-C's path: finished cells stay in the journal, workers,
+    trainer programs and temporary files go, and the exit code is 128 + the signal."""
+    for name in ("SIGTERM", "SIGHUP"):
+        sig = getattr(signal, name, None)
+        if sig is not None and signal.getsignal(sig) is not signal.SIG_IGN:  # nohup stays nohup
+            signal.signal(sig, _stop_on_signal)
 
 
 def _fail(message: str) -> None:

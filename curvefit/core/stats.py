@@ -14,7 +14,6 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import special, stats
 
 from curvefit.core.estimate import Estimate
 from curvefit.core.validate import check_level
@@ -44,6 +43,8 @@ def t_quantile(level: float, dof: float) -> float:
     level = check_level(level)
     if not dof or dof < 1:
         return math.nan
+    from scipy import stats  # scipy loads slowly: only when a quantile is needed
+
     return float(stats.t.ppf(0.5 + level / 2.0, dof))
 
 
@@ -72,6 +73,8 @@ def binomial_limits(errors, n_test, alpha):
     (1 when k = n), with B⁻¹ the inverse regularised incomplete beta function; ``k`` may be
     a non-integer expected count. The one implementation behind every exact interval.
     """
+    from scipy import special
+
     k, n, a = np.broadcast_arrays(np.asarray(errors, dtype=float), np.asarray(n_test, dtype=float),
                                   np.asarray(alpha, dtype=float))
     with np.errstate(invalid="ignore", divide="ignore"):
