@@ -85,6 +85,9 @@ def emit_json(obj: Any) -> None:
 
 
 PACKAGE_DIR = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+# The help of every command's --quiet: it hides feedback, never warnings.
+QUIET_HELP = "No progress or status lines on stderr (warnings still show; --no-warnings hides them)."
+
 # --no-warnings switches warnings off for the whole command; --quiet never does.
 WARNINGS = {"shown": True}
 

@@ -8,7 +8,16 @@ from typing import Optional
 
 import typer
 
-from curvefit.cli.common import emit_json, interval_option, level_alias, out, pick_interval, warn
+from curvefit.cli.common import (
+    QUIET_HELP,
+    emit_json,
+    interval_option,
+    level_alias,
+    out,
+    pick_interval,
+    status,
+    warn,
+)
 from curvefit.cli.common import print_table as _print_table
 from curvefit.core.defaults import BOOTSTRAP, SEED
 from curvefit.core.errors import FitWarning
@@ -137,7 +146,7 @@ def register(app: typer.Typer) -> None:
                                               "(e.g. 20000,50000)."),
         out_file: Optional[str] = typer.Option(None, "--out",
                                                help="Also write the fit as JSON to this file."),
-        quiet: bool = typer.Option(False, "--quiet", help="No warnings on stderr."),
+        quiet: bool = typer.Option(False, "--quiet", help=QUIET_HELP),
         json_out: bool = typer.Option(False, "--json", help="Print the fit as JSON only."),
     ):
         """Fit the curve families, rank them and predict at 2× and 10× the largest size
@@ -150,7 +159,8 @@ def register(app: typer.Typer) -> None:
 
         interval = check_level(pick_interval(interval, level))
         sizes = parse_list(at, float, name="--at size") if at is not None else None
-        with warnings.catch_warnings():
+        with warnings.catch_warnings(), status(f"fitting the curve families to {run} "
+                                               f"({bootstrap} bootstrap replicates)", quiet):
             # the 10× prediction is asked for on purpose; its caution is in the fit's warnings
             warnings.simplefilter("ignore", FitWarning)
             curve, fit = read_and_fit(run, on=on, families=families, bootstrap=bootstrap,

@@ -12,7 +12,7 @@ from typing import List, Optional
 
 import typer
 
-from curvefit.cli.common import emit_json, out, print_table, warn
+from curvefit.cli.common import QUIET_HELP, emit_json, out, print_table, warn
 from curvefit.core import defaults
 from curvefit.core.errors import InputError
 from curvefit.core.formatting import MISSING, format_error
@@ -135,7 +135,7 @@ def register(app: typer.Typer) -> None:
                                             help="Time-order column: test on the latest rows."),
         size_unit: Optional[str] = typer.Option(None, "--size-unit", help="Sizes count rows or groups."),
         config: Optional[str] = typer.Option(None, "--config", help="TOML file with option values."),
-        quiet: Optional[bool] = typer.Option(None, "--quiet", help="No progress bar or warnings."),
+        quiet: Optional[bool] = typer.Option(None, "--quiet", help=QUIET_HELP),
         as_json: Optional[bool] = typer.Option(None, "--json", help="Print a JSON summary only."),
     ):
         """Train a model on growing subsamples; record train/test error per size and repeat."""

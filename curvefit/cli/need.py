@@ -7,7 +7,16 @@ from typing import Optional
 
 import typer
 
-from curvefit.cli.common import emit_json, interval_option, level_alias, out, pick_interval, warn
+from curvefit.cli.common import (
+    QUIET_HELP,
+    emit_json,
+    interval_option,
+    level_alias,
+    out,
+    pick_interval,
+    status,
+    warn,
+)
 from curvefit.cli.fit import BOOTSTRAP_HELP, WEIGHTS_HELP, print_sanity, print_table
 from curvefit.core.defaults import BOOTSTRAP, SEED
 from curvefit.core.errors import InputError
@@ -128,7 +137,7 @@ def register(app: typer.Typer) -> None:
         interval: float = interval_option(),
         level: Optional[float] = level_alias(),
         seed: int = typer.Option(SEED, "--seed", help="Random seed of the bootstrap."),
-        quiet: bool = typer.Option(False, "--quiet", help="No warnings on stderr."),
+        quiet: bool = typer.Option(False, "--quiet", help=QUIET_HELP),
         json_out: bool = typer.Option(False, "--json", help="Print the answer as JSON only."),
     ):
         """Labelled samples needed for a target test error (--error) or gap (--gap), priced;
@@ -144,10 +153,12 @@ def register(app: typer.Typer) -> None:
         interval = pick_interval(interval, level)
         extras = (parse_list(extra, float, name="extra amount", integer_range=True)
                   if extra is not None else None)
-        need = labels_needed(Curve.read(run), test_error=error, gap=gap, current_n=current,
-                             cost_per_label=label_cost, budget=budget, extra=extras,
-                             vc_dim=vc_dim, interval=interval, families=families,
-                             bootstrap=bootstrap, weights=weights, random_state=seed)
+        with status(f"fitting the curve families to {run} ({bootstrap} bootstrap replicates) "
+                    "and solving for the answer", quiet):
+            need = labels_needed(Curve.read(run), test_error=error, gap=gap, current_n=current,
+                                 cost_per_label=label_cost, budget=budget, extra=extras,
+                                 vc_dim=vc_dim, interval=interval, families=families,
+                                 bootstrap=bootstrap, weights=weights, random_state=seed)
         if json_out:
             emit_json(need.to_dict())
             return

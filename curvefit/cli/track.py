@@ -26,7 +26,7 @@ from typing import Optional
 
 import typer
 
-from curvefit.cli.common import emit_json, err, out, warn
+from curvefit.cli.common import QUIET_HELP, emit_json, err, out, status, warn
 from curvefit.core.defaults import BOOTSTRAP, INTERVAL
 from curvefit.core.errors import InputError
 
@@ -114,7 +114,7 @@ def register(app: typer.Typer) -> None:
                                                  help=f"Interval level (default {INTERVAL})."),
         seed: Optional[int] = typer.Option(None, "--seed", help="Seed of the measurement and bootstrap."),
         json_out: bool = typer.Option(False, "--json", help="Print JSON on stdout."),
-        quiet: bool = typer.Option(False, "--quiet", help="No warnings or progress."),
+        quiet: bool = typer.Option(False, "--quiet", help=QUIET_HELP),
     ):
         """Record a run in the history store, compare it with the series' baseline and
         exit 1 on a regression (2 if the data or metric changed)."""
@@ -134,7 +134,10 @@ def register(app: typer.Typer) -> None:
         if junit is not None and not Path(junit).parent.is_dir():
             raise InputError(f"--junit {junit}: directory {Path(junit).parent} does not exist")
         curve = Curve.read(run) if run is not None else None
-        result = track_job(job, curve=curve, progress=not quiet and sys.stderr.isatty())
+        # a job that measures first shows the measuring progress instead
+        with status(f"fitting and comparing with the baseline of series {job['series']}",
+                    quiet or curve is None):
+            result = track_job(job, curve=curve, progress=not quiet)
         for note in result.warnings:
             warn(note, quiet)
         _report(result, json_out, quiet, None if junit is None else Path(junit))
