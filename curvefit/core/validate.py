@@ -26,9 +26,8 @@ from __future__ import annotations
 import math
 import numbers
 import os
+import sys
 from typing import Callable
-
-import numpy as np
 
 from curvefit.core.errors import InputError
 
@@ -206,7 +205,8 @@ def check_error_target(value, name: str = "target_error", rate: bool = True) -> 
 def check_flag(value, name: str) -> bool:
     """A yes/no setting: ``True`` or ``False`` only (``"false"`` or ``"no"`` are refused,
     since ``bool("false")`` is True)."""
-    if isinstance(value, (bool, np.bool_)):
+    np = sys.modules.get("numpy")  # a numpy bool exists only once numpy is loaded
+    if isinstance(value, bool) or (np is not None and isinstance(value, np.bool_)):
         return bool(value)
     raise InputError(f"{name} must be true or false (without quotes), got {value!r}")
 
@@ -310,6 +310,8 @@ def _parse_range(text: str, kind: Callable, name: str, integer_range: bool) -> l
     top, why = UPPER_LIMITS["values"]
     if count > top:
         raise InputError(f"{name} range {text!r} asks for {count:,} values; at most {top:,} ({why})")
+    import numpy as np  # loaded on use: the command line starts without numpy
+
     vals = np.geomspace(start, stop, count) if count > 1 else np.array([start])
     if integer_range or kind is int:
         return sorted({int(round(v)) for v in vals})
