@@ -24,16 +24,23 @@ from dataclasses import asdict, dataclass, field
 from typing import Any
 
 import numpy as np
-from scipy import special
 
 from curvefit.core.errors import InputError
 from curvefit.core.stats import binomial_limits, hoeffding_width
+from curvefit.core.validate import LARGEST_SIZE, SMALLEST_PROBABILITY, check_count
 
 GROWTH_KINDS = ("polynomial", "sauer")
 TEST_METHODS = ("hoeffding", "exact")
 
 # The default start of the fixed-point iteration, a round guess far below typical roots.
 DEFAULT_START = 1000.0
+# Largest answer (samples) the calculators give; beyond it floats cannot hold the numbers.
+LARGEST_ANSWER = 1e300
+# Sauer's sum is added term by term up to this many terms; past it the smaller terms are
+# bounded by a geometric series (an upper bound, so the growth bound stays a bound).
+SAUER_EXACT_TERMS = 20_000
+# Cover's count is exact integer arithmetic: refuse work past about this many bit operations.
+COVER_WORK_LIMIT = 2e9
 
 
 # ---------------------------------------------------------------- result objects
@@ -92,20 +99,29 @@ class VCSampleSize:
 
 # ---------------------------------------------------------------- validation
 def _array(x, name: str) -> np.ndarray:
+    if isinstance(x, (str, bytes, bool)):
+        raise InputError(f"{name} must be a number, got {x!r}")
     try:
         a = np.asarray(x, dtype=float)
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, OverflowError):
         raise InputError(f"{name} must be a number, got {x!r}") from None
+    if a.size > 10 ** 6 or a.size == 0:
+        raise InputError(f"{name} holds {a.size:,} values; give 1 to 1,000,000 per call")
     if not np.all(np.isfinite(a)):
-        raise InputError(f"{name} must be finite, got {x!r}")
+        raise InputError(f"{name} must be finite, got {_show(x)}")
     return a
 
 
 def _unit_open(x, name: str) -> np.ndarray:
+    """Probabilities (ε, δ, p): strictly inside (0, 1), and not below 1e-300 (the range of
+    `curvefit.core.validate.check_probability`, here for arrays too)."""
     a = _array(x, name)
     if np.any(a <= 0) or np.any(a >= 1):
         raise InputError(f"{name} must lie strictly between 0 and 1, got {_show(x)}; "
                          f"use e.g. {name}=0.05")
+    if np.any(a < SMALLEST_PROBABILITY):
+        raise InputError(f"{name} must be at least {SMALLEST_PROBABILITY:g} (smaller values are "
+                         f"not representable in the bounds' logarithms), got {_show(x)}")
     return a
 
 
@@ -121,7 +137,28 @@ def _count(x, name: str, minimum: int = 0) -> np.ndarray:
     if np.any(a != np.round(a)) or np.any(a < minimum):
         what = "a non-negative integer" if minimum == 0 else f"an integer >= {minimum}"
         raise InputError(f"{name} must be {what}, got {_show(x)}")
+    if np.any(a > LARGEST_SIZE):
+        raise InputError(f"{name} must be at most 2**53 (whole numbers beyond it are not exact "
+                         f"as floats), got {_show(x)}")
     return a
+
+
+def _answer(value: float, what: str) -> int:
+    """A sample size as an int, or a one-line refusal when it is beyond the float range."""
+    if not math.isfinite(value) or value > LARGEST_ANSWER:
+        raise InputError(f"the {what} is beyond {LARGEST_ANSWER:g} samples, outside the range "
+                         "this calculator represents; use a larger eps or delta")
+    return int(math.ceil(value - 1e-9))
+
+
+def _broadcast(**arrays: np.ndarray) -> None:
+    """Arrays given together must broadcast (same length, or single values)."""
+    try:
+        np.broadcast_shapes(*(np.shape(a) for a in arrays.values()))
+    except ValueError:
+        shapes = ", ".join(f"{k} {np.shape(a)}" for k, a in arrays.items())
+        raise InputError(f"lists of different lengths cannot be combined ({shapes}); give "
+                         "lists of one length, or single values") from None
 
 
 def _one(a: np.ndarray, name: str) -> float:
@@ -189,6 +226,7 @@ def log_growth_bound(n, vc_dim, kind: str = "polynomial"):
     if np.any(n_a < 0):
         raise InputError(f"n must be >= 0, got {_show(n)}")
     d_a = _count(vc_dim, "vc_dim")
+    _broadcast(n=n_a, vc_dim=d_a)
     nb, db = np.broadcast_arrays(n_a, d_a)
     if kind == "polynomial":
         with np.errstate(divide="ignore"):
@@ -202,14 +240,40 @@ def log_growth_bound(n, vc_dim, kind: str = "polynomial"):
     return _like(out, n, vc_dim)
 
 
+def _log_binomial(n: float, i: np.ndarray) -> np.ndarray:
+    """ln C(n, i) through the beta function (accurate for large n; real n allowed)."""
+    from scipy import special  # scipy loads slowly: `curvefit bound` starts without it
+
+    return -math.log1p(n) - special.betaln(n - i + 1.0, i + 1.0)
+
+
+def _log_sum_exp(values: np.ndarray) -> float:
+    top = float(np.max(values))
+    return top + math.log(float(np.sum(np.exp(values - top))))
+
+
 def _log_sauer(n: float, d: int) -> float:
-    """ln sum_{i=0}^{min(d, n)} C(n, i) by log-sum-exp of log binomials."""
+    """ln sum_{i=0}^{min(d, n)} C(n, i) by log-sum-exp of log binomials.
+
+    Up to `SAUER_EXACT_TERMS` terms are summed one by one. With more, only the largest
+    terms are (i from ``top - SAUER_EXACT_TERMS + 1`` to ``top``, where they grow with
+    i while ``2 top < n``), and the rest is bounded by a geometric series of ratio
+    ``r = first / (n - first + 1)``; when ``2 top >= n`` the sum is bounded by ``2^n``.
+    Either way the result never falls below the sum, so the growth bound stays a bound,
+    and no array longer than `SAUER_EXACT_TERMS` is built (no MemoryError for huge d).
+    """
     if n <= d and n == int(n):
         return n * math.log(2.0)  # every subset is realised: 2^n
     top = min(d, int(math.floor(n)))
-    i = np.arange(top + 1, dtype=float)
-    log_terms = special.gammaln(n + 1) - special.gammaln(i + 1) - special.gammaln(n - i + 1)
-    return float(special.logsumexp(log_terms))
+    if top < SAUER_EXACT_TERMS:
+        return _log_sum_exp(_log_binomial(n, np.arange(top + 1, dtype=float)))
+    if 2 * top >= n:
+        return n * math.log(2.0)  # at least half of all subsets: 2^n is within a factor 2
+    first = top - SAUER_EXACT_TERMS + 1
+    log_terms = _log_binomial(n, np.arange(first, top + 1, dtype=float))
+    ratio = first / (n - first + 1.0)  # C(n, i-1) / C(n, i) <= ratio for every i <= first
+    log_rest = float(log_terms[0]) + math.log(ratio) - math.log1p(-ratio)
+    return _log_sum_exp(np.append(log_terms, log_rest))
 
 
 def growth_bound(n, vc_dim, kind: str = "polynomial"):
@@ -260,7 +324,16 @@ def cover_dichotomies(n: int, d: int) -> int:
     """
     n_i = int(_one(_count(n, "n", minimum=1), "n"))
     d_i = int(_one(_count(d, "d", minimum=1), "d"))
-    return 2 * sum(math.comb(n_i - 1, k) for k in range(d_i))
+    terms = min(d_i, n_i)  # C(n-1, k) = 0 for k > n-1
+    if float(terms) * n_i > COVER_WORK_LIMIT:
+        raise InputError(f"the exact count for n={n_i:,}, d={d_i:,} has up to {n_i:,} bits and "
+                         f"{terms:,} terms, too large to compute exactly; use "
+                         "log_growth_bound(n - 1, d - 1, kind='sauer') + ln 2 (its logarithm)")
+    total, term = 0, 1  # term = C(n-1, k), updated exactly: no big binomial from scratch
+    for k in range(terms):
+        total += term
+        term = term * (n_i - 1 - k) // (k + 1)
+    return 2 * total
 
 
 # ---------------------------------------------------------------- VC bound
@@ -300,8 +373,10 @@ def vc_error_bar(n, vc_dim, delta, growth: str = "polynomial"):
     """
     n_a = _positive(n, "n")
     delta_a = _unit_open(delta, "delta")
+    _broadcast(n=n_a, vc_dim=_count(vc_dim, "vc_dim"), delta=delta_a)
     log_m = np.asarray(log_growth_bound(2.0 * n_a, vc_dim, kind=growth))
-    out = np.sqrt(8.0 / n_a * (math.log(4.0) + log_m - np.log(delta_a)))
+    with np.errstate(over="ignore"):  # a bar beyond the float range is inf: vacuous anyway
+        out = np.sqrt(8.0 / n_a * (math.log(4.0) + log_m - np.log(delta_a)))
     return _like(out, n, vc_dim, delta)
 
 
@@ -314,7 +389,7 @@ def _vc_map(n: float, vc_dim: int, eps: float, delta: float, growth: str) -> flo
     """The fixed-point map N -> (8/ε²) ln(4 m_H(2N)/δ)."""
     log_m = _log_sauer(2.0 * n, vc_dim) if growth == "sauer" else \
         float(np.logaddexp(vc_dim * math.log(2.0 * n) if vc_dim else 0.0, 0.0))
-    return 8.0 / eps ** 2 * (math.log(4.0 / delta) + log_m)
+    return 8.0 / eps / eps * (math.log(4.0) - math.log(delta) + log_m)
 
 
 def vc_sample_size(vc_dim, eps, delta, growth: str = "polynomial", trace: bool = False,
@@ -323,7 +398,7 @@ def vc_sample_size(vc_dim, eps, delta, growth: str = "polynomial", trace: bool =
 
     The smallest integer ``N`` with ``N >= (8/ε²) ln(4 m_H(2N) / δ)``, i.e. the size at
     which the VC error bar falls to ``eps`` at confidence ``1 - delta``. The implicit
-    inequality is solved with a bracketing root finder (`scipy.optimize.brentq`); the
+    inequality is solved with a bracketing root finder (bisection); the
     bracket starts at ``(8/ε²) ln(4/δ)`` (where the right-hand side exceeds ``N``) and
     doubles until the sign changes. The function ``N - rhs(N)`` is negative below its
     single root and positive above it, so the root's ceiling is the answer.
@@ -370,7 +445,10 @@ def vc_sample_size(vc_dim, eps, delta, growth: str = "polynomial", trace: bool =
     dl = _one(_unit_open(delta, "delta"), "delta")
     start = _one(_positive(start, "start"), "start")
 
-    lo = 8.0 / e ** 2 * math.log(4.0 / dl)
+    max_iter = check_count(max_iter, "max_iter", maximum=10_000)
+
+    lo = 8.0 / e / e * (math.log(4.0) - math.log(dl))
+    _answer(lo, "VC sample size")  # refuses eps and delta whose answer is beyond the floats
     f_lo = _vc_gap(lo, d, e, dl, growth)
     if f_lo >= 0:  # m_H = 1 (d = 0 with Sauer): the bound is explicit
         root = lo
@@ -378,24 +456,55 @@ def vc_sample_size(vc_dim, eps, delta, growth: str = "polynomial", trace: bool =
         hi = 2.0 * lo
         while _vc_gap(hi, d, e, dl, growth) <= 0:
             lo, hi = hi, 2.0 * hi
-            if hi > 1e300:
-                raise InputError(f"no VC sample size found for vc_dim={d}, eps={e}, delta={dl}")
-        from scipy import optimize  # imported here: the command line starts faster without it
-
-        try:
-            root = optimize.brentq(_vc_gap, lo, hi, args=(d, e, dl, growth),
-                                   xtol=1e-9, rtol=1e-14, maxiter=500)
-        except (RuntimeError, ValueError) as exc:  # pragma: no cover - bracket is checked
-            raise RuntimeError(f"the VC sample-size root finder failed on [{lo}, {hi}]: {exc}") from None
-    n = int(math.ceil(root - 1e-9 * max(root, 1.0)))
-    # rounding guard: the answer must satisfy the inequality and its predecessor must not
-    while _vc_gap(n, d, e, dl, growth) < 0:
-        n += 1
-    while n > 1 and _vc_gap(n - 1, d, e, dl, growth) >= 0:
-        n -= 1
+            _answer(hi, "VC sample size")
+        root = _bisect(_vc_gap, lo, hi, (d, e, dl, growth))
+    n = _smallest_whole_root(lambda m: _vc_gap(m, d, e, dl, growth), root)
     iterates = _fixed_point_iterates(start, d, e, dl, growth, max_iter) if trace else ()
     return VCSampleSize(n_samples=n, root=float(root), iterates=iterates, vc_dim=d,
                         eps=e, delta=dl, growth=growth)
+
+
+def _smallest_whole_root(gap, root: float) -> int:
+    """The smallest whole ``n >= 1`` with ``gap(n) >= 0``, searched near the real ``root``.
+
+    The real root is correct to about 1e-14 relative, so the answer is within a few
+    units of its ceiling, but not always on it (rounding). Steps that double away from
+    the ceiling bracket it, then bisection on whole numbers finds it: about 2 log2(k)
+    evaluations for an answer k units off, never a walk of one unit at a time (which
+    never ended for answers near 1e16 and beyond, where floats are spaced wider than 1).
+    """
+    start = max(1, math.ceil(root))
+    step, hi = 1, start
+    while gap(hi) < 0:  # hi: the answer or above it
+        hi, step = start + step, step * 2
+    step, lo = 1, hi - 1
+    while lo >= 1 and gap(lo) >= 0:  # lo: below the answer (0 never satisfies it)
+        hi, lo, step = lo, max(lo - step, 0), step * 2
+    while hi - lo > 1:
+        mid = (lo + hi) // 2
+        if gap(mid) >= 0:
+            hi = mid
+        else:
+            lo = mid
+    return hi
+
+
+def _bisect(f, lo: float, hi: float, args: tuple, rtol: float = 1e-14) -> float:
+    """The root of ``f`` in ``[lo, hi]`` with ``f(lo) < 0 <= f(hi)``, by bisection.
+
+    Plain bisection (no scipy: ``curvefit bound`` starts without it) halves the bracket
+    until it is below ``rtol`` relative to the root, or floating point cannot halve it
+    further; the caller's rounding guard then fixes the whole-number answer.
+    """
+    for _ in range(2000):
+        mid = 0.5 * (lo + hi)
+        if not lo < mid < hi or hi - lo <= rtol * max(abs(mid), 1.0):
+            break
+        if f(mid, *args) < 0:
+            lo = mid
+        else:
+            hi = mid
+    return 0.5 * (lo + hi)
 
 
 def _fixed_point_iterates(start: float, d: int, e: float, dl: float, growth: str,
@@ -430,8 +539,8 @@ def pac_sample_size(vc_dim, eps, delta) -> int:
     d = int(_one(_count(vc_dim, "vc_dim"), "vc_dim"))
     e = _one(_unit_open(eps, "eps"), "eps")
     dl = _one(_unit_open(delta, "delta"), "delta")
-    m = max(4.0 / e * math.log2(2.0 / dl), 8.0 * d / e * math.log2(13.0 / e))
-    return int(math.ceil(m - 1e-9))
+    m = max(4.0 / e * (1.0 - math.log2(dl)), 8.0 * d / e * (math.log2(13.0) - math.log2(e)))
+    return _answer(m, "PAC sample size")
 
 
 def rule_of_thumb_samples(vc_dim, factor: float = 10) -> int:
@@ -452,7 +561,7 @@ def rule_of_thumb_samples(vc_dim, factor: float = 10) -> int:
     """
     d = int(_one(_count(vc_dim, "vc_dim"), "vc_dim"))
     f = _one(_positive(factor, "factor"), "factor")
-    return int(math.ceil(f * d - 1e-9))
+    return _answer(f * d, "rule-of-thumb size")
 
 
 # ---------------------------------------------------------------- test sets
@@ -468,9 +577,14 @@ def hoeffding_half_width(n_test, delta):
     --------
     >>> round(hoeffding_half_width(1000, 0.05), 5)
     0.04295
+
+    A half-width of 1 or more (fewer than ``ln(2/δ)/2`` test points) is vacuous: an
+    error rate lies in [0, 1] anyway. It is returned as computed (`test_sample_size`
+    inverts it); the command line marks it vacuous.
     """
-    n_a = _positive(n_test, "n_test")
+    n_a = _count(n_test, "n_test", minimum=1)
     d_a = _unit_open(delta, "delta")
+    _broadcast(n_test=n_a, delta=d_a)
     return _like(hoeffding_width(n_a, d_a), n_test, delta)
 
 
@@ -492,9 +606,10 @@ def clopper_pearson(errors, n_test, delta=0.05) -> ConfidenceInterval:
     >>> ci.low, round(ci.high, 4)
     (0.0, 0.0362)
     """
-    n_a = _positive(n_test, "n_test")
+    n_a = _count(n_test, "n_test", minimum=1)
     k_a = _array(errors, "errors")
     d_a = _unit_open(delta, "delta")
+    _broadcast(errors=k_a, n_test=n_a, delta=d_a)
     if np.any(k_a < 0) or np.any(k_a > n_a):
         raise InputError(f"errors must lie between 0 and n_test, got errors={_show(errors)} "
                          f"for n_test={_show(n_test)}")
@@ -569,7 +684,7 @@ def test_sample_size(eps, delta=0.05, method: str = "hoeffding", p=None) -> int:
     e = _one(_unit_open(eps, "eps"), "eps")
     dl = _one(_unit_open(delta, "delta"), "delta")
     if method == "hoeffding":
-        return int(math.ceil(math.log(2.0 / dl) / (2.0 * e * e) - 1e-9))
+        return _answer((math.log(2.0) - math.log(dl)) / (2.0 * e) / e, "test-set size")
     p_val = 0.5 if p is None else _one(_array(p, "expected error"), "expected error")
     if not 0.0 <= p_val <= 1.0:
         raise InputError(f"expected error must lie between 0 and 1, got {p!r}")
@@ -612,8 +727,10 @@ def relative_error_test_size(p, rel_error=0.2, delta=0.05) -> int:
     p_val = _one(_unit_open(p, "expected error"), "expected error")
     b = _one(_positive(rel_error, "relative error"), "relative error")
     dl = _one(_unit_open(delta, "delta"), "delta")
+    from scipy import special
+
     z = float(special.ndtri(1.0 - dl / 2.0))
-    return int(math.ceil(z * z * (1.0 - p_val) / (b * b * p_val) - 1e-9))
+    return _answer(z * z * (1.0 - p_val) / b / b / p_val, "test-set size")
 
 
 # The contract names start with "test_"; tell pytest they are not tests when imported.
