@@ -63,7 +63,8 @@ def measure(model, X, y, *, sizes: Sequence[int] | None = None, repeats: int = R
             random_state: int | None = SEED, journal=None, resume: bool = False,
             timeout: float | None = None, encode: str = "auto", groups=None, order=None,
             size_unit: str = "rows", progress: bool | Callable = False, meta: dict | None = None,
-            splitter=None) -> Curve:
+            splitter=None, goal: str | None = None, precision: float | None = None,
+            budget: float | None = None) -> Curve:
     """Measure a learning curve: train and test error against training-set size.
 
     Parameters
@@ -117,11 +118,25 @@ def measure(model, X, y, *, sizes: Sequence[int] | None = None, repeats: int = R
         description and command line).
     splitter : Splitter, optional
         A custom split (see `curvefit.measuring.splits`); overrides groups/order/test_size.
+    goal : str, optional
+        Measure adaptively for one question (`curvefit.measuring.adaptive`):
+        ``"error-at:N"``, ``"samples-for-error:E"``, ``"samples-for-gap:G"`` or
+        ``"floor"``. ``sizes`` are then the candidate sizes and ``repeats`` the most
+        repeats per size; cells are chosen round by round until ``precision`` or
+        ``budget`` is reached or more data cannot help (``meta["adaptive"]`` says why
+        each cell was chosen and why the run stopped).
+    precision : float, optional
+        With ``goal``: stop when the answer's interval width over its estimate is at
+        most this.
+    budget : float, optional
+        With ``goal``: compute seconds (summed fit seconds) the run may spend.
 
     Returns
     -------
     Curve
-        One point per (size, repeat), with run metadata.
+        One point per (size, repeat) measured, with run metadata; ``meta["costs"]``
+        holds the learned cost model, the fit and wall seconds, and the prediction made
+        after the first cells (`curvefit.measuring.costs`).
 
     Raises
     ------
@@ -153,6 +168,22 @@ def measure(model, X, y, *, sizes: Sequence[int] | None = None, repeats: int = R
     [(0, 2), (1, 2), (2, 2)]
     """
     started = _now()
+    settings, spec, inputs, split, adaptive, meta_in = _setup(
+        model, X, y, sizes=sizes, repeats=repeats, test_size=test_size, X_test=X_test,
+        y_test=y_test, metric=metric, n_jobs=n_jobs, backend=backend, scheduler=scheduler,
+        random_state=random_state, journal=journal, resume=resume, timeout=timeout, encode=encode,
+        groups=groups, order=order, size_unit=size_unit, progress=progress, meta=meta,
+        splitter=splitter, goal=goal, precision=precision, budget=budget)
+    points, resumed, record = _execute(inputs, split, spec, settings, adaptive)
+    return _assemble_curve(points, inputs, split, spec, settings, {**record, **meta_in},
+                           started=started, resumed=resumed)
+
+
+def _setup(model, X, y, *, sizes, repeats, test_size, X_test, y_test, metric, n_jobs, backend,
+           scheduler, random_state, journal, resume, timeout, encode, groups, order, size_unit,
+           progress, meta, splitter, goal, precision, budget):
+    """Steps 1–3 (settings, inputs, split) and the adaptive design bound to the split."""
+    adaptive = _adaptive_of(goal, precision, budget)
     settings = _check_settings(repeats=repeats, random_state=random_state, n_jobs=n_jobs,
                                backend=backend, scheduler=scheduler, timeout=timeout,
                                encode=encode, size_unit=size_unit, test_size=test_size,
@@ -165,9 +196,72 @@ def measure(model, X, y, *, sizes: Sequence[int] | None = None, repeats: int = R
     inputs = _prepare_inputs(spec.make(), X, y, X_test, y_test, groups=groups, order=order,
                              metric=metric, encode=settings.encode, meta_in=meta_in)
     split = _plan_split(inputs, settings, splitter, sizes)
-    points, resumed = _execute(inputs, split, spec, settings)
-    return _assemble_curve(points, inputs, split, spec, settings, meta_in,
-                           started=started, resumed=resumed)
+    if adaptive is not None:
+        adaptive = adaptive.bind(split.sizes, settings.repeats, settings.seed, inputs.metric)
+    return settings, spec, inputs, split, adaptive, meta_in
+
+
+def plan_measure(model, X, y, *, sizes: Sequence[int] | None = None, repeats: int = REPEATS,
+                 test_size: float | int = TEST_FRACTION, X_test=None, y_test=None,
+                 metric: str = "error", n_jobs: int = 1, backend: str = "local",
+                 scheduler: str | None = None, random_state: int | None = SEED,
+                 timeout: float | None = None, encode: str = "auto", groups=None, order=None,
+                 size_unit: str = "rows", meta: dict | None = None, splitter=None,
+                 goal: str | None = None, precision: float | None = None,
+                 budget: float | None = None):
+    """The cells `measure` would run with the same arguments and their predicted time,
+    without measuring the curve.
+
+    Two pilot cells (`curvefit.measuring.costs.pilot_sizes`, repeat 0) are fitted and
+    timed in this process to learn the cost model; nothing is recorded (no journal, no
+    run file). For an adaptive run the plan is its first pass, and the full grid's
+    prediction is the most it can cost.
+
+    Returns
+    -------
+    MeasurePlan
+
+    Examples
+    --------
+    >>> from sklearn.datasets import load_iris
+    >>> from sklearn.tree import DecisionTreeClassifier
+    >>> X, y = load_iris(return_X_y=True)
+    >>> plan = plan_measure(DecisionTreeClassifier(), X, y, sizes=[10, 40, 100], repeats=2)
+    >>> plan.cells, [p["size"] for p in plan.pilot]
+    ([(10, 0), (40, 0), (100, 0), (10, 1), (40, 1), (100, 1)], [10, 40])
+    """
+    from curvefit.measuring.costs import MeasurePlan, fit_cost_model, pilot_sizes, worker_count
+
+    settings, spec, inputs, split, adaptive, _ = _setup(
+        model, X, y, sizes=sizes, repeats=repeats, test_size=test_size, X_test=X_test,
+        y_test=y_test, metric=metric, n_jobs=n_jobs, backend=backend, scheduler=scheduler,
+        random_state=random_state, journal=None, resume=False, timeout=timeout, encode=encode,
+        groups=groups, order=order, size_unit=size_unit, progress=False, meta=meta,
+        splitter=splitter, goal=goal, precision=precision, budget=budget)
+    grid = [(s, r) for r in range(settings.repeats) for s in split.sizes]
+    cells = grid if adaptive is None else sorted(adaptive.first_pass(), key=lambda k: (k[1], k[0]))
+    data = CellData(inputs.X, inputs.y, inputs.X if inputs.X_test is None else inputs.X_test,
+                    inputs.y if inputs.y_test is None else inputs.y_test, settings.encode,
+                    inputs.encoder_steps, inputs.task)
+    pilot = [(s, 0) for s in pilot_sizes(split.sizes)]
+    timed = run_cells(data, spec, inputs.metric, _plan_cells(pilot, split, spec, settings))
+    cost = fit_cost_model([c["size"] for c in timed], [c["fit_seconds"] for c in timed])
+    workers = worker_count(settings.n_jobs) if settings.backend == "local" else max(1, settings.n_jobs)
+    return MeasurePlan.build(cells, grid, [{"size": int(c["size"]), "fit_seconds": c["fit_seconds"],
+                                            "status": c["status"]} for c in timed], cost, workers,
+                             adaptive.plan_text() if adaptive is not None else None)
+
+
+def _adaptive_of(goal, precision, budget):
+    """The adaptive design for ``goal`` (None without one), its settings checked."""
+    if goal is None:
+        if precision is not None or budget is not None:
+            raise InputError("precision and budget belong to an adaptive run; give a goal too "
+                             "(e.g. --goal error-at:20000)")
+        return None
+    from curvefit.measuring.adaptive import AdaptiveDesign
+
+    return AdaptiveDesign.from_settings(goal, precision=precision, budget=budget)
 
 
 # ---------------------------------------------------------------------- 1. settings
@@ -439,50 +533,174 @@ def _duplicate_test_fraction(inputs: _Inputs, splitter, plans) -> float | None:
 
 
 # ---------------------------------------------------------------------- 4. execution
-def _execute(inputs: _Inputs, split: _SplitPlan, spec, settings: _Settings) -> tuple[list[dict], int]:
-    """Run the cells the journal does not hold; return every point in (repeat, size) order
-    and how many came from the journal."""
+def _execute(inputs: _Inputs, split: _SplitPlan, spec, settings: _Settings,
+             adaptive=None) -> tuple[list[dict], int, dict]:
+    """Run the cells the journal does not hold; return every point in (repeat, size) order,
+    how many came from the journal, and what the run recorded about its costs (and, when
+    adaptive, its decisions)."""
+    from curvefit.measuring.costs import pilot_sizes
     from curvefit.measuring.journal import Journal
-    from curvefit.measuring.parallel import run_tasks
 
-    wanted = [(s, r) for r in range(settings.repeats) for s in split.sizes]
-    done: dict[tuple[int, int], dict] = {}
-    journal = None
+    journal, previous = None, []
     if settings.journal is not None:
-        journal, previous = Journal.open(settings.journal, _identity(inputs, split, spec, settings),
+        journal, previous = Journal.open(settings.journal,
+                                         _identity(inputs, split, spec, settings, adaptive),
                                          resume=settings.resume)
-        wanted_set = set(wanted)
-        done = {key: c for c in previous if (key := (int(c["size"]), int(c["repeat"]))) in wanted_set}
-    resumed = len(done)
     try:
-        # largest fits first: the slowest cells do not end up alone at the end
-        todo = sorted((k for k in wanted if k not in done), key=lambda k: (-k[0], k[1]))
-        data = CellData(inputs.X, inputs.y, inputs.X if inputs.X_test is None else inputs.X_test,
-                        inputs.y if inputs.y_test is None else inputs.y_test, settings.encode,
-                        inputs.encoder_steps, inputs.task)
-        in_process = settings.backend == "local" and settings.n_jobs == 1
-        tasks = [(run_cells, (data, spec, inputs.metric, bundle), {})
-                 for bundle in bundle_cells(_plan_cells(todo, split, spec, settings), one_each=in_process)]
         with _reporting(settings.report) as report:
-            report(len(done), len(wanted), None)
-            for results in run_tasks(tasks, n_jobs=settings.n_jobs, backend=settings.backend,
-                                     scheduler=settings.scheduler):
-                for result in results:
-                    if journal is not None:
-                        journal.append(result)
-                    done[(int(result["size"]), int(result["repeat"]))] = result
-                    report(len(done), len(wanted), dict(result))
+            cells = CellRunner(inputs, split, spec, settings, journal, report, previous)
+            if adaptive is None:
+                wanted = [(s, r) for r in range(settings.repeats) for s in split.sizes]
+                cells.keep_only(wanted)
+                cells.total, cells.plan = len(wanted), wanted
+                report(len(cells.done), len(wanted), None)
+                # two cheap cells first: their times give the predicted total of the rest
+                cells.run([(s, 0) for s in pilot_sizes(split.sizes)], predict=True)
+                cells.run(wanted)
+                record = {}
+            else:
+                wanted, record = adaptive.run(cells)
     finally:
         if journal is not None:
             journal.close()
-    return [done[k] for k in wanted], resumed
+    return [cells.done[k] for k in wanted], cells.resumed(wanted), {**cells.cost_record(), **record}
 
 
-def _identity(inputs: _Inputs, split: _SplitPlan, spec, settings: _Settings) -> dict:
-    """What a journal must match to be resumed: same data, model, cells, seed and split."""
+class CellRunner:
+    """Runs cells of one measurement in batches: each finished cell is journaled, counted
+    and reported (with the ETA from `curvefit.measuring.costs`).
+
+    ``done`` maps (size, repeat) to the result rows held so far, the journal's included.
+    The adaptive mode (`curvefit.measuring.adaptive`) calls `run` once per round and
+    sets ``total`` and ``note`` (its current answer) for the progress lines.
+    """
+
+    def __init__(self, inputs: _Inputs, split: _SplitPlan, spec, settings: _Settings, journal,
+                 report, previous: list[dict]):
+        from curvefit.measuring.costs import Eta, worker_count
+
+        self.inputs, self.split, self.spec, self.settings = inputs, split, spec, settings
+        self.journal, self.report = journal, report
+        self.done: dict[tuple[int, int], dict] = {(int(c["size"]), int(c["repeat"])): c
+                                                  for c in previous}
+        self._from_journal = set(self.done)
+        self.total = len(self.done)
+        self.note: dict = {}
+        self.plan: list = []      # the cells the ETA counts until they are done
+        self.eta = Eta(worker_count(settings.n_jobs) if settings.backend == "local"
+                       else max(1, settings.n_jobs))
+        self.prediction: dict = {}
+        self._data = CellData(inputs.X, inputs.y, inputs.X if inputs.X_test is None else inputs.X_test,
+                              inputs.y if inputs.y_test is None else inputs.y_test, settings.encode,
+                              inputs.encoder_steps, inputs.task)
+
+    def keep_only(self, keys) -> None:
+        """Forget journal cells that are not among ``keys`` (a plan changed since)."""
+        keys = set(keys)
+        self.done = {k: v for k, v in self.done.items() if k in keys}
+
+    def resumed(self, keys) -> int:
+        return sum(1 for k in keys if k in self._from_journal)
+
+    @property
+    def fit_seconds(self) -> float:
+        """Fit seconds of the cells held (the compute a budget counts)."""
+        return float(sum(_seconds(c) for c in self.done.values()))
+
+    def cost_model(self):
+        from curvefit.measuring.costs import fit_cost_model
+
+        ok = [c for c in self.done.values() if c.get("status") == "ok"]
+        return fit_cost_model([c["size"] for c in ok], [_seconds(c) for c in ok])
+
+    def run(self, keys, predict: bool = False) -> None:
+        """Run the cells among ``keys`` that are not held yet, largest first. With
+        ``predict``, the predicted wall time of the rest of ``plan`` is recorded after
+        these cells and shown in the last progress line."""
+        todo = sorted({k for k in keys if k not in self.done}, key=lambda k: (-k[0], k[1]))
+        self.total = max(self.total, len(self.done) + len(todo))
+        in_process = self.settings.backend == "local" and self.settings.n_jobs == 1
+        tasks = [(run_cells, (self._data, self.spec, self.inputs.metric, bundle), {})
+                 for bundle in bundle_cells(_plan_cells(todo, self.split, self.spec, self.settings),
+                                            one_each=in_process)]
+        left = len(todo)
+        from curvefit.measuring.parallel import run_tasks
+
+        for results in (run_tasks(tasks, n_jobs=self.settings.n_jobs, backend=self.settings.backend,
+                                  scheduler=self.settings.scheduler) if tasks else ()):
+            for result in results:
+                if self.journal is not None:
+                    self.journal.append(result)
+                self.done[(int(result["size"]), int(result["repeat"]))] = result
+                self.eta.finished(_seconds(result))
+                left -= 1
+                if left == 0 and predict:
+                    self._predict()
+                self.report(len(self.done), self.total, dict(result), extra=self._extra())
+        if predict and not self.prediction:
+            self._predict()
+
+    def remaining_sizes(self) -> list[int]:
+        """Sizes of the planned cells not held yet."""
+        return [s for s, r in self.plan if (s, r) not in self.done]
+
+    def _predict(self) -> None:
+        from curvefit.measuring.costs import DEFAULT_WALL_FACTOR, plan_seconds
+
+        cost = self.cost_model()
+        rest = self.remaining_sizes()
+        if cost is None:
+            return
+        self.prediction = {
+            "after_cells": len(self.done), "cells": len(rest),
+            "fit_seconds": round(cost.total(rest), 3),
+            "wall_seconds": round(plan_seconds(cost, rest, self.eta.workers) * DEFAULT_WALL_FACTOR, 3),
+            "at": self.eta.elapsed}
+
+    def _extra(self) -> dict:
+        from curvefit.core.formatting import format_number
+        from curvefit.core.progress import clock
+
+        extra = {"fit-seconds": format_number(self.fit_seconds, 3),
+                 "eta": self.eta.remaining(self.cost_model(), self.remaining_sizes())}
+        if self.prediction and len(self.done) == self.prediction["after_cells"]:
+            extra["predicted"] = f"{clock(self.prediction['wall_seconds'])} for the other " \
+                                 f"{self.prediction['cells']} cells"
+        extra.update(self.note)
+        return extra
+
+    def cost_record(self) -> dict:
+        """The run's costs for its metadata: the learned cost model, fit seconds, wall
+        seconds of this session and the prediction made after the first cells."""
+        cost = self.cost_model()
+        record = {"cost_model": cost.to_dict() if cost is not None else None,
+                  "fit_seconds": round(self.fit_seconds, 3),
+                  "wall_seconds": round(self.eta.elapsed, 3), "workers": self.eta.workers}
+        if self.prediction:
+            pred = dict(self.prediction)
+            pred["actual_wall_seconds"] = round(self.eta.elapsed - pred.pop("at"), 3)
+            record["prediction"] = pred
+        return {"costs": record}
+
+
+def _seconds(cell: dict) -> float:
+    value = cell.get("fit_seconds")
+    try:
+        value = float(value)
+    except (TypeError, ValueError):
+        return 0.0
+    return value if value == value and value > 0 else 0.0
+
+
+def _identity(inputs: _Inputs, split: _SplitPlan, spec, settings: _Settings, adaptive=None) -> dict:
+    """What a journal must match to be resumed: same data, model, cells, seed and split
+    (and, for an adaptive run, the same question and design; not its precision or budget,
+    which only decide where it stops)."""
     identity = {"data": inputs.fingerprint, "model": spec.describe(), "sizes": split.sizes,
                 "repeats": settings.repeats, "seed": settings.seed, "metric": inputs.metric.name,
                 "split": split.description, "encode": settings.encode, "timeout": settings.timeout}
+    if adaptive is not None:
+        identity["adaptive"] = adaptive.identity()
     if inputs.X_test is not None:
         identity["test_data"] = array_fingerprint(inputs.X_test, inputs.y_test)
     return identity
@@ -507,7 +725,7 @@ def _plan_cells(todo, split: _SplitPlan, spec, settings: _Settings) -> list[dict
 def _reporting(report):
     """The progress callback for the duration of the run (a bar is removed at the end)."""
     if report is None:
-        yield lambda done, total, cell: None
+        yield lambda done, total, cell, extra=None: None
     elif hasattr(report, "__enter__") and hasattr(report, "__exit__"):
         with report:
             yield report
