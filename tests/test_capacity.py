@@ -450,3 +450,36 @@ def test_cli_probe_command_bad_input_exit_2():
     line = _one_line_error(run_cli("capacity", "--probe", "--n-features", "2", "--model",
                                    "sklearn.svm:LinearSVC", "--timeout", "5"))
     assert "--timeout" in line
+
+
+def test_squared_error_gap_gives_least_squares_parameter_count_at_its_rate():
+    # docs/references.md#optimism-of-squared-error: for least squares the gap is about
+    # 2·σ²·p/n; on load_diabetes (shipped with scikit-learn) linear regression has
+    # p = 10 features + the intercept = 11. The 90% interval must cover 11 at about its
+    # rate: at least 15 of 20 differently seeded curves (P(X ≤ 14 | n=20, 0.9) ≈ 0.011).
+    from sklearn.datasets import load_diabetes
+    from sklearn.linear_model import LinearRegression
+
+    import curvefit as cf
+
+    X, y = load_diabetes(return_X_y=True)
+    covered, figures = 0, []
+    for seed in range(20):
+        curve = cf.measure(LinearRegression(), X, y, repeats=5, random_state=seed)
+        est = effective_capacity(curve, random_state=seed, bootstrap=100)
+        assert est.method == "optimism" and est.status == "ok"
+        assert est.message.startswith("Effective number of parameters")
+        covered += est.low <= 11 <= est.high
+        figures.append(est.vc_dim)
+    assert covered >= 15, (covered, figures)
+    assert 8 < float(np.median(figures)) < 14
+
+
+def test_other_regression_losses_get_no_capacity_figure_and_say_why():
+    rows = [{"size": n, "repeat": r, "train_error": 30.0, "test_error": 30.0 + 400 / n + r}
+            for n in [50, 100, 200, 400] for r in range(3)]
+    curve = Curve.from_table(pd.DataFrame(rows))
+    curve = Curve(curve.points, {"metric": "mae", "metric_info": {"name": "mae", "label": "MAE"}})
+    est = effective_capacity(curve, bootstrap=20)
+    assert est.status == "not_applicable" and math.isnan(est.vc_dim)
+    assert est.message.startswith("No capacity figure for MAE") and "0-1 loss" in est.message

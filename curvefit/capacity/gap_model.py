@@ -12,6 +12,14 @@ training error ν (a noisy problem has a larger gap at the same capacity):
 sizes before the knee are left out, and when fewer than two sizes remain, or the gaps
 are within their noise of zero, no figure is given: the message says which sizes would
 pin it.
+
+VC units belong to the 0-1 loss, the loss VC theory bounds. For squared error the same
+1/n law is the optimism of the training error, ``gap(n) ≈ 2·σ²·p/n`` with σ² the noise
+variance (Hastie, Tibshirani & Friedman, *The Elements of Statistical Learning*, 2nd ed.,
+2009, sec. 7.4–7.5, the Cp statistic; docs/references.md#optimism-of-squared-error), so
+the figure is an effective number of parameters p, with ``2·σ²`` read at each size as
+train + test MSE (twice their mean). For any other loss there is no figure, and the
+message says why in one line.
 """
 
 from __future__ import annotations
@@ -27,7 +35,14 @@ from curvefit.core.curve import Curve
 from curvefit.core.defaults import BOOTSTRAP, INTERVAL, SEED
 from curvefit.core.errors import InputError
 from curvefit.core.estimate import Estimate
-from curvefit.core.formatting import format_capacity, format_count, format_error, format_number
+from curvefit.core.formatting import (
+    format_capacity,
+    format_count,
+    format_error,
+    format_number,
+    is_zero_one,
+    metric_name,
+)
 from curvefit.core.stats import sem
 from curvefit.core.validate import check_count, check_level, check_seed
 
@@ -43,12 +58,54 @@ CALIBRATION_SPREAD = 0.22
 MIN_TAU = 3.0
 # Recommended design: n from MIN_TAU·h to MAX_TAU·h (beyond, the gap drowns in test noise).
 MAX_TAU = 30.0
+# Spread (standard deviation of log p) folded into the interval of the squared-error
+# figure: the optimism formula is in-sample and 2·σ² is estimated, so p is approximate;
+# tests/test_capacity.py checks its coverage on load_diabetes (least squares, p = 11).
+OPTIMISM_SPREAD = 0.10
 # A figure needs its estimate at least this many standard errors above zero.
 MIN_SIGNAL = 2.0
 
 _GAP_NOTE = ("This is the capacity the model uses on this data distribution (an effective "
              "number of parameters in VC units, calibrated on linear classifiers); it can differ "
              "from the probe's distribution-free figure.")
+_OPTIMISM_NOTE = ("For squared error the gap is the optimism of the training error, about "
+                  "2·σ²·p/n with σ² the noise variance (Hastie, Tibshirani & Friedman, The Elements "
+                  "of Statistical Learning, 2nd ed., sec. 7.4–7.5); 2·σ² is read at each size as "
+                  "training plus test MSE, and p is an effective number of parameters (the trace "
+                  "of the hat matrix for a linear smoother), not a VC dimension: VC theory bounds "
+                  "the 0-1 loss. Below about 3·p rows it overstates p.")
+
+
+def gap_loss(curve: Curve) -> str | None:
+    """Which gap law a curve's loss follows: ``"zero_one"`` (c(ν)·h/n, VC units),
+    ``"squared"`` (the optimism 2·σ²·p/n of squared error), or None (no figure).
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> c = Curve.from_table(pd.DataFrame({"size": [10], "test_error": [0.3]}))
+    >>> gap_loss(c)
+    'zero_one'
+    """
+    if is_zero_one(curve.metric):
+        return "zero_one"
+    if curve.metric == "mse" or curve.metric_info.get("scorer") == "neg_mean_squared_error":
+        return "squared"
+    return None
+
+
+def loss_constant(loss: str, train_error, gap):
+    """c in gap(n) ≈ c·h/n: the calibrated c(ν) for the 0-1 loss; for squared error
+    2·σ² ≈ training + test MSE = 2·train + gap (Hastie, Tibshirani & Friedman 2009, eq. 7.21).
+
+    Examples
+    --------
+    >>> loss_constant("squared", 3000.0, 400.0), round(loss_constant("zero_one", 0.25, 0.1), 2)
+    (6400.0, 0.8)
+    """
+    if loss == "squared":
+        return 2.0 * np.asarray(train_error, dtype=float) + np.asarray(gap, dtype=float)
+    return gap_constant(train_error)
 
 
 def gap_constant(train_error):
@@ -108,18 +165,18 @@ def _sem_floor(gaps: dict) -> float:
     return max(0.25 * float(np.median(all_sems)) if all_sems else 0.0, 1e-3 * scale)
 
 
-def _fit_h(sizes, means, trains, weights, used) -> float:
-    """Weighted least squares of means ≈ c(ν)·h/n over the used sizes (linear in h)."""
-    x = gap_constant(trains) / sizes
+def _fit_h(sizes, means, trains, weights, used, loss: str = "zero_one") -> float:
+    """Weighted least squares of means ≈ c·h/n over the used sizes (linear in h)."""
+    x = loss_constant(loss, trains, means) / sizes
     wx = (weights * x)[used]
     den = float(np.sum(wx * x[used]))
     return float(np.sum(wx * means[used]) / den) if den > 0 else math.nan
 
 
-def _past_the_knee(sizes, means, trains, weights) -> tuple[float, np.ndarray]:
+def _past_the_knee(sizes, means, trains, weights, loss: str = "zero_one") -> tuple[float, np.ndarray]:
     """h and the sizes used: start from all sizes, keep n ≥ MIN_TAU·h, refit until stable."""
     used = np.ones(len(sizes), dtype=bool)
-    h = _fit_h(sizes, means, trains, weights, used)
+    h = _fit_h(sizes, means, trains, weights, used, loss)
     for _ in range(20):
         if not (math.isfinite(h) and h > 0):
             break
@@ -129,7 +186,7 @@ def _past_the_knee(sizes, means, trains, weights) -> tuple[float, np.ndarray]:
         used = new
         if used.sum() < 2:  # the gap has not reached its 1/n part: no size pins h
             break
-        h = _fit_h(sizes, means, trains, weights, used)
+        h = _fit_h(sizes, means, trains, weights, used, loss)
     return h, used
 
 
@@ -142,7 +199,7 @@ def _fit_power(n: np.ndarray, g: np.ndarray, w: np.ndarray) -> float:
     return float(-slope)
 
 
-def _bootstrap(gaps, trains, sizes, used, floor, bootstrap: int, seed: int):
+def _bootstrap(gaps, trains, sizes, used, floor, bootstrap: int, seed: int, loss: str = "zero_one"):
     """h and b over repeats resampled within each size, with the used sizes held fixed."""
     rng = np.random.default_rng(np.random.SeedSequence([int(seed), 104729]))
     hs, bs = [], []
@@ -156,7 +213,7 @@ def _bootstrap(gaps, trains, sizes, used, floor, bootstrap: int, seed: int):
             s = sem(g)
             w.append(1.0 / max(s if math.isfinite(s) else 0.0, floor) ** 2)
         m, t, w = np.array(m), np.array(t), np.array(w)
-        hs.append(_fit_h(sizes, m, t, w, used))
+        hs.append(_fit_h(sizes, m, t, w, used, loss))
         bs.append(_fit_power(sizes, m, w))
     return np.array(hs, float), np.array(bs, float)
 
@@ -234,6 +291,7 @@ def effective_capacity(curve, *, bootstrap: int = BOOTSTRAP, random_state: int =
     seed = check_seed(random_state)
     seed = 0 if seed is None else seed
     gaps, trains = _gap_groups(curve)
+    loss = gap_loss(curve)
     sizes = np.array(sorted(gaps), dtype=float)
     means = np.array([gaps[int(n)].mean() for n in sizes])
     sems = np.array([sem(gaps[int(n)]) for n in sizes])
@@ -242,14 +300,17 @@ def effective_capacity(curve, *, bootstrap: int = BOOTSTRAP, random_state: int =
     floor = _sem_floor(gaps)
     floored = np.maximum(np.where(np.isfinite(sems), sems, 0.0), floor)
     weights = 1.0 / floored ** 2
-    h, used = _past_the_knee(sizes, means, nus, weights)
+    if loss is None:
+        return _no_figure(curve, sizes, means, sems, nus, reps, level, seed, probe)
+    h, used = _past_the_knee(sizes, means, nus, weights, loss)
     b = _fit_power(sizes, means, weights)
     if all(len(v) < 2 for v in gaps.values()):
         return _silent(curve, sizes, means, sems, nus, reps, used, h, math.nan, b, level, seed, True,
-                       probe)
+                       probe, loss)
     if used.sum() < 2:
-        return _before_the_knee(curve, sizes, means, sems, nus, reps, used, h, level, seed, probe)
-    x = gap_constant(nus) / sizes
+        return _before_the_knee(curve, sizes, means, sems, nus, reps, used, h, level, seed, probe,
+                                loss)
+    x = loss_constant(loss, nus, means) / sizes
     information = float(np.sum((weights * x * x)[used]))
     se_h = 1.0 / math.sqrt(information) if information > 0 else math.inf
     misfit = lack_of_fit(means[used], floored[used], (x * h)[used], n_params=1)
@@ -258,13 +319,19 @@ def effective_capacity(curve, *, bootstrap: int = BOOTSTRAP, random_state: int =
     signal = h / se_h if math.isfinite(h) and se_h > 0 else math.nan
     if not (math.isfinite(signal) and signal >= MIN_SIGNAL):
         return _silent(curve, sizes, means, sems, nus, reps, used, h, se_h, b, level, seed, False,
-                       probe)
-    boot_h, boot_b = _bootstrap(gaps, trains, sizes, used, floor, bootstrap, seed)
-    low, high, b_low, b_high = _intervals(h, boot_h, boot_b, level, misfit)
-    regime = _regime(means, sems, nus, trains, sizes, used)
-    c_used = float(np.mean(gap_constant(nus[used])))
-    notes = _gap_notes(curve, sizes, used, misfit, regime, probe)
-    message = (f"Effective capacity on this data ≈ {format_capacity(h)} VC units "
+                       probe, loss)
+    boot_h, boot_b = _bootstrap(gaps, trains, sizes, used, floor, bootstrap, seed, loss)
+    spread = CALIBRATION_SPREAD if loss == "zero_one" else OPTIMISM_SPREAD
+    low, high, b_low, b_high = _intervals(h, boot_h, boot_b, level, misfit, spread)
+    regime = _regime(means, sems, nus, trains, sizes, used) if loss == "zero_one" else ""
+    c_used = float(np.mean(loss_constant(loss, nus[used], means[used])))
+    notes = _gap_notes(curve, sizes, used, misfit, regime, probe, loss)
+    if loss == "squared":
+        message = (f"Effective number of parameters on this data ≈ {format_capacity(h)} "
+                   f"({interval_text(low, high, level)}), from the optimism of squared error "
+                   f"(gap ≈ 2·σ²·p/n) at {int(used.sum())} sizes past the knee.")
+    else:
+        message = (f"Effective capacity on this data ≈ {format_capacity(h)} VC units "
                    f"({interval_text(low, high, level)}), from the measured gap at "
                    f"{int(used.sum())} sizes past the knee; "
                    + (f"{regime}." if regime else "regime (realizable or noisy) not determined."))
@@ -272,14 +339,14 @@ def effective_capacity(curve, *, bootstrap: int = BOOTSTRAP, random_state: int =
     extra = _extra(curve, h, se_h, used, sizes, boot_h, misfit, seed, probe)
     extra["gap_constant"] = c_used
     return CapacityEstimate(vc_dim=float(h), low=float(low), high=float(high), level=level,
-                            method="gap", above_range=False, design=design, scale=None,
+                            method=_method(loss), above_range=False, design=design, scale=None,
                             exponent=Estimate(b, b_low, b_high, level), regime=regime,
                             notes=notes, message=message, extra=extra, status="ok")
 
 
-def _intervals(h, boot_h, boot_b, level, misfit):
+def _intervals(h, boot_h, boot_b, level, misfit, spread: float = CALIBRATION_SPREAD):
     """The interval of h (bootstrap, widened by the misfit, combined with the calibration
-    spread on the log scale) and of b."""
+    ``spread`` on the log scale) and of b."""
     alpha = (1.0 - level) / 2.0
     z = NormalDist().inv_cdf(1.0 - alpha)
     ok_h = boot_h[np.isfinite(boot_h) & (boot_h > 0)]
@@ -290,7 +357,7 @@ def _intervals(h, boot_h, boot_b, level, misfit):
         low = high = h
     down = math.log(h / low) if low > 0 else math.inf
     up = math.log(high / h) if math.isfinite(high) else math.inf
-    cal = z * CALIBRATION_SPREAD
+    cal = z * spread
     low = h * math.exp(-math.hypot(down, cal)) if math.isfinite(down) else 0.0
     high = h * math.exp(math.hypot(up, cal)) if math.isfinite(up) else math.inf
     ok_b = boot_b[np.isfinite(boot_b)]
@@ -345,9 +412,9 @@ def _probe_note(probe) -> str:
             " a distribution-free figure for the same learner.")
 
 
-def _gap_notes(curve, sizes, used, misfit, regime, probe) -> list[str]:
+def _gap_notes(curve, sizes, used, misfit, regime, probe, loss: str = "zero_one") -> list[str]:
     """Caveats to show with the gap model's figure."""
-    notes = [_GAP_NOTE]
+    notes = [_GAP_NOTE if loss == "zero_one" else _OPTIMISM_NOTE]
     if probe is not None:
         notes.append(_probe_note(probe))
     left_out = [int(n) for n in sizes[~used]]
@@ -358,21 +425,20 @@ def _gap_notes(curve, sizes, used, misfit, regime, probe) -> list[str]:
         notes.append(f"c·h/n fits the mean gaps less well than repeat noise explains "
                      f"(χ²/dof = {format_number(misfit, 2)}); the interval was widened by "
                      f"√{format_number(misfit, 2)}.")
-    if not regime:
+    if not regime and loss == "zero_one":
         notes.append("The training error does not separate a realizable from a noisy problem at "
                      "these sizes, so no regime is named.")
-    if curve.metric != "error":
-        notes.append(f"The constant c was calibrated on misclassification error; with the "
-                     f"{curve.metric} loss the figure is in that loss's units, not VC units.")
     notes.append(STAT_NOTE)
     return notes
 
 
-def _silent(curve, sizes, means, sems, nus, reps, used, h, se_h, b, level, seed, single, probe):
+def _silent(curve, sizes, means, sems, nus, reps, used, h, se_h, b, level, seed, single, probe,
+            loss: str = "zero_one"):
     """No figure: one repeat per size, or gaps within their noise of zero."""
     design = _design(sizes, means, sems, nus, reps, used,
-                     gap_constant(nus) / sizes * (h if math.isfinite(h) else math.nan))
-    notes = [_GAP_NOTE] + ([_probe_note(probe)] if probe is not None else [])
+                     loss_constant(loss, nus, means) / sizes * (h if math.isfinite(h) else math.nan))
+    notes = ([_GAP_NOTE if loss == "zero_one" else _OPTIMISM_NOTE]
+             + ([_probe_note(probe)] if probe is not None else []))
     if single:
         status = "no_interval"
         message = ("No capacity figure: each size has one repeat, so the gap's noise is unknown; "
@@ -382,28 +448,59 @@ def _silent(curve, sizes, means, sems, nus, reps, used, h, se_h, b, level, seed,
         h_up = max(h if math.isfinite(h) else 0.0, 0.0) + MIN_SIGNAL * se_h
         h_up = h_up if math.isfinite(h_up) else float(sizes.max())
         message = (f"No capacity figure: the measured gaps are within their noise of zero "
-                   f"(h < {format_capacity(h_up)} at most), so these sizes cannot pin it; measure "
+                   f"({_symbol(loss)} < {format_capacity(h_up)} at most), so these sizes cannot pin "
+                   "it; measure "
                    f"between {_size_range(max(h_up / 10.0, 1.0 / MIN_TAU))}"
                    f" or use more repeats and test rows.")
     notes.append(STAT_NOTE)
     extra = _extra(curve, h, se_h, used, sizes, None, math.nan, seed, probe)
     return CapacityEstimate(vc_dim=math.nan, low=math.nan, high=math.nan, level=level,
-                            method="gap", above_range=False, design=design, scale=None,
+                            method=_method(loss), above_range=False, design=design, scale=None,
                             exponent=Estimate(b, math.nan, math.nan, level), regime="",
                             notes=notes, message=message, extra=extra, status=status)
 
 
-def _before_the_knee(curve, sizes, means, sems, nus, reps, used, h, level, seed, probe):
+def _before_the_knee(curve, sizes, means, sems, nus, reps, used, h, level, seed, probe,
+                     loss: str = "zero_one"):
     """Fewer than two sizes past the knee (n ≥ 3h): only a lower bound, and the sizes to
     measure."""
     h_low = float(sizes[-2]) / MIN_TAU
     h_guess = max(h if math.isfinite(h) else 0.0, h_low)
-    message = (f"Capacity above what these sizes resolve: h ≥ {format_capacity(h_low)} on this data "
+    what = "Capacity" if loss == "zero_one" else "Effective number of parameters"
+    message = (f"{what} above what these sizes resolve: {_symbol(loss)} ≥ {format_capacity(h_low)} "
+               "on this data "
                f"(the gap has not reached its 1/n part by n = {format_count(sizes.max())}); measure "
                f"between {_size_range(h_guess)} to pin it.")
     design = _design(sizes, means, sems, nus, reps, used, np.full(len(sizes), np.nan))
-    notes = [_GAP_NOTE] + ([_probe_note(probe)] if probe is not None else []) + [STAT_NOTE]
+    notes = ([_GAP_NOTE if loss == "zero_one" else _OPTIMISM_NOTE]
+             + ([_probe_note(probe)] if probe is not None else []) + [STAT_NOTE])
     extra = _extra(curve, h, math.nan, used, sizes, None, math.nan, seed, probe)
-    return CapacityEstimate(vc_dim=h_low, low=h_low, high=math.inf, level=level, method="gap",
+    return CapacityEstimate(vc_dim=h_low, low=h_low, high=math.inf, level=level, method=_method(loss),
                             above_range=True, design=design, scale=None, exponent=None, regime="",
                             notes=notes, message=message, extra=extra, status="above_range")
+
+
+def _method(loss: str) -> str:
+    """``"gap"`` for the VC-unit gap model, ``"optimism"`` for squared error's parameters."""
+    return "gap" if loss == "zero_one" else "optimism"
+
+
+def _symbol(loss: str) -> str:
+    """h for a capacity in VC units, p for an effective number of parameters."""
+    return "h" if loss == "zero_one" else "p"
+
+
+def _no_figure(curve, sizes, means, sems, nus, reps, level, seed, probe):
+    """No figure for a loss that neither VC theory nor the optimism formula covers."""
+    name = metric_name(curve.metric, curve.metric_info)
+    message = (f"No capacity figure for {name}: capacity from the gap is given in VC units for "
+               "the 0-1 loss (the loss VC theory bounds) and as an effective number of parameters "
+               "for squared error (its optimism, 2·σ²·p/n); neither applies to this loss.")
+    design = _design(sizes, means, sems, nus, reps, np.zeros(len(sizes), dtype=bool),
+                     np.full(len(sizes), np.nan))
+    extra = _extra(curve, math.nan, math.nan, np.zeros(len(sizes), dtype=bool), sizes, None,
+                   math.nan, seed, probe)
+    return CapacityEstimate(vc_dim=math.nan, low=math.nan, high=math.inf, level=level, method="gap",
+                            above_range=False, design=design, scale=None, exponent=None, regime="",
+                            notes=[STAT_NOTE], message=message, extra=extra,
+                            status="not_applicable")
