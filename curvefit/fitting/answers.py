@@ -17,7 +17,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from curvefit.core.estimate import Estimate
-from curvefit.core.formatting import format_count, format_error, format_interval
+from curvefit.core.formatting import format_count, format_error, format_interval, format_quantity
 from curvefit.fitting.data import FitData
 
 # Answers are searched up to this many labelled samples.
@@ -121,7 +121,8 @@ def unreachable_text(what: str, target_text: str, asym: Estimate | None, asym_te
                             "target, so this is uncertain; larger measured sizes would settle it")
     else:
         message = (f"A {what} of {target_text} is not reachable by more data with this model: "
-                   f"the fitted curve does not fall that low within {SEARCH_LIMIT:.0e} samples.")
+                   f"the fitted curve does not fall that low within {format_count(SEARCH_LIMIT)} "
+                   "samples.")
     if math.isfinite(low):
         cautions.append(f"the {level:.0%} band reaches the target from about "
                         f"{format_count(low)} labelled samples (interval {format_count(low)} "
@@ -141,24 +142,26 @@ def horizon_text(what: str, target_text: str, c: Crossing, d: FitData, level: fl
 
 
 def answer_text(d: FitData, n: float, c: Crossing, kind: str, target: float, level: float,
-                metric: str, family: str, logarithmic: bool) -> tuple[str, list]:
-    """The message and cautions of a reachable answer of ``n`` samples."""
-    what = "test error" if kind == "test_error" else "generalization gap"
+                metric: str, family: str, logarithmic: bool,
+                info: dict | None = None) -> tuple[str, list]:
+    """The message and cautions of a reachable answer of ``n`` samples; ``info`` is the
+    curve's ``metric_info``, whose label names the loss."""
     tgt = format_error(target, metric)
+    reached = format_quantity(target, kind, metric, info)
     count = format_count(n)
     interval = count_interval_text(c.low, c.high, level)
     if c.source == "measured" and n <= float(d.sizes[0]):
-        message = (f"The measured curve already reaches {tgt} {what} at its smallest "
+        message = (f"The measured curve already reaches {reached} at its smallest "
                    f"measured size, {count} labelled samples (fewer were not measured).")
     elif c.source == "measured":
         j = int(np.searchsorted(d.sizes, n))
         between = (f", between the measured sizes {d.sizes[j - 1]:,.0f} and "
                    f"{d.sizes[j]:,.0f}" if 0 < j < d.m and d.sizes[j] != n else "")
-        message = (f"The measured curve already reaches {tgt} {what} at about "
+        message = (f"The measured curve already reaches {reached} at about "
                    f"{count} labelled samples{between}{interval}, and stays at or below it "
                    "at every larger measured size.")
     elif kind == "test_error":
-        message = f"To reach {tgt} test error you need about {count} labelled samples{interval}."
+        message = f"To reach {reached} you need about {count} labelled samples{interval}."
     else:
         message = (f"To bring the generalization gap down to {tgt} you need about "
                    f"{count} labelled samples{interval}.")

@@ -20,6 +20,7 @@ import pandas as pd
 from curvefit.core.defaults import BOOTSTRAP, INTERVAL, SEED
 from curvefit.core.errors import FitWarning, InputError
 from curvefit.core.estimate import Estimate
+from curvefit.core.formatting import format_error, is_zero_one, metric_name
 from curvefit.core.validate import check_level, check_positive
 from curvefit.fitting.sanity import sanity_check
 
@@ -315,13 +316,31 @@ def vc_epsilon(curve, *, test_error: float | None = None, gap: float | None = No
                           "not the test error; give a gap target, or a run with train_error")
     size = float(n) if n is not None and math.isfinite(float(n)) else float(curve.sizes.max())
     train = train_error_at(curve, size)
+    metric = curve.metric
     if not math.isfinite(train) or train >= float(test_error):
-        return None, "", (f"the training error at {size:,.0f} samples ({train:.3g}) already "
-                          f"reaches the target {float(test_error):g}, so no gap is left for "
-                          "the VC bound")
+        return None, "", (f"the training error at {size:,.0f} samples "
+                          f"({format_error(train, metric)}) already reaches the target "
+                          f"{format_error(test_error, metric)}, so no gap is left for the VC bound")
     return (float(test_error) - train,
-            f"target {float(test_error):g} minus the training error {train:.3g} at "
-            f"{size:,.0f} samples", None)
+            f"target {format_error(test_error, metric)} minus the training error "
+            f"{format_error(train, metric)} at {size:,.0f} samples", None)
+
+
+def vc_absent_reason(metric: str | None, info: dict | None = None) -> str | None:
+    """Why the VC comparison is left out for this metric (one line), or None when it
+    applies: VC theory bounds the 0-1 loss (the misclassified fraction) only.
+
+    Examples
+    --------
+    >>> vc_absent_reason("error") is None
+    True
+    >>> vc_absent_reason("mse")
+    'no VC comparison: VC theory bounds the 0-1 loss (misclassification), and this curve measures MSE'
+    """
+    if is_zero_one(metric):
+        return None
+    return ("no VC comparison: VC theory bounds the 0-1 loss (misclassification), and this "
+            f"curve measures {metric_name(metric, info)}")
 
 
 def _check_need(test_error, gap, cost_per_label, budget, current_n, extra, vc_dim, interval):
@@ -436,7 +455,10 @@ def labels_needed(curve, *, test_error=None, gap=None, current_n=None, cost_per_
         need = _price(fit, answer, have, cost_per_label, budget, extra, interval)
         dims = vc_dim if vc_dim is not None else curve.meta.get("vc_dim")
         vc = None
-        if dims is not None and target is not None:
+        absent = vc_absent_reason(curve.metric, curve.metric_info)
+        if dims is not None and target is not None and absent is not None:
+            vc = {"vc_dim": dims, "applies": False, "reason": absent}
+        elif dims is not None and target is not None:
             at = answer.n if answer is not None and answer.reachable else None
             eps, source, refused = vc_epsilon(curve, test_error=test_error, gap=gap, n=at)
             try:
