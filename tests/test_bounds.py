@@ -376,3 +376,86 @@ def test_test_sample_size_monotone_in_eps(e1, e2, p, method):
 def test_bad_input_raises_input_error(call):
     with pytest.raises(InputError):
         call()
+
+
+# ---------------------------------------------------------------- range and hardening
+def _exact_vc_answer(d: int, eps: str, delta: str, near: int) -> int:
+    """The smallest N with N >= (8/eps^2) ln(4 ((2N)^d + 1)/delta), in 60-digit decimals
+    (independent of the float code), searched on whole numbers around ``near``."""
+    from decimal import Decimal, localcontext
+
+    with localcontext() as ctx:
+        ctx.prec = 60
+        e, dl = Decimal(eps), Decimal(delta)
+
+        def ok(n: int) -> bool:
+            two_n = 2 * Decimal(n)
+            # ln((2N)^d + 1) = d ln 2N + ln(1 + (2N)^-d); the second term is below 1e-60 here
+            rhs = 8 / (e * e) * ((4 / dl).ln() + d * two_n.ln())
+            return Decimal(n) >= rhs
+
+        lo, hi = near // 2, near * 2
+        assert not ok(lo) and ok(hi)
+        while hi - lo > 1:
+            mid = (lo + hi) // 2
+            lo, hi = (lo, mid) if ok(mid) else (mid, hi)
+        return hi
+
+
+@pytest.mark.parametrize("d, eps, delta", [(10 ** 12, "0.1", "0.05"), (3, "1e-7", "0.05"),
+                                           (10 ** 15, "1e-8", "1e-10")])
+def test_huge_dimensions_and_tiny_eps_finish_at_the_exact_answer(d, eps, delta):
+    # The issue: a +1 walk near the root never finished for d >= 1e12 or eps <= 1e-7.
+    # Checked against the inequality itself evaluated in 60-digit decimals; floats carry
+    # 16 digits, so the answer may differ from the exact one in the 15th digit at most.
+    n = bounds.vc_sample_size(d, float(eps), float(delta)).n_samples
+    exact = _exact_vc_answer(d, eps, delta, n)
+    assert abs(n - exact) <= 1e-14 * exact
+
+
+@pytest.mark.parametrize("n, d", [(60_000, 25_000), (100_000, 49_000), (41_000, 20_600)])
+def test_sauer_sum_with_many_terms_is_an_upper_bound_close_to_the_exact_sum(n, d):
+    # Sauer's lemma, sum_{i<=d} C(n, i) (docs/references.md#growth-function), exactly in
+    # Python integers; past SAUER_EXACT_TERMS terms the code bounds the small terms by a
+    # geometric series (or by 2^n when 2d >= n): never below the sum, and close to it.
+    total, term = 0, 1
+    for i in range(d + 1):
+        total += term
+        term = term * (n - i) // (i + 1)
+    exact = math.log(total)
+    value = bounds.log_growth_bound(n, d, kind="sauer")
+    assert d >= bounds.SAUER_EXACT_TERMS
+    assert value >= exact - 1e-9 * exact
+    assert value <= exact + (math.log(2) if 2 * d >= n else 1e-9 * exact)
+
+
+def test_cover_count_equals_the_binomial_sum_and_refuses_astronomical_work():
+    # Cover 1965: C(n, d) = 2 sum_{k<d} C(n-1, k) (docs/references.md#cover-count)
+    for n, d in [(10, 3), (50, 7), (200, 200), (7, 30)]:
+        assert bounds.cover_dichotomies(n, d) == 2 * sum(math.comb(n - 1, k) for k in range(d))
+    with pytest.raises(InputError, match="too large to compute exactly"):
+        bounds.cover_dichotomies(10 ** 7, 10 ** 6)
+
+
+def test_hoeffding_needs_whole_test_points_and_a_bar_over_one_is_returned_as_computed():
+    # The issue: test_error_bar(0.5, 0.05) gave 1.92, from half a test point.
+    with pytest.raises(InputError, match="n_test"):
+        bounds.test_error_bar(0.5, 0.05)
+    # one test point: sqrt(ln 40 / 2) = 1.358 (docs/references.md#hoeffding-test-set), a
+    # vacuous bar (an error rate lies in [0, 1]); the command line marks it so
+    assert bounds.test_error_bar(1, 0.05) == pytest.approx(math.sqrt(math.log(40) / 2))
+
+
+@pytest.mark.parametrize("call, words", [
+    (lambda: bounds.vc_sample_size(3, 1e-300, 0.05), "beyond 1e\\+300"),
+    (lambda: bounds.vc_sample_size(3, 0.1, 1e-320), "at least 1e-300"),
+    (lambda: bounds.vc_error_bar([10, 20], 1, [0.1, 0.2, 0.3]), "different lengths"),
+    (lambda: bounds.test_sample_size(1e-200, 0.05), "beyond 1e\\+300"),
+    (lambda: bounds.pac_sample_size(3, 1e-300, 0.05), "beyond 1e\\+300"),
+    (lambda: bounds.rule_of_thumb_samples(10 ** 15, 1e300), "beyond 1e\\+300"),
+    (lambda: bounds.log_growth_bound(10, 2 ** 60), "2\\*\\*53"),
+    (lambda: bounds.hoeffding_half_width([], 0.05), "1 to 1,000,000"),
+])
+def test_outside_the_representable_range_is_one_clear_input_error(call, words):
+    with pytest.raises(InputError, match=words):
+        call()

@@ -101,3 +101,22 @@ def test_bad_input_is_one_line_and_exit_2(args):
     assert len(lines) == 1, proc.stderr
     assert "Traceback" not in proc.stderr
     assert proc.stdout == ""
+
+
+def test_vacuous_bars_are_marked_in_text_and_json():
+    # one test point at delta 0.05: sqrt(ln 40 / 2) = 1.358 (docs/references.md#hoeffding-test-set)
+    text = run_cli("bound", "test-error-bar", "--n-test", "1,100")
+    assert text.returncode == 0, text.stderr
+    assert "1.358 (vacuous)" in text.stdout and "0.1358 (vacuous)" not in text.stdout
+    rows = _json(run_cli("bound", "test-error-bar", "--n-test", "1,100", "--json"))
+    assert [r["vacuous"] for r in rows] == [True, False]
+
+
+def test_huge_vc_dimension_with_sauer_finishes():
+    # The issue: Sauer growth with a huge --vc-dim ran out of memory.
+    row = _json(run_cli("bound", "samples", "--vc-dim", "1000000000000", "--eps", "0.1",
+                        "--growth", "sauer", "--json"))
+    assert row["n_samples"] > 10 ** 15
+    bar = _json(run_cli("bound", "error-bar", "--n", "100", "--vc-dim", "1000000000000",
+                        "--growth", "sauer", "--json"))
+    assert bar["vacuous"] is True

@@ -18,7 +18,7 @@ import typer
 from curvefit.cli.common import emit_json, out, print_table
 from curvefit.core.errors import InputError
 from curvefit.core.formatting import format_number
-from curvefit.core.validate import parse_list
+from curvefit.core.validate import UPPER_LIMITS, check_probability, parse_list
 
 WORST_CASE_NOTE = ("Worst-case bounds: they hold for every data distribution and are "
                    "typically far larger than what is needed in practice.")
@@ -35,13 +35,32 @@ JSON_HELP = "Print JSON on stdout: one object, or a list of objects for several 
 
 # ---------------------------------------------------------------- parsing helpers
 def _floats(text: str, option: str, example: str = "0.05") -> list[float]:
-    """Numbers strictly between 0 and 1 (eps, delta), from a list or a geometric range."""
+    """Probabilities (eps, delta) in [1e-300, 1), from a list or a geometric range."""
     values = parse_list(text, float, name=option)
     bad = [v for v in values if not 0.0 < v < 1.0]
     if bad:
         raise InputError(f"{option} must lie strictly between 0 and 1, got {bad[0]:g}; "
                          f"e.g. {option} {example}")
-    return values
+    return [check_probability(v, option) for v in values]
+
+
+def _combinations(*lists: list) -> list[tuple]:
+    """Every combination of the option values, at most the list limit of rows."""
+    top, why = UPPER_LIMITS["values"]
+    count = math.prod(len(v) for v in lists)
+    if count > top:
+        raise InputError(f"the option lists make {count:,} rows; at most {top:,} ({why}); "
+                         "give shorter lists")
+    return list(itertools.product(*lists))
+
+
+def _vacuous(bar: float) -> bool:
+    """An error bar of 1 or more says nothing: error rates lie in [0, 1] anyway."""
+    return not bar < 1.0
+
+
+def _bar(bar: float) -> str:
+    return _num(bar) + (" (vacuous)" if _vacuous(bar) else "")
 
 
 def _ints(text: str, option: str, minimum: int = 0) -> list[int]:
@@ -89,8 +108,7 @@ def samples(
     """Worst-case training-set size from the VC bound, beside the 10 x d rule of thumb."""
     from curvefit import bounds
 
-    combos = list(itertools.product(_ints(vc_dim, "--vc-dim"), _floats(eps, "--eps"),
-                                    _floats(delta, "--delta")))
+    combos = _combinations(_ints(vc_dim, "--vc-dim"), _floats(eps, "--eps"), _floats(delta, "--delta"))
     rows = []
     for d, e, dl in combos:
         r = bounds.vc_sample_size(d, e, dl, growth=growth, trace=True, start=start)
@@ -135,14 +153,15 @@ def error_bar(
     from curvefit import bounds
 
     rows = []
-    for size, d, dl in itertools.product(_ints(n, "--n", minimum=1), _ints(vc_dim, "--vc-dim"),
-                                         _floats(delta, "--delta")):
+    for size, d, dl in _combinations(_ints(n, "--n", minimum=1), _ints(vc_dim, "--vc-dim"),
+                                     _floats(delta, "--delta")):
+        bar = bounds.vc_error_bar(size, d, dl, growth=growth)
         rows.append({"n": size, "vc_dim": d, "delta": dl, "growth": growth,
-                     "error_bar": bounds.vc_error_bar(size, d, dl, growth=growth)})
+                     "error_bar": bar, "vacuous": _vacuous(bar)})
     if json_out:
         _emit_rows(rows)
         return
-    table = [[_num(r["n"]), _num(r["vc_dim"]), _num(r["delta"]), _num(r["error_bar"])]
+    table = [[_num(r["n"]), _num(r["vc_dim"]), _num(r["delta"]), _bar(r["error_bar"])]
              for r in rows]
     notes = [f"With probability 1 - delta, test error <= training error + error bar "
              f"({growth} growth bound); a bar above 1 says nothing.",
@@ -164,13 +183,13 @@ def test_error_bar(
 
     counts = _ints(errors, "--errors") if errors is not None else [None]
     rows = []
-    for size, dl, k in itertools.product(_ints(n_test, "--n-test", minimum=1),
-                                         _floats(delta, "--delta"), counts):
+    for size, dl, k in _combinations(_ints(n_test, "--n-test", minimum=1),
+                                     _floats(delta, "--delta"), counts):
         if k is not None and not 0 <= k <= size:
             raise InputError(f"--errors must lie between 0 and --n-test, got {k} errors "
                              f"of {size}")
-        row = {"n_test": size, "delta": dl,
-               "error_bar": bounds.test_error_bar(size, dl)}
+        bar = bounds.test_error_bar(size, dl)
+        row = {"n_test": size, "delta": dl, "error_bar": bar, "vacuous": _vacuous(bar)}
         if k is not None:
             ci = bounds.test_error_bar(size, dl, method="exact", errors=k)
             row.update({"errors": k, "test_error": k / size, "low": ci.low, "high": ci.high})
@@ -180,16 +199,19 @@ def test_error_bar(
         return
     if errors is None:
         headers = ["n_test", "delta", "Hoeffding +/-"]
-        table = [[_num(r["n_test"]), _num(r["delta"]), _num(r["error_bar"])] for r in rows]
+        table = [[_num(r["n_test"]), _num(r["delta"]), _bar(r["error_bar"])] for r in rows]
     else:
         headers = ["n_test", "delta", "errors", "test error", "exact low", "exact high",
                    "Hoeffding +/-"]
         table = [[_num(r["n_test"]), _num(r["delta"]), _num(r["errors"]), _num(r["test_error"]),
-                  _num(r["low"]), _num(r["high"]), _num(r["error_bar"])] for r in rows]
+                  _num(r["low"]), _num(r["high"]), _bar(r["error_bar"])] for r in rows]
     notes = ["Interval for the true error of one model fixed before the test set was seen, "
              "at confidence 1 - delta (exact: Clopper-Pearson from the error count).",
              "The Hoeffding half-width is a worst-case bound over all error rates, typically "
              "far larger than needed in practice when the error is small."]
+    if any(r["vacuous"] for r in rows):
+        notes.append("vacuous: a half-width of 1 or more says nothing (an error rate lies in "
+                     "[0, 1]); fewer than ln(2/delta)/2 test points cannot bound the error.")
     _print_table("Test-set error bar", headers, table, notes)
 
 
@@ -215,7 +237,7 @@ def test_samples(
           if expected_error is not None else [None])
     chosen = method or ("exact" if expected_error is not None else "hoeffding")
     rows = []
-    for e, dl, p in itertools.product(_floats(eps, "--eps"), _floats(delta, "--delta"), ps):
+    for e, dl, p in _combinations(_floats(eps, "--eps"), _floats(delta, "--delta"), ps):
         if p is not None and not 0.0 <= p <= 1.0:
             raise InputError(f"--expected-error must lie between 0 and 1, got {p:g}")
         hoeff = bounds.test_sample_size(e, dl, method="hoeffding")
