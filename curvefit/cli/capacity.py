@@ -1,4 +1,5 @@
-"""`curvefit capacity`: effective capacity in VC units.
+"""`curvefit capacity`: effective capacity in VC units (for the 0-1 loss), or an effective
+number of parameters (for squared error).
 
 Two forms:
 
@@ -33,7 +34,11 @@ def _print_probe_design(est) -> None:
 
 def _print_gap_design(est, metric: str) -> None:
     c = est.extra.get("gap_constant")
-    if c is not None:
+    optimism = est.method == "optimism"
+    if c is not None and optimism:
+        out.print(f"optimism of squared error: gap ≈ 2·σ²·p/n past the knee, 2·σ² ≈ "
+                  f"{format_error(c, metric)} (training + test MSE at the sizes used)", markup=False)
+    elif c is not None:
         out.print(f"gap model: gap ≈ c·h/n past the knee, calibrated c = {format_number(c, 3)}"
                   " at the measured training error", markup=False)
     if est.exponent is not None and est.exponent.estimate == est.exponent.estimate:
@@ -49,7 +54,8 @@ def _print_gap_design(est, metric: str) -> None:
     rows = [[str(int(r.size)), gap(r.gap_mean), gap(r.gap_sem), gap(getattr(r, "train_mean", None)),
              gap(r.gap_fit), "yes" if u else "no", str(int(r.repeats))]
             for r, u in zip(design.itertuples(), used)]
-    print_table(["size", "gap", "± sem", "train", "c·h/n", "used", "repeats"], rows)
+    fitted = "2σ²·p/n" if optimism else "c·h/n"
+    print_table(["size", "gap", "± sem", "train", fitted, "used", "repeats"], rows)
 
 
 def print_estimate(est, metric: str = "error") -> None:
@@ -152,7 +158,8 @@ def register(app: typer.Typer) -> None:
                                                help="Also save the estimate as JSON (for curvefit report "
                                                     "--capacity)."),
     ):
-        """Effective capacity in VC units: from a run's gap, or by the max-deviation probe."""
+        """Effective capacity in VC units: from a run's gap, or by the max-deviation probe.
+        For squared error the gap gives an effective number of parameters instead."""
         from curvefit.core.jsonio import write_json
 
         interval = pick_interval(interval, level)

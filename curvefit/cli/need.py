@@ -20,7 +20,15 @@ from curvefit.cli.common import (
 from curvefit.cli.fit import BOOTSTRAP_HELP, WEIGHTS_HELP, print_sanity, print_table
 from curvefit.core.defaults import BOOTSTRAP, SEED
 from curvefit.core.errors import InputError
-from curvefit.core.formatting import format_count, format_error, format_interval, format_level, format_range
+from curvefit.core.formatting import (
+    format_count,
+    format_error,
+    format_interval,
+    format_level,
+    format_number,
+    format_range,
+    quantity_name,
+)
 from curvefit.core.validate import parse_list
 
 
@@ -44,6 +52,7 @@ def _print_price(need, interval: float) -> None:
     from curvefit.core.formatting import format_money as money
 
     have, metric = need.current_n, need.fit.curve.metric
+    what = quantity_name("test_error", metric, need.fit.curve.metric_info)
     if need.answer is not None and need.answer.reachable:
         out.print(f"You have {have:,.0f} labelled samples; that is about "
                   f"{format_count(need.extra)} more." if need.extra > 0 else
@@ -58,7 +67,7 @@ def _print_price(need, interval: float) -> None:
     if b is not None:
         e = b.test_error
         out.print(f"A budget of {money(b.budget)} buys {format_count(b.labels)} labels "
-                  f"({b.total_n:,.0f} in total); the expected test error then is "
+                  f"({b.total_n:,.0f} in total); the expected {what} then is "
                   f"{format_error(e.estimate, metric)} "
                   f"({format_interval(e.low, e.high, interval, 'error', metric)}).", markup=False)
         if need.budget_covers is not None:
@@ -71,24 +80,29 @@ def _print_plan(need, interval: float) -> None:
     from curvefit.core.formatting import format_money
 
     metric = need.fit.curve.metric
+    what = quantity_name("test_error", metric, need.fit.curve.metric_info)
     if need.answer is not None:
         out.print("", markup=False)
-    out.print(f"expected test error after buying more labels (you have {need.current_n:,.0f}):",
+    out.print(f"expected {what} after buying more labels (you have {need.current_n:,.0f}):",
               markup=False)
     rows = [[f"{r.extra:,.0f}", f"{r.total_n:,.0f}", format_error(r.test_error, metric),
              format_range(r.low, r.high, "error", metric), format_money(r.cost),
              format_error(r.drop_per_1000, metric)]
             for r in need.plan.itertuples()]
-    print_table(["extra", "total", "test error", f"{format_level(interval)} interval", "cost",
+    print_table(["extra", "total", what, f"{format_level(interval)} interval", "cost",
                  "drop per 1,000"], rows)
 
 
 def _print_vc(vc: dict) -> None:
     out.print("", markup=False)
+    if not vc.get("applies", True):
+        out.print(vc["reason"][:1].upper() + vc["reason"][1:] + ".", markup=False)
+        return
     if vc.get("refused"):
         worst = f"no VC bound: {vc['refused']}"
     elif vc["vc_sample_size"] is not None:
-        worst = (f"{vc['vc_sample_size']:,} samples (VC bound on the gap, ε = {vc['eps']:.3g}: "
+        worst = (f"{vc['vc_sample_size']:,} samples (VC bound on the gap, ε = "
+                 f"{format_number(vc['eps'], 3)}: "
                  f"{vc['eps_source']}; δ = {vc['delta']:g})")
     else:
         worst = "not defined for this target"
@@ -116,7 +130,10 @@ def register(app: typer.Typer) -> None:
     @app.command("need")
     def need_command(
         run: str = typer.Argument(..., metavar="RUN", help="Run file (JSON) or a curve table (CSV)."),
-        error: Optional[float] = typer.Option(None, "--error", help="Target test error E."),
+        error: Optional[float] = typer.Option(None, "--error",
+                                              help="Target test error E, in the metric's units "
+                                                   "(0.05 for 5% error; 3000 for a test MSE of "
+                                                   "3,000)."),
         gap: Optional[float] = typer.Option(None, "--gap",
                                             help="Target generalization gap G (test − train)."),
         label_cost: Optional[float] = typer.Option(None, "--label-cost", help="Price of one label."),
