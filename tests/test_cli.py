@@ -43,3 +43,52 @@ def test_measure_config_problems_are_one_line(cli, tmp_path, content, match):
     r = cli("measure", "--config", cfg)
     assert r.returncode == 2 and "Traceback" not in r.stderr
     assert len(r.stderr.strip().splitlines()) == 1 and match in r.stderr
+
+
+# Which libraries a command loads decides its start-up (scripts/bench_startup.py times
+# it): --help and the bound calculators must not pay for pandas, scipy, scikit-learn or
+# matplotlib, and --help not even for numpy.
+LOADED_LIBRARIES = """
+import sys
+from curvefit.cli.main import main
+try:
+    main(sys.argv[1:])
+except SystemExit:
+    pass
+heavy = {"numpy", "pandas", "scipy", "sklearn", "matplotlib", "joblib", "pyarrow"}
+print(" ".join(sorted({name.split(".")[0] for name in sys.modules} & heavy)), file=sys.stderr)
+"""
+
+
+@pytest.mark.parametrize("args, allowed", [
+    (["--help"], set()),
+    (["fit", "--help"], set()),
+    (["bound", "samples", "--vc-dim", "10", "--eps", "0.1"], {"numpy"}),
+    (["bound", "test-error-bar", "--n-test", "1000"], {"numpy"}),
+])
+def test_help_and_bound_start_without_heavy_libraries(args, allowed):
+    import subprocess
+    import sys
+
+    done = subprocess.run([sys.executable, "-c", LOADED_LIBRARIES, *args], capture_output=True,
+                          text=True, timeout=120)
+    loaded = set(done.stderr.strip().splitlines()[-1].split()) if done.stderr.strip() else set()
+    assert loaded <= allowed, f"`curvefit {' '.join(args)}` loaded {sorted(loaded - allowed)}"
+
+
+def test_importing_curvefit_loads_no_heavy_library():
+    import subprocess
+    import sys
+
+    code = ("import sys, curvefit; print(sorted({m.split('.')[0] for m in sys.modules} & "
+            "{'numpy', 'pandas', 'scipy', 'sklearn', 'matplotlib'}))")
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=60)
+    assert done.stdout.strip() == "[]", done.stdout + done.stderr
+
+
+def test_no_warnings_is_accepted_before_or_after_the_command(cli):
+    for args in (["--no-warnings", "bound", "samples", "--vc-dim", "3", "--eps", "0.1", "--delta", "0.1"],
+                 ["bound", "samples", "--vc-dim", "3", "--eps", "0.1", "--delta", "0.1", "--no-warnings"]):
+        r = cli(*args)
+        assert r.returncode == 0, r.stderr
+        assert "29,300" in r.stdout  # docs/references.md#vc-sample-size-worked-example
