@@ -68,6 +68,47 @@ def _print_summary(curve, path: Path, sanity) -> None:
     out.print(f"wrote {path} ({len(curve.points)} cells, {n_failed} failed)", markup=False)
 
 
+def _print_plan(plan) -> None:
+    from curvefit.core.formatting import format_count, format_number
+    from curvefit.core.progress import clock
+
+    sizes = sorted({s for s, _ in plan.cells})
+    per = {s: sum(1 for t, _ in plan.cells if t == s) for s in sizes}
+    out.print(f"plan: {len(plan.cells)} cells at {len(sizes)} sizes ("
+              + ", ".join(f"{format_count(s)}×{per[s]}" for s in sizes) + ")", markup=False)
+    timed = ", ".join(f"{format_count(p['size'])} rows {format_number(p['fit_seconds'], 3)} s"
+                      for p in plan.pilot)
+    out.print(f"timed {len(plan.pilot)} pilot fits, not recorded: {timed}", markup=False)
+    if plan.cost_model is None:
+        out.print("no prediction: the pilot fits failed", markup=False)
+        return
+    cost = plan.cost_model
+    out.print(f"cost model: {format_number(cost.scale, 3)}·n^{format_number(cost.exponent, 3)} "
+              "seconds per fit", markup=False)
+    out.print(f"predicted: {format_number(plan.fit_seconds, 3)} fit-seconds, "
+              f"{clock(plan.wall_seconds)} wall on {plan.workers} worker(s)", markup=False)
+    if plan.adaptive:
+        out.print(f"{plan.adaptive}; the full grid ({plan.grid_cells} cells) would take "
+                  f"{format_number(plan.grid_fit_seconds, 3)} fit-seconds, "
+                  f"{clock(plan.grid_wall_seconds)} wall", markup=False)
+
+
+def _print_costs(curve) -> None:
+    from curvefit.core.formatting import format_number
+    from curvefit.core.progress import clock
+
+    costs = curve.meta.get("costs") or {}
+    if "fit_seconds" not in costs:
+        return
+    line = (f"compute: {format_number(costs['fit_seconds'], 3)} fit-seconds, "
+            f"{clock(costs['wall_seconds'])} wall")
+    pred = costs.get("prediction")
+    if pred:
+        line += (f"; predicted {clock(pred['wall_seconds'])} for the {pred['cells']} cells after the "
+                 f"first {pred['after_cells']}, took {clock(pred['actual_wall_seconds'])}")
+    out.print(line, markup=False)
+
+
 def run_measure(opts: dict) -> int:
     """Do the work of the command from merged options; return the exit code."""
     from curvefit.core.errors import FitWarning
@@ -75,6 +116,13 @@ def run_measure(opts: dict) -> int:
     from curvefit.measuring.journal import journal_path
     from curvefit.measuring.splits import LeakWarning
 
+    if opts.get("plan_only"):
+        plan, _, _ = measure_from_settings(opts)
+        if opts["json"]:
+            emit_json({"plan": plan.to_dict()})
+        else:
+            _print_plan(plan)
+        return 0
     if not opts.get("out"):
         raise InputError("--out must name the run file to write")
     curve, out_path, caught = measure_from_settings(opts)
@@ -88,9 +136,13 @@ def run_measure(opts: dict) -> int:
                    "n_cells": len(curve.points), "n_failed": n_failed,
                    "metric": curve.meta["metric_info"], "split": curve.meta["split"],
                    "sizes": curve.meta["sizes"], "repeats": curve.meta["repeats"],
-                   "summary": _summary_rows(curve), "sanity": sanity.to_dict()})
+                   "summary": _summary_rows(curve), "sanity": sanity.to_dict(),
+                   "costs": curve.meta.get("costs"), "adaptive": curve.meta.get("adaptive")})
     else:
         _print_summary(curve, out_path, sanity)
+        _print_costs(curve)
+        if curve.meta.get("adaptive"):
+            out.print(curve.meta["adaptive"]["summary"], markup=False)
     if n_failed:
         first = curve.failed_points().iloc[0]
         warn(f"{n_failed} cell(s) failed (first: size {first['size']}, repeat {first['repeat']}: "
@@ -134,6 +186,17 @@ def register(app: typer.Typer) -> None:
         order: Optional[str] = typer.Option(None, "--order",
                                             help="Time-order column: test on the latest rows."),
         size_unit: Optional[str] = typer.Option(None, "--size-unit", help="Sizes count rows or groups."),
+        goal: Optional[str] = typer.Option(
+            None, "--goal", help="Measure adaptively for one question: error-at:N, "
+            "samples-for-error:E, samples-for-gap:G or floor."),
+        precision: Optional[float] = typer.Option(
+            None, "--precision",
+            help="With --goal: stop when the interval width over the answer is at most this."),
+        budget: Optional[float] = typer.Option(
+            None, "--budget", help="With --goal: compute seconds (summed fit seconds) to spend at most."),
+        plan_only: Optional[bool] = typer.Option(
+            None, "--plan-only", help="Print the planned cells and the predicted time (two pilot "
+            "fits are timed); write nothing."),
         config: Optional[str] = typer.Option(None, "--config", help="TOML file with option values."),
         quiet: Optional[bool] = typer.Option(None, "--quiet", help=QUIET_HELP),
         as_json: Optional[bool] = typer.Option(None, "--json", help="Print a JSON summary only."),
@@ -145,7 +208,8 @@ def register(app: typer.Typer) -> None:
                  "encode": encode, "jobs": jobs, "backend": backend, "scheduler": scheduler,
                  "seed": seed, "timeout": timeout, "resume": resume, "out": out_file,
                  "quiet": quiet, "json": as_json, "groups": groups, "order": order,
-                 "size_unit": size_unit}
+                 "size_unit": size_unit, "goal": goal, "precision": precision, "budget": budget,
+                 "plan_only": plan_only}
         conf = _read_config(config) if config else {}
         opts = {}
         for key, default in MEASURE_DEFAULTS.items():

@@ -81,6 +81,8 @@ MEASURE_DEFAULTS = {
     "backend": "local", "scheduler": None, "seed": defaults.SEED, "timeout": None,
     "resume": False, "out": "run.json", "quiet": False,
     "json": False, "groups": None, "order": None, "size_unit": "rows",
+    # adaptive measurement (curvefit.measuring.adaptive) and the plan of a run
+    "goal": None, "precision": None, "budget": None, "plan_only": False,
 }
 
 
@@ -118,7 +120,8 @@ def measure_from_settings(opts: dict, *, progress: bool | None = None):
     The one place that turns settings into a `Curve`: ``curvefit measure`` and the
     nightly track (`curvefit.workflows.nightly.track_job`) both call it. Keys are those
     of `MEASURE_DEFAULTS`. Writes the run file when ``opts["out"]`` is set
-    (the journal goes beside it). Returns ``(curve, out_path or None, caught warnings)``.
+    (the journal goes beside it). Returns ``(curve, out_path or None, caught warnings)``;
+    with ``plan_only`` the first item is the run's `MeasurePlan` and nothing is written.
     """
     # data problems are reported before scikit-learn is even imported (it is slow to load)
     from curvefit.measuring import data as cfdata
@@ -187,17 +190,23 @@ def measure_from_settings(opts: dict, *, progress: bool | None = None):
         meta["order_column"] = str(opts["order"])
     if progress is None:
         progress = not (bool(opts.get("quiet")) or bool(opts.get("json")))
+    common = dict(sizes=_sizes(opts["sizes"]), repeats=repeats,
+                  test_size=test_fraction, X_test=X_test, y_test=y_test, metric=str(opts["metric"]),
+                  n_jobs=jobs, backend=str(opts["backend"]), scheduler=opts["scheduler"],
+                  random_state=seed, timeout=opts["timeout"], encode=str(opts["encode"]),
+                  groups=special.get("groups"), order=special.get("order"),
+                  size_unit=str(opts["size_unit"]), meta=meta, goal=opts.get("goal"),
+                  precision=opts.get("precision"), budget=opts.get("budget"))
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
+        if opts.get("plan_only"):
+            from curvefit.measuring.runner import plan_measure
+
+            # times two pilot cells, writes nothing
+            return plan_measure(spec, ds.X, ds.y, **common), None, caught
         curve = measure(
-            spec, ds.X, ds.y, sizes=_sizes(opts["sizes"]), repeats=repeats,
-            test_size=test_fraction, X_test=X_test, y_test=y_test, metric=str(opts["metric"]),
-            n_jobs=jobs, backend=str(opts["backend"]), scheduler=opts["scheduler"],
-            random_state=seed, journal=journal_path(out_path) if out_path else None,
-            resume=bool(opts["resume"]) and out_path is not None,
-            timeout=opts["timeout"], encode=str(opts["encode"]),
-            groups=special.get("groups"), order=special.get("order"),
-            size_unit=str(opts["size_unit"]), progress=progress, meta=meta)
+            spec, ds.X, ds.y, journal=journal_path(out_path) if out_path else None,
+            resume=bool(opts["resume"]) and out_path is not None, progress=progress, **common)
     if out_path is not None:
         out_path.parent.mkdir(parents=True, exist_ok=True)
         curve.write(out_path)
