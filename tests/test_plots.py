@@ -119,7 +119,7 @@ def test_learning_curve_single_model_without_fit():
     c = Curve.from_table(pd.DataFrame({"size": [20, 40, 80], "test_error": [.3, .2, .15]}),
                          meta={"metric": "mse", "label": "only"})
     fig = plots.learning_curve_figure(c)
-    assert fig.axes[0].get_ylabel() == "test mse"  # the metric's name when not 0-1 error
+    assert fig.axes[0].get_ylabel() == "test MSE"  # the metric's name when not 0-1 error
     _png_ok(fig)
 
 

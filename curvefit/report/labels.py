@@ -7,8 +7,8 @@ Examples
 --------
 >>> as_items({"a": 1}), as_items([1, 2]), as_items(None)
 ([('a', 1)], [(None, 1), (None, 2)], [])
->>> metric_label("error"), metric_label("mse")
-('test error (0-1)', 'test mse')
+>>> metric_label("error"), metric_label("mse"), metric_label("roc_auc", info={"label": "1 − ROC AUC"})
+('test error (0-1)', 'test MSE', 'test 1 − ROC AUC')
 >>> format_param_value(2.0), format_param_value(None), format_param_value("rbf")
 ('2', 'None', 'rbf')
 """
@@ -19,7 +19,7 @@ import math
 import numbers
 from typing import Any, Mapping
 
-from curvefit.core.formatting import is_rate
+from curvefit.core.formatting import is_rate, metric_name
 
 
 def as_items(obj: Any) -> list:
@@ -61,12 +61,11 @@ def family_name(family: Any) -> str | None:
     return str(family)
 
 
-def metric_label(metric: str | None, what: str = "test") -> str:
-    """Axis label with units: ``"test error (0-1)"`` for a 0-1 error rate, else the metric name."""
-    m = (metric or "error").strip()
-    if m in ("error", "zero_one"):
-        return f"{what} error (0-1)"
-    return f"{what} {m} (0-1)" if is_rate(m) else f"{what} {m}"
+def metric_label(metric: str | None, what: str = "test", info: Any = None) -> str:
+    """Axis label with units: ``"test error (0-1)"`` for a 0-1 error rate, else the metric's
+    name (`curvefit.core.formatting.metric_name`; ``info`` is the run's ``metric_info``)."""
+    name = metric_name(metric, info)
+    return f"{what} {name} (0-1)" if is_rate(metric) else f"{what} {name}"
 
 
 def model_label(curve: Any, index: int = 0) -> str:

@@ -47,8 +47,10 @@ from curvefit.core.formatting import (  # noqa: E402
     format_count,
     format_error,
     format_level,
+    format_number,
     format_range,
     is_rate,
+    metric_name,
 )
 from curvefit.report.labels import (  # noqa: E402
     as_items,
@@ -272,13 +274,14 @@ def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float 
     """
     items = as_items(curves)
     fig, ax = _new_axes()
-    metric = None
+    metric, info = None, None
     limit = axis_limit(curves)
     span = [math.inf, 0.0, limit]  # smallest and largest size drawn, and where the axis must end
     any_data = False
     for i, (label, curve) in enumerate(items):
         label = label or model_label(curve, i)
-        metric = metric or getattr(curve, "metric", None)
+        if metric is None:
+            metric, info = getattr(curve, "metric", None), getattr(curve, "metric_info", None)
         st = style(i)
         summ = curve.summary(interval) if len(curve.ok_points()) else pd.DataFrame()
         if not len(summ):
@@ -307,7 +310,8 @@ def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float 
         ax.xaxis.set_major_formatter(_count_formatter)
         ax.xaxis.set_minor_formatter(FuncFormatter(lambda v, _p: ""))
     ax.set_xlabel(f"labelled samples (training-set size, log scale) · {_split_caption(items)}")
-    ax.set_ylabel(metric_label(metric))
+    ax.set_ylabel(metric_label(metric, info=info))
+    _value_axis(ax, metric)
     ax.set_title(title or "Learning curve")
     _legend_outside(ax)
     return fig
@@ -411,6 +415,12 @@ def _draw_answer(ax, a: dict, target_error: float, st: dict, i: int, span: list)
 _KIND_ORDER = ["test", "train", "constant", "measured", "fit", "runner-up", "VC", "power", "band"]
 
 
+def _value_axis(ax, metric) -> None:
+    """Ticks of a loss in its own units as plain numbers (10,000 rather than 1e4)."""
+    if not is_rate(metric):
+        ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _p: format_number(v)))
+
+
 def _legend_outside(ax) -> None:
     """Legend below the axes: one column per model, measured entries before fitted ones.
 
@@ -507,8 +517,10 @@ def gap_figure(curves: Any, lines: Any = None, *, title: str | None = None) -> F
                 ha="center", va="center", color=NEUTRAL)
     metric = getattr(items[0][1], "metric", None) if items else None
     ax.set_xlabel(f"labelled samples (training-set size, log scale) · {_split_caption(items)}")
-    unit = "(0-1)" if is_rate(metric) else f"({metric})"
+    info = getattr(items[0][1], "metric_info", None) if items else None
+    unit = "(0-1)" if is_rate(metric) else f"({metric_name(metric, info)})"
     ax.set_ylabel(f"generalization gap, test − train {unit}")
+    _value_axis(ax, metric)
     ax.set_title(title or "Generalization gap")
     _legend_outside(ax)
     return fig
@@ -641,6 +653,7 @@ def tradeoff_figure(tradeoff: Any, *, title: str | None = None) -> Figure:
     metric = field(tradeoff, "metric", None) if not isinstance(tradeoff, pd.DataFrame) else None
     ax.set_xlabel(f"{param} (model complexity{', log scale' if ax.get_xscale() == 'log' else ''})")
     ax.set_ylabel(metric_label(metric, "train / test"))
+    _value_axis(ax, metric)
     ax.set_title(title or f"Complexity trade-off: {param}")
     _legend_outside(ax)
     return fig
