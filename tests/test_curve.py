@@ -131,3 +131,72 @@ def test_constant_predictor_column_round_trips_and_is_summarised(tmp_path):
     # per-size mean and standard error over the successful repeats (numpy as the reference)
     np.testing.assert_allclose(s["baseline_mean"], [0.42] * 3)
     np.testing.assert_allclose(s["baseline_sem"], [np.std([0.4, 0.42, 0.44], ddof=1) / math.sqrt(3)] * 3)
+
+
+# ---------------------------------------------------------------- damaged and hostile files
+def _nested(depth: int):
+    value: list = []
+    for _ in range(depth):
+        value = [value]
+    return value
+
+
+def _run_doc(**changes):
+    doc = _curve().to_dict()
+    doc.update(changes)
+    return doc
+
+
+@pytest.mark.parametrize("doc, words", [
+    (_run_doc(meta=[1, 2]), "'meta' must be an object"),
+    (_run_doc(meta={"a": _nested(70)}), "nested more than 64"),
+    (_run_doc(points={"size": 10}), "'points' must be a list"),
+    (_run_doc(points=[{"size": "10", "repeat": 0, "test_error": 0.2}]), "size must be a whole"),
+    (_run_doc(points=[{"size": 10.5, "repeat": 0, "test_error": 0.2}]), "size must be a whole"),
+    (_run_doc(points=[{"size": 10, "repeat": True, "test_error": 0.2}]), "repeat must be a whole"),
+    (_run_doc(points=[{"size": 10, "repeat": 0, "test_error": "0.2"}]), "test_error must be a finite"),
+    (_run_doc(points=[{"size": 10, "repeat": 0, "test_error": 0.2}, 7]), "cell 2 is not an object"),
+])
+def test_damaged_run_files_are_refused_with_one_line(tmp_path, doc, words):
+    path = tmp_path / "run.json"
+    path.write_text(json.dumps(doc))
+    with pytest.raises(InputError, match=words) as info:
+        Curve.read(path)
+    assert "\n" not in str(info.value)
+
+
+def test_run_file_nested_100000_deep_and_cells_of_1e400(tmp_path):
+    deep = tmp_path / "deep.json"
+    deep.write_text('{"format": "curvefit.run/1", "meta": ' + "[" * 100_000 + "]" * 100_000
+                    + ', "points": []}')
+    with pytest.raises(InputError, match="nested too deep"):
+        Curve.read(deep)
+    huge = tmp_path / "huge.json"
+    huge.write_text('{"format": "curvefit.run/1", "meta": {}, "points": '
+                    '[{"size": 1e400, "repeat": 0, "test_error": 0.1}]}')
+    with pytest.raises(InputError, match="size must be a whole number"):
+        Curve.read(huge)
+
+
+def test_duplicated_cells_are_refused_because_they_would_narrow_intervals(tmp_path):
+    path = tmp_path / "dup.csv"
+    path.write_text("size,repeat,test_error\n10,0,0.3\n10,0,0.3\n20,0,0.2\n20,1,0.25\n")
+    with pytest.raises(InputError, match="size 10, repeat 0 appears 2 times"):
+        Curve.read(path)
+    doc = _curve().to_dict()
+    doc["points"].append(dict(doc["points"][0]))
+    run = tmp_path / "dup.json"
+    run.write_text(json.dumps(doc))
+    with pytest.raises(InputError, match="narrow the intervals"):
+        Curve.read(run)
+    # without a repeat column, repeated sizes are repeats, as before
+    assert len(Curve.from_table(pd.DataFrame({"size": [10, 10], "test_error": [0.3, 0.2]})).points) == 2
+
+
+@pytest.mark.parametrize("text, words", [("", "cannot read curve table"),
+                                         ("size,test_error\n", "has no rows")])
+def test_empty_curve_tables_are_refused(tmp_path, text, words):
+    path = tmp_path / "curve.csv"
+    path.write_text(text)
+    with pytest.raises(InputError, match=words):
+        Curve.read(path)

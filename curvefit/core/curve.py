@@ -7,6 +7,7 @@ reports, history) reads. It is stored as a run file, JSON whose first key is
 
 from __future__ import annotations
 
+import csv
 import json
 import math
 import os
@@ -39,6 +40,11 @@ POINT_COLUMNS = [
     "message",        # error text of a failed cell, else ""
 ]
 
+
+# What a run file or curve table may hold before it is refused as damaged or hostile.
+MAX_FILE_BYTES = 512 * 2 ** 20   # a run of a million cells is about 200 MB
+MAX_META_DEPTH = 64              # nesting of the meta object (a run writes about 4)
+MAX_CELLS = 2_000_000
 
 # Optional column: the constant predictor's loss on the cell's test rows (majority class of
 # the training subsample, or its mean). Files written before it existed load without it.
@@ -78,6 +84,15 @@ def _normalise_points(points: pd.DataFrame) -> pd.DataFrame:
         raise InputError(f"curve table has a non-numeric value: {exc}") from None
     if (df["size"] <= 0).any():
         raise InputError("curve table has a size <= 0; sizes count labelled samples")
+    if (df["repeat"] < 0).any():
+        raise InputError("curve table has a repeat below 0; repeats are numbered from 0")
+    dup = df.duplicated(["size", "repeat"], keep=False)
+    if dup.any():
+        first = df[dup].iloc[0]
+        count = int(((df["size"] == first["size"]) & (df["repeat"] == first["repeat"])).sum())
+        raise InputError(f"the cell of size {int(first['size'])}, repeat {int(first['repeat'])} "
+                         f"appears {count} times ({int(dup.sum())} duplicated rows in all); "
+                         "copies would narrow the intervals: keep one row per size and repeat")
     df["status"] = df["status"].fillna("ok").astype(str)
     df["message"] = df["message"].fillna("").astype(str)
     extra = sorted((c for c in df.columns if c not in POINT_COLUMNS), key=lambda c: c != BASELINE_COLUMN)
@@ -224,11 +239,15 @@ class Curve:
             raise InputError(f"run file not found: {path}")
         if path.suffix.lower() in (".csv", ".tsv", ".txt"):
             return cls.from_table(path)
+        _check_file_size(path)
         try:
             with open(path, encoding="utf-8") as fh:
                 doc = json.load(fh)
         except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
-            raise InputError(f"{path} is not a curvefit run file (not valid JSON: {exc})") from None
+            raise InputError(f"{path} is not a curvefit run file (not valid JSON: "
+                             f"{' '.join(str(exc).split())})") from None
+        except RecursionError:
+            raise InputError(f"{path} is not a curvefit run file (nested too deep)") from None
         return cls.from_dict(doc, source=str(path))
 
     @classmethod
@@ -237,12 +256,15 @@ class Curve:
             found = doc.get("format") if isinstance(doc, dict) else type(doc).__name__
             raise InputError(f"{source} is not a curvefit run file "
                              f"(expected format {RUN_FORMAT!r}, found {found!r})")
-        points = doc.get("points")
-        if not isinstance(points, list):
-            raise InputError(f"{source}: 'points' must be a list of cells")
-        df = pd.DataFrame(points) if points else _empty_points()
+        meta = doc.get("meta")
+        if meta is None:
+            meta = {}
+        if not isinstance(meta, dict):
+            raise InputError(f"{source}: 'meta' must be an object, got {type(meta).__name__}")
+        _check_depth(meta, f"{source}: 'meta'")
+        df = _points_frame(doc.get("points"), source)
         # files written before the families were renamed are read with the new names
-        return cls(df, rename_legacy(dict(doc.get("meta") or {})))
+        return cls(df, rename_legacy(dict(meta)))
 
     @classmethod
     def from_table(cls, table: "pd.DataFrame | str | os.PathLike", meta: dict | None = None) -> "Curve":
@@ -256,10 +278,19 @@ class Curve:
             source = str(table)
             if not Path(table).is_file():
                 raise InputError(f"curve table not found: {table}")
+            _check_file_size(Path(table))
             try:
                 df = pd.read_csv(table, sep=None, engine="python")
-            except (OSError, UnicodeDecodeError, pd.errors.ParserError, pd.errors.EmptyDataError) as exc:
-                raise InputError(f"cannot read curve table {table}: {exc}") from None
+            except (OSError, UnicodeDecodeError, ValueError, csv.Error) as exc:
+                # pandas' ParserError and EmptyDataError are ValueErrors; the sniffer raises csv.Error
+                raise InputError(f"cannot read curve table {table}: "
+                                 f"{' '.join(str(exc).split()) or type(exc).__name__}; it needs a "
+                                 "header line, then one row per size and repeat") from None
+        if len(df) == 0:
+            raise InputError(f"the curve table {source} has no rows; it needs one row per "
+                             "size and repeat")
+        if len(df) > MAX_CELLS:
+            raise InputError(f"the curve table {source} has {len(df):,} rows; at most {MAX_CELLS:,}")
         m = {"source": source, "metric": "error"}
         m.update(meta or {})
         return cls(df, m)
@@ -269,6 +300,75 @@ class Curve:
         return (f"Curve({len(self.sizes)} sizes {self.sizes.min() if len(ok) else '-'}–"
                 f"{self.sizes.max() if len(ok) else '-'}, {len(self.points)} cells, "
                 f"{len(self.failed_points())} failed, metric={self.metric!r})")
+
+
+def _check_file_size(path: Path) -> None:
+    try:
+        size = path.stat().st_size
+    except OSError as exc:
+        raise InputError(f"cannot read {path}: {exc.strerror or exc}") from None
+    if size > MAX_FILE_BYTES:
+        raise InputError(f"{path} is {size / 2 ** 20:,.0f} MB; a run file or curve table of more "
+                         f"than {MAX_FILE_BYTES // 2 ** 20} MB is not read")
+
+
+def _check_depth(obj, what: str, limit: int = MAX_META_DEPTH) -> None:
+    """Refuse objects nested deeper than ``limit`` (iterative: no recursion to exhaust)."""
+    stack = [(obj, 1)]
+    while stack:
+        item, depth = stack.pop()
+        if depth > limit:
+            raise InputError(f"{what} is nested more than {limit} levels deep; not a run's metadata")
+        if isinstance(item, dict):
+            stack.extend((v, depth + 1) for v in item.values())
+        elif isinstance(item, list):
+            stack.extend((v, depth + 1) for v in item)
+
+
+_NUMBER_FIELDS = ("train_error", "test_error", "n_test", "n_test_errors", "fit_seconds", BASELINE_COLUMN)
+
+
+def _points_frame(points, source: str) -> pd.DataFrame:
+    """The cells of a run file as a table, each checked: JSON numbers where numbers belong
+    (a size written as text or 1e400 is refused, not converted), whole sizes and repeats."""
+    if not isinstance(points, list):
+        raise InputError(f"{source}: 'points' must be a list of cells")
+    if len(points) > MAX_CELLS:
+        raise InputError(f"{source} has {len(points):,} cells; at most {MAX_CELLS:,}")
+    for i, cell in enumerate(points):
+        where = f"{source}: cell {i + 1}"
+        if not isinstance(cell, dict):
+            raise InputError(f"{where} is not an object")
+        for key in ("size", "repeat"):
+            if key not in cell and key == "size":
+                raise InputError(f"{where} has no size")
+            value = cell.get(key, 0)
+            if not is_whole_number(value) or not 0 <= value <= 2 ** 53:
+                raise InputError(f"{where}: {key} must be a whole number >= 0, got {value!r}")
+        for key in _NUMBER_FIELDS:
+            value = cell.get(key)
+            if value is not None and (isinstance(value, bool) or not isinstance(value, (int, float))
+                                      or math.isinf(value)):
+                raise InputError(f"{where}: {key} must be a finite number or null, got {value!r}")
+        for key in ("status", "message"):
+            if not isinstance(cell.get(key, ""), (str, type(None))):
+                raise InputError(f"{where}: {key} must be text, got {cell[key]!r}")
+    return pd.DataFrame(points) if points else _empty_points()
+
+
+def is_whole_number(value) -> bool:
+    """True for an int (not a bool) or a finite float without a fraction; text is not.
+
+    Examples
+    --------
+    >>> is_whole_number(3), is_whole_number(3.0), is_whole_number("3"), is_whole_number(1e400)
+    (True, True, False, False)
+    """
+    if isinstance(value, bool):
+        return False
+    if isinstance(value, int):
+        return True
+    return isinstance(value, float) and math.isfinite(value) and value.is_integer()
 
 
 def _std(values) -> float:
