@@ -72,3 +72,36 @@ def test_without_resume_an_old_journal_is_replaced(tmp_path):
     j, done = Journal.open(p, {**ID, "seed": 5}, resume=False)
     j.close()
     assert done == [] and len(p.read_text().splitlines()) == 1
+
+
+@pytest.mark.parametrize("content", [b"", b'{"format": "curvefit.jour', b"\n"])
+def test_empty_or_torn_header_journal_resumes_as_empty(tmp_path, content):
+    # a 0-byte journal (disk full at the start) or a header torn by kill -9 holds no cell:
+    # --resume starts over instead of refusing
+    p = tmp_path / "j"
+    p.write_bytes(content)
+    j, done = Journal.open(p, ID, resume=True)
+    j.append({"size": 10, "repeat": 0})
+    j.close()
+    assert done == []
+    header, cell = [json.loads(line) for line in p.read_text().splitlines()]
+    assert header["run"] == ID and cell == {"size": 10, "repeat": 0}
+
+
+@pytest.mark.parametrize("cell, words", [
+    ('{"size": "abc", "repeat": 0}', "size is 'abc'"),
+    ('{"size": 1e400, "repeat": 0}', "size is inf"),
+    ('{"size": 10.5, "repeat": 0}', "size is 10.5"),
+    ('{"size": 10, "repeat": -1}', "repeat is -1"),
+    ('{"repeat": 0}', "size is None"),
+    ('{"size": 10, "repeat": 0, "test_error": "low"}', "test_error is 'low'"),
+    ('{"size": 10, "repeat": 0, "status": 3}', "status is 3"),
+])
+def test_cells_of_the_wrong_type_are_refused_with_one_line(tmp_path, cell, words):
+    p = tmp_path / "j"
+    _write(p, [])
+    with open(p, "ab") as fh:
+        fh.write(cell.encode() + b"\n")
+    with pytest.raises(InputError, match=words) as info:
+        Journal.open(p, ID, resume=True)
+    assert "line 2" in str(info.value) and "\n" not in str(info.value)

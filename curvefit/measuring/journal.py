@@ -12,7 +12,11 @@ JSON lines beside the run file (``run.json.journal``):
   the runner reports the cell.
 
 A crash (kill -9, power loss) can leave the last line torn; `open` drops it and
-truncates the file to the last complete line. Any other damage is an `InputError`.
+truncates the file to the last complete line. A journal with no complete header (0
+bytes, or a header torn by a crash or a full disk) holds no cells, so resuming from it
+starts a fresh journal. Every cell is checked before use (a size or repeat that is not
+a whole number, such as text or 1e400, a number field holding text); any damage other
+than a torn last line is an `InputError`.
 """
 
 from __future__ import annotations
@@ -22,6 +26,7 @@ import os
 from pathlib import Path
 from typing import Any
 
+from curvefit.core.curve import is_whole_number
 from curvefit.core.errors import InputError
 from curvefit.core.jsonio import jsonable
 
@@ -36,6 +41,27 @@ def journal_path(run_path: str | os.PathLike) -> Path:
 
 def _canonical(obj: Any) -> str:
     return json.dumps(jsonable(obj), sort_keys=True, allow_nan=False)
+
+
+_NUMBER_FIELDS = ("train_error", "test_error", "n_test", "n_test_errors", "fit_seconds",
+                  "baseline_error")
+
+
+def _check_cell(cell: dict, where: str) -> None:
+    """A journaled cell as the runner uses it: whole size >= 1 and repeat >= 0, numbers or
+    null in the number fields, text in the text fields."""
+    fix = "; delete the journal to start over, or run without --resume"
+    for key, low in (("size", 1), ("repeat", 0)):
+        value = cell.get(key)
+        if not is_whole_number(value) or not low <= value <= 2 ** 53:
+            raise InputError(f"{where}: the cell's {key} is {value!r}, not a whole number >= {low}{fix}")
+    for key in _NUMBER_FIELDS:
+        value = cell.get(key)
+        if value is not None and (isinstance(value, bool) or not isinstance(value, (int, float))):
+            raise InputError(f"{where}: the cell's {key} is {value!r}, not a number{fix}")
+    for key in ("status", "message"):
+        if not isinstance(cell.get(key, ""), str):
+            raise InputError(f"{where}: the cell's {key} is {cell[key]!r}, not text{fix}")
 
 
 class Journal:
@@ -67,8 +93,9 @@ class Journal:
         """
         path = Path(path)
         done: list[dict] = []
-        if resume and path.exists():
-            done, good_bytes = cls._read(path, identity)
+        read = cls._read(path, identity) if resume and path.exists() else None
+        if read is not None:  # None: nothing to resume (no journal, or no complete header)
+            done, good_bytes = read
             fh = open(path, "r+b")
             fh.truncate(good_bytes)
             fh.seek(good_bytes)
@@ -80,11 +107,13 @@ class Journal:
         return j, done
 
     @staticmethod
-    def _read(path: Path, identity: dict) -> tuple[list[dict], int]:
+    def _read(path: Path, identity: dict) -> tuple[list[dict], int] | None:
+        """The cells of a journal and the length of its good part; None when it has no
+        complete header line (nothing was ever journaled)."""
         try:
             data = path.read_bytes()
         except OSError as exc:
-            raise InputError(f"cannot read the journal {path}: {exc}") from None
+            raise InputError(f"cannot read the journal {path}: {exc.strerror or exc}") from None
         lines = data.split(b"\n")
         # a complete file ends with "\n", so the last piece is empty; anything else is torn
         complete, tail = lines[:-1], lines[-1]
@@ -94,7 +123,7 @@ class Journal:
                 rec = json.loads(raw.decode("utf-8"))
                 if not isinstance(rec, dict):
                     raise ValueError("not an object")
-            except (UnicodeDecodeError, ValueError):
+            except (UnicodeDecodeError, ValueError, RecursionError):
                 if i == len(complete) - 1 and not tail:
                     break  # torn last line that happened to end in a newline
                 raise InputError(f"the journal {path} is corrupt at line {i + 1}; "
@@ -102,22 +131,23 @@ class Journal:
             records.append(rec)
             good += len(raw) + 1
         if not records:
-            raise InputError(f"the journal {path} has no header; delete it to start over, "
-                             "or run without --resume")
+            return None  # 0 bytes, or only a torn header: no cell was ever recorded
         header, cells = records[0], records[1:]
         if header.get("format") != JOURNAL_FORMAT or not isinstance(header.get("run"), dict):
             raise InputError(f"{path} is not a curvefit journal (expected format "
                              f"{JOURNAL_FORMAT!r}); delete it or run without --resume")
         theirs, ours = header["run"], json.loads(_canonical(identity))
-        if _canonical(theirs) != _canonical(ours):
+        try:
+            same = _canonical(theirs) == _canonical(ours)
+        except (ValueError, TypeError, RecursionError):
+            same = False
+        if not same:
             keys = sorted(k for k in set(theirs) | set(ours)
                           if _canonical(theirs.get(k)) != _canonical(ours.get(k)))
             raise InputError(f"the journal {path} belongs to a different run (differs in: "
                              f"{', '.join(keys)}); run without --resume to start over")
-        for c in cells:
-            if "size" not in c or "repeat" not in c:
-                raise InputError(f"the journal {path} has a cell without size/repeat; "
-                                 "delete it to start over")
+        for line, c in enumerate(cells, start=2):
+            _check_cell(c, f"the journal {path}, line {line}")
         return cells, good
 
     def _write(self, record: dict) -> None:
