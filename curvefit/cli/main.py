@@ -99,6 +99,7 @@ def main(argv: list[str] | None = None) -> None:
     if code == 130:  # typer turns Ctrl-C into exit code 130 without a word
         print("curvefit: interrupted; finished work is kept (use --resume to continue)",
               file=sys.stderr)
+        code = 128 + _STOPPED_BY[0] if _STOPPED_BY else 130
     sys.exit(code if isinstance(code, int) else 0)
 
 

@@ -25,6 +25,7 @@ process, so a typo fails before any work starts.
 from __future__ import annotations
 
 import ast
+import contextlib
 import dataclasses
 import hashlib
 import importlib
@@ -615,7 +616,7 @@ class CommandModel(BaseEstimator):
                 argv.append(arg)
             out_path, err_path = tmp / "stdout.txt", tmp / "stderr.txt"
             with open(out_path, "wb") as fout, open(err_path, "wb") as ferr:
-                code = _run_program(argv, fout, ferr, self.timeout)
+                code = _run_program(argv, fout, ferr, self.timeout, folder=tmp)
             if code != 0:
                 last = _last_line(err_path) or _last_line(out_path)
                 raise CommandError(f"trainer command exited with code {code}"
@@ -628,21 +629,43 @@ class CommandModel(BaseEstimator):
         return _parse_predictions(text, len(test), self.y_train_)
 
 
-def _run_program(argv: list[str], fout, ferr, timeout: float | None) -> int:
+# trainer programs running in this process: process group id -> their temporary folder
+_LIVE_TRAINERS: dict[int, Path | None] = {}
+
+
+def _run_program(argv: list[str], fout, ferr, timeout: float | None, folder: Path | None = None) -> int:
     """Run without a shell in its own process group; kill the whole group on timeout."""
     try:
         proc = subprocess.Popen(argv, stdin=subprocess.DEVNULL, stdout=fout, stderr=ferr,
                                 start_new_session=True)
     except OSError as exc:
         raise CommandError(f"cannot start trainer command {argv[0]!r}: {exc.strerror or exc}") from None
+    _LIVE_TRAINERS[proc.pid] = folder
     try:
         return proc.wait(timeout=timeout)
     except subprocess.TimeoutExpired:
         _kill_group(proc)
         raise CommandTimeout(f"trainer command timed out after {timeout:g} s (killed)") from None
     except BaseException:
-        _kill_group(proc)  # Ctrl-C or worker shutdown: do not leave the trainer running
+        _kill_group(proc)  # Ctrl-C, SIGTERM or worker shutdown: do not leave the trainer running
         raise
+    finally:
+        _LIVE_TRAINERS.pop(proc.pid, None)
+
+
+def stop_trainers() -> None:
+    """Kill every trainer program this process started that still runs (its whole process
+    group) and remove its temporary folder.
+
+    For a process that is about to exit without unwinding, such as a parallel worker
+    whose run has died (`curvefit.measuring.parallel.tie_to_parent`).
+    """
+    for pgid, folder in list(_LIVE_TRAINERS.items()):
+        with contextlib.suppress(OSError):
+            os.killpg(pgid, signal.SIGKILL)
+        if folder is not None:
+            shutil.rmtree(folder, ignore_errors=True)
+        _LIVE_TRAINERS.pop(pgid, None)
 
 
 def _kill_group(proc: subprocess.Popen) -> None:

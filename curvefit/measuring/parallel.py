@@ -7,12 +7,28 @@ the cores (measured here: ~10x slower on 2 cores) and floating-point reductions 
 depend on the thread count, so results would differ between ``n_jobs`` settings.
 Randomness must come in with the task's arguments (seeded per cell), never from the
 worker, so the same seed gives the same numbers whatever the backend.
+
+Local workers (loky) die with the run. At its first task each worker points its standard
+streams at ``os.devnull`` (results travel through loky's own pipes, so a ``| tee`` of the
+command's output ends when the command does) and starts a thread that polls
+``os.getppid()``: once the process that started the run is gone (``kill -9``, a crash) the
+worker kills the trainer programs it started, removes their files and exits; loky's
+resource trackers follow when their last worker is gone. A SIGTERM or SIGHUP sent to a
+worker (a CI runner stopping the whole process group) does the same. The run's parent
+keeps the workers' temporary files in one scratch folder that it removes when the tasks
+end, however they end (a worker killed by joblib's abort cannot clean up after itself).
 """
 
 from __future__ import annotations
 
 import contextlib
 import os
+import shutil
+import signal
+import sys
+import tempfile
+import threading
+import time
 from typing import Any, Callable, Iterable, Iterator
 
 from curvefit.core.errors import InputError
@@ -20,11 +36,106 @@ from curvefit.core.errors import InputError
 BACKENDS = ("local", "dask")
 
 
-def _single_threaded(fn: Callable, args: tuple, kwargs: dict):
+# seconds between two looks of a worker at its parent: the longest an orphan survives
+PARENT_POLL = 0.2
+SCRATCH_PREFIX = "curvefit-run-"  # the run's folder for the workers' temporary files
+_guarded_for: int | None = None  # the parent pid a worker of this process is tied to
+
+
+def _single_threaded(fn: Callable, args: tuple, kwargs: dict, tie: tuple | None = None):
     from threadpoolctl import threadpool_limits
 
+    if tie is not None:
+        tie_to_parent(*tie)
     with threadpool_limits(limits=1):
         return fn(*args, **kwargs)
+
+
+def tie_to_parent(parent_pid: int, scratch: str | None = None) -> None:
+    """Make this worker process die with ``parent_pid`` (idempotent; called per task).
+
+    Standard input and output go to ``os.devnull``; a daemon thread polls
+    ``os.getppid()`` every `PARENT_POLL` seconds, and SIGTERM/SIGHUP are handled the same
+    way: kill the trainer programs started here, remove the run's scratch folder, exit.
+    ``scratch`` becomes this process's temporary folder (`tempfile.tempdir`).
+    """
+    global _guarded_for
+    if scratch is not None:
+        tempfile.tempdir = scratch
+    if _guarded_for == parent_pid:
+        return
+    if os.getppid() != parent_pid:
+        _die_with_parent()  # the run ended before this worker got its first task
+    _guarded_for = parent_pid
+    _detach_standard_streams()
+    for name in ("SIGTERM", "SIGHUP"):
+        if hasattr(signal, name) and threading.current_thread() is threading.main_thread():
+            signal.signal(getattr(signal, name), lambda signum, frame: _die_with_parent(128 + signum))
+    threading.Thread(target=_watch_parent, args=(parent_pid,), name="curvefit-parent-watch",
+                     daemon=True).start()
+
+
+_trackers_started = False
+
+
+def _start_trackers_quietly() -> None:
+    """Start loky's and multiprocessing's resource trackers with their standard streams
+    on ``os.devnull``: they outlive a killed run for a moment, and their only output is
+    a warning about the semaphores that killed workers left for them to remove."""
+    global _trackers_started
+    if _trackers_started:
+        return
+    from multiprocessing import resource_tracker as mp_tracker
+
+    from joblib.externals.loky.backend import resource_tracker as loky_tracker
+
+    for stream in (sys.stdout, sys.stderr):
+        with contextlib.suppress(Exception):
+            stream.flush()
+    saved = [os.dup(1), os.dup(2)]
+    null = os.open(os.devnull, os.O_WRONLY)
+    try:
+        os.dup2(null, 1)
+        os.dup2(null, 2)
+        loky_tracker.ensure_running()
+        mp_tracker.ensure_running()
+        _trackers_started = True
+    finally:
+        os.dup2(saved[0], 1)
+        os.dup2(saved[1], 2)
+        for fd in (*saved, null):
+            os.close(fd)
+
+
+def _detach_standard_streams() -> None:
+    """Stop holding the parent's terminal, pipe or log file open."""
+    for stream in (sys.stdout, sys.stderr):
+        with contextlib.suppress(Exception):
+            stream.flush()
+    null = os.open(os.devnull, os.O_RDWR)
+    try:
+        for fd in (0, 1, 2):
+            os.dup2(null, fd)
+    finally:
+        os.close(null)
+
+
+def _watch_parent(parent_pid: int) -> None:
+    while os.getppid() == parent_pid:
+        time.sleep(PARENT_POLL)
+    _die_with_parent()
+
+
+def _die_with_parent(code: int = 1) -> None:
+    """Kill this process's trainer programs, remove the run's scratch folder, exit now."""
+    models = sys.modules.get("curvefit.measuring.models")
+    with contextlib.suppress(Exception):
+        if models is not None:
+            models.stop_trainers()
+    scratch = tempfile.tempdir
+    if scratch and os.path.basename(scratch).startswith(SCRATCH_PREFIX):
+        shutil.rmtree(scratch, ignore_errors=True)
+    os._exit(code)
 
 
 @contextlib.contextmanager
@@ -91,11 +202,18 @@ def run_tasks(tasks: Iterable[tuple[Callable, tuple, dict]], *, n_jobs: int = 1,
         return
     from joblib import Parallel, delayed, parallel_backend
 
-    calls = (delayed(_single_threaded)(fn, args, kwargs) for fn, args, kwargs in tasks)
     if backend == "local":
-        par = Parallel(n_jobs=n_jobs, return_as="generator_unordered", backend="loky")
-        yield from par(calls)
+        _start_trackers_quietly()
+        scratch = tempfile.mkdtemp(prefix=SCRATCH_PREFIX)
+        tie = (os.getpid(), scratch)
+        calls = (delayed(_single_threaded)(fn, args, kwargs, tie) for fn, args, kwargs in tasks)
+        try:
+            par = Parallel(n_jobs=n_jobs, return_as="generator_unordered", backend="loky")
+            yield from par(calls)  # an exception or close() here makes joblib kill the workers
+        finally:
+            shutil.rmtree(scratch, ignore_errors=True)
         return
+    calls = (delayed(_single_threaded)(fn, args, kwargs) for fn, args, kwargs in tasks)
     with dask_client(scheduler, n_workers=n_jobs if n_jobs > 0 else 2):
         with parallel_backend("dask"):
             par = Parallel(n_jobs=-1, return_as="generator_unordered")
