@@ -15,7 +15,7 @@ on a quiet machine; on a shared, busy machine the wall time also holds the time 
 waiting for a core (the load average is printed beside the figures). The commands
 alternate round by round, so a burst of load from elsewhere slows all of them alike.
 
-What keeps start-up short (see DEVELOPERS.md, "Start-up"): the command modules and
+What keeps start-up short (DEVELOPERS.md, "Feedback, warnings and start-up"): the command modules and
 ``curvefit/__init__.py`` import numpy, pandas, scipy, scikit-learn and matplotlib only
 inside the functions that use them; ``tests/test_cli.py`` checks which libraries
 ``--help`` and ``bound`` load, this script measures what that buys.

@@ -45,6 +45,13 @@ Inputs a document describes but does not produce with a shown command:
 output differs from what the document shows, after masking what varies from run to run
 (seconds, dates and times, absolute paths, commit hashes, column padding), and says
 whether only numbers differ or the text too. Exit code 0 when nothing differs, 1 otherwise.
+``--shape`` compares less: per command, the number of output lines, each line's columns
+(separated by two or more spaces) and leading label (``chosen:``), and the keys of a JSON
+output; numbers and wording may change. tests/test_docs_examples.py runs that comparison
+on every example (the slow documents only when ``CURVEFIT_DOCS_EXAMPLES=all``).
+
+Progress and status lines are switched off (``CURVEFIT_PROGRESS=off``): on a terminal
+they leave nothing behind, so the docs show what stays on screen; warnings still show.
 
 A document edited while its examples run is not written (the run says so; run it again).
 Not refreshed: prose, the Python sessions (``>>>``, checked by tests/test_docs_examples.py),
@@ -57,6 +64,7 @@ from __future__ import annotations
 
 import argparse
 import difflib
+import json
 import os
 import random
 import re
@@ -207,6 +215,9 @@ class Workspace:
             "PYTHONUNBUFFERED": "1",      # stdout and stderr interleave as on a terminal
             "MPLBACKEND": "Agg",
             "NO_COLOR": "1",
+            # progress and status lines are for people waiting; on a terminal they leave
+            # nothing behind, so the pasted outputs show none (warnings still show)
+            "CURVEFIT_PROGRESS": "off",
             "GIT_DIR": str(ROOT / ".git"),  # the code version a store records: this checkout's
         })
         self.env.pop("VIRTUAL_ENV", None)
@@ -324,6 +335,78 @@ def differences(results: list[Result]) -> list[str]:
     return report
 
 
+LABEL = re.compile(r"^\s*([A-Za-z][A-Za-z -]*?):(\s|$)")
+COLUMNS = re.compile(r"\S(?:\S| (?! ))*")   # text separated by two or more spaces
+
+
+def json_shape(value):
+    """The keys of a JSON value, nested; lists by their first item; no values.
+
+    Examples
+    --------
+    >>> json_shape({"a": 1, "b": [{"c": None}, {"c": 2}], "d": []})
+    {'a': None, 'b': [{'c': None}], 'd': []}
+    """
+    if isinstance(value, dict):
+        return {k: json_shape(v) for k, v in value.items()}
+    if isinstance(value, list):
+        return [json_shape(value[0])] if value else []
+    return None
+
+
+def output_shape(lines: list[str]) -> list:
+    """The shape of one command's output: what must not drift, whatever the numbers.
+
+    A JSON document (possibly after a few plain lines, such as warnings) gives its keys;
+    every other line gives its column count (columns are separated by two or more
+    spaces) and its leading label (``chosen:``, ``curvefit: warning:``); the number of
+    lines counts too. Numbers, family names and sentences may change.
+
+    Examples
+    --------
+    >>> output_shape(["size  test mean", "  100     12.5%", '{"a": 1}'])
+    [(2, ''), (2, ''), {'a': None}]
+    >>> output_shape(["chosen: power-law   a·n^(−b)"])
+    [(2, 'chosen')]
+    """
+    for start, line in enumerate(lines):
+        if line.startswith(("{", "[")):
+            try:
+                document = json.loads("\n".join(lines[start:]))
+            except ValueError:
+                continue
+            return output_shape(lines[:start]) + [json_shape(document)]
+    shape = []
+    for line in lines:
+        label = LABEL.match(line)
+        shape.append((len(COLUMNS.findall(line)), label.group(1) if label else ""))
+    return shape
+
+
+def shape_differences(results: list[Result]) -> list[str]:
+    """Examples whose fresh output differs in shape (lines, columns, labels, JSON keys)
+    from what the document shows."""
+    report = []
+    for r in results:
+        old = Block(0, 0, "", "", r.old).steps()
+        new = Block(0, 0, "", "", r.new).steps()
+        for k, (was, now) in enumerate(zip(old, new)):
+            if was.text.strip() == EXIT_CODE:
+                continue
+            a, b = output_shape(was.output), output_shape(now.output)
+            if a == b:
+                continue
+            where = next((i for i, (x, y) in enumerate(zip(a, b)) if x != y), min(len(a), len(b)))
+            report.append(f"{r.doc}:{r.line}: step {k + 1} `{was.text.strip()[:70]}`: "
+                          f"{len(was.output)} lines shown, {len(now.output)} now; first difference "
+                          f"at output line {where + 1}:")
+            report.append(f"    shown: {was.output[where] if where < len(was.output) else '(no line)'}")
+            report.append(f"    now:   {now.output[where] if where < len(now.output) else '(no line)'}")
+        if len(old) != len(new):
+            report.append(f"{r.doc}:{r.line}: {len(old)} commands shown, {len(new)} run")
+    return report
+
+
 def label(doc: Path) -> str:
     """The document's path as the messages show it (relative to the root when inside)."""
     return doc.relative_to(ROOT).as_posix() if doc.is_relative_to(ROOT) else str(doc)
@@ -353,11 +436,15 @@ def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("docs", nargs="*", help="documents (default: README.md and docs/*.md)")
     parser.add_argument("--check", action="store_true", help="compare only, write nothing")
+    parser.add_argument("--shape", action="store_true",
+                        help="compare only the shape of each output (lines, columns, labels, JSON "
+                             "keys), write nothing: what tests/test_docs_examples.py checks")
     parser.add_argument("--list", action="store_true", help="list the examples and exit")
     parser.add_argument("--keep", action="store_true", help="keep the scratch folders")
     parser.add_argument("--timeout", type=float, default=DEFAULT_TIMEOUT,
                         help="seconds allowed per command (default 2700)")
     args = parser.parse_args(argv)
+    args.check = args.check or args.shape
     docs = documents(args.docs)
     if args.list:
         for doc in docs:
@@ -398,7 +485,7 @@ def main(argv: list[str] | None = None) -> int:
     for w in warnings:
         print(f"warning: {w}", file=sys.stderr)
     if args.check:
-        report = differences(results)
+        report = shape_differences(results) if args.shape else differences(results)
         print("\n".join(report) if report else f"{len(results)} examples: output as shown")
         return 1 if report else 0
     return 0

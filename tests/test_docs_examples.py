@@ -61,7 +61,7 @@ def helps() -> dict[str, str]:
         assert done.returncode == 0, done.stderr
         return json.loads(done.stdout)
 
-    found = run([[c] for c in COMMANDS])
+    found = run([[]] + [[c] for c in COMMANDS])   # "" is `curvefit --help`: the root options
     found.update(run([["bound", sub] for sub in bound_calculators(found["bound"])]))
     return found
 
@@ -136,6 +136,7 @@ def wrong_options(docs=DOCS) -> list[str]:
             options = set().union(*(help_options(known[f"bound {s}"]) for s in subs))
         else:
             options = help_options(known[command])
+        options |= help_options(known[""])             # --no-warnings goes anywhere
         wrong += [f"{where}: curvefit {command} {opt}"
                   for opt in sorted(named_options(rest) - options - {"--help"})]
     return wrong
@@ -359,3 +360,57 @@ def test_refresh_docs_check_ignores_what_varies_between_runs():
     assert rd.masked(old) == rd.masked(new)
     assert rd.masked(["0.2814"]) != rd.masked(["0.2815"])
     assert rd.masked(["0.2814"], numbers=True) == rd.masked(["0.2815"], numbers=True)
+
+
+def test_shape_comparison_catches_a_new_column_a_lost_line_and_a_renamed_key():
+    rd = refresh_docs_module()
+
+    def result(old, new):
+        return rd.Result("guide.md", 1, ["$ cmd", *old], ["$ cmd", *new], [])
+
+    same = result(["size  test", "  100  12.5%", "chosen: power-law"],
+                  ["size  test", "  200   9.1%", "chosen: exp-decay"])
+    assert rd.shape_differences([same]) == []           # numbers and names may change
+    wider = result(["size  test", "  100  12.5%"], ["size  test  train", "  100  12.5%  3.0%"])
+    shorter = result(["size  test", "  100  12.5%", "wrote run.json"], ["size  test", "  100  12.5%"])
+    renamed = result(['{"n_samples": 10, "low": 0.1}'], ['{"samples": 10, "low": 0.1}'])
+    relabelled = result(["chosen: power-law"], ["picked: power-law"])
+    for case in (wider, shorter, renamed, relabelled):
+        assert rd.shape_differences([case]), case.new
+
+
+# Documents whose examples run in a few minutes or less on the 2-core machine run in
+# every suite; the others (the demo, 20,000-row measurements, the nightly job) only
+# with CURVEFIT_DOCS_EXAMPLES=all (DEVELOPERS.md, "Documentation examples").
+SLOW_DOCS = {"README.md", "docs/report.md", "docs/fitting.md", "docs/capacity.md", "docs/history.md"}
+
+
+def example_documents():
+    rd = refresh_docs_module()
+    for doc in rd.documents([]):
+        name = rd.label(doc)
+        marks = [pytest.mark.slow] if name in SLOW_DOCS else []
+        yield pytest.param(doc, id=name, marks=marks)
+
+
+@pytest.mark.parametrize("doc", list(example_documents()))
+def test_every_example_prints_what_the_docs_show(doc):
+    """Each `$ curvefit ...` example, run in document order in a scratch folder, prints
+    output of the shape the document shows: the same lines, columns, labels and JSON keys
+    (numbers may differ). `scripts/refresh_docs.py` pastes fresh outputs when this fails."""
+    rd = refresh_docs_module()
+    name = rd.label(doc)
+    if name in SLOW_DOCS and os.environ.get("CURVEFIT_DOCS_EXAMPLES") != "all":
+        pytest.skip(f"{name}: slow examples run with CURVEFIT_DOCS_EXAMPLES=all")
+    text = doc.read_text(encoding="utf-8")
+    workspace = rd.Workspace(rd.shown_as(text), timeout=900)
+    try:
+        _, results = rd.run_document(doc, workspace, log=lambda message: None)
+    finally:
+        import shutil
+
+        shutil.rmtree(workspace.path, ignore_errors=True)
+    assert results, f"{name} has no examples"
+    problems = [w for r in results for w in r.warnings] + rd.shape_differences(results)
+    assert not problems, ("examples whose output drifted from the document (refresh with "
+                          f"scripts/refresh_docs.py {name}):\n" + "\n".join(problems))
