@@ -11,7 +11,6 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Optional
 
-import pandas as pd
 import typer
 
 from curvefit.cli.common import emit_json, out, print_table
@@ -25,6 +24,8 @@ _SHORT = {"test_error_at_ref": "error@ref", "decay_exponent": "decay exp.",
 
 
 def _cell(row, name: str) -> str:
+    import pandas as pd
+
     from curvefit.core.formatting import MISSING, format_estimate
     from curvefit.history.figures import figure_kind
 
@@ -55,7 +56,9 @@ def _ungated(name: str, figures: dict) -> str:
     return ""
 
 
-def _print_series(name: str, config: dict, runs: pd.DataFrame, entries: list) -> None:
+def _print_series(name: str, config: dict, runs, entries: list) -> None:
+    import pandas as pd
+
     from curvefit.history.listing import figure_names
 
     ref = config.get("reference_size")

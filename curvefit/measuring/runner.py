@@ -31,7 +31,6 @@ from __future__ import annotations
 
 import contextlib
 import datetime as _dt
-import numbers
 import platform
 import warnings
 from dataclasses import dataclass
@@ -44,7 +43,14 @@ from curvefit.core.curve import Curve
 from curvefit.core.defaults import REPEATS, SEED, TEST_FRACTION
 from curvefit.core.errors import InputError
 from curvefit.core.progress import progress_callback
-from curvefit.core.validate import check_choice, check_count, check_positive, check_seed
+from curvefit.core.validate import (
+    check_choice,
+    check_count,
+    check_jobs,
+    check_positive,
+    check_seed,
+    check_sizes,
+)
 from curvefit.measuring import splits as _splits
 from curvefit.measuring.cells import CellData, bundle_cells, cell_seed, encoder_steps, run_cells
 from curvefit.measuring.data import array_fingerprint, as_features, as_target, infer_task
@@ -325,9 +331,7 @@ def _seed_of(random_state) -> int:
 
 def _check_jobs(n_jobs) -> int:
     """joblib's convention: a count of workers, or -1 for every core (-2 all but one ...)."""
-    if isinstance(n_jobs, numbers.Integral) and not isinstance(n_jobs, bool) and n_jobs < 0:
-        return int(n_jobs)
-    return check_count(n_jobs, "n_jobs", minimum=1)
+    return check_jobs(n_jobs)
 
 
 # ---------------------------------------------------------------------- 2. inputs
@@ -492,14 +496,16 @@ def _default_sizes(plans, inputs: _Inputs, unit: str) -> list[int]:
         raise InputError(f"too few {unit}: a subsample with two rows of every class needs "
                          f"{floor} {unit} but the training pool has {largest}; add data "
                          "or use a smaller test fraction")
+    if largest < 2 * floor:  # not even one doubling: a "curve" of one or two sizes
+        n_test = len(plans[0].test)
+        raise InputError(f"too few {unit} for a learning curve: sizes would run only from {floor} "
+                         f"to {largest}; a curve needs a training pool of at least {2 * floor} "
+                         f"{unit} besides the {n_test} test rows; add data, or give --sizes")
     return _splits.default_sizes(floor, largest)
 
 
 def _check_sizes(sizes, plans, unit: str) -> list[int]:
-    try:
-        sizes = sorted({int(s) for s in sizes})
-    except (TypeError, ValueError):
-        raise InputError(f"sizes must be whole numbers, got {sizes!r}") from None
+    sizes = check_sizes(sizes, "sizes", unit)
     if not sizes:
         raise InputError("no sizes given; pass e.g. sizes=[50, 100, 200]")
     if sizes[0] < 1:
