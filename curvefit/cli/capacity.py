@@ -17,7 +17,16 @@ from typing import List, Optional
 
 import typer
 
-from curvefit.cli.common import emit_json, err, interval_option, level_alias, out, pick_interval, print_table
+from curvefit.cli.common import (
+    emit_json,
+    err,
+    interval_option,
+    level_alias,
+    out,
+    pick_interval,
+    print_table,
+    status,
+)
 from curvefit.core.defaults import SEED
 from curvefit.core.errors import InputError
 from curvefit.core.formatting import format_error, format_estimate, format_number
@@ -186,7 +195,8 @@ def register(app: typer.Typer) -> None:
             if stray:
                 raise InputError(f"{stray[0]} belongs to the probe; add --probe, or give only "
                                  "a run file for the gap model")
-            est, metric = _run_gap(source, settings, with_probe)
+            with status(f"fitting the gap model to {source}", quiet):
+                est, metric = _run_gap(source, settings, with_probe)
         if out_file:
             write_json(out_file, est.to_dict(), what="capacity file")
         if json_out:
