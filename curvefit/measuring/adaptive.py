@@ -32,9 +32,9 @@ How cells are chosen (`AdaptiveDesign.run`):
    calibration's κ) and the fresh-data-set variance; the result is never below the
    interval of the mean measured nearest N (Student t on k − 1 degrees of freedom,
    which rewards repeats there).
-4. Compute is counted in training rows plus the smallest candidate size per cell (a
-   cell's fixed cost), not in measured seconds: the choice must be the same whatever
-   machine, ``--jobs`` or backend ran the cells, and after a resume. Measured seconds
+4. Compute is counted in rows processed — a cell fits its training rows, then scores
+   them and the test rows, so ``2·n + n_test`` — not in measured seconds: the choice must
+   be the same whatever machine, ``--jobs`` or backend ran the cells, and after a resume. Measured seconds
    (the cost model of `curvefit.measuring.costs`) decide only where a budget stops the
    run: a round's cells are dropped from its end while the predicted seconds would
    exceed what is left.
@@ -72,10 +72,6 @@ FIRST_SIZES = 5       # sizes of the first pass
 FIRST_REPEATS = 2     # repeats of each first-pass size
 BATCH = 4             # cells chosen per round
 DESIGN_VERSION = 1    # bump when the choice rule changes (journals of older runs are refused)
-# bootstrap replicates of each round's refit: fewer than the engine's default (500) since a
-# round only decides what to measure next and whether to stop (the ends of a 90% interval
-# move by a few percent between 200 and 500 replicates); `curvefit fit` refits the run
-ROUND_BOOTSTRAP = 200
 LEVEL = 0.9
 
 
@@ -202,6 +198,7 @@ class AdaptiveDesign:
     sizes: tuple = ()
     repeats: int = 0
     seed: int = 0
+    n_test: int = 0
     metric: object = field(default=None, repr=False)
 
     @classmethod
@@ -223,14 +220,19 @@ class AdaptiveDesign:
             budget = check_positive(budget, "budget")
         return cls(parsed, precision, budget)
 
-    def bind(self, sizes, repeats: int, seed: int, metric) -> "AdaptiveDesign":
+    def bind(self, sizes, repeats: int, seed: int, metric, n_test: int) -> "AdaptiveDesign":
         return replace(self, sizes=tuple(int(s) for s in sizes), repeats=int(repeats), seed=int(seed),
-                       metric=metric)
+                       metric=metric, n_test=int(n_test))
+
+    def cost(self, size: float) -> float:
+        """What a cell costs in the choice, in rows processed: the training rows twice
+        (fitted, then scored) and the test rows once (scored)."""
+        return 2.0 * size + self.n_test
 
     def identity(self) -> dict:
         """What a resumed run must share (precision and budget only decide where it stops)."""
         return {"goal": self.goal.text, "design": DESIGN_VERSION, "first_sizes": FIRST_SIZES,
-                "first_repeats": FIRST_REPEATS, "batch": BATCH, "bootstrap": ROUND_BOOTSTRAP}
+                "first_repeats": FIRST_REPEATS, "batch": BATCH}
 
     def plan_text(self) -> str:
         """How the run goes on after its first pass, in words (for ``--plan-only``)."""
@@ -330,8 +332,8 @@ class AdaptiveDesign:
 
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")
-                fit = fit_curve(curve, on=self.goal.on, random_state=self.seed,
-                                bootstrap=ROUND_BOOTSTRAP)
+                # the engine's defaults: the answer at the stop is the one `curvefit fit` gives
+                fit = fit_curve(curve, on=self.goal.on, random_state=self.seed)
                 return fit, answer_of(self.goal, fit, self.metric.name, float(self.sizes[-1]))
         except InputError:
             return None, None
@@ -379,7 +381,6 @@ class AdaptiveDesign:
                                    np.array(self.sizes, dtype=float))
         if model is None:
             return self._spread(counts)
-        unit = float(self.sizes[0])
         picked = []
         k = np.array([counts[s] for s in self.sizes], dtype=float)
         for _ in range(BATCH):
@@ -391,7 +392,7 @@ class AdaptiveDesign:
                 k[i] += 1
                 after = model.half_width2(k)
                 k[i] -= 1
-                score = (now - after) / (s + unit)
+                score = (now - after) / self.cost(s)
                 if score > best_score * (1 + 1e-9) and now - after > 1e-12 * now:
                     best, best_score, best_after = i, score, after
             if best is None:

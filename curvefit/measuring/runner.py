@@ -203,7 +203,8 @@ def _setup(model, X, y, *, sizes, repeats, test_size, X_test, y_test, metric, n_
                              metric=metric, encode=settings.encode, meta_in=meta_in)
     split = _plan_split(inputs, settings, splitter, sizes)
     if adaptive is not None:
-        adaptive = adaptive.bind(split.sizes, settings.repeats, settings.seed, inputs.metric)
+        adaptive = adaptive.bind(split.sizes, settings.repeats, settings.seed, inputs.metric,
+                                 int(np.median([len(p.test) for p in split.plans])))
     return settings, spec, inputs, split, adaptive, meta_in
 
 
