@@ -23,8 +23,9 @@ def register(app: typer.Typer) -> None:
         out_path: Path = typer.Option(Path("report.html"), "--out", "-o",
                                       help="HTML file to write; figures go to <name>_files/."),
         target_error: Optional[float] = typer.Option(
-            None, "--target-error", help="Test error to reach, e.g. 0.05; the report opens "
-                                         "with the labelled samples needed."),
+            None, "--target-error", help="Test error to reach in the metric's units (0.05 for 5% "
+                                         "error; 3000 for a test MSE of 3,000); the report "
+                                         "opens with the labelled samples needed."),
         capacity: Optional[Path] = typer.Option(
             None, "--capacity", help="Saved probe result (curvefit capacity --probe ... --out)."),
         tradeoff: Optional[Path] = typer.Option(

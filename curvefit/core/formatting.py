@@ -95,6 +95,33 @@ def quantity_name(kind: str, metric: str | None, info: Any = None) -> str:
     return f"{where} {metric_name(metric, info)}"
 
 
+def format_quantity(value: Any, kind: str, metric: str | None, info: Any = None) -> str:
+    """A value with what it is: ``15.0% test error`` for a rate, ``a test MSE of 1,200``
+    for a loss in its own units (``kind`` as in `quantity_name`).
+
+    >>> format_quantity(0.15, "test_error", "error"), format_quantity(1234.5, "test_error", "mse")
+    ('15.0% test error', 'a test MSE of 1,234')
+    """
+    what = quantity_name(kind, metric, info)
+    text = format_error(value, metric)
+    return f"{text} {what}" if is_rate(metric) else f"a {what} of {text}"
+
+
+def vc_absent_reason(metric: str | None, info: dict | None = None) -> str | None:
+    """Why a VC-based section (worst-case bound, VC units) is left out for this metric, in
+    one line, or None when it applies: VC theory bounds the 0-1 loss only.
+
+    >>> vc_absent_reason("error") is None
+    True
+    >>> vc_absent_reason("mse")
+    'no VC comparison: VC theory bounds the 0-1 loss (misclassification), and this curve measures MSE'
+    """
+    if is_zero_one(metric):
+        return None
+    return ("no VC comparison: VC theory bounds the 0-1 loss (misclassification), and this "
+            f"curve measures {metric_name(metric, info)}")
+
+
 def round_significant(value: float, digits: int = 3) -> float:
     """``value`` rounded to ``digits`` significant figures (0, inf and NaN unchanged).
 

@@ -20,7 +20,7 @@ import pandas as pd
 from curvefit.core.defaults import BOOTSTRAP, INTERVAL, SEED
 from curvefit.core.errors import FitWarning, InputError
 from curvefit.core.estimate import Estimate
-from curvefit.core.formatting import format_error, is_zero_one, metric_name
+from curvefit.core.formatting import format_error, vc_absent_reason
 from curvefit.core.validate import check_level, check_positive
 from curvefit.fitting.sanity import sanity_check
 
@@ -324,23 +324,6 @@ def vc_epsilon(curve, *, test_error: float | None = None, gap: float | None = No
     return (float(test_error) - train,
             f"target {format_error(test_error, metric)} minus the training error "
             f"{format_error(train, metric)} at {size:,.0f} samples", None)
-
-
-def vc_absent_reason(metric: str | None, info: dict | None = None) -> str | None:
-    """Why the VC comparison is left out for this metric (one line), or None when it
-    applies: VC theory bounds the 0-1 loss (the misclassified fraction) only.
-
-    Examples
-    --------
-    >>> vc_absent_reason("error") is None
-    True
-    >>> vc_absent_reason("mse")
-    'no VC comparison: VC theory bounds the 0-1 loss (misclassification), and this curve measures MSE'
-    """
-    if is_zero_one(metric):
-        return None
-    return ("no VC comparison: VC theory bounds the 0-1 loss (misclassification), and this "
-            f"curve measures {metric_name(metric, info)}")
 
 
 def _check_need(test_error, gap, cost_per_label, budget, current_n, extra, vc_dim, interval):

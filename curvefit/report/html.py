@@ -58,6 +58,10 @@ from curvefit.core.formatting import (
     format_number,
     format_range,
     is_rate,
+    is_zero_one,
+    metric_name,
+    quantity_name,
+    vc_absent_reason,
 )
 from curvefit.core.jsonio import jsonable, write_text_atomic
 from curvefit.report import plots
@@ -143,8 +147,18 @@ def _img(png: bytes, alt: str, caption: str) -> str:
             f"<figcaption>{esc(caption)}</figcaption></figure>")
 
 
-def _what(metric: str) -> str:
-    return "test error" if is_rate(metric) else f"test {metric}"
+def _what(curve: Any, kind: str = "test_error") -> str:
+    """What the curve's values are, in words: "test error" for the 0-1 error, "test MSE"."""
+    return quantity_name(kind, curve.metric, getattr(curve, "metric_info", None))
+
+
+def _target_phrase(curve: Any, target_error: float, strong: bool = True) -> str:
+    """``<strong>15.0%</strong> test error`` or ``a test MSE of <strong>3,000</strong>``."""
+    target, what = esc(format_error(target_error, curve.metric)), esc(_what(curve))
+    target = f"<strong>{target}</strong>" if strong else target
+    if is_rate(curve.metric):
+        return f"{target} {what}"
+    return f"a {what} of {target}"
 
 
 # --------------------------------------------------------------------------- sentences
@@ -152,13 +166,13 @@ def answer_sentence(res: Any, target_error: float, interval: float = INTERVAL) -
     """The plain-words answer for one model (escaped HTML)."""
     metric = res.curve.metric
     ans = res.answer
-    target, what = esc(format_error(target_error, metric)), esc(_what(metric))
+    phrase = _target_phrase(res.curve, target_error)
     if ans is None:
         why = "; ".join(res.notes) or "no fit was available"
-        return f"No answer for {target} {what}: {esc(why)}."
+        return f"No answer for {_target_phrase(res.curve, target_error, False)}: {esc(why)}."
     n = field_of(ans, "n")
     if bool(field_of(ans, "reachable", is_finite(n))) and is_finite(n):
-        return (f"To reach <strong>{target}</strong> {what} you need about "
+        return (f"To reach {phrase} you need about "
                 f"<strong>{esc(format_count(n))} labelled samples</strong>"
                 f"{_answer_span(ans, interval)}.{_extrapolation(res.curve, float(n))}")
     msg = field_of(ans, "message") or ""
@@ -166,13 +180,13 @@ def answer_sentence(res: Any, target_error: float, interval: float = INTERVAL) -
         text = esc(msg)
         if "not reachable" in text:  # the fit's own sentence says it; just emphasise it
             return text.replace("not reachable", "<strong>not reachable</strong>", 1)
-        return (f"<strong>{target}</strong> {what} is <strong>not reachable</strong> "
+        return (f"{phrase[:1].upper()}{phrase[1:]} is <strong>not reachable</strong> "
                 f"by adding labels alone. {text}")
     asym = field_of(ans, "asymptote")
     a = field_of(asym, "estimate", asym)
     floor = (f" The fitted curve levels off at about {esc(format_error(a, metric))}."
              if is_finite(a) else "")
-    return (f"<strong>{target}</strong> {what} is <strong>not reachable</strong> "
+    return (f"{phrase[:1].upper()}{phrase[1:]} is <strong>not reachable</strong> "
             f"with this model by adding labels alone.{floor}")
 
 
@@ -220,23 +234,26 @@ def order_results(results: Sequence[Any]) -> list:
     return sorted(results, key=key)
 
 
-def _purchase_view(plan: pd.DataFrame, metric: str, interval: float) -> pd.DataFrame:
+def _purchase_view(plan: pd.DataFrame, metric: str, interval: float,
+                   info: Any = None) -> pd.DataFrame:
     """The purchase plan with readable units: counts, errors, cost, drop per 1,000."""
     view = pd.DataFrame(index=plan.index)
+    what = quantity_name("test_error", metric, info)
     amount = lambda v: f"{float(v):,.0f}" if is_finite(v) else MISSING  # noqa: E731 - exact amounts
     if "extra" in plan:
         view["extra labels"] = plan["extra"].map(amount)
     if "total_n" in plan:
         view["total labels"] = plan["total_n"].map(amount)
     if "test_error" in plan:
-        view["expected test error"] = plan["test_error"].map(lambda v: format_error(v, metric))
+        view[f"expected {what}"] = plan["test_error"].map(lambda v: format_error(v, metric))
     if "low" in plan and "high" in plan:
         view[f"{format_level(interval)} interval"] = [
             format_range(lo, hi, "error", metric) for lo, hi in zip(plan["low"], plan["high"])]
     if "cost" in plan and plan["cost"].notna().any():
         view["cost"] = plan["cost"].map(format_money)
     if "drop_per_1000" in plan:
-        view["error drop per 1,000 labels"] = plan["drop_per_1000"].map(
+        drop = "error drop" if is_rate(metric) else f"{metric_name(metric, info)} drop"
+        view[f"{drop} per 1,000 labels"] = plan["drop_per_1000"].map(
             lambda v: format_error(v, metric))
     known = ("extra", "total_n", "test_error", "low", "high", "cost", "drop_per_1000")
     for c in [c for c in plan.columns if c not in known]:
@@ -384,12 +401,18 @@ def _capacity_rows(results: Sequence[Any], probe: Any, interval: float) -> pd.Da
     return pd.DataFrame(rows)
 
 
+# What each capacity method's figure is, for the capacity table.
+CAPACITY_METHODS = {"gap": "gap model (VC units)", "probe": "probe (VC dimension)",
+                    "optimism": "optimism of squared error (parameters)"}
+
+
 def _capacity_row(label: str, c: Any, interval: float) -> dict:
     lvl = field_of(c, "level", interval) or interval
     d, lo, hi = field_of(c, "vc_dim"), field_of(c, "low"), field_of(c, "high")
     above = bool(field_of(c, "above_range", False))
-    return {"model": label, "method": field_of(c, "method", ""),
-            "effective VC dimension": (("≥ " if above else "") + format_capacity(d))
+    method = field_of(c, "method", "")
+    return {"model": label, "method": CAPACITY_METHODS.get(method, method),
+            "effective capacity": (("≥ " if above else "") + format_capacity(d))
             if is_finite(d) else MISSING,
             f"{format_level(lvl)} interval": (format_range(lo, hi, "capacity")
                                               if is_finite(lo) and (is_finite(hi) or hi == math.inf)
@@ -455,7 +478,8 @@ def _answer_section(page: _Page, purchase: pd.DataFrame | None, purchase_note: s
         body.append(f"<h3>Buying more labels ({esc(res[0].label)})</h3>")
         if purchase_note:
             body.append(f"<p>{esc(purchase_note)}</p>")
-        body.append(html_table(_purchase_view(purchase, res[0].curve.metric, page.interval)))
+        body.append(html_table(_purchase_view(purchase, res[0].curve.metric, page.interval,
+                                              res[0].curve.metric_info)))
     shown = []
     for r in res:
         for w in field_of(r.answer, "warnings", None) or ():
@@ -504,10 +528,13 @@ def _curves_section(page: _Page) -> str:
     constant = (" Thin dashed line without markers: the constant predictor's error on the "
                 "same test sets." if any(r.curve.has_baseline for r in res) else "")
     far = _far_answers(res) if page.target_error is not None else ""
+    curve = res[0].curve
+    what, name = _what(curve), metric_name(curve.metric, curve.metric_info)
+    bars = (f"; thin capped bars: exact {level} interval of one repeat's test set"
+            if is_zero_one(curve.metric) else "")
     body = [page.figure("learning-curve", fig, "learning curves: error against labelled samples",
-                        f"Filled markers: mean test error over repeats (thick bar ± one standard "
-                        f"error); thin capped bars: exact {level} interval of one repeat's "
-                        f"test set; hollow markers: training error. Lines: the chosen family "
+                        f"Filled markers: mean {what} over repeats (thick bar ± one standard "
+                        f"error){bars}; hollow markers: training {name}. Lines: the chosen family "
                         f"(solid, shaded {level} band) and the runner-up (dashed), "
                         f"extrapolated.{constant}{far}")]
     for r in res:
@@ -521,7 +548,8 @@ def _curves_section(page: _Page) -> str:
 def _ranking_section(page: _Page) -> str | None:
     if not any(r.fit is not None for r in page.results):
         return None
-    body = ["<p>Each family was fitted to the measured test error; the one with the "
+    what = esc(_what(page.results[0].curve))
+    body = [f"<p>Each family was fitted to the measured {what}; the one with the "
             "smallest error when forecasting the largest sizes from the smaller ones is "
             "chosen (marked).</p>"]
     return "".join(body + [_ranking_block(r) for r in page.results])
@@ -541,8 +569,10 @@ def _capacity_section(page: _Page, probe: Any) -> str | None:
                                 "with the fitted gap curves where available."))
     if len(rows):
         body.append(html_table(rows))
-        body.append('<p class="small">Effective capacity is the VC dimension of a learner '
-                    "that would show the same gap; it is an estimate, and a learner whose "
+    methods = {field_of(c, "method", "") for c in [r.capacity for r in res] + [probe] if c is not None}
+    if methods & {"gap", "probe"}:
+        body.append('<p class="small">Effective capacity in VC units is the VC dimension of a '
+                    "learner that would show the same gap; it is an estimate, and a learner whose "
                     "capacity exceeds the probed range gets only a lower bound.</p>")
     if probe is not None:
         fig = plots.probe_figure(probe)
@@ -579,6 +609,10 @@ def _tradeoff_section(page: _Page, tradeoff: Any) -> str | None:
 def _worst_case_section(page: _Page) -> str | None:
     if page.target_error is None:
         return None
+    curve = page.results[0].curve if page.results else None
+    if curve is not None and not is_zero_one(curve.metric):
+        why = vc_absent_reason(curve.metric, curve.metric_info)
+        return f"<p>{esc(why[:1].upper() + why[1:])}.</p>"
     wc = next((r.worst_case for r in page.results if r.worst_case is not None), None)
     if wc is None:
         return None
@@ -713,12 +747,15 @@ def figure_dir_for(path: str | os.PathLike) -> Path:
 def write_report(path: str | os.PathLike, results: Any, **kwargs) -> Path:
     """Write `build_report` to ``path`` (atomically) and its figures to ``<stem>_files/``.
 
-    Returns the path of the HTML file.
+    Returns the path of the HTML file. The figures are drawn into a temporary folder
+    that replaces ``<stem>_files/`` only when all of them are written, so a failure (a
+    full disk) leaves the old folder or none, never part of a new one.
     """
-    path = Path(path)
-    if path.is_dir():
-        raise InputError(f"{path} is a directory; give a file name such as {path / 'report.html'}")
-    if not path.parent.exists():
-        raise InputError(f"folder {path.parent} does not exist; create it or choose another file")
-    kwargs.setdefault("figure_dir", figure_dir_for(path))
-    return write_text_atomic(path, build_report(results, **kwargs), what="report")
+    from curvefit.core.jsonio import check_output_path, folder_replaced_whole
+
+    path = check_output_path(path, "report")
+    if "figure_dir" in kwargs:  # the caller's own folder
+        return write_text_atomic(path, build_report(results, **kwargs), what="report")
+    with folder_replaced_whole(figure_dir_for(path), "report's figure folder") as figures:
+        text = build_report(results, figure_dir=figures, **kwargs)
+    return write_text_atomic(path, text, what="report")

@@ -107,7 +107,7 @@ def split_label(curve: Any) -> str:
     if kind == "given_test":
         return "given test set"
     if kind == "random":
-        return "random stratified split"
+        return "random stratified split" if split.get("stratify", True) else "random split"
     return "split not recorded"
 
 
