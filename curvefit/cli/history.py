@@ -26,24 +26,28 @@ _SHORT = {"test_error_at_ref": "error@ref", "decay_exponent": "decay exp.",
 def _cell(row, name: str) -> str:
     import pandas as pd
 
-    from curvefit.core.formatting import MISSING, format_estimate
-    from curvefit.history.figures import figure_kind
+    from curvefit.core.formatting import MISSING
+    from curvefit.history.figures import format_figure, make_figure
 
     if pd.isna(row[name]):
         return MISSING
     metric = "error" if pd.isna(row["metric"]) else str(row["metric"])
-    return format_estimate(row[name], row[f"{name}_low"], row[f"{name}_high"],
-                           kind=figure_kind(name), metric=metric)
+    return format_figure(make_figure(name, row[name], row[f"{name}_low"], row[f"{name}_high"]),
+                         metric)
+
+
+MODEL_WIDTH = 48
 
 
 def _model_short(value) -> str:
-    from curvefit.history.listing import model_value
+    """The model with its parameters, cut at `MODEL_WIDTH` characters (the fingerprint
+    column tells models apart whatever is cut)."""
+    from curvefit.history.listing import model_label
 
-    v = model_value(value)
-    if v is None:
+    s = model_label(value)
+    if s is None:
         return "—"
-    s = str(v.get("label") or v.get("spec") or v.get("name") or v) if isinstance(v, dict) else v
-    return s if len(s) <= 40 else "…" + s[-39:]
+    return s if len(s) <= MODEL_WIDTH else s[:MODEL_WIDTH - 1] + "…"
 
 
 def _ungated(name: str, figures: dict) -> str:
@@ -59,28 +63,30 @@ def _ungated(name: str, figures: dict) -> str:
 def _print_series(name: str, config: dict, runs, entries: list) -> None:
     import pandas as pd
 
-    from curvefit.history.listing import figure_names
+    from curvefit.history.figures import one_line
+    from curvefit.history.listing import figure_names, model_fingerprint
 
     ref = config.get("reference_size")
     target = config.get("target_error")
     bits = [f"reference size {ref}" if ref else None,
             f"target error {format_error(target)}" if target is not None else None]
-    out.print(f"series {name}: {len(runs)} run(s)"
+    out.print(f"series {one_line(name)}: {len(runs)} run(s)"
               + (f" ({', '.join(b for b in bits if b)})" if any(bits) else ""), markup=False)
     if runs.empty:
         return
     figs = figure_names(runs)
     entries_by_id = {e["run_id"]: e["figures"] for e in entries}
-    headers = ["run", "created", "model"] + [_SHORT.get(f, f) for f in figs] + ["code"]
+    headers = ["run", "created", "model", "model id"] + [_SHORT.get(f, f) for f in figs] + ["code"]
     rows = []
     for _, r in runs.iterrows():
         code = r["code_version"]
         marks = {f: _ungated(f, entries_by_id.get(int(r["run_id"]), {})) for f in figs}
         rows.append([str(int(r["run_id"])), str(r["created"]).replace("T", " ")[:16],
-                     _model_short(r["model"])] + [_cell(r, f) + marks[f] for f in figs]
+                     _model_short(r["model"]), model_fingerprint(r["model"]) or "—"]
+                    + [_cell(r, f) + marks[f] for f in figs]
                     + ["—" if pd.isna(code) else str(code)[:8]])
     print_table(headers, rows, align="left")
-    if any("*" in c for row in rows for c in row[3:]):
+    if any("*" in c for row in rows for c in row[4:]):
         out.print("* recorded as not gated (see the note in --json)", markup=False)
 
 
