@@ -17,7 +17,15 @@ from pathlib import Path
 
 import pandas as pd
 import pytest
-from test_store import _curve, _figs, check_writers, run_writers
+from test_store import (
+    _curve,
+    _figs,
+    check_one_reference_size,
+    check_writers,
+    made_store,
+    race_first_records,
+    run_writers,
+)
 
 from conftest import run_cli
 from curvefit.core.curve import Curve
@@ -85,8 +93,11 @@ def db(server):
 
 def test_record_read_compare_accept(db):
     with Store(db) as s:
-        assert type(s).__name__ == "PostgresStore" and s.schema_version == SCHEMA_VERSION
+        assert type(s).__name__ == "PostgresStore"
+        with pytest.raises(InputError, match="not found"):
+            s.runs("s")  # reading a new database creates no tables
         r1 = s.record(_curve(), None, series="s", headline=_figs(err=0.05), code_version=None)
+        assert s.schema_version == SCHEMA_VERSION
         r2 = s.record(_curve(shift=0.06), None, series="s", headline=_figs(err=0.08,
                                                                           samples=float("inf")))
         runs = s.runs("s")
@@ -105,15 +116,14 @@ def test_record_read_compare_accept(db):
 
 
 def test_same_schema_as_sqlite(db, tmp_path):
-    with Store(db):
-        pass
+    made_store(db)
     with psycopg.connect(db) as con:
         pg = {(t, c) for t, c in con.execute(
             "SELECT table_name, column_name FROM information_schema.columns"
             " WHERE table_schema = current_schema() AND table_name != 'curvefit_store'")}
     import sqlite3
 
-    Store(tmp_path / "h.db").close()
+    made_store(tmp_path / "h.db")
     con = sqlite3.connect(tmp_path / "h.db")
     lite = {(t, r[1]) for (t,) in con.execute("SELECT name FROM sqlite_master WHERE type = 'table'")
             for r in con.execute(f"PRAGMA table_info({t})")}
@@ -127,6 +137,13 @@ def test_twelve_processes_lose_nothing(db, tmp_path):
         check_writers(s)
     with psycopg.connect(db) as con:
         assert con.execute("SELECT count(*) FROM points").fetchone()[0] == 12 * 6 * 12
+
+
+def test_simultaneous_first_records_share_one_reference_size(db, tmp_path):
+    # the series row is created, then read FOR UPDATE, inside each run's transaction
+    race_first_records(db, tmp_path)
+    with Store(db) as s:
+        check_one_reference_size(s)
 
 
 def test_connection_errors_are_one_line(server, tmp_path):

@@ -1,5 +1,6 @@
 """Tests of the history store (curvefit/store.py) and the comparison rule (tracking.py)."""
 
+import itertools
 import json
 import math
 import sqlite3
@@ -20,8 +21,11 @@ from curvefit.history import figures as tracking
 from curvefit.history.figures import Tolerance, compare_figure, make_figure
 from curvefit.history.store import APPLICATION_ID, SCHEMA_VERSION, Store
 
+_MEASURED = itertools.count()
+
 
 def _curve(fingerprint="abc123", metric="error", shift=0.0, sizes=(50, 100, 200), repeats=2):
+    """A measured curve; each call is a new measurement (its own start stamp in the meta)."""
     rows = []
     for s in sizes:
         for r in range(repeats):
@@ -31,13 +35,20 @@ def _curve(fingerprint="abc123", metric="error", shift=0.0, sizes=(50, 100, 200)
                          "status": "ok", "message": ""})
     return Curve.from_table(pd.DataFrame(rows), meta={
         "data_fingerprint": fingerprint, "metric": metric,
-        "model": {"spec": "sklearn.linear_model:LogisticRegression", "params": {"C": 1.0}}})
+        "model": {"spec": "sklearn.linear_model:LogisticRegression", "params": {"C": 1.0}},
+        "started": f"2026-12-01T00:00:{next(_MEASURED):02d}"})
 
 
 def _figs(err=0.05, half=0.002, expo=0.5, samples=400.0):
     return [make_figure("test_error_at_ref", err, err - half, err + half),
             make_figure("decay_exponent", expo, expo - 0.05, expo + 0.05),
             make_figure("samples_for_target", samples, samples * 0.9, samples * 1.1)]
+
+
+def made_store(address):
+    """A store with one run in series ``setup`` (a store is created by its first write)."""
+    with Store(address) as s:
+        s.record(_curve(), None, series="setup", headline=_figs(), code_version=None)
 
 
 @pytest.fixture
@@ -278,7 +289,7 @@ def test_migration_from_v1_keeps_data(tmp_path):
     con.close()
 
     with Store(path) as s:
-        assert s.schema_version == SCHEMA_VERSION == 3
+        assert s.schema_version == SCHEMA_VERSION == 4
         runs = s.runs("old")
         assert runs["run_id"].tolist() == [1]
         assert runs.loc[0, "n_points"] == 2 and pd.isna(runs.loc[0, "code_version"])
@@ -294,7 +305,7 @@ def test_migration_from_v1_keeps_data(tmp_path):
         assert s.verdict(1) is None and s.accepted_run("old") is None
     con = sqlite3.connect(path)
     cols = {r[1] for r in con.execute("PRAGMA table_info(runs)")}
-    assert {"code_version", "verdict", "baseline_id"} <= cols
+    assert {"code_version", "verdict", "baseline_id", "run_digest"} <= cols
     assert con.execute("SELECT count(*) FROM accepted").fetchone()[0] == 0
     assert con.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
     con.close()
@@ -302,7 +313,7 @@ def test_migration_from_v1_keeps_data(tmp_path):
 
 def test_newer_schema_is_refused(tmp_path):
     path = tmp_path / "new.db"
-    Store(path).close()
+    made_store(path)
     con = sqlite3.connect(path)
     con.execute(f"PRAGMA user_version = {SCHEMA_VERSION + 1}")
     con.close()
@@ -319,7 +330,7 @@ def _foreign_sqlite(path):
 
 
 def _corrupt_sqlite(path):
-    Store(path).close()
+    made_store(path)
     data = bytearray(path.read_bytes())
     # keep the 16-byte header, destroy the rest of the first page (schema)
     data[16:4096] = np.random.default_rng(0).integers(0, 256, 4096 - 16, dtype=np.uint8).tobytes()
@@ -377,7 +388,8 @@ WRITER = textwrap.dedent("""
         with Store(path) as s:
             rows = [{"size": sz, "repeat": r, "test_error": 1 / sz + r * 1e-3}
                     for sz in (10, 20, 40, 80) for r in range(3)]
-            c = Curve.from_table(pd.DataFrame(rows), meta={"data_fingerprint": "same"})
+            c = Curve.from_table(pd.DataFrame(rows), meta={"data_fingerprint": "same",
+                                                           "started": f"{tag}-{i}"})
             s.record(c, None, series=tag if i % 2 else "shared", code_version=None,
                      headline=[make_figure("test_error_at_ref", 0.1 + i, 0.0, 1.0)])
     print("done", tag)
@@ -530,6 +542,7 @@ def test_samples_answer_below_measured_range_is_not_gated():
 
 
 def test_store_addresses(tmp_path):
+    made_store(f"sqlite:///{tmp_path / 'u.db'}")
     with Store(f"sqlite:///{tmp_path / 'u.db'}") as s:
         assert s.path == tmp_path / "u.db" and s.schema_version == SCHEMA_VERSION
     for bad, words in [("mysql://host/db", "unsupported store address"),
@@ -540,3 +553,127 @@ def test_store_addresses(tmp_path):
     with pytest.raises(InputError, match="not found"):
         Store(tmp_path / "absent.db", create=False)
     assert not (tmp_path / "absent.db").exists()
+
+
+# ----------------------------------------------------------------------------- opening, duplicates
+def test_reading_a_missing_store_creates_nothing(tmp_path):
+    import curvefit as cf
+
+    path = tmp_path / "history.db"
+    with pytest.raises(InputError, match="history store not found") as err:
+        cf.Store(path).runs("nightly")  # the README line, on a path with no store yet
+    assert "\n" not in str(err.value)
+    assert not path.exists() and list(tmp_path.iterdir()) == []
+    res = run_cli("history", "--store", path)
+    assert res.returncode == 2 and len(res.stderr.strip().splitlines()) == 1
+    assert not path.exists()
+    with Store(path) as s:  # the first write creates it
+        s.record(_curve(), None, series="s", headline=_figs(), code_version=None)
+    assert path.exists()
+
+
+def test_same_run_is_refused_unless_again(store):
+    c = _curve()
+    r1 = store.record(c, None, series="s", headline=_figs())
+    assert store.recorded_as(c, "s") == r1 and store.recorded_as(_curve(), "s") is None
+    with pytest.raises(InputError, match=f"already recorded as run {r1} of series 's'"):
+        store.record(Curve(c.points.copy(), dict(c.meta)), None, series="s", headline=_figs())
+    assert len(store.runs("s")) == 1  # nothing half-written
+    r2 = store.record(c, None, series="s", headline=_figs(), again=True)
+    store.record(c, None, series="other", headline=_figs())  # another series is another record
+    assert r2 == r1 + 1 and len(store.runs("s")) == 2
+
+
+def test_whole_counts_and_unreachable_in_plain_words():
+    class Answer:
+        n, low, high, reachable = 812.2, 70.9, math.inf, True
+
+    f = tracking.samples_figure(Answer(), 0.05)
+    assert (f.estimate, f.low, f.high) == (813.0, 71.0, math.inf)
+    assert tracking.format_figure(f) == "813 (71 to no upper limit)"
+
+    class Unreachable:
+        n, low, high, reachable = math.nan, 5000.4, math.nan, False
+
+    gone = tracking.samples_figure(Unreachable(), 0.05)
+    assert tracking.format_figure(gone) == "not reachable (interval from 5,000, no upper limit)"
+    base = make_figure("samples_for_target", 4000, 3000, math.inf)
+    change = compare_figure(gone, base, Tolerance(0.25, relative=True))
+    assert change.status == "same"  # the baseline's own interval was open-ended
+    table = tracking.Comparison("s", 2, 1, "accepted", True, [], [change]).to_markdown()
+    row = next(line for line in table.splitlines() if line.startswith("| samples"))
+    assert "∞" not in row and "no longer reachable" in row and "intervals overlap" in row
+
+
+def test_series_name_with_newline_and_pipe_keeps_markdown_whole(store):
+    name = "night|ly\n| injected | row |\n`code`"
+    r1 = store.record(_curve(), None, series=name, headline=_figs(err=0.05))
+    r2 = store.record(_curve(), None, series=name, headline=_figs(err=0.09))
+    md = store.compare(r2, gate="all").to_markdown()
+    lines = md.splitlines()
+    assert lines[0].startswith("### curvefit track: series ")
+    assert lines[0].endswith(f"run {r2} vs run {r1} (accepted)")
+    assert "injected" in lines[0] and not any(line.startswith("| injected") for line in lines)
+    rows = [line for line in lines if line.startswith("| ")]
+    assert all(line.count(" | ") == rows[0].count(" | ") for line in rows)
+    assert "\\n" in lines[0] and "``" in lines[0]
+
+
+# ----------------------------------------------------------------------------- first records race
+FIRST_RECORD = textwrap.dedent("""
+    import sys, time
+    from pathlib import Path
+    import numpy as np, pandas as pd
+    from curvefit.core.curve import Curve
+    from curvefit.workflows.nightly import track_run
+    address, top, go = sys.argv[1], int(sys.argv[2]), Path(sys.argv[3])
+    n = np.repeat([s for s in (10, 20, 40, 80, 160) if s <= top], 3)
+    e = 0.1 + 1 / np.sqrt(n) + np.tile([-0.003, 0.0, 0.003], len(n) // 3)
+    curve = Curve.from_table(pd.DataFrame({"size": n, "test_error": e}),
+                             meta={"data_fingerprint": "same", "started": sys.argv[4]})
+    while not go.exists():
+        time.sleep(0.005)
+    track_run(curve, store=address, series="new", bootstrap=10)
+    print("done")
+""")
+
+
+def race_first_records(address, tmp_path, tops=(80, 160, 80, 160, 80, 160)):
+    """Processes that record at once into a new series, with largest sizes 80 and 160
+    (each would fix its own reference size if it read the series outside the write)."""
+    go = tmp_path / "go-first"
+    procs = [subprocess.Popen([sys.executable, "-c", FIRST_RECORD, str(address), str(top), str(go),
+                               f"p{k}"], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                              cwd=ROOT) for k, top in enumerate(tops)]
+    time.sleep(3.0)  # imports done: they wait at the start line
+    go.touch()
+    for p in procs:
+        _, err = p.communicate(timeout=300)
+        assert p.returncode == 0, err
+
+
+def check_one_reference_size(s, n_runs=6):
+    """Every run of the raced series was recorded, and read, at the series' one size."""
+    ref = s.series_config("new")["reference_size"]
+    runs = s.runs("new")
+    assert len(runs) == n_runs and ref in (80, 160)
+    for rid in runs["run_id"]:
+        assert s.curve(int(rid)).meta["tracking"]["reference_size"] == ref
+        assert s.headline(int(rid))["test_error_at_ref"].note.startswith(f"n={ref}")
+
+
+def test_simultaneous_first_records_share_one_reference_size(tmp_path):
+    path = tmp_path / "race.db"
+    race_first_records(path, tmp_path)
+    with Store(path) as s:
+        check_one_reference_size(s)
+
+
+def test_tracking_an_all_failed_run_leaves_no_store(tmp_path):
+    rows = [{"size": s, "repeat": r, "test_error": math.nan, "status": "failed", "message": "boom"}
+            for s in (50, 100) for r in range(2)]
+    Curve.from_table(pd.DataFrame(rows)).write(tmp_path / "failed.json")
+    res = run_cli("track", tmp_path / "failed.json", "--store", tmp_path / "h.db", "--series", "s")
+    assert res.returncode == 2 and "no successful cell" in res.stderr, res.stderr
+    assert len(res.stderr.strip().splitlines()) == 1
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["failed.json"]

@@ -129,6 +129,11 @@ def test_accept_makes_a_run_the_baseline(nightly, tmp_path):
     assert json.loads(res.stdout)["verdict"] == "regressed"
     res = run_cli("track", tmp / "crippled2.json", "--store", db, "--series", "cancer",
                   "--bootstrap", "20", "--json", "--quiet")
+    # the run file is already in the series (run 4): refused with one line
+    assert res.returncode == 2 and res.stdout == "", res.stderr
+    assert res.stderr.count("\n") == 1 and "already recorded as run 4" in res.stderr
+    res = run_cli("track", tmp / "crippled2.json", "--store", db, "--series", "cancer",
+                  "--bootstrap", "20", "--json", "--quiet", "--again")
     assert res.returncode == 0, res.stderr  # same model as the accepted run 3
     assert json.loads(res.stdout)["baseline_id"] == 3
     res = run_cli("track", "--accept", "99", "--store", db)
@@ -139,7 +144,7 @@ def test_markdown_summary_names_regressed_figures(nightly):
     tmp, _ = nightly
     # re-record the crippled run file against the best run: markdown for CI logs
     res = run_cli("track", tmp / "crippled.json", "--store", tmp / "history.db",
-                  "--series", "cancer", "--baseline", "best", "--bootstrap", "25", cwd=tmp)
+                  "--series", "cancer", "--baseline", "best", "--bootstrap", "25", "--again", cwd=tmp)
     assert res.returncode == 1, res.stderr
     assert "**Result: REGRESSED**" in res.stdout and "test_error_at_ref" in res.stdout
     assert "| figure | baseline | current |" in res.stdout
@@ -153,12 +158,18 @@ def test_history_lists_runs_and_plots(nightly):
     runs = doc["series"][0]["runs"]
     assert [r["run_id"] for r in runs][:4] == [1, 2, 3, 4]
     assert runs[2]["figures"]["efficiency_ratio"]["note"].startswith("vs run 1")
+    # the crippled run (C=1e-4) shows its parameters and another model fingerprint
+    assert runs[0]["model_label"] == "StandardScaler+LogisticRegression(C=1.0)"
+    assert runs[2]["model_label"] == "StandardScaler+LogisticRegression(C=0.0001)"
+    prints = [r["model_fingerprint"] for r in runs[:4]]
+    assert prints[0] == prints[1] != prints[2] == prints[3] and len(prints[0]) == 8
     assert runs[2]["figures"]["test_error_at_ref"]["estimate"] > \
         runs[0]["figures"]["test_error_at_ref"]["estimate"]
     res = run_cli("history", "--store", tmp / "history.db", "--series", "cancer",
                   "--plot", tmp / "trend.png")
     assert res.returncode == 0, res.stderr
     assert "series cancer" in res.stdout and "error@ref" in res.stdout
+    assert "(C=0.0001)" in res.stdout and prints[2] in res.stdout and prints[0] in res.stdout
     assert (tmp / "trend.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
 
 
@@ -178,7 +189,8 @@ def test_data_change_not_comparable_unless_allowed(nightly, tmp_path):
     assert len(lines) == 1 and "not comparable" in lines[0] and "Traceback" not in res.stderr
     assert "data fingerprint differs" in lines[0]
     res = run_cli("track", tmp / "changed.json", "--store", db, "--series", "s",
-                  "--baseline", "1", "--allow-data-change", "--bootstrap", "20", "--json", "--quiet")
+                  "--baseline", "1", "--allow-data-change", "--bootstrap", "20", "--json", "--quiet",
+                  "--again")  # the job recorded changed.json as run 2 already
     assert res.returncode in (0, 1), res.stderr
     doc = json.loads(res.stdout)
     assert doc["comparable"] is True and doc["data_change_allowed"] is True
@@ -224,8 +236,8 @@ def test_history_bad_input_exit_2(tmp_path):
         if "--series" in args:
             # an empty but valid store: the series is unknown
             run_cli("history", "--store", tmp_path / "plain.db")  # (does not create)
-            from curvefit.history.store import Store
-            Store(tmp_path / "h.db").close()
+            from test_store import made_store
+            made_store(tmp_path / "h.db")
         res = run_cli("history", *args)
         assert res.returncode == 2, res.stderr
         lines = res.stderr.strip().splitlines()

@@ -3,7 +3,8 @@
 Three forms:
 
 - ``curvefit track RUN --store DB --series NAME`` fits an existing run file, records
-  it and compares it with the series' baseline;
+  it and compares it with the series' baseline (a run file already recorded in the
+  series is refused with exit 2 unless ``--again``);
 - ``curvefit track --config nightly.toml`` measures first (the TOML keys are the
   ``measure`` option names), then fits, records and compares, in one command;
 - ``curvefit track --accept RUN --store DB`` accepts a recorded run as its series'
@@ -108,6 +109,9 @@ def register(app: typer.Typer) -> None:
                                                      help="Target test error of the series."),
         allow_data_change: bool = typer.Option(False, "--allow-data-change",
                                                help="Compare even if the data or metric changed."),
+        again: bool = typer.Option(False, "--again",
+                                   help="Record the run even if this run file is already "
+                                   "recorded in the series."),
         bootstrap: Optional[int] = typer.Option(None, "--bootstrap",
                                                 help=f"Bootstrap replicates (default {BOOTSTRAP})."),
         interval: Optional[float] = typer.Option(None, "--interval",
@@ -127,7 +131,7 @@ def register(app: typer.Typer) -> None:
         job = _job(run, config, dict(store=store, series=series, baseline=baseline,
                                      target_error=target_error, bootstrap=bootstrap,
                                      allow_data_change=allow_data_change, interval=interval,
-                                     seed=seed, gate=gate, junit=junit))
+                                     seed=seed, gate=gate, junit=junit, again=again))
         quiet = quiet or bool(job.get("quiet", False))
         json_out = json_out or bool(job.get("json", False))
         junit = job.get("junit")

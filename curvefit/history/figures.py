@@ -39,13 +39,14 @@ This module is pure: it reads result objects and returns new ones; it performs n
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import asdict, dataclass, field
 from typing import Any, Iterable, Mapping
 
 from curvefit.core.defaults import INTERVAL
 from curvefit.core.errors import InputError
 from curvefit.core.estimate import Estimate
-from curvefit.core.formatting import MISSING, format_error, format_estimate, format_value
+from curvefit.core.formatting import MISSING, format_count, format_error, format_estimate, format_value
 from curvefit.core.stats import clopper_pearson, t_interval
 
 LOWER, HIGHER = "lower", "higher"
@@ -227,6 +228,7 @@ def headline_figures(fit: Any, *, reference_size: int, target_error: float | Non
         if curve is not None and math.isfinite(fig.estimate) and len(curve.sizes):
             fig = _widen_samples(fig, fit, curve, float(target_error), interval)
             fig = _check_below_range(fig, curve, float(target_error))
+        fig = whole_counts(fig)
         family = getattr(fit, "best", None)
         if family:
             # the answer is read off the chosen family: compared only within one family
@@ -424,7 +426,24 @@ def samples_figure(sample_estimate: Any, target_error: float, interval: float = 
         note += "; not reachable (the fitted curve levels off above it)"
     elif not math.isfinite(hi):
         hi = math.inf
-    return make_figure("samples_for_target", n, lo, hi, interval, note=note)
+    return whole_counts(make_figure("samples_for_target", n, lo, hi, interval, note=note))
+
+
+def whole_counts(fig: Figure) -> Figure:
+    """A count figure in whole samples: each finite end rounded up (n samples reach the
+    target, so 70.9 means 71); infinite and missing ends are kept.
+
+    Examples
+    --------
+    >>> f = whole_counts(make_figure("samples_for_target", 812.2, 70.9, math.inf))
+    >>> f.estimate, f.low, f.high
+    (813.0, 71.0, inf)
+    """
+    def up(v: float) -> float:
+        return float(math.ceil(v - 1e-9)) if math.isfinite(v) else v
+
+    return Figure(fig.name, up(fig.estimate), up(fig.low), up(fig.high), fig.level, fig.better,
+                  fig.note)
 
 
 BASELINE_RULES = ("accepted", "previous", "best")
@@ -774,8 +793,9 @@ class Comparison:
                 "metric": self.metric, "figures": [c.to_dict() for c in self.changes]}
 
     def to_markdown(self) -> str:
-        """A short markdown summary for CI logs."""
-        head = f"### curvefit track: series `{self.series}`, run {self.run_id}"
+        """A short markdown summary for CI logs (the series name on one line, in a code
+        span that no character of it can end)."""
+        head = f"### curvefit track: series {markdown_code(self.series)}, run {self.run_id}"
         if self.baseline_id is None:
             lines = [head, "", "First run of the series: recorded as the baseline; nothing to compare.", ""]
             lines += _figure_table([(c.name, c.current, None, None) for c in self.changes],
@@ -849,9 +869,11 @@ def _figure_table(rows: Iterable[tuple[str, Figure | None, Figure | None, Figure
     for name, cur, base, change in rows:
         label = f"{FIGURES.get(name, (None, name))[1]}{_table_note(name, cur, base, change)}"
         if with_base:
-            worse = format_value(change.worse_by, figure_kind(name), metric) if change else ""
+            worse = worse_by_text(change, metric) if change else ""
             tol = change.tolerance if change and change.tolerance and change.better else ""
             status = change.status if change else ""
+            if status == "same" and math.isinf(_float(change.worse_by)):
+                status = "not separable (intervals overlap)"
             if change and not change.gated and status in ("regressed", "improved"):
                 status += " (info)"
             lines.append(f"| {label} | {format_figure(base, metric)} | "
@@ -877,6 +899,34 @@ def _table_note(name: str, cur: Figure | None, base: Figure | None,
     return f" ({note})" if note else ""
 
 
+def one_line(text: Any) -> str:
+    r"""``text`` on one line: newlines, tabs and other control characters shown as escapes.
+
+    Examples
+    --------
+    >>> one_line("nightly\nmain"), one_line("ok")
+    ('nightly\\nmain', 'ok')
+    """
+    return "".join(ch if ch.isprintable() else ch.encode("unicode_escape").decode("ascii")
+                   for ch in str(text))
+
+
+def markdown_code(text: Any) -> str:
+    """``text`` as a markdown code span on one line; the fence is longer than any run of
+    backticks inside (CommonMark code spans), so a name cannot end it or start a table.
+
+    Examples
+    --------
+    >>> markdown_code("nightly"), markdown_code("a`b|c")
+    ('`nightly`', '`` a`b|c ``')
+    """
+    body = one_line(text)
+    longest = max((len(m) for m in re.findall(r"`+", body)), default=0)
+    fence = "`" * (longest + 1)
+    pad = " " if longest or body.startswith(" ") or body.endswith(" ") else ""
+    return f"{fence}{pad}{body}{pad}{fence}"
+
+
 def figure_kind(name: str) -> str:
     """How a figure's values read: ``error``, ``count``, ``capacity`` or ``number``."""
     return FIGURE_KINDS.get(name, "number")
@@ -894,4 +944,32 @@ def format_figure(f: Figure | None, metric: str = "error") -> str:
     """
     if f is None:
         return MISSING
+    if figure_kind(f.name) == "count" and math.isinf(_float(f.estimate)):
+        # an unreachable target: say so, with the lower end of the interval if finite
+        low = _float(f.low)
+        return (f"not reachable (interval from {format_count(low)}, no upper limit)"
+                if math.isfinite(low) else "not reachable")
     return format_estimate(f.estimate, f.low, f.high, kind=figure_kind(f.name), metric=metric)
+
+
+def worse_by_text(change: "FigureChange", metric: str = "error") -> str:
+    """How much worse a figure got, in words when a side is unbounded (never "∞").
+
+    Examples
+    --------
+    >>> base = make_figure("samples_for_target", 800, 700, 900)
+    >>> gone = make_figure("samples_for_target", math.inf, 5000, math.inf)
+    >>> worse_by_text(compare_figure(gone, base, Tolerance(0.25, True)))
+    'no longer reachable'
+    >>> worse_by_text(compare_figure(base, gone, Tolerance(0.25, True)))
+    'reachable now'
+    """
+    cur = _float(change.current.estimate) if change.current else math.nan
+    base = _float(change.baseline.estimate) if change.baseline else math.nan
+    if math.isinf(cur) or math.isinf(base):
+        if math.isinf(cur) and math.isinf(base):
+            return "unreachable in both"
+        if math.isinf(cur):
+            return "no longer reachable"
+        return "reachable now"
+    return format_value(change.worse_by, figure_kind(change.name), metric)

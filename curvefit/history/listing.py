@@ -50,7 +50,8 @@ def _run_entry(store, r: pd.Series, figs: list[str]) -> dict:
     recorded = store.headline(int(r["run_id"]))
     return {
         "run_id": int(r["run_id"]), "created": r["created"],
-        "model": model_value(r["model"]),
+        "model": model_value(r["model"]), "model_label": model_label(r["model"]),
+        "model_fingerprint": model_fingerprint(r["model"]),
         "metric": _text(r["metric"]), "data_fingerprint": _text(r["data_fingerprint"]),
         "code_version": _text(r["code_version"]),
         "n_points": int(r["n_points"]), "n_failed": int(r["n_failed"]),
@@ -61,6 +62,63 @@ def _run_entry(store, r: pd.Series, figs: list[str]) -> dict:
                         "note": recorded[f].note if f in recorded else ""}
                     for f in figs if not pd.isna(r[f])},
     }
+
+
+def model_label(value: Any) -> str | None:
+    """A stored model spec in one line with its parameters: ``LogisticRegression(C=0.0001)``;
+    a trainer program by its command. None when no model was recorded.
+
+    Examples
+    --------
+    >>> model_label('{"name": "LogisticRegression", "params": {"C": 0.0001, "max_iter": 500}}')
+    'LogisticRegression(C=0.0001, max_iter=500)'
+    >>> model_label("sklearn.tree:DecisionTreeClassifier"), model_label(None)
+    ('sklearn.tree:DecisionTreeClassifier', None)
+    """
+    v = model_value(value)
+    if v is None or not isinstance(v, dict):
+        return v
+    if v.get("command"):
+        return f"command: {v['command']}"
+    name = str(v.get("label") or v.get("name") or v.get("spec") or "model")
+    params = v.get("params") or {}
+    if not isinstance(params, dict):
+        return name
+    inner = ", ".join(f"{k}={_param_text(params[k])}" for k in sorted(params))
+    return f"{name}({inner})"
+
+
+def _param_text(value: Any) -> str:
+    return json.dumps(value, sort_keys=True) if isinstance(value, (dict, list)) else str(value)
+
+
+def model_fingerprint(value: Any) -> str | None:
+    """Eight hex digits of SHA-256 over what defines a stored model (kind, spec with a
+    model file's name but not its folder, parameters, command), so runs of one model
+    configuration share it and a changed parameter shows as a new fingerprint.
+
+    Examples
+    --------
+    >>> a = model_fingerprint('{"kind": "import", "spec": "m:M", "params": {"C": 1.0}, "timeout": 5}')
+    >>> b = model_fingerprint('{"kind": "import", "spec": "m:M", "params": {"C": 0.0001}}')
+    >>> len(a), a == b, a == model_fingerprint('{"kind": "import", "spec": "m:M", "params": {"C": 1.0}}')
+    (8, False, True)
+    """
+    import hashlib
+    from pathlib import PurePath
+
+    v = model_value(value)
+    if v is None:
+        return None
+    if isinstance(v, dict):
+        spec = v.get("spec")
+        if v.get("kind") == "file" and isinstance(spec, str):
+            spec = PurePath(spec).name  # the same file checked out elsewhere
+        v = {"kind": v.get("kind"), "spec": spec, "params": v.get("params"),
+             "command": v.get("command"), "factory": v.get("factory"),
+             "name": None if spec else v.get("name")}
+    text = json.dumps(v, sort_keys=True, default=str)
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()[:8]
 
 
 def model_value(v: Any):

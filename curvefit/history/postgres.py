@@ -80,6 +80,7 @@ class PostgresStore(Store):
     """
 
     ROW_ORDER = "ctid"
+    LOCK_ROW = " FOR UPDATE"  # READ COMMITTED: hold the series row until the run is written
     DATABASE_ERRORS = (psycopg.Error,) if psycopg is not None else ()
     INTEGRITY_ERRORS = (psycopg.IntegrityError,) if psycopg is not None else ()
 
@@ -104,6 +105,20 @@ class PostgresStore(Store):
             self._con.close()
             raise
 
+    _pending = False  # no curvefit tables yet: the first write creates them
+
+    def _ready(self, write: bool) -> Any:
+        if self._pending:
+            if not write:
+                raise InputError(f"history store not found: {self.path} has no curvefit tables "
+                                 "yet (nothing recorded; curvefit track creates them)")
+            self._pending = False
+            self._upgrade()
+        return self._con
+
+    def path_exists(self) -> bool:
+        return not self._pending
+
     def _open(self, create: bool) -> None:
         tables = {r[0] for r in self._con.execute(
             "SELECT table_name FROM information_schema.tables WHERE table_schema = current_schema()")}
@@ -113,6 +128,9 @@ class PostgresStore(Store):
                                  "not one; give another database or schema")
             if not create:
                 raise InputError(f"history store not found: {self.path} has no curvefit tables")
+            # the tables are created by the first write, not by reading
+            self._pending = True
+            return
         version = self._version()
         if version > SCHEMA_VERSION:
             raise InputError(f"{self.path} has store schema v{version}, newer than this "
@@ -145,15 +163,16 @@ class PostgresStore(Store):
 
     @contextmanager
     def _transaction(self) -> Iterator[Transaction]:
-        con = self._con
+        con = self._ready(write=True)
         with con.transaction():
             cur = con.cursor()
             yield Transaction(lambda sql, params=(): _run(cur, sql, params),
                       lambda sql, rows: cur.executemany(postgres_sql(sql), rows))
 
     def _query(self, sql: str, params: Sequence[Any] = ()) -> list[tuple]:
+        con = self._ready(write=False)
         try:
-            return self._con.execute(postgres_sql(sql), tuple(params) or None).fetchall()
+            return con.execute(postgres_sql(sql), tuple(params) or None).fetchall()
         except psycopg.Error as exc:
             raise InputError(f"history store {self.path}: {first_line(exc)}") from None
 

@@ -24,6 +24,7 @@ Storage choices, and why:
 from __future__ import annotations
 
 import dataclasses
+import hashlib
 import json
 import math
 import os
@@ -125,7 +126,14 @@ def _create_v1(con: Any) -> None:
             con.execute(statement)
 
 
-MIGRATIONS = [_create_v1, _migrate_1_to_2, _migrate_2_to_3]
+def _migrate_3_to_4(con: Any) -> None:
+    """v4: a digest of each recorded run's content, so the same run file is not recorded
+    twice in a series by mistake (runs recorded before v4 have none and are not checked)."""
+    con.execute("ALTER TABLE runs ADD COLUMN run_digest TEXT")
+    con.execute("CREATE INDEX runs_by_digest ON runs(series_id, run_digest)")
+
+
+MIGRATIONS = [_create_v1, _migrate_1_to_2, _migrate_2_to_3, _migrate_3_to_4]
 # Verdicts of runs that may serve as the "previous" baseline (NULL: recorded before v3).
 PASSING = ("ok", "first run")
 SCHEMA_VERSION = len(MIGRATIONS)
@@ -190,6 +198,7 @@ class Store:
     # what a failed statement raises, and the subset meaning a broken constraint
     DATABASE_ERRORS: tuple = (sqlite3.DatabaseError,)
     ROW_ORDER = "rowid"  # the order rows were inserted in
+    LOCK_ROW = ""  # SQLite's BEGIN IMMEDIATE already holds the write lock
     INTEGRITY_ERRORS: tuple = (sqlite3.IntegrityError,)
 
     def __new__(cls, path: str | os.PathLike = "", *args, **kwargs):
@@ -207,31 +216,67 @@ class Store:
             raise InputError(f"unsupported store address {text!r}; give a file path, sqlite:///PATH "
                              "or postgresql://USER@HOST/DB")
         self.path = Path(text)
-        self._check_file(create)
+        self._con: Any = None
+        # A missing file is created by the first write, never by reading: opening a store
+        # to list its runs must not leave an empty file behind.
+        if self._check_file(create):
+            self._connect()
+
+    def _connect(self) -> None:
+        """Open the file (created with its schema when absent): WAL, foreign keys, migrations.
+
+        A file this process may not write is opened read-only; it must then be current."""
+        writable = not self.path.exists() or (os.access(self.path, os.W_OK)
+                                              and os.access(self.path.parent, os.W_OK))
         try:
-            self._con = sqlite3.connect(self.path, timeout=BUSY_TIMEOUT_MS / 1000,
-                                        isolation_level=None)
+            target = self.path if writable else f"{self.path.resolve().as_uri()}?mode=ro"
+            con = sqlite3.connect(target, timeout=BUSY_TIMEOUT_MS / 1000, isolation_level=None,
+                                  uri=not writable)
         except sqlite3.Error as exc:
             raise InputError(f"cannot open history store {self.path}: {exc}") from None
+        self._con = con
         try:
-            self._con.execute(f"PRAGMA busy_timeout = {BUSY_TIMEOUT_MS}")
+            con.execute(f"PRAGMA busy_timeout = {BUSY_TIMEOUT_MS}")
             self._check_identity()
-            self._con.execute("PRAGMA foreign_keys = ON")
+            con.execute("PRAGMA foreign_keys = ON")
+            if not writable:
+                if self.schema_version != SCHEMA_VERSION:
+                    raise InputError(f"history store {self.path} has schema v{self.schema_version} "
+                                     "and is read-only here; record a run with write access once "
+                                     "to upgrade it")
+                return
             mode = self._enable_wal()
             if str(mode).lower() != "wal":
                 raise InputError(f"history store {self.path}: cannot switch to WAL mode "
                                  f"(got {mode}); use a local file system")
-            self._con.execute("PRAGMA synchronous = NORMAL")
+            con.execute("PRAGMA synchronous = NORMAL")
             self._upgrade()
         except sqlite3.DatabaseError as exc:
-            self._con.close()
+            self._discard()
             raise InputError(f"{self.path} is not a usable curvefit history store ({exc})") from None
         except InputError:
-            self._con.close()
+            self._discard()
             raise
 
+    def _discard(self) -> None:
+        if self._con is not None:
+            self._con.close()
+        self._con = None
+
+    def _ready(self, write: bool) -> Any:
+        """The open connection; a store not created yet is created by a write and is an
+        `InputError` for a read."""
+        if self._con is None:
+            # another process may have created it since this store was opened
+            if not self._check_file(True) and not write:
+                raise InputError(f"history store not found: {self.path} (nothing recorded yet; "
+                                 "curvefit track creates it)")
+            self._connect()
+        return self._con
+
     # ------------------------------------------------------------------ opening
-    def _check_file(self, create: bool) -> None:
+    def _check_file(self, create: bool) -> bool:
+        """Refuse what cannot be a store; True when the file exists."""
         p = self.path
         if p.is_dir():
             raise InputError(f"history store {p} is a directory; give a file path such as {p / 'history.db'}")
@@ -240,7 +285,7 @@ class Store:
                 raise InputError(f"history store not found: {p}")
             if not p.parent.is_dir():
                 raise InputError(f"cannot create history store {p}: directory {p.parent} does not exist")
-            return
+            return False
         try:
             with open(p, "rb") as fh:
                 head = fh.read(len(SQLITE_HEADER))
@@ -249,6 +294,7 @@ class Store:
         if head and head != SQLITE_HEADER:
             raise InputError(f"{p} is not a curvefit history store (not an SQLite file); "
                              "give the right file or a new path")
+        return True
 
     def _enable_wal(self) -> str:
         """Switch to WAL, retrying while another process holds the lock.
@@ -298,7 +344,7 @@ class Store:
     def _transaction(self) -> Iterator["Transaction"]:
         """One write transaction (``BEGIN IMMEDIATE``): committed at the end of the
         block, rolled back on any error."""
-        con = self._con
+        con = self._ready(write=True)
         con.execute("BEGIN IMMEDIATE")
         try:
             yield Transaction(con.execute, con.executemany)
@@ -310,10 +356,10 @@ class Store:
 
     @property
     def schema_version(self) -> int:
-        return int(self._con.execute("PRAGMA user_version").fetchone()[0])
+        return int(self._ready(write=False).execute("PRAGMA user_version").fetchone()[0])
 
     def close(self) -> None:
-        self._con.close()
+        self._discard()
 
     def __enter__(self) -> "Store":
         return self
@@ -326,8 +372,9 @@ class Store:
 
     # ------------------------------------------------------------------ helpers
     def _query(self, sql: str, params: Sequence[Any] = ()) -> list[tuple]:
+        con = self._ready(write=False)
         try:
-            cur = self._con.execute(sql, params)
+            cur = con.execute(sql, params)
             return cur.fetchall()
         except sqlite3.DatabaseError as exc:
             raise InputError(f"history store {self.path}: {exc}") from None
@@ -338,8 +385,14 @@ class Store:
 
     def series_config(self, series: str) -> dict | None:
         """The stored config of ``series`` (reference size, target, tolerances), or None."""
+        if not self.path_exists():
+            return None  # nothing recorded yet: no series has a config
         rows = self._query("SELECT config FROM series WHERE name = ?", (series,))
         return json.loads(rows[0][0]) if rows else None
+
+    def path_exists(self) -> bool:
+        """True when the store exists (a SQLite file is created by its first write)."""
+        return self._con is not None or self.path.exists()
 
     # ------------------------------------------------------------------ writing
     def series_settings(self, series: str, curve: Curve, *, target_error: float | None = None,
@@ -349,45 +402,75 @@ class Store:
 
         The first run fixes the reference size (default: its largest measured size) so
         all runs are read at the same size; a target or tolerances given here replace
-        the stored ones. Compute the headline figures at this ``reference_size`` and
-        ``target_error`` before `record`.
+        the stored ones. Runs recorded at the same time into a new series can each see no
+        reference size here: `settle_series` fixes it in a write transaction, and
+        `record` re-reads it inside its own.
 
         Returns
         -------
         dict
             ``reference_size``, and ``target_error`` and ``tolerances`` when set.
         """
-        if not isinstance(series, str) or not series.strip():
-            raise InputError("a series name is needed, e.g. --series nightly")
-        if target_error is not None:
-            check_positive(target_error, "target_error", allow_zero=True)
-        config = dict(self.series_config(series) or {})
-        if reference_size is not None:
-            ref = check_count(reference_size, "reference_size", minimum=1)
-            if config.get("reference_size") not in (None, ref):
-                raise InputError(f"series {series!r} reads errors at reference size "
-                                 f"{config['reference_size']}, not {ref}; start a new series "
-                                 "to change it")
-            config["reference_size"] = ref
-        if "reference_size" not in config:
-            if len(curve.sizes) == 0:
-                raise InputError("the run has no successful cell; nothing to record")
-            config["reference_size"] = int(curve.sizes.max())
-        if target_error is not None:
-            config["target_error"] = float(target_error)
-        if tolerances is not None:
-            tracking.resolve_tolerances(tolerances)  # validate names and values
-            merged = dict(config.get("tolerances") or {})
-            merged.update(tracking.tolerances_to_config(tolerances))
-            config["tolerances"] = merged
+        return series_settings(self.series_config(series), series, curve, target_error=target_error,
+                               reference_size=reference_size, tolerances=tolerances)
+
+    def settle_series(self, series: str, curve: Curve, *, target_error: float | None = None,
+                      reference_size: int | None = None,
+                      tolerances: Mapping[str, Any] | None = None) -> dict:
+        """Fix a new series' settings (its reference size above all) before figures are
+        computed, in one write transaction, and return the settings to compute them with.
+
+        The stored config is read and, when the series does not exist yet, written in the
+        same transaction, so runs recording into a new series at the same time all get
+        the reference size of the first one to arrive (SQLite ``BEGIN IMMEDIATE``; on
+        PostgreSQL the series row is locked ``FOR UPDATE``). An existing series is not
+        changed here; `record` applies a new target or tolerances with its run.
+        """
+        series_settings(self.series_config(series), series, curve, target_error=target_error,
+                        reference_size=reference_size, tolerances=tolerances)  # fail before writing
+        def settings(stored: dict | None) -> dict:
+            return series_settings(stored, series, curve, target_error=target_error,
+                                   reference_size=reference_size, tolerances=tolerances)
+
+        try:
+            with self._transaction() as tx:
+                _, config, stored = self._settle(tx, series, settings, _now())
+        except self.DATABASE_ERRORS as exc:
+            raise InputError(f"history store {self.path}: {first_line(exc)}") from None
         return config
+
+    def _settle(self, tx: "Transaction", series: str, settings, now: str) -> tuple[int, dict, dict]:
+        """Inside a write transaction: create the series if absent, then read its stored
+        config under the lock and check the run's settings against it.
+
+        Returns (series id, the settings for this run, the stored config). The insert comes
+        first so that two new writers meet at the series row: on PostgreSQL the second
+        waits for the first to commit, then reads its config (``FOR UPDATE``, READ
+        COMMITTED); SQLite's ``BEGIN IMMEDIATE`` lets one writer in at a time anyway.
+        """
+        tx.execute("INSERT INTO series (name, config, created) VALUES (?, ?, ?)"
+                   " ON CONFLICT (name) DO NOTHING", (series, _json(settings(None)), now))
+        sid, text = tx.execute("SELECT id, config FROM series WHERE name = ?" + self.LOCK_ROW,
+                               (series,))[0]
+        stored = json.loads(text)
+        return int(sid), settings(stored), stored
+
+    def recorded_as(self, curve: Curve, series: str) -> int | None:
+        """The run id under which this very run (same points and metadata) is already
+        recorded in ``series``, or None."""
+        if not self.path_exists():
+            return None
+        rows = self._query("SELECT r.id FROM runs r JOIN series s ON s.id = r.series_id"
+                           " WHERE s.name = ? AND r.run_digest = ? ORDER BY r.id LIMIT 1",
+                           (series, run_digest(curve)))
+        return int(rows[0][0]) if rows else None
 
     def record(self, curve: Curve, fit: Any = None, *, series: str,
                headline: Sequence[tracking.Figure] | None = None,
                target_error: float | None = None, reference_size: int | None = None,
                tolerances: Mapping[str, Any] | None = None, capacity: Any = None,
                interval: float = INTERVAL, code_version: str | None | bool = True,
-               created: str | None = None) -> int:
+               created: str | None = None, again: bool = False) -> int:
         """Record one run of ``series`` and return its run id.
 
         The store writes what it is given. Without ``headline``, the figures of ``fit``
@@ -414,27 +497,40 @@ class Store:
             Code version to store; True looks it up with ``git rev-parse HEAD``.
         created : str, optional
             ISO timestamp; defaults to now (UTC).
+        again : bool
+            Record the run even when the same run (same points and metadata) is already
+            recorded in the series; by default that is an `InputError`.
+
+        Notes
+        -----
+        The series' settings are read, checked and written inside the run's write
+        transaction, so runs recording into a new series at once all use one reference
+        size. Figures handed in as ``headline`` must have been computed at that size
+        (`settle_series` gives it before the fit); the one-call form computes them inside.
         """
-        config = self.series_settings(series, curve, target_error=target_error,
-                                      reference_size=reference_size, tolerances=tolerances)
-        is_new = series not in self.series_names()
-        if headline is None:
+        self.series_settings(series, curve, target_error=target_error,
+                             reference_size=reference_size, tolerances=tolerances)  # fail early
+
+        def settings(stored: dict | None) -> dict:
+            return series_settings(stored, series, curve, target_error=target_error,
+                                   reference_size=reference_size, tolerances=tolerances)
+
+        def figures(config: dict) -> list:
+            if headline is not None:
+                return list(headline)
             # the documented one-call form: the figures come from history.figures, the
             # module that defines them; the store itself only writes what it is handed
-            headline = [] if fit is None or isinstance(fit, dict) else tracking.headline_figures(
+            return [] if fit is None or isinstance(fit, dict) else tracking.headline_figures(
                 fit, reference_size=config["reference_size"],
                 target_error=config.get("target_error"), capacity=capacity,
                 interval=interval, curve=curve)
-        meta = dict(curve.meta)
-        meta["tracking"] = {"reference_size": config["reference_size"],
-                            "target_error": config.get("target_error"),
-                            "interval": interval}
+
         version = git_head() if code_version is True else (code_version or None)
-        run = {"meta": meta, "code_version": version, "points": _point_rows(curve.points),
-               "fit_summary": None if fit is None else _json(fit),
-               "headline": list(headline), "created": created or _now()}
+        run = {"meta": dict(curve.meta), "code_version": version, "points": _point_rows(curve.points),
+               "fit_summary": None if fit is None else _json(fit), "interval": interval,
+               "created": created or _now(), "digest": run_digest(curve), "again": bool(again)}
         try:
-            return self._write_run(series, config, is_new, run)
+            return self._write_run(series, run, settings, figures)
         except self.INTEGRITY_ERRORS as exc:
             raise InputError(f"cannot record the run: {first_line(exc)} (duplicate size/repeat "
                              "cells or figure names?)") from None
@@ -442,20 +538,29 @@ class Store:
             raise InputError(f"history store {self.path}: {first_line(exc)}; nothing of this "
                              "run was recorded") from None
 
-    def _write_run(self, series: str, config: dict, is_new: bool, run: dict) -> int:
-        """Insert one run (series config, run row, points, fit, figures) in one transaction."""
-        meta, now = run["meta"], run["created"]
+    def _write_run(self, series: str, run: dict, settings, figures) -> int:
+        """Insert one run in one transaction: the series' config read, checked and written,
+        the run row, points, fit and figures."""
+        now = run["created"]
         with self._transaction() as con:
-            con.execute("INSERT INTO series (name, config, created) VALUES (?, ?, ?)"
-                        " ON CONFLICT (name) DO NOTHING", (series, _json(config), now))
-            if not is_new:
-                con.execute("UPDATE series SET config = ? WHERE name = ?", (_json(config), series))
-            sid = con.execute("SELECT id FROM series WHERE name = ?", (series,))[0][0]
+            sid, config, stored = self._settle(con, series, settings, now)
+            if config != stored:  # a new target or tolerances
+                con.execute("UPDATE series SET config = ? WHERE id = ?", (_json(config), sid))
+            if not run["again"]:
+                same = con.execute("SELECT id FROM runs WHERE series_id = ? AND run_digest = ?"
+                                   " ORDER BY id LIMIT 1", (sid, run["digest"]))
+                if same:
+                    raise InputError(already_recorded(series, int(same[0][0])))
+            headline = figures(config)
+            meta = dict(run["meta"])
+            meta["tracking"] = {"reference_size": config["reference_size"],
+                                "target_error": config.get("target_error"),
+                                "interval": run["interval"]}
             run_id = int(con.execute(
                 "INSERT INTO runs (series_id, created, meta, data_fingerprint, model, metric,"
-                " code_version) VALUES (?, ?, ?, ?, ?, ?, ?) RETURNING id",
+                " code_version, run_digest) VALUES (?, ?, ?, ?, ?, ?, ?, ?) RETURNING id",
                 (sid, now, _json(meta), _fingerprint(meta), _model_text(meta.get("model")),
-                 str(meta.get("metric", "error")), run["code_version"]))[0][0])
+                 str(meta.get("metric", "error")), run["code_version"], run["digest"]))[0][0])
             con.executemany(
                 "INSERT INTO points (run_id, size, repeat, train_error, test_error, n_test,"
                 " n_test_errors, fit_seconds, status, message, extra)"
@@ -469,7 +574,7 @@ class Store:
                 " VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
                 [(run_id, f.name, _num(f.estimate, keep_inf=True), _num(f.low, keep_inf=True),
                   _num(f.high, keep_inf=True), float(f.level), f.better, f.note or "")
-                 for f in run["headline"]])
+                 for f in headline])
         return run_id
 
     # ------------------------------------------------------------------ reading
@@ -737,6 +842,70 @@ class Store:
         except InputError:
             return []
         return tracking.efficiency_figures(eff, baseline_id)
+
+
+def series_settings(stored: Mapping[str, Any] | None, series: str, curve: Curve, *,
+                    target_error: float | None = None, reference_size: int | None = None,
+                    tolerances: Mapping[str, Any] | None = None) -> dict:
+    """A series' stored config (None for a new series) with one run's settings applied,
+    checked: the reference size is fixed by the first run (its largest measured size
+    unless given), a target or tolerances given replace the stored ones.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> c = Curve.from_table(pd.DataFrame({"size": [50, 100], "test_error": [0.2, 0.1]}))
+    >>> series_settings(None, "s", c)
+    {'reference_size': 100}
+    >>> series_settings({"reference_size": 80}, "s", c, target_error=0.05)
+    {'reference_size': 80, 'target_error': 0.05}
+    """
+    if not isinstance(series, str) or not series.strip():
+        raise InputError("a series name is needed, e.g. --series nightly")
+    if target_error is not None:
+        check_positive(target_error, "target_error", allow_zero=True)
+    config = dict(stored or {})
+    if reference_size is not None:
+        ref = check_count(reference_size, "reference_size", minimum=1)
+        if config.get("reference_size") not in (None, ref):
+            raise InputError(f"series {series!r} reads errors at reference size "
+                             f"{config['reference_size']}, not {ref}; start a new series "
+                             "to change it")
+        config["reference_size"] = ref
+    if "reference_size" not in config:
+        if len(curve.sizes) == 0:
+            raise InputError("the run has no successful cell; nothing to record")
+        config["reference_size"] = int(curve.sizes.max())
+    if target_error is not None:
+        config["target_error"] = float(target_error)
+    if tolerances is not None:
+        tracking.resolve_tolerances(tolerances)  # validate names and values
+        merged = dict(config.get("tolerances") or {})
+        merged.update(tracking.tolerances_to_config(tolerances))
+        config["tolerances"] = merged
+    return config
+
+
+def run_digest(curve: Curve) -> str:
+    """SHA-256 of a run's content (its points and metadata), which tells a run file
+    recorded twice from a new run: a new measurement has new timestamps in its meta.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> c = Curve.from_table(pd.DataFrame({"size": [50, 100], "test_error": [0.2, 0.1]}))
+    >>> run_digest(c) == run_digest(Curve(c.points.copy(), dict(c.meta))), len(run_digest(c))
+    (True, 64)
+    """
+    text = json.dumps([jsonable(curve.meta), _point_rows(curve.points)], sort_keys=True,
+                      allow_nan=True, default=str)
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def already_recorded(series: str, run_id: int) -> str:
+    """The one line refusing a run that is already in the series."""
+    return (f"this run is already recorded as run {run_id} of series {series!r}; record it "
+            "again with --again (again=True), or track a new measurement")
 
 
 def _short(fp: str | None) -> str:

@@ -36,7 +36,7 @@ from typing import Any, Mapping
 
 from curvefit.core.defaults import BOOTSTRAP, INTERVAL, SEED
 from curvefit.core.errors import InputError
-from curvefit.core.validate import check_count, check_level
+from curvefit.core.validate import check_count, check_flag, check_level
 from curvefit.workflows.jobs import read_toml, resolve_job_paths
 
 # Job-file keys: the `measure` options (dashes or underscores) plus the tracking ones.
@@ -46,7 +46,7 @@ MEASURE_KEYS = {"data", "target", "model", "param", "command", "features", "test
                 "order", "size_unit"}
 TRACK_KEYS = {"store", "series", "target_error", "baseline", "tolerances",
               "allow_data_change", "bootstrap", "interval", "reference_size", "families",
-              "gate", "junit"}
+              "gate", "junit", "again"}
 
 
 @dataclass
@@ -152,12 +152,13 @@ def tracking_settings(job: Mapping[str, Any]) -> dict:
             "baseline": check_baseline(job.get("baseline", "accepted")),
             "gate": check_gate(job.get("gate")),
             "target_error": target, "tolerances": tolerances,
-            "allow_data_change": bool(job.get("allow_data_change", False)),
+            "allow_data_change": check_flag(job.get("allow_data_change", False), "allow_data_change"),
             "bootstrap": check_count(job.get("bootstrap", BOOTSTRAP), "bootstrap"),
             "interval": check_level(job.get("interval", INTERVAL)),
             "random_state": check_count(job.get("seed", SEED), "seed"),
             "reference_size": None if reference is None else check_count(reference, "reference_size", 1),
-            "families": job.get("families", "auto")}
+            "families": job.get("families", "auto"),
+            "again": check_flag(job.get("again", False), "again")}
 
 
 def check_store_path(path: str) -> None:
@@ -165,7 +166,7 @@ def check_store_path(path: str) -> None:
     from curvefit.history.store import Store, is_postgres_address
 
     if is_postgres_address(path):
-        Store(path).close()  # connects (and creates the tables): fails fast when unreachable
+        Store(path).close()  # connects: fails fast when the server is unreachable
     elif Path(path).exists():
         Store(path, create=False).close()
     elif not Path(path).parent.is_dir():
@@ -238,7 +239,7 @@ def track_run(curve, *, store: str, series: str, baseline: str | int = "accepted
               allow_data_change: bool = False, bootstrap: int = BOOTSTRAP,
               interval: float = INTERVAL, random_state: int = SEED,
               reference_size: int | None = None, families: Any = "auto",
-              gate: Any = None) -> TrackResult:
+              gate: Any = None, again: bool = False) -> TrackResult:
     """Fit ``curve``, record it in ``store`` under ``series`` and compare with the baseline.
 
     Parameters
@@ -263,6 +264,9 @@ def track_run(curve, *, store: str, series: str, baseline: str | int = "accepted
         Size at which errors are read (fixed by the series' first run).
     gate : list of str, "efficiency" or "all", optional
         The figures that can fail the run (default: the efficiency figures).
+    again : bool
+        Record the run even if this very run (same points and metadata, e.g. the same
+        run file) is already recorded in the series; by default that is an `InputError`.
 
     Returns
     -------
@@ -271,27 +275,35 @@ def track_run(curve, *, store: str, series: str, baseline: str | int = "accepted
         succeeds; otherwise it is skipped with a warning.
     """
     from curvefit.history.figures import EFFICIENCY, check_baseline, check_gate, headline_figures
-    from curvefit.history.store import Store
+    from curvefit.history.store import Store, already_recorded
 
     interval = check_level(interval)
     bootstrap = check_count(bootstrap, "bootstrap")
     rule = check_baseline(baseline)
     gate = check_gate(gate)
-    with Store(store) as st:  # open first: a bad store or baseline fails before the slow fit
+    settings = dict(target_error=target_error, reference_size=reference_size, tolerances=tolerances)
+    # open and check first: a bad store, baseline or settings, or a run file recorded
+    # before, fails before the slow fit; a store file is created only when recording
+    with Store(store) as st:
         if isinstance(rule, int):
             st.headline(rule)  # the named baseline run must exist
-        config = st.series_settings(series, curve, target_error=target_error,
-                                    reference_size=reference_size, tolerances=tolerances)
+        st.series_settings(series, curve, **settings)
+        if not again:
+            same = st.recorded_as(curve, series)
+            if same is not None:
+                raise InputError(already_recorded(series, same))
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
             fit, capacity, notes = _fit_and_capacity(curve, families, bootstrap, random_state,
                                                      interval)
+            # the series' reference size is fixed in a write transaction before the figures
+            # are read at it: runs recording into a new series at once share one size
+            config = st.settle_series(series, curve, **settings)
             figures = headline_figures(fit, reference_size=config["reference_size"],
                                        target_error=config.get("target_error"),
                                        capacity=capacity, interval=interval)
             run_id = st.record(curve, fit.to_dict(), series=series, headline=figures,
-                               target_error=target_error, reference_size=reference_size,
-                               tolerances=tolerances, interval=interval)
+                               interval=interval, again=again, **settings)
         comparison = st.compare(run_id, rule, allow_data_change=allow_data_change, gate=gate,
                                 random_state=random_state)
         st.record_verdict(comparison, [c.current for c in comparison.changes
