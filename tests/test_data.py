@@ -272,3 +272,35 @@ def test_packaged_demo_table_is_the_committed_file():
     mod = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(mod)
     assert mod.gzip_bytes(DEMO.read_bytes()) == shipped.read_bytes()
+
+
+# ---------------------------------------------------------------- refused up front
+@pytest.mark.parametrize("name, text, words", [
+    ("mixed.csv", "a,b,y\n1\t2\t0\n3\t4\t1\n5\t6\t0\n", "separated by commas but the rows by tabs"),
+    ("mixed.tsv", "a\tb\ty\n1,2,0\n3,4,1\n", "separated by tabs but the rows by commas"),
+])
+def test_a_header_and_rows_with_different_delimiters_are_named(tmp_path, name, text, words):
+    path = tmp_path / name
+    path.write_text(text)
+    with pytest.raises(InputError, match=words):
+        load_table(path)
+
+
+def test_one_column_and_semicolon_tables_still_load(tmp_path):
+    (tmp_path / "one.csv").write_text("y\n0\n1\n")
+    assert load_table(tmp_path / "one.csv").shape == (2, 1)
+    (tmp_path / "semi.csv").write_text("a;b;y\n1,5;2;0\n3,5;4;1\n")  # decimal commas
+    assert load_table(tmp_path / "semi.csv").shape == (2, 3)
+
+
+def test_infinite_features_are_refused_before_any_fit():
+    from curvefit.measuring.data import as_features
+
+    table = pd.DataFrame({"a": [1.0, 2.0, 3.0, 4.0], "b": [0.0, np.inf, -np.inf, 1.0],
+                          "c": ["u", "v", "u", "v"], "y": [0, 1, 0, 1]})
+    with pytest.raises(InputError, match="feature column 'b' has 2 infinite values .first at row index 1"):
+        prepare(table, "y")
+    with pytest.raises(InputError, match="X: feature column 1 has 1 infinite value"):
+        as_features(np.array([[1.0, 2.0], [3.0, np.inf]]))
+    # gaps stay allowed: they are imputed
+    assert prepare(table.assign(b=[0.0, np.nan, 2.0, 1.0]), "y").has_missing

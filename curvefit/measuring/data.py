@@ -101,6 +101,8 @@ def load_table(path: str | os.PathLike) -> pd.DataFrame:
     if path.is_dir():
         raise InputError(f"{path} is a directory; give the path of a CSV, Parquet or NPZ file")
     suffix = _data_suffix(path)
+    if suffix in _CSV_SUFFIXES | _SNIFF_SUFFIXES and path.suffix.lower() not in _COMPRESSION:
+        _check_delimiters(path)
     try:
         if suffix in _CSV_SUFFIXES:
             df = pd.read_csv(path, low_memory=False)  # one dtype per column, not per chunk
@@ -135,6 +137,65 @@ def load_table(path: str | os.PathLike) -> pd.DataFrame:
         raise InputError(f"data file {path} has duplicate column names: {_list_names(dupes)}; rename them")
     df.columns = [str(c) for c in df.columns]
     return df
+
+
+_DELIMITERS = {",": "commas", "\t": "tabs", ";": "semicolons", "|": "bars"}
+
+
+def _check_delimiters(path: Path, sample_lines: int = 20) -> None:
+    """Refuse a text table whose header and rows use different delimiters (a comma header
+    over tab-separated rows), which pandas would read as one column of text and gaps."""
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(65536).decode("utf-8", errors="replace")
+    except OSError:
+        return  # reading proper reports it
+    lines = [ln for ln in head.splitlines()[:sample_lines + 1] if ln.strip()]
+    if len(lines) < 2:
+        return
+    header, rows = lines[0], lines[1:]
+    counts = {d: header.count(d) for d in _DELIMITERS}
+    used = max(counts, key=counts.get)
+    if counts[used] == 0:
+        return  # a single column
+    without = sum(1 for r in rows if used not in r)
+    if without < 0.8 * len(rows):
+        return
+    for other, name in _DELIMITERS.items():
+        if other != used and sum(1 for r in rows if other in r) >= 0.8 * len(rows):
+            raise InputError(f"{path}: the header line is separated by {_DELIMITERS[used]} but the "
+                             f"rows by {name}; use one delimiter throughout")
+
+
+def check_finite_features(X, what: str = "feature") -> None:
+    """Refuse infinite values in numeric features up front (every cell would fail later).
+
+    Missing values are allowed (imputed with ``encode="auto"``); ``inf`` is not.
+
+    Examples
+    --------
+    >>> check_finite_features(np.array([[1.0, np.inf]]))  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+    ...
+    curvefit.core.errors.InputError: feature column 1 has 1 infinite value (first at row index 0); ...
+    """
+    if isinstance(X, pd.DataFrame):
+        columns = [(name, X[name].to_numpy()) for name in X.columns
+                   if pd.api.types.is_numeric_dtype(X[name].dtype)
+                   and not pd.api.types.is_bool_dtype(X[name].dtype)]
+    else:
+        arr = np.asarray(X)
+        if arr.dtype.kind not in "fc" or arr.ndim != 2:
+            return
+        columns = [(j, arr[:, j]) for j in range(arr.shape[1])]
+    for name, values in columns:
+        bad = np.isinf(np.asarray(values, dtype=float))
+        if bad.any():
+            n = int(bad.sum())
+            label = repr(name) if isinstance(name, str) else str(name)
+            raise InputError(f"{what} column {label} has {n} infinite value{'s' if n > 1 else ''} "
+                             f"(first at row index {int(np.flatnonzero(bad)[0])}); replace them "
+                             "(gaps are imputed) or drop those rows")
 
 
 def _one_line(exc: BaseException) -> str:
@@ -467,6 +528,7 @@ def prepare(df: pd.DataFrame, target: str, features=None, *, drop=(),
             raise InputError(f"target column {target!r} has infinite values; drop or fix those rows")
 
     X = df[feature_names]
+    check_finite_features(X)
     categorical = [c for c in feature_names if _is_categorical_feature(X[c])]
     has_missing = bool(X.isna().to_numpy().any())
     return Dataset(X=X, y=y, feature_names=list(feature_names), task=task,
@@ -500,6 +562,7 @@ def as_features(X, what: str = "X"):
     (3, 1)
     """
     if isinstance(X, pd.DataFrame):
+        check_finite_features(X, f"{what}: feature")
         return X.reset_index(drop=True)
     if hasattr(X, "toarray") or hasattr(X, "tocsr"):
         raise InputError(f"{what} is a sparse matrix; pass a dense array or a DataFrame")
@@ -508,6 +571,7 @@ def as_features(X, what: str = "X"):
         arr = arr.reshape(-1, 1)
     if arr.ndim != 2:
         raise InputError(f"{what} must be 2-D (rows x features), got shape {arr.shape}")
+    check_finite_features(arr, f"{what}: feature")
     return arr
 
 
