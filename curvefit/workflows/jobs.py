@@ -15,7 +15,15 @@ from pathlib import Path
 
 from curvefit.core import defaults
 from curvefit.core.errors import InputError
-from curvefit.core.validate import parse_list
+from curvefit.core.validate import (
+    check_count,
+    check_flag,
+    check_jobs,
+    check_positive,
+    check_seed,
+    check_sizes,
+    parse_list,
+)
 
 # Keys whose values are paths, resolved against the job file's folder.
 PATH_KEYS = ("data", "test", "store", "out")
@@ -55,6 +63,7 @@ def resolve_job_paths(job: dict, config_path: str | Path, source: str | None = N
     ('/jobs/h.db', '/jobs/m.py:make_model')
     """
     source = source or str(config_path)
+    check_job_settings(job, source)
     base = Path(config_path).resolve().parent
 
     def resolve(text: str) -> str:
@@ -70,6 +79,78 @@ def resolve_job_paths(job: dict, config_path: str | Path, source: str | None = N
     if isinstance(model, str) and ".py:" in model:
         file_part, _, attr = model.rpartition(":")
         job["model"] = f"{resolve(file_part)}:{attr}"
+    return job
+
+
+# The type of each setting a job file may hold: TOML types are kept, never converted, so
+# `resume = "false"` is refused rather than read as true (bool("false") is True).
+TEXT_KEYS = ("data", "target", "model", "command", "test", "metric", "encode", "backend",
+             "scheduler", "out", "groups", "order", "size_unit", "store", "series", "goal")
+FLAG_KEYS = ("resume", "quiet", "json", "plan_only", "allow_data_change", "again")
+
+
+def _text(value, key: str) -> str:
+    if not isinstance(value, str):
+        raise InputError(f"{key} must be text (in quotes), got {value!r}")
+    return value
+
+
+def _test_fraction(value) -> float:
+    """Share of rows tested on: a number strictly between 0 and 1."""
+    value = check_positive(value, "test_fraction")
+    if not value < 1:
+        raise InputError(f"--test-fraction must be strictly between 0 and 1, got {value:g}")
+    return value
+
+
+def check_job_settings(job: dict, source: str | None = None) -> dict:
+    """Check the type and range of every setting of a job file, before anything runs.
+
+    The same checks as the command line's (`curvefit.core.validate`): counts are whole
+    numbers within their limits, yes/no settings are TOML booleans, names and paths are
+    text, ``features`` is text or a list of text, ``sizes`` a list or range. Keys other
+    than these pass (their readers check them). Messages start with ``source``, the
+    file's name, when given.
+
+    Examples
+    --------
+    >>> check_job_settings({"repeats": 3, "resume": True}, "job.toml")
+    {'repeats': 3, 'resume': True}
+    >>> check_job_settings({"resume": "false"}, "job.toml")  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+    ...
+    curvefit.core.errors.InputError: job.toml: resume must be true or false (without quotes), got 'false'
+    """
+    def where(exc: InputError) -> InputError:
+        return InputError(f"{source}: {exc}" if source else str(exc))
+
+    for key, value in job.items():
+        try:
+            if key in TEXT_KEYS:
+                _text(value, key)
+            elif key in FLAG_KEYS:
+                check_flag(value, key)
+            elif key == "features":
+                if not (isinstance(value, str) or (isinstance(value, list) and value
+                                                   and all(isinstance(v, str) for v in value))):
+                    raise InputError(f"features must be text (a,b,c) or a list of column names, "
+                                     f"got {value!r}")
+            elif key == "sizes":
+                _sizes(value)
+            elif key == "repeats":
+                check_count(value, "repeats", minimum=1)
+            elif key == "jobs":
+                check_jobs(value, "jobs")
+            elif key == "seed":
+                check_seed(value, "seed")
+            elif key == "test_fraction":
+                _test_fraction(value)
+            elif key in ("timeout", "budget", "precision"):
+                check_positive(value, key)
+        except InputError as exc:
+            if not source or str(exc).startswith(f"{source}:"):
+                raise
+            raise where(exc) from None
     return job
 
 
@@ -103,15 +184,15 @@ def _params(config_value, cli_items) -> dict:
 
 
 def _sizes(value) -> list[int] | None:
+    """Sizes from text (``50,100,200`` or ``START:STOP:COUNT``) or a list of whole numbers."""
     if value is None:
         return None
     if isinstance(value, (list, tuple)):
-        value = ",".join(str(v) for v in value)
-    sizes = parse_list(str(value), float, name="size", integer_range=True)
-    bad = [s for s in sizes if float(s) != int(s) or s < 1]
-    if bad:
-        raise InputError(f"size {bad[0]:g} is not a whole number >= 1; sizes count training rows")
-    return [int(s) for s in sizes]
+        return check_sizes(value)
+    if not isinstance(value, str):
+        raise InputError(f"sizes must be text such as \"50,100,200\" or \"50:5000:12\", or a list "
+                         f"of whole numbers, got {value!r}")
+    return check_sizes(parse_list(value, float, name="size", integer_range=True))
 
 
 def measure_from_settings(opts: dict, *, progress: bool | None = None):
@@ -127,6 +208,12 @@ def measure_from_settings(opts: dict, *, progress: bool | None = None):
     from curvefit.measuring import data as cfdata
     from curvefit.measuring.journal import journal_path
 
+    # every setting is checked before the data is read and before any journal is opened
+    check_job_settings({k: v for k, v in opts.items() if v is not None and k != "jobs"})
+    repeats = check_count(opts["repeats"], "repeats", minimum=1)
+    jobs = check_jobs(opts["jobs"])
+    seed = check_seed(opts["seed"], "seed")
+    test_fraction = _test_fraction(opts["test_fraction"])
     if not opts["data"]:
         raise InputError("no data file given; usage: curvefit measure DATA --target COL --model SPEC")
     if not opts["target"]:
@@ -168,16 +255,12 @@ def measure_from_settings(opts: dict, *, progress: bool | None = None):
                              f"{', '.join(missing[:10])}; it needs the same features and target")
         tds = cfdata.prepare(tdf, ds.target, ds.feature_names, task=ds.task)
         X_test, y_test = tds.X, tds.y
-    try:
-        repeats = int(opts["repeats"])
-        jobs = int(opts["jobs"])
-        seed = int(opts["seed"])
-        test_fraction = float(opts["test_fraction"])
-    except (TypeError, ValueError) as exc:
-        raise InputError(f"a numeric option is not a number: {exc}") from None
-    if not 0 < test_fraction < 1:
-        raise InputError(f"--test-fraction must be strictly between 0 and 1, got {test_fraction:g}")
     out_path = Path(opts["out"]) if opts.get("out") else None
+    if out_path is not None:  # before any work: never a device, FIFO, link or folder
+        from curvefit.core.jsonio import check_output_path
+
+        check_output_path(out_path, "run file", new_folder=True)
+        check_output_path(journal_path(out_path), "journal", new_folder=True)
     data_meta = ds.describe()
     data_meta["path"] = str(opts["data"])
     if opts["test"]:
