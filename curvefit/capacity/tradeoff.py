@@ -261,12 +261,14 @@ def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: 
         settings = ProbeSettings(repeats=probe_repeats, max_n=probe_max_n,
                                  bootstrap=PROBE_BOOTSTRAP, random_state=random_state,
                                  n_jobs=n_jobs, backend=backend, scheduler=scheduler)
-    rows, capacities, failed_total = [], {}, 0
+    rows, capacities, failed_total, resolved = [], {}, 0, {}
     for value, label, spec in zip(values, labels, specs):
         curve = measure(spec, X, y, sizes=sizes, repeats=repeats, test_size=test_size,
                         metric=metric, n_jobs=n_jobs, backend=backend, scheduler=scheduler,
                         random_state=random_state, timeout=timeout)
         failed_total += len(curve.failed_points())
+        # the loss the runner resolved ("error" on a numeric target is MSE) and its label
+        resolved = {"metric": curve.metric, "metric_info": curve.metric_info}
         value_rows = _size_rows(param, value, curve, sizes)
         if probe:
             est = run_probe(spec, inputs, settings)
@@ -283,8 +285,10 @@ def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: 
     table["param"] = pd.Series([r["param"] for r in rows], dtype=object, index=table.index)
     meta = {"model": base.describe() if hasattr(base, "describe") else repr(base),
             "sizes": sizes, "repeats": int(repeats), "seed": int(random_state),
-            "test_size": test_size, "failed_cells": int(failed_total)}
-    return Tradeoff(table=table, param=str(param), values=values, metric=str(metric),
+            "test_size": test_size, "failed_cells": int(failed_total),
+            "metric_info": resolved.get("metric_info", {})}
+    return Tradeoff(table=table, param=str(param), values=values,
+                    metric=str(resolved.get("metric", metric)),
                     capacities=capacities, meta=meta)
 
 

@@ -10,7 +10,7 @@ import typer
 from curvefit.cli.common import emit_json, err, out, print_table
 from curvefit.core.defaults import SEED
 from curvefit.core.errors import InputError
-from curvefit.core.formatting import format_capacity, format_error
+from curvefit.core.formatting import format_capacity, format_error, metric_name, quantity_name
 from curvefit.core.validate import parse_list
 
 
@@ -23,7 +23,8 @@ def print_tradeoff(tr) -> None:
 
     t = tr.table
     probe = "capacity" in t.columns
-    out.print(f"trade-off over {tr.param} (metric {tr.metric}, lower is better; "
+    info = tr.meta.get("metric_info")
+    out.print(f"trade-off over {tr.param} (metric {metric_name(tr.metric, info)}, lower is better; "
               f"{tr.meta.get('repeats', '?')} repeats per cell):", markup=False)
     head = [tr.param, "size", "train", "± sem", "test", "± sem", "failed"]
     if probe:
@@ -38,7 +39,8 @@ def print_tradeoff(tr) -> None:
                        if cap is not None and math.isfinite(cap) else format_capacity(None))
         rows.append(row)
     print_table(head, rows)
-    out.print("best setting per size (lowest mean test error; values within one standard "
+    out.print(f"best setting per size (lowest mean {quantity_name('test_error', tr.metric, info)}; "
+              "values within one standard "
               "error of it):", markup=False)
     best = tr.best_per_size()
     print_table(["size", f"best {tr.param}", "test", "± sem", "within 1 se"],
@@ -83,10 +85,12 @@ def register(app: typer.Typer) -> None:
     ):
         """Train and test error against a complexity parameter; the best setting per size."""
         from curvefit.capacity.tradeoff import parse_vary, setting_spec, tradeoff
-        from curvefit.core.jsonio import write_json
+        from curvefit.core.jsonio import check_output_path, write_json
         from curvefit.measuring import data as cfdata
         from curvefit.measuring.models import parse_params, resolve_model
 
+        if out_file:  # refused before any training: a device, FIFO, link or folder
+            check_output_path(out_file, "trade-off file")
         if not target:
             raise InputError("no target column given; pass --target COL")
         if not model and not command:

@@ -45,7 +45,13 @@ import pandas as pd
 from curvefit.core.curve import BASELINE_COLUMN, Curve
 from curvefit.core.defaults import INTERVAL
 from curvefit.core.estimate import Estimate
-from curvefit.core.formatting import format_count, format_error, format_estimate, format_interval
+from curvefit.core.formatting import (
+    format_count,
+    format_error,
+    format_estimate,
+    format_interval,
+    quantity_name,
+)
 from curvefit.core.stats import t_interval
 from curvefit.core.validate import check_level
 
@@ -266,8 +272,9 @@ def answer_floor_note(fit: Any, answer: Any, interval: float = INTERVAL) -> str 
     """
     if answer is None or not getattr(answer, "reachable", False):
         return None
-    what = "the target test error" if getattr(answer, "kind", "test_error") == "test_error" \
-        else "the target gap"
+    curve = fit.curve
+    what = "the target " + quantity_name(getattr(answer, "kind", "test_error"), curve.metric,
+                                         curve.metric_info)
     return floor_note(fit, float(answer.target), what, interval)
 
 
