@@ -15,7 +15,7 @@ import typer
 from curvefit.cli.common import QUIET_HELP, emit_json, out, print_table, warn
 from curvefit.core import defaults
 from curvefit.core.errors import InputError
-from curvefit.core.formatting import MISSING, format_error
+from curvefit.core.formatting import MISSING, format_error, metric_name
 from curvefit.workflows.jobs import MEASURE_DEFAULTS, measure_from_settings, read_toml, resolve_job_paths
 
 
@@ -43,7 +43,8 @@ def _print_summary(curve, path: Path, sanity) -> None:
     rows = _summary_rows(curve)
     metric = curve.metric
     unit = curve.meta.get("size_unit", "rows")
-    out.print(f"learning curve: {curve.meta['model'].get('name', 'model')}, metric {metric} "
+    name = metric_name(metric, curve.metric_info)
+    out.print(f"learning curve: {curve.meta['model'].get('name', 'model')}, metric {name} "
               f"(lower is better), split {curve.meta['split']['kind']}, "
               f"{curve.meta['repeats']} repeats, test set {curve.meta['n_test']} rows",
               markup=False)
