@@ -500,12 +500,14 @@ def shared_rows_message(fraction: float, X) -> str:
     n_rows, n_features = int(np.shape(X)[0]), int(np.shape(X)[1]) if np.ndim(X) > 1 else 1
     n_distinct = len(np.unique(_row_hashes(X))) if n_rows else 0
     share = f"{fraction:.0%}" if fraction >= 0.1 else f"{fraction:.1%}"
+    what = "features take" if n_features != 1 else "feature takes"
+    kinds = "combinations" if n_features != 1 else "values"
     return (f"{share} of the test rows have an identical copy among the training rows "
-            f"(the {n_features} feature{'s' if n_features != 1 else ''} take {n_distinct:,} "
-            f"distinct {'combinations' if n_features != 1 else 'values'} over {n_rows:,} rows). If a copy is the same entity measured "
-            "twice (a person, machine or site), the test error is optimistic: split by the "
-            "column that names the entity with --groups. If distinct entities share coarse "
-            "feature values, the copies are harmless.")
+            f"(the {n_features} {what} {n_distinct:,} distinct {kinds} over {n_rows:,} rows). "
+            "If a copy is the same entity measured twice (a person, machine or site), the "
+            "test error is optimistic: split by the column that names the entity with "
+            "--groups. If distinct entities share coarse feature values, the copies are "
+            "harmless.")
 
 
 def shared_duplicate_fraction(X, test: np.ndarray, pool: np.ndarray) -> float:
