@@ -58,6 +58,7 @@ from curvefit.core.formatting import (
     format_level,
     format_number,
     format_range,
+    quantity_name,
 )
 from curvefit.core.validate import check_choice, check_count, check_level, check_positive, check_seed
 from curvefit.fitting.answers import (
@@ -669,7 +670,7 @@ class CurveFit:
             math.isfinite(c.point) and not (asym is not None and math.isfinite(asym.low)
                                             and asym.low > target))
         metric = self.curve.metric
-        what = "test error" if kind == "test_error" else "generalization gap"
+        what = quantity_name(kind, metric, self.curve.metric_info)
         beyond = reachable and c.source == "fitted" and c.beyond_horizon
         if not reachable:
             n, high = math.inf, math.inf
@@ -686,7 +687,8 @@ class CurveFit:
                 n = max(n, float(d.sizes[0]))  # fewer than the smallest size were not measured
             low, high = c.low, c.high
             message, cautions = answer_text(d, n, c, kind, target, level, metric, self.best,
-                                            self.approach == "logarithmic")
+                                            self.approach == "logarithmic",
+                                            info=self.curve.metric_info)
         return SampleEstimate(n=n, low=float(low), high=float(high), level=level, target=target,
                               kind=kind, reachable=bool(reachable), asymptote=asym,
                               message=message, warnings=tuple(cautions), horizon=float(horizon),
