@@ -379,10 +379,12 @@ def test_shape_comparison_catches_a_new_column_a_lost_line_and_a_renamed_key():
         assert rd.shape_differences([case]), case.new
 
 
-# Documents whose examples run in a few minutes or less on the 2-core machine run in
-# every suite; the others (the demo, 20,000-row measurements, the nightly job) only
-# with CURVEFIT_DOCS_EXAMPLES=all (DEVELOPERS.md, "Documentation examples").
-SLOW_DOCS = {"README.md", "docs/report.md", "docs/fitting.md", "docs/capacity.md", "docs/history.md"}
+# Documents whose examples run in about a minute on the 2-core machine run in every
+# suite (docs/bounds.md also covers the output of measure); the others (the demo,
+# 12,000-row measurements, probes, the nightly job: 10-20 minutes together) only with
+# CURVEFIT_DOCS_EXAMPLES=all (DEVELOPERS.md, "Documentation examples").
+SLOW_DOCS = {"README.md", "docs/report.md", "docs/fitting.md", "docs/capacity.md", "docs/history.md",
+             "docs/measure.md"}
 
 
 def example_documents():
