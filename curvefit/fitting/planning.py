@@ -20,8 +20,8 @@ import pandas as pd
 from curvefit.core.defaults import BOOTSTRAP, INTERVAL, SEED
 from curvefit.core.errors import FitWarning, InputError
 from curvefit.core.estimate import Estimate
-from curvefit.core.formatting import format_error, vc_absent_reason
-from curvefit.core.validate import check_level, check_positive
+from curvefit.core.formatting import format_error, is_rate, vc_absent_reason
+from curvefit.core.validate import check_error_target, check_level, check_positive
 from curvefit.fitting.sanity import sanity_check
 
 # Confidence of the worst-case VC bound shown beside a measured answer.
@@ -326,7 +326,8 @@ def vc_epsilon(curve, *, test_error: float | None = None, gap: float | None = No
             f"{format_error(train, metric)} at {size:,.0f} samples", None)
 
 
-def _check_need(test_error, gap, cost_per_label, budget, current_n, extra, vc_dim, interval):
+def _check_need(test_error, gap, cost_per_label, budget, current_n, extra, vc_dim, interval,
+                metric=None):
     """Validate the settings of `labels_needed` (one message per problem); the target, or
     None when only purchases are priced."""
     if test_error is not None and gap is not None:
@@ -349,7 +350,7 @@ def _check_need(test_error, gap, cost_per_label, budget, current_n, extra, vc_di
     if test_error is None and gap is None:
         return None
     name, target = ("test_error", test_error) if test_error is not None else ("gap", gap)
-    return check_positive(target, name, allow_zero=True)
+    return check_error_target(target, name, rate=is_rate(metric))
 
 
 def _amounts(extra, have: float, budget_labels: int | None, missing: float | None) -> list[int]:
@@ -423,7 +424,7 @@ def labels_needed(curve, *, test_error=None, gap=None, current_n=None, cost_per_
     from curvefit.fitting.engine import fit_curve
 
     target = _check_need(test_error, gap, cost_per_label, budget, current_n, extra, vc_dim,
-                         interval)
+                         interval, metric=getattr(curve, "metric", None))
     if gap is not None and not curve.has_train:
         raise InputError("a gap target needs train error in the curve; give test_error instead")
     settings = dict(families=families, bootstrap=bootstrap, weights=weights,
