@@ -37,7 +37,7 @@ from curvefit.core.defaults import BOOTSTRAP, INTERVAL, SEED
 from curvefit.core.errors import InputError
 from curvefit.core.formatting import format_capacity, format_number, is_rate
 from curvefit.core.jsonio import jsonable, read_json
-from curvefit.core.validate import check_count, check_level
+from curvefit.core.validate import check_count, check_error_target, check_level
 from curvefit.report.labels import as_items, family_name, is_finite, model_label
 from curvefit.report.labels import field as field_of
 
@@ -210,13 +210,7 @@ def check_target(target_error: float | None, curves: Sequence[Curve]) -> None:
     """A target error must be finite and ≥ 0, and inside (0, 1) for 0-1 error rates."""
     if target_error is None:
         return
-    if not math.isfinite(target_error):
-        raise InputError(f"target_error must be a finite number, got {target_error}")
-    if all(is_rate(c.metric) for c in curves) and not 0 < target_error < 1:
-        raise InputError(f"target_error is a 0-1 error rate, so it must be between 0 and 1 "
-                         f"(got {target_error}); e.g. 0.05 for 5%")
-    if target_error < 0:
-        raise InputError(f"target_error must not be negative, got {target_error}")
+    check_error_target(target_error, "target_error", rate=all(is_rate(c.metric) for c in curves))
 
 
 def gap_lines(curve: Curve, capacity: Any) -> list:
