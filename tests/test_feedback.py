@@ -206,3 +206,30 @@ def test_the_command_line_routes_python_warnings(tmp_path):
                               timeout=120)
     assert done.returncode == 0, done.stderr
     assert done.stderr == "curvefit: warning: the fit is poorly determined\n"
+
+
+def test_a_copied_readme_measure_example_shows_the_warning_on_survey_data(tmp_path):
+    """Someone copies the README's `curvefit measure` line and points it at a coarse
+    survey table (no group column): the duplicate-row warning reaches them."""
+    import shlex
+
+    from conftest import ROOT
+
+    line = next(x for x in (ROOT / "README.md").read_text(encoding="utf-8").splitlines()
+                if x.startswith("$ curvefit measure ") and "--out" in x)
+    args = shlex.split(line)[3:]                         # after "$ curvefit measure"
+    assert "--quiet" not in args and "--no-warnings" not in args
+    rng = np.random.default_rng(1)
+    answers = rng.integers(1, 4, size=(400, 3))          # three questions on a 1-3 scale
+    table = pd.DataFrame(answers, columns=["q1", "q2", "q3"]).assign(
+        label=(answers.sum(axis=1) + rng.integers(0, 3, 400) > 7).astype(int))
+    table.to_csv(tmp_path / "survey.csv", index=False)
+    swap = {args[0]: "survey.csv"}
+    options = dict(zip(args[1::2], args[2::2]))
+    options.update({"--target": "label", "--sizes": "40,120", "--repeats": "2", "--jobs": "1"})
+    options.pop("--groups", None)                        # a survey has no entity column
+    argv = [swap[args[0]]] + [x for kv in options.items() for x in kv]
+    r = run_cli("measure", *argv, cwd=tmp_path)
+    assert r.returncode == 0, r.stderr
+    warned = [x for x in r.stderr.splitlines() if x.startswith("curvefit: warning: ")]
+    assert any("identical copy among the training rows" in x and "harmless" in x for x in warned), r.stderr
