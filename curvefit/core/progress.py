@@ -260,9 +260,6 @@ class Progress:
         return False
 
 
-ProgressBar = Progress  # the name before plain log lines existed
-
-
 class Status:
     """What a command is doing, shown only when a phase takes a while.
 
