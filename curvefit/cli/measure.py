@@ -79,7 +79,8 @@ def _print_plan(plan) -> None:
               + ", ".join(f"{format_count(s)}×{per[s]}" for s in sizes) + ")", markup=False)
     timed = ", ".join(f"{format_count(p['size'])} rows {format_number(p['fit_seconds'], 3)} s"
                       for p in plan.pilot)
-    out.print(f"timed {len(plan.pilot)} pilot fits, not recorded: {timed}", markup=False)
+    out.print(f"timed {len(plan.pilot)} pilot fits after a warm-up fit, not recorded: {timed}",
+              markup=False)
     if plan.cost_model is None:
         out.print("no prediction: the pilot fits failed", markup=False)
         return
@@ -196,8 +197,8 @@ def register(app: typer.Typer) -> None:
         budget: Optional[float] = typer.Option(
             None, "--budget", help="With --goal: compute seconds (summed fit seconds) to spend at most."),
         plan_only: Optional[bool] = typer.Option(
-            None, "--plan-only", help="Print the planned cells and the predicted time (two pilot "
-            "fits are timed); write nothing."),
+            None, "--plan-only", help="Print the planned cells and the predicted time (a warm-up "
+            "and two pilot fits are timed); write nothing."),
         config: Optional[str] = typer.Option(None, "--config", help="TOML file with option values."),
         quiet: Optional[bool] = typer.Option(None, "--quiet", help=QUIET_HELP),
         as_json: Optional[bool] = typer.Option(None, "--json", help="Print a JSON summary only."),

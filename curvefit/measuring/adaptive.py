@@ -467,7 +467,11 @@ class _DesignModel:
         grad = np.array([1.0, 0.0, 0.0]) if point is None else _jacobian(np.array([point]), theta)[0]
         drift, data2 = 0.0, 0.0
         if point is not None:
-            parts = fit.band_parts([point], interval=LEVEL).iloc[0]
+            import warnings
+
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")  # far beyond the data: known, it is the question
+                parts = fit.band_parts([point], interval=LEVEL).iloc[0]
             n_max = float(levels[-1])
             if point > n_max and parts["model_error"] > 0:
                 drift = float(parts["model_error"]) / math.log(point / n_max)

@@ -16,7 +16,8 @@ machines); the exponent is kept within `EXPONENT_RANGE`.
 Before anything is timed there is no prediction. `curvefit measure` therefore starts with
 two *pilot* cells — the planned sizes nearest a sixteenth and a quarter of the largest
 size, repeat 0 (`pilot_sizes`) — which are real cells of the run (journaled, kept);
-``--plan-only`` times the same two cells and keeps nothing.
+``--plan-only`` times the same two cells (after one untimed warm-up fit at the smallest
+size) and keeps nothing.
 
 Examples
 --------

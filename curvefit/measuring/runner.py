@@ -220,9 +220,9 @@ def plan_measure(model, X, y, *, sizes: Sequence[int] | None = None, repeats: in
     without measuring the curve.
 
     Two pilot cells (`curvefit.measuring.costs.pilot_sizes`, repeat 0) are fitted and
-    timed in this process to learn the cost model; nothing is recorded (no journal, no
-    run file). For an adaptive run the plan is its first pass, and the full grid's
-    prediction is the most it can cost.
+    timed in this process, after one untimed warm-up fit at the smallest size, to learn
+    the cost model; nothing is recorded (no journal, no run file). For an adaptive run
+    the plan is its first pass, and the full grid's prediction is the most it can cost.
 
     Returns
     -------
@@ -251,6 +251,8 @@ def plan_measure(model, X, y, *, sizes: Sequence[int] | None = None, repeats: in
                     inputs.y if inputs.y_test is None else inputs.y_test, settings.encode,
                     inputs.encoder_steps, inputs.task)
     pilot = [(s, 0) for s in pilot_sizes(split.sizes)]
+    # an untimed warm-up fit first: a process's first fit pays for imports and caches
+    run_cells(data, spec, inputs.metric, _plan_cells([(split.sizes[0], 0)], split, spec, settings))
     timed = run_cells(data, spec, inputs.metric, _plan_cells(pilot, split, spec, settings))
     cost = fit_cost_model([c["size"] for c in timed], [c["fit_seconds"] for c in timed])
     workers = worker_count(settings.n_jobs) if settings.backend == "local" else max(1, settings.n_jobs)
