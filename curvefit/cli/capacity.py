@@ -169,8 +169,10 @@ def register(app: typer.Typer) -> None:
     ):
         """Effective capacity in VC units: from a run's gap, or by the max-deviation probe.
         For squared error the gap gives an effective number of parameters instead."""
-        from curvefit.core.jsonio import write_json
+        from curvefit.core.jsonio import check_output_path, write_json
 
+        if out_file:  # refused before the probe: a device, FIFO, link or folder
+            check_output_path(out_file, "capacity file")
         interval = pick_interval(interval, level)
         settings = {"interval": interval, "random_state": seed}
         if bootstrap is not None:

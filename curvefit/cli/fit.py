@@ -153,10 +153,12 @@ def register(app: typer.Typer) -> None:
         (and at --at sizes), beside the constant predictor's error."""
         import pandas as pd
 
-        from curvefit.core.jsonio import write_json
+        from curvefit.core.jsonio import check_output_path, write_json
         from curvefit.core.validate import check_level, parse_list
         from curvefit.fitting.sanity import sanity_check
 
+        if out_file:  # refused before the fit: a device, FIFO, link or folder
+            check_output_path(out_file, "fit file")
         interval = check_level(pick_interval(interval, level))
         sizes = parse_list(at, float, name="--at size") if at is not None else None
         with warnings.catch_warnings(), status(f"fitting the curve families to {run} "

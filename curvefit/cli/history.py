@@ -98,10 +98,13 @@ def _write_plot(doc: dict, plot: Path) -> None:
         raise InputError(f"--plot {plot}: use a .png or .svg file name")
     if not plot.parent.is_dir():
         raise InputError(f"--plot {plot}: directory {plot.parent} does not exist")
+    from curvefit.core.jsonio import check_output_path, write_bytes_atomic
     from curvefit.history.listing import trend_document
 
+    check_output_path(plot, "trend figure")  # a device, FIFO, link or folder is refused
     # one panel per kind of value: never a line joining two families or two baselines
-    plot.write_bytes(plots.figure_bytes(plots.trend_figure(trend_document(doc)), fmt))
+    figure = plots.figure_bytes(plots.trend_figure(trend_document(doc)), fmt)
+    write_bytes_atomic(plot, figure, what="trend figure")
 
 
 def register(app: typer.Typer) -> None:

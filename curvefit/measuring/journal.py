@@ -28,7 +28,7 @@ from typing import Any
 
 from curvefit.core.curve import is_whole_number
 from curvefit.core.errors import InputError
-from curvefit.core.jsonio import jsonable
+from curvefit.core.jsonio import jsonable, os_error_message, write_text_atomic
 
 JOURNAL_FORMAT = "curvefit.journal/1"
 
@@ -100,11 +100,14 @@ class Journal:
             fh.truncate(good_bytes)
             fh.seek(good_bytes)
             return cls(path, fh), done
-        path.parent.mkdir(parents=True, exist_ok=True)
-        fh = open(path, "wb")
-        j = cls(path, fh)
-        j._write({"format": JOURNAL_FORMAT, "run": identity})
-        return j, done
+        # the header is written atomically: a full disk leaves no empty journal behind
+        header = _canonical({"format": JOURNAL_FORMAT, "run": identity}) + "\n"
+        try:
+            path.parent.mkdir(parents=True, exist_ok=True)
+            write_text_atomic(path, header, what="journal")
+            return cls(path, open(path, "ab")), done
+        except OSError as exc:
+            raise InputError(f"cannot write the journal {path}: {os_error_message(exc)}") from None
 
     @staticmethod
     def _read(path: Path, identity: dict) -> tuple[list[dict], int] | None:
@@ -152,9 +155,13 @@ class Journal:
 
     def _write(self, record: dict) -> None:
         line = (_canonical(record) + "\n").encode("utf-8")
-        self._fh.write(line)
-        self._fh.flush()
-        os.fsync(self._fh.fileno())
+        try:
+            self._fh.write(line)
+            self._fh.flush()
+            os.fsync(self._fh.fileno())
+        except OSError as exc:  # a torn last line is dropped by --resume
+            raise InputError(f"cannot write the journal {self.path}: {os_error_message(exc)}; "
+                             "the cells journaled so far are kept (--resume continues)") from None
 
     def append(self, cell: dict) -> None:
         """Record one finished cell durably (returns after fsync)."""
@@ -162,7 +169,10 @@ class Journal:
 
     def close(self) -> None:
         if self._fh is not None and not self._fh.closed:
-            self._fh.close()
+            try:
+                self._fh.close()
+            except OSError:  # a line a full disk refused: the write already said so
+                pass
 
     def __enter__(self):
         return self

@@ -36,7 +36,7 @@ from curvefit.core.curve import Curve
 from curvefit.core.defaults import BOOTSTRAP, INTERVAL, SEED
 from curvefit.core.errors import InputError
 from curvefit.core.formatting import format_capacity, format_number, is_rate
-from curvefit.core.jsonio import jsonable, read_json
+from curvefit.core.jsonio import check_output_path, jsonable, read_json
 from curvefit.core.validate import check_count, check_error_target, check_level
 from curvefit.report.labels import as_items, family_name, is_finite, model_label
 from curvefit.report.labels import field as field_of
@@ -359,7 +359,7 @@ def check_report_path(out: str | os.PathLike) -> Path:
         raise InputError(f"the report must be an .html file, got {out}")
     if not out.parent.exists():
         raise InputError(f"folder {out.parent} does not exist; create it or choose another file")
-    return out
+    return check_output_path(out, "report")
 
 
 def report_runs(runs: Sequence[str | os.PathLike], out: str | os.PathLike = "report.html", *,
