@@ -125,6 +125,10 @@ def test_import_spec_makes_fresh_estimators():
     ("sklearn.linear_model:LogisticRegression", {"bogus": 1}, r"does not accept these parameters \(bogus\)"),
     ("sklearn.linear_model:LogisticRegression", {"C": -1.0}, r"bad --param .*'C' parameter"),
     ("sklearn.linear_model:LogisticRegression", {"solver": "teleport"}, r"bad --param .*'solver'"),
+    # something that exits when called, or returns an object without fit/predict
+    ("sys:exit", {}, r"'sys:exit' failed when called: SystemExit"),
+    ("builtins:SystemExit", {}, r"not an estimator \(no fit/predict\): calling it gave a SystemExit"),
+    ("os:getpid", {}, r"not an estimator \(no fit/predict\): calling it gave a int"),
 ])
 def test_import_spec_errors(spec, params, match):
     with pytest.raises(InputError, match=match):
@@ -480,6 +484,30 @@ def test_cli_bad_model_inputs(wine_csv, tmp_path):
     _cli_bad(base + ["--model", f"{tmp_path / 'absent.py'}:make_model"], "model file not found")
     _cli_bad(base + ["--model", "sklearn.linear_model:LogisticRegression", "--features", "alcohol,nope"],
              "feature column nope not in the table")
+    # a spec that exits must not pass for success (exit 0, no run file)
+    _cli_bad(base + ["--model", "sys:exit"], "model spec 'sys:exit' failed when called: SystemExit")
+    assert not (tmp_path / "run.json").exists() and not (tmp_path / "run.json.journal").exists()
+
+
+def test_a_factory_that_exits_is_refused(tmp_path):
+    path = script(tmp_path, "quits.py", "import sys\ndef make_model():\n    sys.exit(0)\n")
+    with pytest.raises(InputError, match=r"failed when called: SystemExit: 0"):
+        resolve_model(f"{path}:make_model")
+    with pytest.raises(InputError, match=r"not importable: SystemExit: 3"):
+        resolve_model(f"{script(tmp_path, 'at_import.py', 'raise SystemExit(3)')}:make_model")
+
+
+def test_a_model_that_exits_in_fit_is_a_failed_cell(iris_split):
+    from curvefit.measuring.runner import measure
+
+    class Quitter(LogisticRegression):
+        def fit(self, X, y):
+            raise SystemExit(0)
+
+    X_tr, _, y_tr, _ = iris_split
+    curve = measure(Quitter(), X_tr, y_tr, sizes=[30], repeats=1)
+    assert curve.points["status"].tolist() == ["failed"]
+    assert curve.points["message"].tolist() == ["SystemExit: 0"]
 
 
 def test_cli_file_spec_in_parallel_workers(wine_csv, tmp_path, model_file):

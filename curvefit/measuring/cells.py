@@ -184,7 +184,7 @@ def run_cell(data: CellData, spec, metric: Metric, cell: dict) -> dict:
     except _FitTimeout:
         result.update(status="failed", fit_seconds=time.perf_counter() - start,
                       message=f"fit stopped after the {timeout:g} s time limit")
-    except Exception as exc:  # a failing user model is recorded, not fatal
+    except (Exception, SystemExit) as exc:  # a failing user model is recorded, not fatal
         text = " ".join(str(exc).split())[:500]
         result.update(status="failed", fit_seconds=time.perf_counter() - start,
                       message=f"{type(exc).__name__}: {text}" if text else type(exc).__name__)

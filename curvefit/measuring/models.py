@@ -356,7 +356,7 @@ def resolve_model(spec: str | None, params: dict | None = None, *, command: str 
                          f"({', '.join(params) or 'none'}): {' '.join(str(exc).split())}") from None
     except (ValueError, AttributeError) as exc:
         raise InputError(f"bad --param for model spec {spec!r}: {' '.join(str(exc).split())}") from None
-    except Exception as exc:
+    except (Exception, SystemExit) as exc:  # `sys:exit` must not end the command with its code
         raise InputError(f"model spec {spec!r} failed when called: {_one_line(exc)}") from None
     if not _is_estimator(est):
         raise InputError(f"model spec {spec!r} is not an estimator (no fit/predict): "
