@@ -61,3 +61,34 @@ def test_bad_plans(knn_fit):
     gap_fit = fit_curve(measured_curve("digits_knn").curve, on="gap", bootstrap=0)
     with pytest.raises(InputError):
         plan_purchase(gap_fit, current_n=100, extra=[10])
+
+
+def test_money_reads_with_sensible_precision():
+    # common practice: whole units from 100, cents from 1, two significant figures below
+    from curvefit.core.formatting import format_money
+
+    assert format_money(0.001) == "0.0010"  # a price per label of a tenth of a cent
+    assert format_money(0.8275) == "0.83" and format_money(12.5) == "12.50"
+    assert format_money(2500.4) == "2,500"
+    assert format_money(3e-9) == "less than 0.0001"  # tiny amounts say so, never "0.00"
+    assert format_money(0) == "0"
+
+
+def test_no_number_prints_in_e_notation():
+    import re
+
+    from curvefit.core.formatting import (
+        format_capacity,
+        format_count,
+        format_error,
+        format_money,
+        format_number,
+    )
+
+    e_notation = re.compile(r"\d[eE][+-]?\d")
+    for power in range(-30, 31):
+        for mantissa in (1.0, 2.5, 9.999):
+            v = mantissa * 10.0 ** power
+            for text in (format_number(v), format_number(-v, 3), format_error(v), format_error(v, "mse"),
+                         format_count(v), format_capacity(v), format_money(v)):
+                assert not e_notation.search(text), (v, text)
