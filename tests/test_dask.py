@@ -22,3 +22,24 @@ def test_local_cluster_matches_local_run():
     dask = cf.measure(model, X, y, n_jobs=2, backend="dask", **kw)
     assert dask.meta["backend"] == "dask"
     pd.testing.assert_frame_equal(local.points[COMPARE], dask.points[COMPARE])
+
+
+def test_dead_scheduler_is_one_line_and_leaves_no_journal(tmp_path):
+    import time
+
+    from tests.conftest import run_cli
+
+    X, y = load_wine(return_X_y=True, as_frame=True)  # bundled wine data
+    table = tmp_path / "wine.csv"
+    X.assign(target=y).to_csv(table, index=False)
+    out = tmp_path / "run.json"
+    start = time.monotonic()
+    r = run_cli("measure", table, "--target", "target", "--model", "sklearn.tree:DecisionTreeClassifier",
+                "--sizes", "20,60", "--repeats", "1", "--backend", "dask",
+                "--scheduler", "tcp://127.0.0.1:1", "--out", out, "--quiet", timeout=120)
+    lines = [line for line in r.stderr.splitlines() if line.strip()]
+    assert r.returncode == 2 and "Traceback" not in r.stderr, r.stderr
+    assert lines == ["curvefit: error: cannot connect to the Dask scheduler at tcp://127.0.0.1:1: "
+                     "Connection refused"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["wine.csv"]  # no journal, no run file
+    assert time.monotonic() - start < 60  # refused at once, not after the client's retries

@@ -138,6 +138,41 @@ def _die_with_parent(code: int = 1) -> None:
     os._exit(code)
 
 
+def check_scheduler(address: str, timeout: float = 10.0) -> None:
+    """Fail early, with one line, when nothing listens at a ``tcp://host:port`` Dask
+    scheduler address (other transports are left to the client).
+
+    Called before a run opens its journal, so a dead scheduler leaves no file behind.
+
+    Examples
+    --------
+    >>> check_scheduler("tcp://127.0.0.1:1")
+    Traceback (most recent call last):
+    ...
+    curvefit.core.errors.InputError: cannot connect to the Dask scheduler at tcp://127.0.0.1:1: ...
+    """
+    import socket
+    from urllib.parse import urlsplit
+
+    text = str(address).strip()
+    scheme, sep, rest = text.partition("://")
+    if sep and scheme != "tcp":
+        return
+    try:
+        parts = urlsplit("tcp://" + (rest if sep else text))
+        host, port = parts.hostname, parts.port
+    except ValueError as exc:
+        raise InputError(f"bad Dask scheduler address {address!r} ({exc}); "
+                         "use tcp://host:port") from None
+    if not host or port is None:
+        raise InputError(f"bad Dask scheduler address {address!r}; use tcp://host:port")
+    try:
+        socket.create_connection((host, port), timeout=timeout).close()
+    except OSError as exc:
+        reason = exc.strerror or str(exc) or type(exc).__name__
+        raise InputError(f"cannot connect to the Dask scheduler at {address}: {reason}") from None
+
+
 @contextlib.contextmanager
 def dask_client(scheduler: str | None = None, n_workers: int = 2):
     """A ``distributed.Client``: connect to ``scheduler`` or start a LocalCluster.

@@ -296,10 +296,12 @@ def _check_settings(*, repeats, random_state, n_jobs, backend, scheduler, timeou
                     size_unit, test_size, journal, resume, progress, groups, order, splitter,
                     X_test, y_test) -> _Settings:
     """Check the settings and the combinations that cannot work, before any data is read."""
-    from curvefit.measuring.parallel import BACKENDS
+    from curvefit.measuring.parallel import BACKENDS, check_scheduler
 
     repeats = check_count(repeats, "repeats", minimum=1)
     check_choice(backend, "backend", BACKENDS)
+    if backend == "dask" and scheduler:  # before the journal: a dead scheduler leaves none
+        check_scheduler(scheduler)
     check_choice(size_unit, "size_unit", SIZE_UNITS)
     check_choice(encode, "encode", ENCODE_CHOICES)
     if timeout is not None:
