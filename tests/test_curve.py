@@ -154,7 +154,7 @@ def _run_doc(**changes):
     (_run_doc(points=[{"size": "10", "repeat": 0, "test_error": 0.2}]), "size must be a whole"),
     (_run_doc(points=[{"size": 10.5, "repeat": 0, "test_error": 0.2}]), "size must be a whole"),
     (_run_doc(points=[{"size": 10, "repeat": True, "test_error": 0.2}]), "repeat must be a whole"),
-    (_run_doc(points=[{"size": 10, "repeat": 0, "test_error": "0.2"}]), "test_error must be a finite"),
+    (_run_doc(points=[{"size": 10, "repeat": 0, "test_error": "0.2"}]), "test error must be a finite"),
     (_run_doc(points=[{"size": 10, "repeat": 0, "test_error": 0.2}, 7]), "cell 2 is not an object"),
 ])
 def test_damaged_run_files_are_refused_with_one_line(tmp_path, doc, words):

@@ -94,7 +94,7 @@ def test_empty_or_torn_header_journal_resumes_as_empty(tmp_path, content):
     ('{"size": 10.5, "repeat": 0}', "size is 10.5"),
     ('{"size": 10, "repeat": -1}', "repeat is -1"),
     ('{"repeat": 0}', "size is None"),
-    ('{"size": 10, "repeat": 0, "test_error": "low"}', "test_error is 'low'"),
+    ('{"size": 10, "repeat": 0, "test_error": "low"}', "test error is 'low'"),
     ('{"size": 10, "repeat": 0, "status": 3}', "status is 3"),
 ])
 def test_cells_of_the_wrong_type_are_refused_with_one_line(tmp_path, cell, words):

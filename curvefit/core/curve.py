@@ -301,6 +301,23 @@ class Curve:
                 f"{self.sizes.max() if len(ok) else '-'}, {len(self.points)} cells, "
                 f"{len(self.failed_points())} failed, metric={self.metric!r})")
 
+    # notebook display: rendered by curvefit.report.notebook, reached through
+    # curvefit.core.display because core may not import report (see that module)
+    def _repr_html_(self) -> str:
+        """The per-size table (mean test error ± its standard error, the exact test-set
+        interval, training error), shown by Jupyter when a curve ends a cell."""
+        from curvefit.core.display import renderer
+
+        return renderer().curve_html(self)
+
+    def plot(self, ax=None):
+        """Draw the curve: mean test error per size with error bars, training error and
+        the constant predictor where measured. Returns the matplotlib Axes (``ax`` when
+        given, else a new pyplot figure's)."""
+        from curvefit.core.display import renderer
+
+        return renderer().plot_curve(self, ax=ax)
+
 
 def _check_file_size(path: Path) -> None:
     try:
@@ -349,7 +366,8 @@ def _points_frame(points, source: str) -> pd.DataFrame:
             value = cell.get(key)
             if value is not None and (isinstance(value, bool) or not isinstance(value, (int, float))
                                       or math.isinf(value)):
-                raise InputError(f"{where}: {key} must be a finite number or null, got {value!r}")
+                raise InputError(f"{where}: {key.replace('_', ' ')} must be a finite number or null, "
+                                 f"got {value!r}")
         for key in ("status", "message"):
             if not isinstance(cell.get(key, ""), (str, type(None))):
                 raise InputError(f"{where}: {key} must be text, got {cell[key]!r}")

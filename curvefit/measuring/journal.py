@@ -58,7 +58,7 @@ def _check_cell(cell: dict, where: str) -> None:
     for key in _NUMBER_FIELDS:
         value = cell.get(key)
         if value is not None and (isinstance(value, bool) or not isinstance(value, (int, float))):
-            raise InputError(f"{where}: the cell's {key} is {value!r}, not a number{fix}")
+            raise InputError(f"{where}: the cell's {key.replace('_', ' ')} is {value!r}, not a number{fix}")
     for key in ("status", "message"):
         if not isinstance(cell.get(key, ""), str):
             raise InputError(f"{where}: the cell's {key} is {cell[key]!r}, not text{fix}")
