@@ -40,6 +40,17 @@ _SUBMODULES = {"bounds", "core", "measuring", "fitting", "capacity", "history", 
 __all__ = sorted(_EXPORTS) + sorted(_SUBMODULES)
 
 
+def _notebook_renderer():
+    """`curvefit.report.notebook`, loaded when a core object is first shown in a notebook."""
+    return importlib.import_module("curvefit.report.notebook")
+
+
+# core may not import report, so Curve reaches its display through this hook
+from curvefit.core import display as _display  # noqa: E402
+
+_display.install_renderer(_notebook_renderer)
+
+
 def __getattr__(name: str):
     if name in _EXPORTS:
         return getattr(importlib.import_module(_EXPORTS[name]), name)

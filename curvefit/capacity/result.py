@@ -114,6 +114,19 @@ class CapacityEstimate:
         """The estimate as an :class:`~curvefit.core.estimate.Estimate`."""
         return Estimate(self.vc_dim, self.low, self.high, self.level)
 
+    def _repr_html_(self) -> str:
+        """The capacity with its interval and note, as a table (shown by Jupyter)."""
+        from curvefit.report.notebook import capacity_html
+
+        return capacity_html(self)
+
+    def plot(self, ax=None):
+        """Draw the probe's ξ(n) with Φ(n/h), or the gap model's mean gaps with the fitted
+        c(ν)·h/n; returns the matplotlib Axes (``ax`` when given)."""
+        from curvefit.report.notebook import plot_capacity
+
+        return plot_capacity(self, ax=ax)
+
 
 
 def lack_of_fit(means, sems, fitted, n_params: int = 1) -> float:

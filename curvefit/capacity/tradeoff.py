@@ -159,6 +159,20 @@ class Tradeoff:
                                       index=out.index)
         return out
 
+    def _repr_html_(self) -> str:
+        """The best value per size and the values within one standard error, as a table
+        (shown by Jupyter)."""
+        from curvefit.report.notebook import tradeoff_html
+
+        return tradeoff_html(self)
+
+    def plot(self, ax=None):
+        """Draw train and test error against the parameter, one line per size; returns
+        the matplotlib Axes (``ax`` when given)."""
+        from curvefit.report.notebook import plot_tradeoff
+
+        return plot_tradeoff(self, ax=ax)
+
     def to_dict(self) -> dict:
         t = self.table.astype(object).where(self.table.notna(), None)
         best = self.best_per_size()

@@ -825,6 +825,19 @@ class Comparison:
         return "\n".join(lines) + "\n"
 
 
+    def _repr_html_(self) -> str:
+        """Each figure against the baseline's, and the verdict, as a table (shown by Jupyter)."""
+        from curvefit.report.notebook import comparison_html
+
+        return comparison_html(self)
+
+    def plot(self, ax=None):
+        """Draw the efficiency ratio with its interval against no change and the
+        tolerance; returns the matplotlib Axes (``ax`` when given)."""
+        from curvefit.report.notebook import plot_comparison
+
+        return plot_comparison(self, ax=ax)
+
     def to_junit(self) -> str:
         """JUnit XML: one test case per figure, a failure for each gating regression,
         ``skipped`` for figures that do not gate (information)."""

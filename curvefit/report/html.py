@@ -345,8 +345,8 @@ def _meta_block(res: Any) -> str:
     return f"<h3>{esc(res.label)}</h3><dl class=\"meta\">{items}</dl>"
 
 
-def _curve_table(res: Any, interval: float) -> str:
-    curve = res.curve
+def curve_table(curve: Any, interval: float = INTERVAL) -> str:
+    """The per-size table of a measured curve (in the report and in notebooks)."""
     if not len(curve.ok_points()):
         return ""
     s = curve.summary(interval)
@@ -395,9 +395,9 @@ def _ranking_block(res: Any) -> str:
 
 
 def _capacity_rows(results: Sequence[Any], probe: Any, interval: float) -> pd.DataFrame:
-    rows = [_capacity_row(r.label, r.capacity, interval) for r in results if r.capacity is not None]
+    rows = [capacity_row(r.label, r.capacity, interval) for r in results if r.capacity is not None]
     if probe is not None:
-        rows.append(_capacity_row("probe (max-deviation experiment)", probe, interval))
+        rows.append(capacity_row("probe (max-deviation experiment)", probe, interval))
     return pd.DataFrame(rows)
 
 
@@ -406,7 +406,8 @@ CAPACITY_METHODS = {"gap": "gap model (VC units)", "probe": "probe (VC dimension
                     "optimism": "optimism of squared error (parameters)"}
 
 
-def _capacity_row(label: str, c: Any, interval: float) -> dict:
+def capacity_row(label: str, c: Any, interval: float) -> dict:
+    """One row of the capacity table (in the report and in notebooks)."""
     lvl = field_of(c, "level", interval) or interval
     d, lo, hi = field_of(c, "vc_dim"), field_of(c, "low"), field_of(c, "high")
     above = bool(field_of(c, "above_range", False))
@@ -540,7 +541,7 @@ def _curves_section(page: _Page) -> str:
     for r in res:
         body.append(f"<h3>{esc(r.label)}</h3>"
                     f'<p class="note">Split: {esc(plots.split_label(r.curve))}.</p>'
-                    f"{_curve_table(r, page.interval)}")
+                    f"{curve_table(r.curve, page.interval)}")
         body += [f'<p class="note">{esc(n)}</p>' for n in r.notes]
     return "".join(body)
 

@@ -3,8 +3,10 @@ and worst-case bounds against the measured answer.
 
 Every function reads results that other modules computed (a `Curve`, a `CurveFit`, a
 `CapacityEstimate`, a `Tradeoff`, plain numbers) and returns a matplotlib ``Figure``;
-nothing here estimates anything new. Figures use the Agg backend, so they work without a
-display. The look is our own: a short palette whose colours differ in lightness as well
+nothing here estimates anything new. Figures are drawn on their own canvas (no pyplot),
+so they work without a display and leave the caller's backend alone; the one-axes
+figures (learning curve, gap, probe, trade-off) also draw into a given ``ax=``, whose
+figure they return. The look is our own: a short palette whose colours differ in lightness as well
 as hue, and every series also has its own marker and line style, so the figures stay
 readable in greyscale and for colour-blind readers.
 
@@ -33,16 +35,17 @@ from typing import Any, Iterable, Mapping, Sequence
 
 import matplotlib
 
-matplotlib.use("Agg")  # no display needed; must run before pyplot is imported
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-import pandas as pd  # noqa: E402
-from matplotlib.figure import Figure  # noqa: E402
-from matplotlib.ticker import FuncFormatter  # noqa: E402
+# Figures are built on matplotlib.figure.Figure and saved through its own canvas, so
+# nothing needs pyplot or a display, and importing this module leaves the caller's
+# backend alone (a notebook's inline backend keeps working).
+import numpy as np
+import pandas as pd
+from matplotlib.figure import Figure
+from matplotlib.ticker import FuncFormatter
 
-from curvefit.core.defaults import INTERVAL  # noqa: E402
-from curvefit.core.errors import InputError  # noqa: E402
-from curvefit.core.formatting import (  # noqa: E402
+from curvefit.core.defaults import INTERVAL
+from curvefit.core.errors import InputError
+from curvefit.core.formatting import (
     format_capacity,
     format_count,
     format_error,
@@ -52,7 +55,7 @@ from curvefit.core.formatting import (  # noqa: E402
     is_rate,
     metric_name,
 )
-from curvefit.report.labels import (  # noqa: E402
+from curvefit.report.labels import (
     as_items,
     family_name,
     field,
@@ -78,7 +81,7 @@ AXIS_CAP = 20.0
 FIGSIZE = (8.6, 5.4)
 DPI = 110
 
-_RC = {
+STYLE_RC = {  # our rc settings, applied while a figure is drawn
     "font.family": "DejaVu Sans",
     "font.size": 9.5,
     "axes.titlesize": 11,
@@ -127,7 +130,10 @@ def _axis_count(v: float) -> str:
 _count_formatter = FuncFormatter(lambda v, _pos: _axis_count(v) if v > 0 else "")
 
 
-def _new_axes(figsize=FIGSIZE):
+def _new_axes(figsize=FIGSIZE, ax=None):
+    """A new figure with one axes, or the caller's axes (``ax=``) and its figure."""
+    if ax is not None:
+        return ax.figure, ax
     fig = Figure(figsize=figsize, dpi=DPI, layout="constrained")
     ax = fig.add_subplot()
     return fig, ax
@@ -139,7 +145,7 @@ def _styled(fn):
 
     @functools.wraps(fn)
     def wrapper(*args, **kwargs):
-        with plt.rc_context(_RC):
+        with matplotlib.rc_context(STYLE_RC):
             return fn(*args, **kwargs)
 
     return wrapper
@@ -237,7 +243,7 @@ def beyond_axis(answer: Any, limit: float) -> bool:
 @_styled
 def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float | None = None,
                           answers: Any = None, interval: float = INTERVAL,
-                          show_train: bool = True, title: str | None = None) -> Figure:
+                          show_train: bool = True, title: str | None = None, ax: Any = None) -> Figure:
     """Train and test error against training-set size, with fits extrapolated to a target.
 
     Parameters
@@ -273,7 +279,7 @@ def learning_curve_figure(curves: Any, fits: Any = None, *, target_error: float 
     size, and the fitted lines stop there.
     """
     items = as_items(curves)
-    fig, ax = _new_axes()
+    fig, ax = _new_axes(ax=ax)
     metric, info = None, None
     limit = axis_limit(curves)
     span = [math.inf, 0.0, limit]  # smallest and largest size drawn, and where the axis must end
@@ -461,7 +467,7 @@ def _legend_outside(ax) -> None:
 
 # --------------------------------------------------------------------------- gap
 @_styled
-def gap_figure(curves: Any, lines: Any = None, *, title: str | None = None) -> Figure:
+def gap_figure(curves: Any, lines: Any = None, *, title: str | None = None, ax: Any = None) -> Figure:
     """Generalization gap (test − train) against size, with fitted gap curves.
 
     Parameters
@@ -477,7 +483,7 @@ def gap_figure(curves: Any, lines: Any = None, *, title: str | None = None) -> F
     """
     items = as_items(curves)
     line_items = None if isinstance(lines, Mapping) else [v for _, v in as_items(lines)]
-    fig, ax = _new_axes()
+    fig, ax = _new_axes(ax=ax)
     any_data = False
     xs = []
     for i, (label, curve) in enumerate(items):
@@ -536,7 +542,7 @@ def _design_columns(design: pd.DataFrame) -> tuple[str | None, str | None, str |
 
 
 @_styled
-def probe_figure(capacity: Any, *, title: str | None = None) -> Figure:
+def probe_figure(capacity: Any, *, title: str | None = None, ax: Any = None) -> Figure:
     """Max-deviation probe: measured ξ(n) with the fitted Φ(n/h) and h's interval.
 
     Parameters
@@ -555,7 +561,7 @@ def probe_figure(capacity: Any, *, title: str | None = None) -> Figure:
     """
     from curvefit.capacity import phi
 
-    fig, ax = _new_axes()
+    fig, ax = _new_axes(ax=ax)
     design = field(capacity, "design")
     h = field(capacity, "vc_dim")
     st = style(0)
@@ -597,7 +603,7 @@ def probe_figure(capacity: Any, *, title: str | None = None) -> Figure:
 
 # --------------------------------------------------------------------------- trade-off
 @_styled
-def tradeoff_figure(tradeoff: Any, *, title: str | None = None) -> Figure:
+def tradeoff_figure(tradeoff: Any, *, title: str | None = None, ax: Any = None) -> Figure:
     """Train and test error against a complexity parameter, one line per sample size.
 
     Parameters
@@ -610,7 +616,7 @@ def tradeoff_figure(tradeoff: Any, *, title: str | None = None) -> Figure:
     matplotlib.figure.Figure
     """
     table = tradeoff if isinstance(tradeoff, pd.DataFrame) else field(tradeoff, "table")
-    fig, ax = _new_axes()
+    fig, ax = _new_axes(ax=ax)
     if not isinstance(table, pd.DataFrame) or not len(table):
         ax.text(0.5, 0.5, "no trade-off measurements to draw", transform=ax.transAxes,
                 ha="center", va="center", color=NEUTRAL)
@@ -795,7 +801,7 @@ def figure_bytes(fig: Figure, fmt: str = "png") -> bytes:
     """Render a figure to PNG or SVG bytes (SVG without a timestamp, so it is stable)."""
     buf = io.BytesIO()
     meta = {"Date": None} if fmt == "svg" else {"Software": None}
-    with plt.rc_context(_RC):
+    with matplotlib.rc_context(STYLE_RC):
         fig.savefig(buf, format=fmt, dpi=DPI if fmt == "png" else None, metadata=meta,
                     facecolor="white")
     return buf.getvalue()
