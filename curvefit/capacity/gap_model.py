@@ -419,7 +419,8 @@ def _gap_notes(curve, sizes, used, misfit, regime, probe, loss: str = "zero_one"
         notes.append(_probe_note(probe))
     left_out = [int(n) for n in sizes[~used]]
     if left_out:
-        notes.append(f"Sizes before the knee (n < {format_number(MIN_TAU, 2)}·h) were left out: "
+        notes.append(f"Sizes before the knee (n < {format_number(MIN_TAU, 2)}·{_symbol(loss)}) were "
+                     "left out: "
                      f"{', '.join(format_count(n) for n in left_out)}.")
     if math.isfinite(misfit) and misfit > 1:
         notes.append(f"c·h/n fits the mean gaps less well than repeat noise explains "

@@ -55,10 +55,13 @@ def _print_gap_design(est, metric: str) -> None:
         out.print(f"log-log slope of the gap (descriptive): b = "
                   f"{format_estimate(b.estimate, b.low, b.high, b.level)}", markup=False)
 
-    def gap(v):
-        return format_error(v, metric)
-
     design = est.design
+    scale = max([abs(float(v)) for c in ("gap_mean", "train_mean") if c in design
+                 for v in design[c] if v == v] or [1.0])
+
+    def gap(v):
+        return format_error(v, metric, scale)
+
     used = design["used"] if "used" in design else [True] * len(design)
     rows = [[str(int(r.size)), gap(r.gap_mean), gap(r.gap_sem), gap(getattr(r, "train_mean", None)),
              gap(r.gap_fit), "yes" if u else "no", str(int(r.repeats))]

@@ -50,9 +50,11 @@ def _print_summary(curve, path: Path, sanity) -> None:
               markup=False)
     head = [f"size ({unit})", "test mean", "± sem", "train mean", "gap", "constant", "failed"]
     table = []
+    # a loss's exact-fit noise (1e-26 on a scale of 1e4) prints as 0
+    scale = max([abs(r["test_mean"]) for r in rows if r["test_mean"] == r["test_mean"]] or [1.0])
     for r in rows:
         def f(v):
-            return format_error(v, metric)
+            return format_error(v, metric, scale)
         table.append([str(r["size"]), f(r["test_mean"]), f(r["test_sem"]), f(r["train_mean"]),
                       f(r["gap_mean"]), f(r["baseline_mean"]), str(r["n_failed"])])
     failed_sizes = set(curve.failed_points()["size"]) - {r["size"] for r in rows}

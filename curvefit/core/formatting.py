@@ -165,11 +165,16 @@ def format_number(value: Any, digits: int = 4) -> str:
 _SUPERSCRIPT = str.maketrans("-0123456789", "⁻⁰¹²³⁴⁵⁶⁷⁸⁹")
 
 
-def format_error(value: Any, metric: str | None = "error") -> str:
-    """An error: a percentage for a 0–1 rate (``12.3%``, ``0.50%``), else a plain number.
+def format_error(value: Any, metric: str | None = "error", scale: float | None = None) -> str:
+    """An error: a percentage for a 0–1 rate (``12.3%``, ``0.50%``), else a plain number in
+    the metric's units. ``scale`` (the largest value of the table or sentence the value
+    sits in) makes a loss closer to zero than ``ZERO_PRINT × scale`` print as ``0``: an
+    exact fit's rounding noise, not a measurement.
 
     >>> format_error(0.25), format_error(0.0), format_error(0.05, "mse")
     ('25.0%', '0%', '0.05')
+    >>> format_error(2.05e-26, "mse", scale=44_850), format_error(617.0, "mse", scale=44_850)
+    ('0', '617')
     """
     if is_missing(value):
         return MISSING
@@ -177,6 +182,8 @@ def format_error(value: Any, metric: str | None = "error") -> str:
     if math.isinf(v):
         return "∞" if v > 0 else "−∞"
     if not is_rate(metric):
+        if scale is not None and math.isfinite(float(scale)) and abs(v) < ZERO_PRINT * abs(float(scale)):
+            return "0"
         return format_number(v)
     if abs(v) < ZERO_PRINT:
         return "0%"
