@@ -101,6 +101,7 @@ def test_chosen_cells_come_with_reasons_and_stay_in_the_candidates(cancer):
 
 
 # ---------------------------------------------------------------- determinism
+@pytest.mark.slow  # several refits of the curve per run
 def test_two_jobs_choose_the_same_cells_as_one(cancer):
     one = _adaptive(*cancer, goal="error-at:400", precision=0.25, n_jobs=1)
     two = _adaptive(*cancer, goal="error-at:400", precision=0.25, n_jobs=2)
@@ -108,6 +109,7 @@ def test_two_jobs_choose_the_same_cells_as_one(cancer):
     pd.testing.assert_frame_equal(one.points[COMPARE], two.points[COMPARE])
 
 
+@pytest.mark.slow  # several refits of the curve per run
 def test_kill_9_then_resume_gives_the_uninterrupted_cells(iris_csv, tmp_path):
     model = tmp_path / "slow.py"
     model.write_text(
@@ -148,6 +150,35 @@ def test_kill_9_then_resume_gives_the_uninterrupted_cells(iris_csv, tmp_path):
     assert doc["meta"]["adaptive"]["cells"] == whole.meta["adaptive"]["cells"]
     pd.testing.assert_frame_equal(pd.DataFrame(doc["points"])[COMPARE], whole.points[COMPARE])
     assert doc["meta"]["resumed_cells"] == kept
+
+
+@pytest.mark.slow  # several refits of the curve per run
+def test_a_trainer_program_chooses_the_same_cells_with_two_jobs(iris_csv, tmp_path):
+    # a nearest-centroid trainer run as a program (one process per cell)
+    prog = tmp_path / "centroid.py"
+    prog.write_text(
+        "import sys\n"
+        "import numpy as np, pandas as pd\n"
+        "train, test, pred = sys.argv[1:4]\n"
+        "a = pd.read_csv(train); b = pd.read_csv(test)\n"
+        "X = a.drop(columns=['target']).to_numpy(); y = a['target'].to_numpy()\n"
+        "labels = np.unique(y); c = np.array([X[y == k].mean(axis=0) for k in labels])\n"
+        "T = b[[k for k in a.columns if k != 'target']].to_numpy()\n"
+        "d = ((T[:, None, :] - c[None]) ** 2).sum(axis=2)\n"
+        "open(pred, 'w').write(''.join(f'{labels[i]}\\n' for i in d.argmin(axis=1)))\n")
+    runs = []
+    for jobs in ("1", "2"):
+        out = tmp_path / f"run{jobs}.json"
+        r = run_cli("measure", iris_csv, "--target", "target", "--command",
+                    f"{sys.executable} {prog} {{train}} {{test}} {{predictions}}",
+                    "--sizes", "10,20,40,80,110", "--repeats", "3", "--goal", "error-at:110",
+                    "--precision", "0.0001", "--jobs", jobs, "--out", out, "--quiet")
+        assert r.returncode == 0, r.stderr
+        runs.append(json.loads(out.read_text()))
+    assert runs[0]["meta"]["adaptive"]["cells"] == runs[1]["meta"]["adaptive"]["cells"]
+    assert len(runs[0]["meta"]["adaptive"]["rounds"]) >= 2
+    pd.testing.assert_frame_equal(pd.DataFrame(runs[0]["points"])[COMPARE],
+                                  pd.DataFrame(runs[1]["points"])[COMPARE])
 
 
 # ---------------------------------------------------------------- the command line
