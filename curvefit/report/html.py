@@ -351,9 +351,10 @@ def curve_table(curve: Any, interval: float = INTERVAL) -> str:
         return ""
     s = curve.summary(interval)
     metric = curve.metric
+    scale = float(s["test_mean"].abs().max()) if len(s) else None
 
     def err(values):
-        return [format_error(v, metric) for v in values]
+        return [format_error(v, metric, scale) for v in values]
 
     rows = pd.DataFrame({
         "size": s["size"].astype(int),
