@@ -93,7 +93,7 @@ def _wait_for_cells(proc, journal: Path, cells: int):
     pytest.fail("no cell was journaled within 120 s")
 
 
-def _wait_until_gone(mark: str, seconds: float = 10.0) -> list[str]:
+def _wait_until_gone(mark: str, seconds: float = 20.0) -> list[str]:
     deadline = time.time() + seconds
     left = _marked(mark)
     while left and time.time() < deadline:
@@ -118,7 +118,8 @@ def test_stopped_run_leaves_nothing_behind(iris_table, tmp_path, sig, kind, resu
         model = ["--model", f"{tmp_path / 'slow.py'}:make_model"]
     else:
         (tmp_path / "trainer.py").write_text(TRAINER)
-        model = ["--command", f"{sys.executable} {tmp_path / 'trainer.py'} {{train}} {{test}} {{predictions}}"]
+        trainer = tmp_path / "trainer.py"
+        model = ["--command", f"{sys.executable} {trainer} {{train}} {{test}} {{predictions}}"]
     out = tmp_path / "run.json"
     journal = tmp_path / "run.json.journal"
     args = ["measure", str(iris_table), "--target", "target", *model, "--sizes", "20,40,60",
