@@ -236,7 +236,9 @@ def gap_lines(curve: Curve, capacity: Any) -> list:
     elif is_finite(h) and isinstance(design, pd.DataFrame) and {"size", "gap_fit"} <= set(design):
         used = design[np.isfinite(pd.to_numeric(design["gap_fit"], errors="coerce"))]
         if len(used):
-            lines.append((f"fit c(ν)·h/n, h = {format_capacity(h)}", used["size"].to_numpy(float),
+            # squared error's figure is a number of parameters (optimism 2·σ²·p/n), not VC units
+            law = ("2·σ²·p/n, p" if field_of(capacity, "method") == "optimism" else "c(ν)·h/n, h")
+            lines.append((f"fit {law} = {format_capacity(h)}", used["size"].to_numpy(float),
                           used["gap_fit"].to_numpy(float)))
     a, b = extra.get("power_scale"), field_of(field_of(capacity, "exponent"), "estimate")
     if is_finite(a) and is_finite(b):
