@@ -35,7 +35,7 @@ import pandas as pd
 from curvefit.core.curve import Curve
 from curvefit.core.defaults import BOOTSTRAP, INTERVAL, SEED
 from curvefit.core.errors import InputError
-from curvefit.core.formatting import format_capacity, format_number, is_rate
+from curvefit.core.formatting import format_capacity, format_number, is_rate, is_zero_one
 from curvefit.core.jsonio import check_output_path, jsonable, read_json
 from curvefit.core.validate import check_count, check_error_target, check_level
 from curvefit.report.labels import as_items, family_name, is_finite, model_label
@@ -253,14 +253,17 @@ def worst_case(res: ModelResult, capacity: Any, target_error: float,
 
     The bound limits the gap between test and training error: it is asked for
     ε = target − training error at the answer's size (`curvefit.fitting.planning.vc_epsilon`)
-    with probability ``interval``. None without a usable capacity (a capacity whose status
-    is not "ok" or "above_range" is not put into a bound), an answer, or training error.
+    with probability ``interval``. None for a loss other than the 0-1 loss (the one VC
+    theory bounds), without a usable capacity (a capacity whose status is not "ok" or
+    "above_range" is not put into a bound), an answer, or training error.
     """
     from curvefit import bounds
     from curvefit.fitting.planning import vc_epsilon
 
     d = field_of(capacity, "vc_dim")
     status = field_of(capacity, "status", "ok")
+    if not is_zero_one(res.curve.metric):  # VC theory bounds the 0-1 loss only
+        return None
     if not is_finite(d) or float(d) <= 0 or res.answer is None or status not in ("ok", "above_range"):
         return None
     reachable = bool(field_of(res.answer, "reachable", False))
