@@ -45,6 +45,7 @@ Run::
     .venv/bin/python scripts/bench_forecast.py                 # corpus, ~10 min on 2 cores
     .venv/bin/python scripts/bench_forecast.py --simulate      # both simulations
     .venv/bin/python scripts/bench_forecast.py --only iris,wine --bootstrap 100
+    .venv/bin/python scripts/bench_forecast.py --cuts 1/4 --bootstrap 0   # point forecasts only
 """
 
 from __future__ import annotations
@@ -99,8 +100,11 @@ def leave_one_dataset_out(points: pd.DataFrame):
 
 
 def as_curve(rows: pd.DataFrame) -> "cf.Curve":
+    """The stored curve as a run would give it: the metric, and the training pool and test
+    rows the repeats split (so the fresh-data variance sees how much they share)."""
     meta = {"metric": str(rows["metric"].iloc[0]), "dataset": str(rows["dataset"].iloc[0]),
-            "model": str(rows["model"].iloc[0])}
+            "model": str(rows["model"].iloc[0]), "n_pool": int(rows["pool"].iloc[0]),
+            "n_test": int(rows["n_test"].median())}
     return cf.Curve.from_table(rows[CURVE_COLUMNS].reset_index(drop=True), meta=meta)
 
 
@@ -146,8 +150,9 @@ def _side(ref: float, low: float, high: float) -> str:
     return "inside"
 
 
-def evaluate_curve(rows: pd.DataFrame, bootstrap: int = 500, seed: int = 0):
-    """Score one stored curve under both cuts; returns (forecast rows, samples rows)."""
+def evaluate_curve(rows: pd.DataFrame, bootstrap: int = 500, seed: int = 0, cuts=CUTS):
+    """Score one stored curve under the cuts (both by default); returns (forecast rows,
+    samples rows)."""
     ok = rows[(rows["status"] == "ok") & np.isfinite(rows["test_error"])]
     means = ok.groupby("size")["test_error"].mean()
     sizes = means.index.to_numpy(dtype=float)
@@ -158,7 +163,7 @@ def evaluate_curve(rows: pd.DataFrame, bootstrap: int = 500, seed: int = 0):
             "task": rows["task"].iloc[0], "source": rows["source"].iloc[0], "pool": int(pool)}
     forecasts, answers = [], []
     curve = as_curve(rows)
-    for cut, frac in CUTS:
+    for cut, frac in cuts:
         fitted_sizes = sizes[sizes <= frac * pool]
         if len(fitted_sizes) < MIN_FIT_SIZES:
             continue
@@ -225,6 +230,16 @@ def _ln_ratio(n: float, n_true: float) -> float:
     if not (n > 0):
         return math.nan
     return math.log(n / n_true) if math.isfinite(n) else math.inf
+
+
+def chosen_cuts(text: str):
+    """The cuts named in ``--cuts`` (``1/4``, ``1/10``), in the order of ``CUTS``."""
+    names = {c.strip() for c in text.split(",") if c.strip()}
+    unknown = names - {name for name, _ in CUTS}
+    if unknown:
+        raise SystemExit(f"unknown cut {', '.join(sorted(unknown))}; known: "
+                         f"{', '.join(name for name, _ in CUTS)}")
+    return tuple((name, frac) for name, frac in CUTS if name in names)
 
 
 # ====================================================================== summaries
@@ -356,7 +371,8 @@ def run_corpus(args) -> str:
     forecasts, answers = [], []
     start = time.perf_counter()
     for i, ((dataset, model), rows) in enumerate(groups, 1):
-        f, a = evaluate_curve(rows, bootstrap=args.bootstrap, seed=args.seed)
+        f, a = evaluate_curve(rows, bootstrap=args.bootstrap, seed=args.seed,
+                              cuts=chosen_cuts(args.cuts))
         forecasts += f
         answers += a
         if args.verbose:
@@ -576,6 +592,7 @@ def main(argv=None) -> int:
     ap.add_argument("--seed", type=int, default=0)
     ap.add_argument("--only", default="", help="comma-separated data sets")
     ap.add_argument("--limit", type=int, default=0, help="score only the first N curves")
+    ap.add_argument("--cuts", default="1/4,1/10", help="the cuts to score, e.g. 1/4 alone")
     ap.add_argument("--simulate", action="store_true", help="run the two simulations instead")
     ap.add_argument("--sim-datasets", type=int, default=150)
     ap.add_argument("--runner-datasets", type=int, default=40)

@@ -175,3 +175,64 @@ def test_results_of_the_baseline_are_stored():
     assert md.is_file()
     assert "ratio to power-law-floor" in md.read_text()
     assert json.loads((CORPUS / "index.json").read_text())["pairs"]
+
+
+@pytest.fixture(scope="module")
+def calibrate():
+    return _script("calibrate_forecasts")
+
+
+def _parts(n_rows: int, power: float, slope: float, seed: int = 0, wild_share: float = 0.1,
+           noise: float = 0.0) -> pd.DataFrame:
+    """Scored sizes whose measured log change beyond the largest fitted size is exactly
+    power·(forecast log change) + slope·ln(n/N), plus a few wild curves (regime changes)."""
+    rng = np.random.default_rng(seed)
+    n_fit = rng.choice([100.0, 400.0], n_rows)
+    size = n_fit * rng.choice([2.0, 4.0, 10.0], n_rows)
+    top = rng.uniform(0.05, 0.4, n_rows)
+    estimate = top * np.exp(-rng.uniform(0.0, 0.8, n_rows))
+    measured = top * np.exp(power * np.log(estimate / top) + slope * np.log(size / n_fit))
+    measured += noise * rng.standard_normal(n_rows)
+    wild = rng.random(n_rows) < wild_share
+    measured[wild] = top[wild] * rng.uniform(1.0, 2.0, wild.sum())
+    zeros = np.zeros(n_rows)
+    return pd.DataFrame({"dataset": rng.choice(list("abcdef"), n_rows), "size": size,
+                         "n_fit": n_fit, "at_largest": top, "estimate": estimate,
+                         "measured": measured, "truth": np.nan, "flat": False,
+                         "bootstrap_low": zeros + 0.01, "bootstrap_high": zeros + 0.01,
+                         "families": zeros, "model_error": zeros, "data_set": zeros,
+                         "noise_floor": zeros})
+
+
+def test_tail_correction_recovers_a_known_law_despite_regime_changes(calibrate):
+    """The median regression in log space finds the power and slope it was built with
+    although 10% of the curves jump up (least absolute deviations: Koenker & Bassett,
+    Econometrica 46(1), 1978, regression quantiles)."""
+    parts = _parts(400, power=0.75, slope=-0.03)
+    power, slope = calibrate.fit_tail(parts)
+    assert power == pytest.approx(0.75, abs=0.02) and slope == pytest.approx(-0.03, abs=0.01)
+    cal = calibrate.Calibration(drop_power=power, tail_slope=slope, source="corpus")
+    clean = parts["measured"] <= parts["at_largest"]
+    assert np.allclose(calibrate.corrected(parts, cal)[clean], parts["measured"][clean], rtol=0.03)
+
+
+def test_kappa_gives_the_band_its_stated_coverage(calibrate):
+    """κ is the smallest factor whose band, as printed, covers 90% of the measured means."""
+    parts = _parts(400, power=1.0, slope=0.0, seed=1, wild_share=0.0, noise=0.01)
+    kappa = calibrate.fit_kappa(parts)
+    lo, hi = calibrate.band(parts, kappa)
+    covered = np.mean((parts["measured"] >= lo) & (parts["measured"] <= hi))
+    assert 0.9 <= covered < 0.95
+    lo, hi = calibrate.band(parts, kappa - 0.02)
+    assert np.mean((parts["measured"] >= lo) & (parts["measured"] <= hi)) < 0.9
+
+
+def test_leave_one_out_scores_each_data_set_with_the_others_correction(calibrate):
+    parts = _parts(300, power=0.8, slope=-0.02, seed=2)
+    scored, folds = calibrate.leave_one_out(parts)
+    assert sorted(folds) == sorted(parts["dataset"].unique())
+    for name, cal in folds.items():
+        alone = calibrate.fit_correction(parts[parts["dataset"] != name])
+        assert (cal.drop_power, cal.tail_slope, cal.model_error_scale) == \
+            (alone.drop_power, alone.tail_slope, alone.model_error_scale)
+    assert len(scored) == len(parts)

@@ -579,8 +579,17 @@ def test_fit_notes_say_how_the_forecast_was_made(nb_fit):
     assert not plain.calibration.active and "correction learned" not in " ".join(plain.notes)
     fit, plain = _exact_law_fit(), fit_curve(_exact_law_fit().curve, bootstrap=100,
                                              random_state=0, calibration="none")
+    sizes = fit.largest_size * np.array([0.5, 1.0, 2.0, 10.0, 100.0])
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", FitWarning)  # 100× is flagged as a long extrapolation
-        e, p = fit.error_at(100 * fit.largest_size), plain.error_at(100 * fit.largest_size)
-    assert e.estimate == pytest.approx(p.estimate)   # the correction moves the band only
-    assert e.high - e.low < p.high - p.low            # κ < 1 narrows its model-error parts
+        e, p = fit.predict(sizes), plain.predict(sizes)
+    cal = fit.calibration
+    # inside the data nothing moves; beyond it the test-error forecast is corrected in log
+    # space: F(N)·(F(n)/F(N))^drop_power·(n/N)^tail_slope (scripts/calibrate_forecasts.py)
+    assert e["estimate"][:2].tolist() == pytest.approx(p["estimate"][:2].tolist())
+    top = p["estimate"].iloc[1]
+    expected = top * np.exp(cal.drop_power * np.log(np.maximum(p["estimate"][2:] / top, 1e-3))
+                            + cal.tail_slope * np.log(sizes[2:] / fit.largest_size))
+    assert e["estimate"][2:].tolist() == pytest.approx(expected.tolist())
+    if cal.model_error_scale < 1:                     # κ < 1 narrows the model-error parts
+        assert (e["high"] - e["low"]).iloc[-1] < (p["high"] - p["low"]).iloc[-1]

@@ -5,9 +5,12 @@ know exactly: the spread of the bootstrap, the spread between the averaged famil
 the model error seen in forecast validation (``fitting.intervals``). On the curve corpus
 (``corpus/``, real tables from scikit-learn and statsmodels and generated tasks, several
 model types) these together came out wider than the forecast errors they should cover,
-so they are scaled by one factor, ``model_error_scale``, learned there; and where the
-corpus shows the averaged forecast systematically too cautious or too optimistic beyond
-the data, its change beyond the largest size is scaled by ``drop_scale``.
+so they are scaled by one factor, ``model_error_scale``, learned there. Where the corpus
+shows the averaged test-error forecast systematically off beyond the data, its change
+there is corrected in log space: F(n) → F(N)·(F(n)/F(N))^p·(n/N)^s beyond the largest
+measured size N (``drop_power`` p, ``tail_slope`` s; the families' own drop, shrunk or
+stretched, and a steady decline per factor of n that they miss); ``drop_scale`` scales
+the change linearly (kept at 1).
 ``scripts/calibrate_forecasts.py`` fits it leave-one-data-set-out (every data set is
 scored with a factor fitted on the others), reports that score, and writes the factor
 fitted on all data sets to ``calibration.json`` beside this module; the engine reads it
@@ -42,6 +45,12 @@ class Calibration:
     drop_scale : float
         Factor on the averaged forecast's change beyond the largest measured size (1
         leaves it; above 1 the curves went on falling more than the families said).
+    drop_power : float
+        Power on the forecast's relative change F(n)/F(N) beyond the largest measured
+        size N (test error only; 1 leaves it).
+    tail_slope : float
+        Extra change of ln F per unit of ln(n/N) beyond N (test error only; 0 leaves it;
+        below 0 the curves went on falling where the families levelled off).
     level : float
         Interval level it was fitted at (it scales the band's width, so it carries over
         to other levels through the normal quantile).
@@ -55,6 +64,8 @@ class Calibration:
 
     model_error_scale: float = 1.0
     drop_scale: float = 1.0
+    drop_power: float = 1.0
+    tail_slope: float = 0.0
     level: float = 0.9
     source: str = "none"
     curves: int = 0
@@ -71,6 +82,9 @@ class Calibration:
             return ""
         drop = (f", the forecast change beyond the largest size by {self.drop_scale:.2f}"
                 if self.drop_scale != 1.0 else "")
+        if self.drop_power != 1.0 or self.tail_slope != 0.0:
+            drop += (f", the test-error forecast beyond the largest size N corrected to "
+                     f"F(N)·(F(n)/F(N))^{self.drop_power:.2f}·(n/N)^{self.tail_slope:+.3f}")
         return (f"forecasts beyond the measured sizes use a correction learned on {self.curves} "
                 f"curves of {self.datasets} data sets (the model-error parts of the band "
                 f"scaled by {self.model_error_scale:.2f}{drop}; scripts/calibrate_forecasts.py)")
@@ -89,10 +103,12 @@ class Calibration:
         """
         fields = {k: doc[k] for k in cls.__dataclass_fields__ if k in doc}
         cal = cls(**fields)
-        for name in ("model_error_scale", "drop_scale"):
+        for name in ("model_error_scale", "drop_scale", "drop_power"):
             value = getattr(cal, name)
             if not (isinstance(value, (int, float)) and math.isfinite(value) and value > 0):
                 raise InputError(f"calibration {name} must be > 0, got {value!r}")
+        if not (isinstance(cal.tail_slope, (int, float)) and math.isfinite(cal.tail_slope)):
+            raise InputError(f"calibration tail_slope must be a finite number, got {cal.tail_slope!r}")
         return cal
 
 

@@ -47,16 +47,31 @@ def averaged_point(sizes, data: FitData, fits: dict) -> np.ndarray:
     return _combine(curves, at_max, weights, fits, sizes, data.n_max)
 
 
+# A forecast below this fraction of its value at the largest size counts as this fraction
+# in the log-space correction (a family that reaches 0 would otherwise give ln 0).
+LOG_FLOOR = 1e-3
+
+
 def corrected_point(sizes, data: FitData, fits: dict,
                     calibration: Calibration = NO_CALIBRATION) -> np.ndarray:
-    """The averaged forecast with the calibration's ``drop_scale`` applied to its change
-    beyond the largest measured size."""
+    """The averaged forecast with the calibration's correction of its change beyond the
+    largest measured size N: ``drop_scale`` on the change, then for a test error above 0
+    at N, F(N)·(F(n)/F(N))^drop_power·(n/N)^tail_slope."""
     sizes = np.asarray(sizes, dtype=float)
     est = averaged_point(sizes, data, fits)
-    if calibration.drop_scale == 1.0 or not data.m:
+    logs = calibration.drop_power != 1.0 or calibration.tail_slope != 0.0
+    if (calibration.drop_scale == 1.0 and not logs) or not data.m:
         return est
     at_max = averaged_point(np.array([data.n_max]), data, fits)[0]
-    return np.where(sizes > data.n_max, at_max + calibration.drop_scale * (est - at_max), est)
+    beyond = sizes > data.n_max
+    est = np.where(beyond, at_max + calibration.drop_scale * (est - at_max), est)
+    if logs and data.on == "test" and math.isfinite(at_max) and at_max > 0:
+        with np.errstate(all="ignore"):
+            ratio = np.maximum(est / at_max, LOG_FLOOR)
+            log_change = (calibration.drop_power * np.log(ratio)
+                          + calibration.tail_slope * np.log(np.maximum(sizes, data.n_max) / data.n_max))
+            est = np.where(beyond & np.isfinite(est), at_max * np.exp(log_change), est)
+    return est
 
 
 def _combine(curves: dict, at_max: dict, weights: dict, fits: dict, sizes, n_max: float):
@@ -99,9 +114,10 @@ def band_parts(sizes, level: float, data: FitData, fits: dict, boots: dict | Non
     """The parts of the band at ``sizes`` as standard deviations (each an array):
     ``estimate``, ``bootstrap_low`` / ``bootstrap_high`` (the averaged curve's bootstrap
     spread below and above), ``families`` (spread between the averaged families),
-    ``model_error`` (from forecast validation, growing with ln n beyond the data) and
-    ``data_set`` (what a fresh data set would add). Bootstrap parts are NaN without
-    replicates."""
+    ``model_error`` (from forecast validation, growing with ln n beyond the data),
+    ``data_set`` (what a fresh data set would add) and ``noise_floor`` (the half-width of
+    the measured mean's interval nearby over z: no band is narrower). Bootstrap parts are
+    NaN without replicates."""
     sizes = np.asarray(sizes, dtype=float)
     est = averaged_point(sizes, data, fits)
     z = float(ndtri((1 + level) / 2))
@@ -130,7 +146,8 @@ def band_parts(sizes, level: float, data: FitData, fits: dict, boots: dict | Non
     distance = np.maximum(np.log(sizes / data.n_max), 0.0)
     return {"estimate": est, "bootstrap_low": boot_lo, "bootstrap_high": boot_hi,
             "families": np.sqrt(spread), "model_error": drift * distance,
-            "data_set": np.sqrt(data_variance_at(data, sizes))}
+            "data_set": np.sqrt(data_variance_at(data, sizes)),
+            "noise_floor": noise_half_width(data, sizes, level) / z}
 
 
 def prediction_band(sizes, level: float, data: FitData, fits: dict, boots: dict | None,
@@ -171,7 +188,7 @@ def prediction_band(sizes, level: float, data: FitData, fits: dict, boots: dict 
         lo = np.where(sizes > data.n_max, np.minimum(lo, 0.0), lo)
     if NOISE_FLOOR:
         # never narrower than the interval of the measured mean nearby
-        half = noise_half_width(data, sizes, level)
+        half = z * parts["noise_floor"]
         lo = np.minimum(lo, est - half)
         hi = np.maximum(hi, est + half)
     if nonneg:
