@@ -126,3 +126,20 @@ def test_report_speaks_the_metric_without_vc_sections(runs):
     assert "effective VC dimension" not in text and "optimism of squared error" in text
     _no_e_notation(text)
     assert not (d / "mse_files" / "worst-case.png").exists()
+
+
+def test_a_plain_curve_table_names_its_loss_in_a_metric_column(runs):
+    # the points of the measured diabetes run, as a table measured elsewhere
+    import pandas as pd
+
+    d, _ = runs
+    points = pd.DataFrame(json.loads((d / "mse.json").read_text())["points"])
+    table = points[["size", "repeat", "test_error", "train_error"]].assign(metric="mse")
+    table.to_csv(d / "plain.csv", index=False)
+    text = _ok(run_cli("need", "plain.csv", "--error", "3000", "--bootstrap", "100", cwd=d)).stdout
+    assert "a test MSE of 3,000" in text
+    _no_e_notation(text)
+    table.assign(metric=["mse", "mae"] * (len(table) // 2) + ["mse"] * (len(table) % 2)).to_csv(
+        d / "mixed.csv", index=False)
+    bad = run_cli("need", "mixed.csv", "--error", "3000", cwd=d)
+    assert bad.returncode == 2 and "one loss name" in bad.stderr and "Traceback" not in bad.stderr

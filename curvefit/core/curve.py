@@ -268,7 +268,9 @@ class Curve:
 
     @classmethod
     def from_table(cls, table: "pd.DataFrame | str | os.PathLike", meta: dict | None = None) -> "Curve":
-        """A curve measured elsewhere: columns ``size, test_error[, train_error, repeat]``.
+        """A curve measured elsewhere: columns ``size, test_error[, train_error, repeat]``,
+        and optionally ``metric`` naming the loss (one value, e.g. ``mse``; without it the
+        values are read as 0-1 error rates).
 
         Accepts a DataFrame or the path of a CSV file.
         """
@@ -292,6 +294,13 @@ class Curve:
         if len(df) > MAX_CELLS:
             raise InputError(f"the curve table {source} has {len(df):,} rows; at most {MAX_CELLS:,}")
         m = {"source": source, "metric": "error"}
+        if "metric" in df.columns:
+            names = sorted({str(v).strip() for v in df["metric"].dropna()})
+            if len(names) != 1:
+                raise InputError(f"the metric column of {source} must hold one loss name "
+                                 f"(e.g. mse), found {', '.join(names) or 'none'}")
+            m["metric"] = names[0]
+            df = df.drop(columns=["metric"])
         m.update(meta or {})
         return cls(df, m)
 
