@@ -23,7 +23,7 @@ from curvefit.core.defaults import INTERVAL, SEED
 from curvefit.core.errors import InputError
 from curvefit.core.formatting import format_capacity, format_number
 from curvefit.core.stats import sem
-from curvefit.core.validate import check_count, check_level, check_seed
+from curvefit.core.validate import check_count, check_jobs, check_level, check_seed
 
 # Default largest n of the probe: 2n = 4000 training rows keeps one cell cheap.
 DEFAULT_MAX_N = 2000
@@ -73,6 +73,7 @@ class ProbeSettings:
                             ("repeats", check_count(self.repeats, "repeats", minimum=1)),
                             ("max_n", check_count(self.max_n, "max_n", minimum=2)),
                             ("bootstrap", check_count(self.bootstrap, "bootstrap", minimum=0)),
+                            ("n_jobs", check_jobs(self.n_jobs)),
                             ("random_state", 0 if seed is None else seed)]:
             object.__setattr__(self, name, value)
 

@@ -41,6 +41,8 @@ UPPER_LIMITS: dict[str, tuple[float, str]] = {
     "seed": (2 ** 32 - 1, "scikit-learn and numpy seeds are 32-bit"),
     "timeout": (10 ** 7, "about 16 weeks; leave the option out for no limit"),
     "sizes": (1_000, "a curve needs a few dozen sizes at most"),
+    "max_n": (10 ** 7, "each probe trial draws 2n rows"),
+    "n_features": (100_000, "the probe generates rows of that many numbers"),
     "values": (10_000, "a longer list would not finish in useful time"),
 }
 # Smallest probability (ε, δ) the bounds accept: below it ln(1/δ) leaves the normal floats.
