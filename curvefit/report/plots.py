@@ -54,6 +54,7 @@ from curvefit.core.formatting import (
     format_range,
     is_rate,
     metric_name,
+    round_significant,
 )
 from curvefit.report.labels import (
     as_items,
@@ -120,10 +121,10 @@ def _axis_count(v: float) -> str:
     """Compact tick labels of a count axis (``20k``, ``1.5M``): ticks need few characters."""
     if not np.isfinite(v):
         return "–"
-    if v >= 1e6:
-        return f"{v / 1e6:.3g}M"
-    if v >= 1e4:
-        return f"{v / 1e3:.3g}k"
+    r = round_significant(float(v), 3)  # first, so 999,700 reads 1M rather than 1,000k
+    for low, unit, suffix in ((1e12, 1e12, "T"), (1e9, 1e9, "G"), (1e6, 1e6, "M"), (1e4, 1e3, "k")):
+        if r >= low:  # SI suffixes, never e-notation
+            return f"{format_number(r / unit, 3)}{suffix}"
     return f"{int(round(v)):,}"
 
 
