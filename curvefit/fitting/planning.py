@@ -206,7 +206,8 @@ class LabelNeed:
         `plan_purchase` for the priced amounts, when a price, budget or amounts were given.
     vc : dict or None
         The worst-case VC sample size and the 10 × d rule beside the measured answer,
-        when a VC dimension is known.
+        when a VC dimension is known; for a loss other than the 0-1 loss only
+        ``{vc_dim, applies: False, reason}`` (VC theory bounds the 0-1 loss).
     warnings : list of str
         Cautions of the fit, the answer and the extrapolations, once each.
     sanity : Sanity or None
