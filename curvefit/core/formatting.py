@@ -24,10 +24,11 @@ from __future__ import annotations
 import math
 from typing import Any
 
-# Metrics whose values are rates in [0, 1], printed as percentages.
-RATE_METRICS = frozenset({"error", "balanced_error", "zero_one"})
+# Metrics whose values are rates in [0, 1], printed as percentages (the scorers
+# "accuracy" and "balanced_accuracy" are measured as 1 − score: the same two rates).
+RATE_METRICS = frozenset({"error", "balanced_error", "zero_one", "accuracy", "balanced_accuracy"})
 # The 0-1 loss (misclassified fraction): the loss that VC theory bounds.
-ZERO_ONE_METRICS = frozenset({"error", "zero_one"})
+ZERO_ONE_METRICS = frozenset({"error", "zero_one", "accuracy"})
 # How the built-in losses are named in sentences; a scikit-learn scorer's name comes from
 # the scorer itself (``label`` in the run's ``metric_info``, see curvefit.measuring.metrics).
 METRIC_NAMES = {"error": "error", "zero_one": "error", "balanced_error": "balanced error",
