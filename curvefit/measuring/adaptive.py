@@ -13,8 +13,9 @@ a compute budget (fit seconds), or both:
 How cells are chosen (`AdaptiveDesign.run`):
 
 1. A first pass: `FIRST_SIZES` candidate sizes spread geometrically from the smallest to
-   about a quarter of the size the question is about (the largest candidate for the
-   samples and floor questions), `FIRST_REPEATS` repeats each.
+   the size the question is about (the largest candidate when the question lies beyond
+   the candidates, and for the samples and floor questions), `FIRST_REPEATS` repeats
+   each: a forecast leans on the largest sizes, so they are measured from the start.
 2. Each round fits the curve with the forecasting engine (`curvefit.fitting.fit_curve`,
    the run's seed) and reads the answer and its interval. The run stops when the
    interval is narrow enough, the budget is spent, the target is out of reach with
@@ -247,11 +248,11 @@ class AdaptiveDesign:
 
     # ------------------------------------------------------------ the rounds
     def first_pass(self) -> list[tuple[int, int]]:
-        """The first cells: `FIRST_SIZES` sizes up to about a quarter of the question's
-        size (or of the largest candidate), `FIRST_REPEATS` repeats each."""
+        """The first cells: `FIRST_SIZES` sizes up to the question's size (or the largest
+        candidate), `FIRST_REPEATS` repeats each."""
         sizes = np.array(self.sizes, dtype=float)
         about = self.goal.value if self.goal.kind == "error-at" else sizes[-1]
-        top = max(min(about, sizes[-1]) / 4, sizes[0])
+        top = max(min(about, sizes[-1]), sizes[0])
         within = sizes[sizes <= top * 1.0001]
         if len(within) < FIRST_SIZES:
             within = sizes[:FIRST_SIZES]
@@ -319,14 +320,10 @@ class AdaptiveDesign:
 
     def _fit(self, cells, chosen):
         """Fit the curve of the chosen cells; (None, None) while it cannot be fitted."""
-        import pandas as pd
-
-        from curvefit.core.curve import Curve
         from curvefit.fitting.engine import fit_curve
 
-        rows = [cells.done[k] for k in sorted(chosen)]
-        meta = {"metric": self.metric.name, "metric_info": self.metric.to_dict(), "sizes": list(self.sizes)}
-        curve = Curve(pd.DataFrame(rows), meta)
+        # the run's own metadata (pool, test rows, split): the fit `curvefit fit` would make
+        curve = cells.make_curve([cells.done[k] for k in sorted(chosen, key=lambda k: (k[1], k[0]))])
         try:
             import warnings
 

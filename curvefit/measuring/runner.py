@@ -180,7 +180,11 @@ def measure(model, X, y, *, sizes: Sequence[int] | None = None, repeats: int = R
         random_state=random_state, journal=journal, resume=resume, timeout=timeout, encode=encode,
         groups=groups, order=order, size_unit=size_unit, progress=progress, meta=meta,
         splitter=splitter, goal=goal, precision=precision, budget=budget)
-    points, resumed, record = _execute(inputs, split, spec, settings, adaptive)
+    def make_curve(rows):  # the adaptive rounds fit what the run file will hold
+        return _assemble_curve(rows, inputs, split, spec, settings, meta_in, started=started,
+                               resumed=0)
+
+    points, resumed, record = _execute(inputs, split, spec, settings, adaptive, make_curve)
     return _assemble_curve(points, inputs, split, spec, settings, {**record, **meta_in},
                            started=started, resumed=resumed)
 
@@ -545,7 +549,7 @@ def _duplicate_test_fraction(inputs: _Inputs, splitter, plans) -> float | None:
 
 # ---------------------------------------------------------------------- 4. execution
 def _execute(inputs: _Inputs, split: _SplitPlan, spec, settings: _Settings,
-             adaptive=None) -> tuple[list[dict], int, dict]:
+             adaptive=None, make_curve=None) -> tuple[list[dict], int, dict]:
     """Run the cells the journal does not hold; return every point in (repeat, size) order,
     how many came from the journal, and what the run recorded about its costs (and, when
     adaptive, its decisions)."""
@@ -560,6 +564,7 @@ def _execute(inputs: _Inputs, split: _SplitPlan, spec, settings: _Settings,
     try:
         with _reporting(settings.report) as report:
             cells = CellRunner(inputs, split, spec, settings, journal, report, previous)
+            cells.make_curve = make_curve
             if adaptive is None:
                 wanted = [(s, r) for r in range(settings.repeats) for s in split.sizes]
                 cells.keep_only(wanted)
@@ -581,7 +586,8 @@ class CellRunner:
     """Runs cells of one measurement in batches: each finished cell is journaled, counted
     and reported (with the ETA from `curvefit.measuring.costs`).
 
-    ``done`` maps (size, repeat) to the result rows held so far, the journal's included.
+    ``done`` maps (size, repeat) to the result rows held so far, the journal's included;
+    ``make_curve(rows)`` turns result rows into the `Curve` the run would write.
     The adaptive mode (`curvefit.measuring.adaptive`) calls `run` once per round and
     sets ``total`` and ``note`` (its current answer) for the progress lines.
     """
