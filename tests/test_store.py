@@ -572,6 +572,22 @@ def test_reading_a_missing_store_creates_nothing(tmp_path):
     assert path.exists()
 
 
+def test_a_store_this_process_cannot_write_is_opened_read_only(tmp_path, monkeypatch):
+    import os
+
+    path = tmp_path / "history.db"
+    made_store(path)
+    before = path.read_bytes()
+    # as for a file on a read-only share (root ignores file modes, so the check is faked)
+    monkeypatch.setattr(os, "access", lambda p, mode, **kw: mode != os.W_OK)
+    with Store(path) as s:
+        assert s.runs("setup")["run_id"].tolist() == [1] and s.schema_version == SCHEMA_VERSION
+        with pytest.raises(InputError, match="history store") as err:
+            s.record(_curve(), None, series="setup", headline=_figs())
+        assert "\n" not in str(err.value)
+    assert path.read_bytes() == before
+
+
 def test_same_run_is_refused_unless_again(store):
     c = _curve()
     r1 = store.record(c, None, series="s", headline=_figs())
