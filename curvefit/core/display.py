@@ -16,8 +16,8 @@ Examples
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from types import ModuleType
-from typing import Callable
 
 _loader: Callable[[], ModuleType] | None = None
 
