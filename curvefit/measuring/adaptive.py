@@ -397,8 +397,8 @@ class AdaptiveDesign:
             s = int(self.sizes[best])
             key = (s, int(k[best]))
             k[best] += 1
-            picked.append((key, f"predicted half-width {format_number(math.sqrt(now), 3)} → "
-                                f"{format_number(math.sqrt(best_after), 3)} for {format_count(s)} rows"))
+            picked.append((key, f"predicted half-width {format_number(math.sqrt(now), 4)} → "
+                                f"{format_number(math.sqrt(best_after), 4)} for {format_count(s)} rows"))
         return picked
 
     def _spread(self, counts) -> list[tuple[tuple[int, int], str]]:
