@@ -205,6 +205,8 @@ def _cases() -> list[Case]:
         Case("job not toml", ["measure", "--config", "job.toml"], files={"job.toml": "data = [\n"},
              words="toml"),
         Case("job missing", ["measure", "--config", "absent.toml"], words="not found"),
+        Case("job nested 100000 deep", ["measure", "--config", "job.toml"],
+             files={"job.toml": "a = " + "[" * 100_000 + "]" * 100_000 + "\n"}, words="nested too deep"),
         Case("track job resume text", ["track", "--config", "job.toml"],
              files={"job.toml": _job('store = "h.db"\nseries = "s"\nresume = "no"')["job.toml"]},
              words="resume"),

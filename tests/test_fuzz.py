@@ -204,6 +204,16 @@ def test_job_file_settings(job, tmp_path_factory):
     _only_input_error(check_job_settings, job, "job.toml")
 
 
+@FUZZ
+@given(raw=st.one_of(st.binary(max_size=200), st.text(max_size=200).map(str.encode)))
+def test_job_file_reader(raw, tmp_path_factory):
+    from curvefit.workflows.jobs import read_toml, resolve_job_paths
+
+    path = tmp_path_factory.mktemp("job") / "job.toml"
+    path.write_bytes(raw)
+    _only_input_error(lambda: resolve_job_paths(read_toml(path), path))
+
+
 def test_time_limit_catches_a_hang():
     """The guard itself works: a sleeping call is stopped and reported."""
     with pytest.raises(_Hang):

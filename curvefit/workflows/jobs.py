@@ -25,6 +25,9 @@ from curvefit.core.validate import (
     parse_list,
 )
 
+# A job file is a few lines; anything larger is not one (and would be read whole).
+MAX_JOB_BYTES = 2 ** 20
+
 # Keys whose values are paths, resolved against the job file's folder.
 PATH_KEYS = ("data", "test", "store", "out")
 
@@ -44,10 +47,14 @@ def read_toml(path: str | Path, what: str = "config file") -> dict:
     if not p.is_file():
         raise InputError(f"{what} not found: {p}")
     try:
+        if p.stat().st_size > MAX_JOB_BYTES:
+            raise InputError(f"{p} is larger than {MAX_JOB_BYTES // 2 ** 20} MB; not a {what}")
         with open(p, "rb") as fh:
             return tomllib.load(fh)
     except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError) as exc:
         raise InputError(f"{p} is not valid TOML: {' '.join(str(exc).split())}") from None
+    except RecursionError:
+        raise InputError(f"{p} is not a {what}: nested too deep") from None
 
 
 def resolve_job_paths(job: dict, config_path: str | Path, source: str | None = None) -> dict:
