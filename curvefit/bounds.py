@@ -444,6 +444,8 @@ def vc_sample_size(vc_dim, eps, delta, growth: str = "polynomial", trace: bool =
     e = _one(_unit_open(eps, "eps"), "eps")
     dl = _one(_unit_open(delta, "delta"), "delta")
     start = _one(_positive(start, "start"), "start")
+    if start > LARGEST_ANSWER:
+        raise InputError(f"start must be at most {LARGEST_ANSWER:g} samples, got {start:g}")
 
     max_iter = check_count(max_iter, "max_iter", maximum=10_000)
 
