@@ -105,3 +105,21 @@ def test_cells_of_the_wrong_type_are_refused_with_one_line(tmp_path, cell, words
     with pytest.raises(InputError, match=words) as info:
         Journal.open(p, ID, resume=True)
     assert "line 2" in str(info.value) and "\n" not in str(info.value)
+
+
+def test_resume_from_a_zero_byte_journal_measures_everything(tmp_path):
+    # what a disk that filled up as the run started leaves behind: --resume must not refuse it
+    from sklearn.datasets import load_iris
+    from sklearn.tree import DecisionTreeClassifier
+
+    from curvefit.measuring.runner import measure
+
+    X, y = load_iris(return_X_y=True)
+    journal = tmp_path / "run.json.journal"
+    journal.write_bytes(b"")
+    curve = measure(DecisionTreeClassifier(max_depth=2), X, y, sizes=[20, 40], repeats=1,
+                    journal=journal, resume=True)
+    fresh = measure(DecisionTreeClassifier(max_depth=2), X, y, sizes=[20, 40], repeats=1)
+    assert curve.meta["resumed_cells"] == 0 and len(curve.points) == 2
+    assert curve.points["test_error"].tolist() == fresh.points["test_error"].tolist()
+    assert len(journal.read_text().splitlines()) == 3  # header and two cells
