@@ -220,3 +220,44 @@ def test_time_limit_catches_a_hang():
         with _time_limit(0.2, "sleep"):
             time.sleep(5)
     assert math.isfinite(CALL_LIMIT)
+
+
+# ---------------------------------------------------------------- the API refuses what the CLI does
+def _iris():
+    from sklearn.datasets import load_iris
+
+    return load_iris(return_X_y=True)
+
+
+@pytest.mark.parametrize("settings, words", [
+    ({"repeats": 10 ** 6}, "at most 1,000"),
+    ({"n_jobs": 0}, "n_jobs must be at least 1"),
+    ({"random_state": -1}, "random_state"),
+    ({"sizes": [1.5, 20]}, "not a whole number"),
+    ({"sizes": [20, float("inf")]}, "not a whole number"),
+    ({"sizes": list(range(1, 1_500))}, "at most 1,000 sizes"),
+])
+def test_measure_refuses_before_opening_a_journal(tmp_path, settings, words):
+    from sklearn.tree import DecisionTreeClassifier
+
+    from curvefit.measuring.runner import measure
+
+    X, y = _iris()
+    journal = tmp_path / "run.json.journal"
+    kwargs = {"sizes": [20, 40], "repeats": 1, **settings}
+    with pytest.raises(InputError, match=words):
+        measure(DecisionTreeClassifier(), X, y, journal=journal, **kwargs)
+    assert not journal.exists()
+
+
+def test_fit_and_probe_refuse_counts_past_their_limits():
+    import pandas as pd
+
+    from curvefit.capacity.probe import probe_capacity
+    from curvefit.fitting.engine import fit_curve
+
+    curve = Curve.from_table(pd.DataFrame({"size": [10, 20, 40, 80], "test_error": [.4, .3, .25, .22]}))
+    with pytest.raises(InputError, match="bootstrap must be at most 100,000"):
+        fit_curve(curve, bootstrap=10 ** 9)
+    with pytest.raises(InputError, match="max_n must be at most"):
+        probe_capacity("sklearn.tree:DecisionTreeClassifier", n_features=2, max_n=10 ** 13)
