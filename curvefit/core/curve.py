@@ -365,6 +365,10 @@ def _points_frame(points, source: str) -> pd.DataFrame:
         where = f"{source}: cell {i + 1}"
         if not isinstance(cell, dict):
             raise InputError(f"{where} is not an object")
+        nested = [k for k, v in cell.items() if isinstance(v, (dict, list))]
+        if nested:
+            raise InputError(f"{where}: {nested[0].replace('_', ' ')} holds "
+                             f"{type(cell[nested[0]]).__name__} data, not a single value")
         for key in ("size", "repeat"):
             if key not in cell and key == "size":
                 raise InputError(f"{where} has no size")

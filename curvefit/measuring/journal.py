@@ -51,6 +51,10 @@ def _check_cell(cell: dict, where: str) -> None:
     """A journaled cell as the runner uses it: whole size >= 1 and repeat >= 0, numbers or
     null in the number fields, text in the text fields."""
     fix = "; delete the journal to start over, or run without --resume"
+    for key, value in cell.items():
+        if isinstance(value, (dict, list)):
+            raise InputError(f"{where}: the cell's {key.replace('_', ' ')} holds "
+                             f"{type(value).__name__} data, not a single value{fix}")
     for key, low in (("size", 1), ("repeat", 0)):
         value = cell.get(key)
         if not is_whole_number(value) or not low <= value <= 2 ** 53:
