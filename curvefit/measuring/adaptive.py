@@ -270,7 +270,9 @@ class AdaptiveDesign:
         first = self.first_pass()
         for key in first:
             reasons[key] = "first pass"
-        cells.plan, cells.total = first, len(first)
+        # the count runs against the most the run may measure; `finish` closes it
+        most = len(self.sizes) * self.repeats
+        cells.plan, cells.total = first, most
         cells.note = {"goal": self.goal.text}
         cells.run(first)
         chosen += first
@@ -301,9 +303,10 @@ class AdaptiveDesign:
             entry["chosen"] = [{"size": s, "repeat": r, "reason": why} for (s, r), why in batch]
             keys = [k for k, _ in batch]
             reasons.update(dict(batch))
-            cells.plan, cells.total = keys, len(chosen) + len(keys)
+            cells.plan = keys
             cells.run(keys)
             chosen += keys
+        cells.finish()
         spent = sum(_seconds(cells.done[k]) for k in chosen)
         last = rounds[-1]["answer"] if rounds else None
         summary = self._summary(stop, last, len(chosen), spent)

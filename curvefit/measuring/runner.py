@@ -657,6 +657,11 @@ class CellRunner:
         if predict and not self.prediction:
             self._predict()
 
+    def finish(self) -> None:
+        """Report the run as complete (an adaptive run stops before its most cells)."""
+        self.total = len(self.done)
+        self.report(len(self.done), self.total, None, extra=self._extra())
+
     def remaining_sizes(self) -> list[int]:
         """Sizes of the planned cells not held yet."""
         return [s for s, r in self.plan if (s, r) not in self.done]
