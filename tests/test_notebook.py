@@ -125,6 +125,24 @@ def test_plot_draws_into_a_given_axes_and_returns_it():
     assert ax.get_xscale() == "log"
 
 
+def test_a_fit_of_the_gap_is_drawn_over_the_measured_gaps():
+    from matplotlib.figure import Figure
+
+    from curvefit.fitting import fit_curve
+
+    n = np.repeat([50, 100, 200, 400, 800], 3)
+    e = 0.08 + 2.0 * n ** -0.5 + np.tile([-0.004, 0.0, 0.004], 5)
+    curve = Curve.from_table(pd.DataFrame({"size": n, "test_error": e,
+                                           "train_error": e - 1.5 * n ** -0.6}))
+    fit = fit_curve(curve, on="gap", bootstrap=20)
+    ax = Figure().add_subplot()
+    notebook.plot_fit(fit, ax=ax)
+    line = next(ln for ln in ax.lines if "fit," in ln.get_label())
+    x, y = line.get_data()
+    assert np.allclose(y, fit.predict(x)["estimate"])  # the fit's own forecast of the gap
+    assert "gap" in ax.get_ylabel()
+
+
 def test_plot_without_axes_makes_a_pyplot_figure():
     import matplotlib.pyplot as plt
 

@@ -210,9 +210,18 @@ def plot_curve(curve: Any, ax: Any = None, interval: float = INTERVAL) -> Any:
 
 def plot_fit(fit: Any, ax: Any = None, interval: float = INTERVAL) -> Any:
     """`CurveFit.plot`: the measured curve with the chosen family, its band and the
-    runner-up (`curvefit.report.plots.learning_curve_figure`)."""
+    runner-up (`curvefit.report.plots.learning_curve_figure`); a fit of the gap is drawn
+    over the measured gaps (`curvefit.report.plots.gap_figure`)."""
     ax = new_axes(ax)
-    plots.learning_curve_figure(fit.curve, fit, interval=interval, ax=ax)
+    curve = fit.curve
+    if field(fit, "on", "test") == "gap" and len(curve.sizes):
+        import numpy as np
+
+        grid = np.geomspace(float(curve.sizes.min()), float(curve.sizes.max()) * 4, 120)
+        line = (f"fit, {family_name(fit.best)}", grid, fit.predict(grid, interval=interval)["estimate"])
+        plots.gap_figure(curve, {model_label(curve, 0): [line]}, ax=ax)
+        return ax
+    plots.learning_curve_figure(curve, fit, interval=interval, ax=ax)
     return ax
 
 
