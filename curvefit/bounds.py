@@ -296,10 +296,10 @@ def growth_bound(n, vc_dim, kind: str = "polynomial"):
     10.0
     """
     logs = log_growth_bound(n, vc_dim, kind=kind)
-    with np.errstate(over="ignore"):
+    with np.errstate(over="ignore", invalid="ignore"):
         val = np.exp(logs)
-    # exp(log) loses the last unit for exact integers; round where the value is exact
-    val = np.where(np.asarray(val) < 2.0 ** 52, np.round(val, 6), val)
+        # exp(log) loses the last unit for exact integers; round where the value is exact
+        val = np.where(np.asarray(val) < 2.0 ** 52, np.round(val, 6), val)
     return _like(val, n, vc_dim)
 
 
@@ -372,6 +372,8 @@ def vc_error_bar(n, vc_dim, delta, growth: str = "polynomial"):
     (0.848, 0.301)
     """
     n_a = _positive(n, "n")
+    if np.any(n_a > LARGEST_ANSWER):
+        raise InputError(f"n must be at most {LARGEST_ANSWER:g} samples, got {_show(n)}")
     delta_a = _unit_open(delta, "delta")
     _broadcast(n=n_a, vc_dim=_count(vc_dim, "vc_dim"), delta=delta_a)
     log_m = np.asarray(log_growth_bound(2.0 * n_a, vc_dim, kind=growth))

@@ -13,8 +13,8 @@ import json
 import math
 import signal
 import time
+import warnings
 
-import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
@@ -48,12 +48,14 @@ def _time_limit(seconds: float, what: str):
 
 
 def _only_input_error(func, *args, **kwargs):
-    """Call ``func``; InputError is fine, any other exception or a hang fails."""
+    """Call ``func``; InputError is fine, any other exception, a numpy RuntimeWarning or a
+    hang fails."""
     what = f"{func.__name__}{args!r}{kwargs!r}"
     started = time.monotonic()
     with _time_limit(CALL_LIMIT, what):
         try:
-            with np.errstate(all="ignore"):
+            with warnings.catch_warnings():
+                warnings.simplefilter("error", RuntimeWarning)  # numpy warnings must not leak
                 func(*args, **kwargs)
         except InputError as exc:
             assert "\n" not in str(exc), f"{what}: a multi-line message {exc}"
