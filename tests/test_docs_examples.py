@@ -395,23 +395,42 @@ def example_documents():
         yield pytest.param(doc, id=name, marks=marks)
 
 
+def run_examples(doc):
+    """The examples of one document, run in their own scratch folder: its Results."""
+    import shutil
+
+    rd = refresh_docs_module()
+    workspace = rd.Workspace(rd.shown_as(doc.read_text(encoding="utf-8")), timeout=900)
+    try:
+        return rd.run_document(doc, workspace, log=lambda message: None)[1]
+    finally:
+        shutil.rmtree(workspace.path, ignore_errors=True)
+
+
+@pytest.fixture(scope="module")
+def example_runs():
+    """Every selected document's examples, two documents at a time (each document's
+    commands run in order; documents are independent), so the two cores both work."""
+    from concurrent.futures import ThreadPoolExecutor
+
+    rd = refresh_docs_module()
+    everything = os.environ.get("CURVEFIT_DOCS_EXAMPLES") == "all"
+    docs = [d for d in rd.documents([]) if everything or rd.label(d) not in SLOW_DOCS]
+    with ThreadPoolExecutor(max_workers=2) as pool:
+        futures = {rd.label(d): pool.submit(run_examples, d) for d in docs}
+    return futures
+
+
 @pytest.mark.parametrize("doc", list(example_documents()))
-def test_every_example_prints_what_the_docs_show(doc):
+def test_every_example_prints_what_the_docs_show(doc, example_runs):
     """Each `$ curvefit ...` example, run in document order in a scratch folder, prints
     output of the shape the document shows: the same lines, columns, labels and JSON keys
     (numbers may differ). `scripts/refresh_docs.py` pastes fresh outputs when this fails."""
     rd = refresh_docs_module()
     name = rd.label(doc)
-    if name in SLOW_DOCS and os.environ.get("CURVEFIT_DOCS_EXAMPLES") != "all":
+    if name not in example_runs:
         pytest.skip(f"{name}: slow examples run with CURVEFIT_DOCS_EXAMPLES=all")
-    text = doc.read_text(encoding="utf-8")
-    workspace = rd.Workspace(rd.shown_as(text), timeout=900)
-    try:
-        _, results = rd.run_document(doc, workspace, log=lambda message: None)
-    finally:
-        import shutil
-
-        shutil.rmtree(workspace.path, ignore_errors=True)
+    results = example_runs[name].result()
     assert results, f"{name} has no examples"
     problems = [w for r in results for w in r.warnings] + rd.shape_differences(results)
     assert not problems, ("examples whose output drifted from the document (refresh with "
