@@ -196,3 +196,16 @@ def test_example_notebook_runs_and_shows_tables_and_images(tmp_path):
 def test_example_notebook_is_stored_without_outputs():
     doc = json.loads(Path(NOTEBOOK).read_text(encoding="utf-8"))
     assert all(not c.get("outputs") for c in doc["cells"] if c["cell_type"] == "code")
+
+
+def test_a_tracked_run_shows_its_comparison(tmp_path):
+    from matplotlib.figure import Figure
+
+    from curvefit.workflows.nightly import track_run
+
+    result = track_run(_curve({"started": "a"}), store=str(tmp_path / "h.db"), series="s",
+                       bootstrap=10)
+    page = result._repr_html_()
+    assert page == result.comparison._repr_html_() and "Result: first run" in page
+    ax = Figure().add_subplot()
+    assert result.plot(ax=ax) is ax and "first run" in ax.texts[0].get_text()

@@ -89,6 +89,14 @@ class TrackResult:
         doc["store"] = self.store
         return doc
 
+    def _repr_html_(self) -> str:
+        """In a notebook, a tracked run shows as its comparison with the baseline."""
+        return self.comparison._repr_html_()
+
+    def plot(self, ax=None):
+        """The comparison's figure (`Comparison.plot`); returns the matplotlib Axes."""
+        return self.comparison.plot(ax=ax)
+
 
 # --------------------------------------------------------------------------- job file
 def read_job(path: str | Path) -> dict:
