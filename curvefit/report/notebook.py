@@ -3,11 +3,11 @@
 `Curve`, `CurveFit`, `SampleEstimate`, `CapacityEstimate`, `Tradeoff` and `Comparison`
 each have two thin methods: ``_repr_html_`` (what Jupyter shows when the object ends a
 cell) and ``plot(ax=None)`` (draws and returns the matplotlib Axes). Both call one
-function here. Like the rest of `curvefit.report`, this module only renders what the
-objects hold: tables are built by `curvefit.report.html` (`html_table`, `curve_table`,
-`capacity_row`), learning curves, probes and trade-offs are drawn by
-`curvefit.report.plots`, and numbers read as everywhere else (`curvefit.core.formatting`).
-Every user string is escaped.
+function here (a tracked run, `TrackResult`, shows as its `Comparison`). Like the rest
+of `curvefit.report`, this module only renders what the objects hold: tables are built by
+`curvefit.report.html` (`html_table`, `curve_table`, `capacity_row`), learning curves,
+gaps, probes and trade-offs are drawn by `curvefit.report.plots`, and numbers read as
+everywhere else (`curvefit.core.formatting`). Every user string is escaped.
 
 Without ``ax`` a plot gets a new pyplot figure, so a notebook shows it at the end of the
 cell (``curve.plot();``) as pandas' ``DataFrame.plot`` does; with ``ax`` it draws into
