@@ -66,7 +66,7 @@ def test_no_command_output_shows_an_old_code(work):
                  ["need", work["csv"], "--error", "0.02", "--bootstrap", "20", "--json"],
                  ["track", work["run"], "--store", d / "h.db", "--series", "s", "--bootstrap", "20"],
                  ["track", work["run"], "--store", d / "h.db", "--series", "s", "--bootstrap", "20",
-                  "--json"],
+                  "--json", "--again"],  # the same run file again: recorded only with --again
                  ["history", "--store", d / "h.db"],
                  ["history", "--store", d / "h.db", "--json"],
                  ["report", work["run"], "--out", d / "r.html", "--bootstrap", "20", "--json"]):
@@ -100,7 +100,7 @@ def test_history_written_with_old_codes_is_shown_with_new_names(work):
     r = run_cli("history", "--store", db, "--json")
     assert r.returncode == 0, r.stderr
     assert_no_old_code(r.stdout, "history of an old store")
-    r = run_cli("track", work["run"], "--store", db, "--series", "s", "--bootstrap", "20")
+    r = run_cli("track", work["run"], "--store", db, "--series", "s", "--bootstrap", "20", "--again")
     assert r.returncode in (0, 1), r.stderr
     assert_no_old_code(r.stdout + r.stderr, "track against an old store")
 
