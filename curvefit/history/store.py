@@ -170,9 +170,12 @@ class Store:
     Parameters
     ----------
     path : str or path-like
-        File path, or ``sqlite:///path``. Created (with its schema) if absent.
+        File path, or ``sqlite:///path``. A missing file is created (with its schema)
+        by the first write, never by opening or reading: reading a store that does not
+        exist is an `InputError`. A file this process may not write is opened read-only.
     create : bool
-        When False, a missing file is an `InputError` instead of a new store.
+        When False, a missing file is an `InputError` at once instead of a store that a
+        first write would create.
 
     Raises
     ------
