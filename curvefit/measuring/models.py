@@ -25,12 +25,14 @@ process, so a typo fails before any work starts.
 from __future__ import annotations
 
 import ast
+import atexit
 import contextlib
 import dataclasses
 import hashlib
 import importlib
 import importlib.util
 import inspect
+import json
 import math
 import os
 import shlex
@@ -600,8 +602,7 @@ class CommandModel(BaseEstimator):
     # -- the program run
     def _run(self, test: pd.DataFrame) -> np.ndarray:
         argv_template = check_command(self.command)
-        with tempfile.TemporaryDirectory(prefix="curvefit-trainer-") as tmp:
-            tmp = Path(tmp)
+        with _trainer_folder() as tmp:
             paths = {"{train}": str(tmp / "train.csv"), "{test}": str(tmp / "test.csv"),
                      "{predictions}": str(tmp / "predictions.txt")}
             label = TARGET_COLUMN if TARGET_COLUMN not in self.X_train_.columns else TARGET_COLUMN + "_"
@@ -632,6 +633,68 @@ class CommandModel(BaseEstimator):
 # trainer programs running in this process: process group id -> their temporary folder
 _LIVE_TRAINERS: dict[int, Path | None] = {}
 
+# The trainer watch: a small helper process (one per process that starts trainers, in a
+# session of its own, its streams on /dev/null) told of each trainer as it starts and
+# ends. When the pipe from its owner closes, because the owner exited or was killed
+# (`kill -9` of a one-process run, a worker killed by the system), it kills the trainers
+# still listed, removes their folders and exits.
+_WATCH_CODE = """\
+import json, os, shutil, signal, sys
+live = {}
+for line in sys.stdin:
+    op, folder, pgid = json.loads(line)
+    if op == "+":
+        live[folder] = pgid
+    else:
+        live.pop(folder, None)
+for folder, pgid in live.items():
+    if pgid:
+        try:
+            os.killpg(pgid, signal.SIGKILL)
+        except OSError:
+            pass
+    shutil.rmtree(folder, ignore_errors=True)
+"""
+_watch: dict = {}  # {"owner": pid, "proc": Popen} of this process's trainer watch
+
+
+@contextlib.contextmanager
+def _trainer_folder():
+    """A private temporary folder, known to the trainer watch until it is removed."""
+    folder = Path(tempfile.mkdtemp(prefix="curvefit-trainer-"))
+    _tell_watch("+", folder, None)
+    try:
+        yield folder
+    finally:
+        shutil.rmtree(folder, ignore_errors=True)
+        _tell_watch("-", folder, None)
+
+
+def _tell_watch(op: str, folder: Path | None, pgid: int | None) -> None:
+    """Tell the trainer watch (started on first use) of a trainer's folder and process
+    group ("+") or that both are gone ("-")."""
+    try:
+        proc = _watch.get("proc")
+        if proc is None or _watch.get("owner") != os.getpid() or proc.poll() is not None:
+            if op != "+":
+                return
+            proc = subprocess.Popen([sys.executable, "-I", "-S", "-c", _WATCH_CODE],
+                                    stdin=subprocess.PIPE, stdout=subprocess.DEVNULL,
+                                    stderr=subprocess.DEVNULL, start_new_session=True)
+            _watch.update(owner=os.getpid(), proc=proc)
+            atexit.register(_close_watch, proc)
+        proc.stdin.write((json.dumps([op, str(folder), pgid]) + "\n").encode())
+        proc.stdin.flush()
+    except (OSError, ValueError):
+        pass  # best effort: time limits, Ctrl-C and the parallel workers' watch still apply
+
+
+def _close_watch(proc: subprocess.Popen) -> None:
+    """At a normal exit: end the watch (no trainer is left to stop) and reap it."""
+    with contextlib.suppress(OSError, ValueError, subprocess.TimeoutExpired):
+        proc.stdin.close()
+        proc.wait(timeout=5)
+
 
 def _run_program(argv: list[str], fout, ferr, timeout: float | None, folder: Path | None = None) -> int:
     """Run without a shell in its own process group; kill the whole group on timeout."""
@@ -641,6 +704,8 @@ def _run_program(argv: list[str], fout, ferr, timeout: float | None, folder: Pat
     except OSError as exc:
         raise CommandError(f"cannot start trainer command {argv[0]!r}: {exc.strerror or exc}") from None
     _LIVE_TRAINERS[proc.pid] = folder
+    if folder is not None:
+        _tell_watch("+", folder, proc.pid)
     try:
         return proc.wait(timeout=timeout)
     except subprocess.TimeoutExpired:
@@ -651,6 +716,8 @@ def _run_program(argv: list[str], fout, ferr, timeout: float | None, folder: Pat
         raise
     finally:
         _LIVE_TRAINERS.pop(proc.pid, None)
+        if folder is not None:
+            _tell_watch("+", folder, None)  # the group is gone; the folder until it is removed
 
 
 def stop_trainers() -> None:
