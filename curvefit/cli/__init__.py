@@ -6,4 +6,4 @@ parse, call a function of the API and print what it returns.
 """
 
 COMMANDS = ["measure", "fit", "need", "capacity", "bound", "tradeoff", "report",
-            "track", "history", "demo"]
+            "track", "history", "demo", "plan"]
