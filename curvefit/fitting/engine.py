@@ -160,6 +160,19 @@ class SampleEstimate:
     def __repr__(self) -> str:
         return f"SampleEstimate({self.message!r})"
 
+    def _repr_html_(self) -> str:
+        """The samples needed with their interval, and the answer in words (shown by Jupyter)."""
+        from curvefit.report.notebook import sample_html
+
+        return sample_html(self)
+
+    def plot(self, ax=None):
+        """Draw the samples needed as a point with its interval on a log axis; returns the
+        matplotlib Axes (``ax`` when given)."""
+        from curvefit.report.notebook import plot_samples
+
+        return plot_samples(self, ax=ax)
+
 
 class _State:
     """Everything a CurveFit needs besides its public fields (internal, not frozen)."""
@@ -590,6 +603,20 @@ class CurveFit:
         tail = f", asymptote {asym.estimate:.4g}" if asym is not None and math.isfinite(asym.estimate) else ""
         return (f"CurveFit(on={self.on!r}, best={self.best!r}, runner_up={self.runner_up!r}, "
                 f"{span}{tail}, {len(self.warnings)} warnings)")
+
+    def _repr_html_(self) -> str:
+        """The chosen family, the fitted error at the largest size, the asymptote and decay
+        exponent with their intervals, and the family ranking (shown by Jupyter)."""
+        from curvefit.report.notebook import fit_html
+
+        return fit_html(self)
+
+    def plot(self, ax=None):
+        """Draw the measured curve with the chosen family, its band and the runner-up;
+        returns the matplotlib Axes (``ax`` when given)."""
+        from curvefit.report.notebook import plot_fit
+
+        return plot_fit(self, ax=ax)
 
     # ------------------------------------------------------------ internals
     def _checked_sizes(self, n) -> np.ndarray:
