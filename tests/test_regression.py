@@ -141,5 +141,9 @@ def test_a_plain_curve_table_names_its_loss_in_a_metric_column(runs):
     _no_e_notation(text)
     table.assign(metric=["mse", "mae"] * (len(table) // 2) + ["mse"] * (len(table) % 2)).to_csv(
         d / "mixed.csv", index=False)
+    # without the column, values above 1 cannot be 0-1 rates: a loss in its own units
+    table.drop(columns="metric").to_csv(d / "bare.csv", index=False)
+    bare = _ok(run_cli("need", "bare.csv", "--error", "3000", "--bootstrap", "100", cwd=d)).stdout
+    assert "a test loss of 3,000" in bare and not re.search(r"\d%", bare.replace("90%", ""))
     bad = run_cli("need", "mixed.csv", "--error", "3000", cwd=d)
     assert bad.returncode == 2 and "one loss name" in bad.stderr and "Traceback" not in bad.stderr

@@ -270,7 +270,8 @@ class Curve:
     def from_table(cls, table: "pd.DataFrame | str | os.PathLike", meta: dict | None = None) -> "Curve":
         """A curve measured elsewhere: columns ``size, test_error[, train_error, repeat]``,
         and optionally ``metric`` naming the loss (one value, e.g. ``mse``; without it the
-        values are read as 0-1 error rates).
+        values are read as 0-1 error rates, or as a "loss" in its own units when any test
+        error exceeds 1).
 
         Accepts a DataFrame or the path of a CSV file.
         """
@@ -301,6 +302,8 @@ class Curve:
                                  f"(e.g. mse), found {', '.join(names) or 'none'}")
             m["metric"] = names[0]
             df = df.drop(columns=["metric"])
+        elif "test_error" in df.columns and (pd.to_numeric(df["test_error"], errors="coerce") > 1).any():
+            m["metric"] = "loss"  # values above 1 are no 0-1 error rates: a loss in its own units
         m.update(meta or {})
         return cls(df, m)
 
