@@ -201,6 +201,9 @@ def register(app: typer.Typer) -> None:
         plan_only: Optional[bool] = typer.Option(
             None, "--plan-only", help="Print the planned cells and the predicted time (a warm-up "
             "and two pilot fits are timed); write nothing."),
+        slice_col: Optional[str] = typer.Option(
+            None, "--slice", help="Measure one curve per value of this column (that slice's "
+            "training rows grow, the others stay whole); writes a per-slice file."),
         config: Optional[str] = typer.Option(None, "--config", help="TOML file with option values."),
         quiet: Optional[bool] = typer.Option(None, "--quiet", help=QUIET_HELP),
         as_json: Optional[bool] = typer.Option(None, "--json", help="Print a JSON summary only."),
@@ -223,5 +226,9 @@ def register(app: typer.Typer) -> None:
             opts[key] = value if value is not None else conf.get(key, default)
         opts["param"] = given["param"]
         opts["param_config"] = conf.get("param")
+        if slice_col is not None:  # per-slice curves: curvefit/cli/plan.py
+            from curvefit.cli.plan import run_slice_measure
+
+            raise typer.Exit(run_slice_measure(opts, slice_col))
         code = run_measure(opts)
         raise typer.Exit(code)

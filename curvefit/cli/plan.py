@@ -77,7 +77,7 @@ def register(app: typer.Typer) -> None:
         run: str = typer.Argument(..., metavar="RUN", help="Run file (JSON) or a curve table (CSV)."),
         error: Optional[float] = typer.Option(None, "--error", help="Target test error E."),
         gap: Optional[float] = typer.Option(None, "--gap", help="Target generalization gap G."),
-        label_cost: float = typer.Option(..., "--label-cost", help="Price of one label."),
+        label_cost: Optional[float] = typer.Option(None, "--label-cost", help="Price of one label."),
         round_cost: float = typer.Option(0.0, "--round-cost",
                                          help="Fixed cost of each round (set-up, retraining)."),
         penalty: Optional[float] = typer.Option(None, "--penalty",
@@ -87,6 +87,16 @@ def register(app: typer.Typer) -> None:
                                                     help="Required chance of reaching the target "
                                                          "(instead of --penalty), e.g. 0.9."),
         rounds: int = typer.Option(3, "--rounds", help="At most this many rounds (1 to 20)."),
+        budget: Optional[float] = typer.Option(None, "--budget",
+                                               help="With a per-slice file: money to split "
+                                                    "across the slices."),
+        slice_costs: Optional[str] = typer.Option(None, "--slice-costs",
+                                                  help="With a per-slice file: label cost per "
+                                                       "slice, VALUE=COST,VALUE=COST."),
+        slice_errors: Optional[str] = typer.Option(None, "--slice-errors",
+                                                   help="With a per-slice file: target error per "
+                                                        "slice, VALUE=E,VALUE=E (instead of "
+                                                        "--budget)."),
         current: Optional[int] = typer.Option(None, "--current",
                                               help="Labelled samples you have now (default: the "
                                                    "largest measured size)."),
@@ -108,6 +118,25 @@ def register(app: typer.Typer) -> None:
                             penalty="--penalty", probability="--probability",
                             max_rounds="--rounds")
 
+        from curvefit.measuring.slices import SliceCurves, is_slices_file
+
+        if is_slices_file(run):
+            split = plan_slice_budget(SliceCurves.read(run), budget, label_cost, slice_costs,
+                                      slice_errors, interval=interval, families=families,
+                                      bootstrap=bootstrap, weights=weights, seed=seed,
+                                      quiet=quiet)
+            if json_out:
+                emit_json(split.to_dict())
+            else:
+                print_split(split)
+            for note in split.notes:
+                warn(note, quiet)
+            return
+        if budget is not None or slice_costs is not None or slice_errors is not None:
+            raise InputError("--budget, --slice-costs and --slice-errors need a per-slice file "
+                             "(curvefit measure ... --slice COL)")
+        if label_cost is None:
+            raise InputError("give --label-cost, the price of one label")
         if (error is None) == (gap is None):
             raise InputError("give exactly one target: --error E (test error) or --gap G")
         if (penalty is None) == (probability is None):
@@ -125,3 +154,118 @@ def register(app: typer.Typer) -> None:
         print_plan(plan)
         for note in plan.warnings:
             warn(note, quiet)
+
+
+def run_slice_measure(opts: dict, column: str) -> int:
+    """`curvefit measure DATA ... --slice COL`: one curve per slice, written as one file."""
+    from curvefit.core.formatting import format_error
+    from curvefit.measuring.slices import measure_slices_of_table
+
+    unsupported = [f"--{k.replace('_', '-')}" for k in ("command", "test", "groups", "order", "goal",
+                                                         "plan_only", "sizes", "resume")
+                   if opts.get(k)]
+    if unsupported:
+        raise InputError(f"--slice does not combine with {', '.join(unsupported)}; per-slice "
+                         "curves choose their own sizes and split")
+    if not opts.get("data") or not opts.get("target"):
+        raise InputError("usage: curvefit measure DATA --target COL --model SPEC --slice COL")
+    features = opts.get("features")
+    if isinstance(features, str):
+        features = [f.strip() for f in features.split(",") if f.strip()]
+    with status(f"measuring one curve per value of {column}", bool(opts["quiet"])):
+        result = measure_slices_of_table(
+            opts["data"], target=opts["target"], column=column, model=opts["model"],
+            params=opts.get("param"), features=features, repeats=opts["repeats"],
+            test_size=opts["test_fraction"], metric=opts["metric"], n_jobs=opts["jobs"],
+            random_state=opts["seed"], progress=not opts["quiet"])
+    path = opts.get("out") or "slices.json"
+    result.write(path)
+    if opts["json"]:
+        emit_json(dict(result.to_dict(), written=str(path)))
+        return 0
+    rows = []
+    for value in result.rows:
+        curve = result.curves.get(value)
+        if curve is None:
+            rows.append([str(value), f"{result.rows[value]:,}", f"{result.shares[value]:.0%}",
+                         "–", "–", "too few rows"])
+            continue
+        s = curve.summary()
+        first, last = s.iloc[0], s.iloc[-1]
+        rows.append([str(value), f"{result.rows[value]:,}", f"{result.shares[value]:.0%}",
+                     f"{format_error(first['test_mean'], curve.metric)} at {int(first['size']):,}",
+                     f"{format_error(last['test_mean'], curve.metric)} at {int(last['size']):,}",
+                     "measured"])
+    out.print(f"per-slice curves of {column} (each slice's training rows grow, the others stay "
+              "whole; test error on that slice's test rows):", markup=False)
+    print_table([column, "rows", "share", "smallest size", "all its rows", "status"], rows,
+                align="first-left")
+    for reason in result.skipped.values():
+        warn(reason)
+    out.print(f"wrote {path} ({len(result.curves)} slice curves)", markup=False)
+    return 0
+
+
+def _pairs(text: str | None, option: str) -> dict | None:
+    """``a=1,b=2`` as ``{"a": 1.0, "b": 2.0}``."""
+    if text is None:
+        return None
+    pairs = {}
+    for item in str(text).split(","):
+        key, sep, value = item.partition("=")
+        try:
+            number = float(value)
+        except ValueError:
+            number = None
+        if not sep or not key.strip() or number is None:
+            raise InputError(f"{option} takes VALUE=NUMBER pairs separated by commas, got {item!r}")
+        pairs[key.strip()] = number
+    return pairs
+
+
+def plan_slice_budget(slices, budget, label_cost, slice_costs, slice_errors, *, interval,
+                      families, bootstrap, weights, seed, quiet):
+    from curvefit.fitting.rounds import plan_slices
+
+    costs = _pairs(slice_costs, "--slice-costs")
+    targets = _pairs(slice_errors, "--slice-errors")
+    if costs is not None and label_cost is not None:
+        raise InputError("give --label-cost (one price) or --slice-costs (per slice), not both")
+    if (budget is None) == (targets is None):
+        raise InputError("with a per-slice file give --budget B (money to split) or "
+                         "--slice-errors (a target per slice)")
+    with status("fitting every slice's curve and splitting the budget", quiet):
+        return plan_slices(slices, budget=budget, targets=targets,
+                           label_costs=costs if costs is not None else
+                           (label_cost if label_cost is not None else 1.0),
+                           interval=interval, families=families, bootstrap=bootstrap,
+                           weights=weights, random_state=seed)
+
+
+def print_split(split) -> None:
+    """The split per slice, then the overall error now and after, with intervals."""
+    from curvefit.core.formatting import (
+        format_count,
+        format_error,
+        format_interval,
+        format_level,
+        format_money,
+        format_range,
+    )
+
+    if split.targets:
+        out.print("Labels to buy per slice for its target (each slice's curve answers for its "
+                  f"own; {format_money(split.budget)} in all):", markup=False)
+    else:
+        out.print(f"Labels to buy per slice for a budget of {format_money(split.budget)} (the "
+                  "fall of the overall error per unit of money is equalised across the slices "
+                  "that get labels):", markup=False)
+    rows = [[str(r.slice), f"{r.share:.0%}", format_count(r.rows_now), format_money(r.label_cost),
+             format_count(r.labels), format_money(r.spend), format_error(r.error_now),
+             format_error(r.error_after), format_range(r.low, r.high, "error")]
+            for r in split.table.itertuples()]
+    print_table(["slice", "share", "rows now", "label cost", "buy", "spend", "error now",
+                 "error after", f"{format_level(split.level)} interval"], rows, align="first-left")
+    for name, e in (("now", split.overall_now), ("after", split.overall_after)):
+        out.print(f"overall error {name}: {format_error(e.estimate)} "
+                  f"({format_interval(e.low, e.high, e.level, kind='error')})", markup=False)

@@ -457,3 +457,221 @@ def plan_rounds(curve, *, test_error=None, gap=None, label_cost, round_cost=0.0,
                      rounds=strategies["rounds"], one_shot=strategies["one-shot"],
                      upper_end=upper, draws=draws, answer=answer, horizon=top,
                      feasible=strategies["rounds"] is not None, warnings=notes)
+
+
+# ----------------------------------------------------------------------- a budget across slices
+@dataclass(frozen=True)
+class BudgetSplit:
+    """A label budget split across slices: the result of `split_budget`.
+
+    Attributes
+    ----------
+    table : pandas.DataFrame
+        One row per slice: ``slice, share, rows_now, label_cost, labels, spend,
+        error_now, error_after, low, high, gain_per_money`` (``gain_per_money``: the fall
+        of the overall error per unit of money of the last step given to that slice;
+        the greedy split equalises it across the slices that get labels).
+    overall_now, overall_after : Estimate
+        The overall error (the slices' errors weighted by their shares), now and after
+        the purchase, with intervals (slices taken as independent).
+    budget : float
+    targets : dict or None
+        Per-slice targets, when the split reaches targets instead of spending a budget.
+    notes : list of str
+    """
+
+    table: object
+    overall_now: object
+    overall_after: object
+    budget: float
+    level: float
+    targets: dict | None = None
+    notes: list = field(default_factory=list)
+
+    def to_dict(self) -> dict:
+        return {"format": "curvefit.split/1", "budget": self.budget, "level": self.level,
+                "targets": self.targets, "slices": self.table.to_dict(orient="records"),
+                "overall_now": self.overall_now.to_dict(),
+                "overall_after": self.overall_after.to_dict(), "notes": list(self.notes)}
+
+
+def _overall(rows, level: float):
+    """The share-weighted error with an interval from the slices' bands (independent)."""
+    from scipy.special import ndtri
+
+    from curvefit.core.estimate import Estimate
+
+    z = float(ndtri((1 + level) / 2))
+    est = sum(w * e for w, e, _, _ in rows)
+    var = sum((w * (hi - lo) / (2 * z)) ** 2 for w, _, lo, hi in rows)
+    half = z * math.sqrt(var)
+    return Estimate(float(est), float(est - half), float(est + half), level)
+
+
+def split_budget(fits: dict, *, shares: dict, current: dict, label_costs, budget=None,
+                 targets: dict | None = None, interval: float = INTERVAL,
+                 steps: int = 400) -> BudgetSplit:
+    """Split a label budget across slices, or price per-slice targets.
+
+    With ``budget``, the money goes in ``steps`` equal parts, each to the slice whose
+    fitted curve falls most per unit of money there (its share × the fall of its error
+    over the labels that part buys); for falling, convex curves this greedy rule is the
+    optimum, where the marginal gains per unit of money are equal across the slices that
+    get labels. With ``targets`` (``slice -> target error``), each slice buys what its
+    curve needs for its target (`CurveFit.samples_for`).
+
+    Parameters
+    ----------
+    fits : dict
+        ``slice -> CurveFit`` of that slice's test error against its training rows.
+    shares : dict
+        ``slice -> weight`` in the overall error (e.g. its share of the rows).
+    current : dict
+        ``slice -> training rows in hand``.
+    label_costs : float or dict
+        Price of one label, the same for all or per slice.
+    budget : float, optional
+    targets : dict, optional
+    interval : float
+
+    Returns
+    -------
+    BudgetSplit
+
+    References
+    ----------
+    .. [1] K. H. Tae and S. E. Whang, "Slice Tuner", SIGMOD 2021 (acquisition per slice
+           from per-slice learning curves).
+
+    Examples
+    --------
+    >>> import numpy as np, pandas as pd
+    >>> from curvefit.fitting.engine import fit_curve
+    >>> n = np.repeat([50, 100, 200, 400], 3)
+    >>> noise = np.tile([-0.002, 0.0, 0.002], 4)
+    >>> steep = fit_curve(pd.DataFrame({"size": n, "test_error": 0.05 + 3 * n ** -0.5 + noise}),
+    ...                   bootstrap=30)
+    >>> flat = fit_curve(pd.DataFrame({"size": n, "test_error": 0.2 + 0.1 * n ** -0.5 + noise}),
+    ...                  bootstrap=30)
+    >>> s = split_budget({"a": steep, "b": flat}, shares={"a": 0.5, "b": 0.5},
+    ...                  current={"a": 400, "b": 400}, label_costs=1, budget=2000)
+    >>> s.table.set_index("slice")["labels"]["a"] > s.table.set_index("slice")["labels"]["b"]
+    True
+    """
+    import pandas as pd
+
+    level = check_level(interval)
+    names = list(fits)
+    if not names:
+        raise InputError("no slice has a curve to split a budget over")
+    costs = {k: check_positive(label_costs.get(k) if isinstance(label_costs, dict) else label_costs,
+                               f"label cost of slice {k}") for k in names}
+    if (budget is None) == (targets is None):
+        raise InputError("give exactly one of budget (money to split) and targets (per slice)")
+    steps = check_count(steps, "steps", minimum=1, maximum=100_000)
+    notes: list[str] = []
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", FitWarning)
+        if budget is not None:
+            budget = check_positive(budget, "budget")
+            labels = _greedy(fits, shares, current, costs, budget, steps)
+        else:
+            labels = {}
+            for k in names:
+                t = targets.get(k)
+                if t is None:
+                    labels[k] = 0.0
+                    continue
+                ans = fits[k].samples_for(test_error=t, interval=level)
+                labels[k] = max(ans.n - current[k], 0.0) if ans.reachable else math.nan
+                if not ans.reachable:
+                    notes.append(f"slice {k}: {ans.message}")
+        rows, now_rows, after_rows = [], [], []
+        for k in names:
+            fit, have = fits[k], float(current[k])
+            buy = labels[k]
+            e_now = fit.error_at(have, interval=level)
+            after = fit.error_at(have + (buy if math.isfinite(buy) else 0.0), interval=level)
+            now_rows.append((shares[k], e_now.estimate, e_now.low, e_now.high))
+            after_rows.append((shares[k], after.estimate, after.low, after.high))
+            step_labels = (budget / steps) / costs[k] if budget is not None else max(have, 1.0) / 10
+            nxt = fit.error_at(have + (buy if math.isfinite(buy) else 0.0) + step_labels,
+                               interval=level).estimate
+            rows.append({"slice": _plain_value(k), "share": shares[k], "rows_now": have,
+                         "label_cost": costs[k], "labels": buy, "spend": buy * costs[k],
+                         "error_now": e_now.estimate, "error_after": after.estimate,
+                         "low": after.low, "high": after.high,
+                         "gain_per_money": shares[k] * (after.estimate - nxt)
+                         / (step_labels * costs[k])})
+    notes += list(dict.fromkeys(str(w.message) for w in caught if issubclass(w.category, FitWarning)))
+    spent = float(np.nansum([r["spend"] for r in rows]))
+    return BudgetSplit(table=pd.DataFrame(rows), overall_now=_overall(now_rows, level),
+                       overall_after=_overall(after_rows, level),
+                       budget=float(budget) if budget is not None else spent, level=level,
+                       targets=None if targets is None else {str(k): v for k, v in targets.items()},
+                       notes=notes)
+
+
+def _plain_value(value):
+    return value.item() if hasattr(value, "item") else value
+
+
+def _greedy(fits, shares, current, costs, budget: float, steps: int) -> dict:
+    """Labels per slice: each equal part of the budget to the largest fall per money."""
+    step = budget / steps
+    curves = {}
+    for k, fit in fits.items():
+        extra = np.arange(steps + 1) * step / costs[k]
+        curves[k] = shares[k] * fit.predict(float(current[k]) + np.maximum(extra, 1e-9))[
+            "estimate"].to_numpy(float)
+    index = dict.fromkeys(fits, 0)
+    for _ in range(steps):
+        gains = {k: curves[k][i] - curves[k][i + 1] for k, i in index.items()}
+        best = max(gains, key=lambda k: gains[k])
+        if not gains[best] > 0:
+            break
+        index[best] += 1
+    return {k: i * step / costs[k] for k, i in index.items()}
+
+
+def plan_slices(slices, *, budget=None, targets: dict | None = None, label_costs=1.0,
+                interval: float = INTERVAL, families="auto", bootstrap: int = BOOTSTRAP,
+                weights: str = "sem", random_state=SEED) -> BudgetSplit:
+    """Fit every measured slice's curve and split a budget (or price per-slice targets).
+
+    ``slices`` is a `curvefit.measuring.slices.SliceCurves`; the slices in hand are each
+    slice's training rows (its largest measured size), their weights its share of the
+    rows among the measured slices. Rare slices that were not measured are named in
+    the notes.
+    """
+    from curvefit.fitting.engine import fit_curve
+
+    if not slices.curves:
+        raise InputError("no slice was measured (all too rare); nothing to split")
+    if targets is not None:
+        unknown = [k for k in targets if k not in slices.curves]
+        if unknown:
+            raise InputError(f"no measured slice {unknown[0]!r}; measured: "
+                             + ", ".join(str(k) for k in slices.curves))
+    if isinstance(label_costs, dict):
+        unknown = [k for k in label_costs if k not in slices.rows]
+        if unknown:
+            raise InputError(f"no slice {unknown[0]!r}; slices: " + ", ".join(map(str, slices.rows)))
+        missing = [k for k in slices.curves if k not in label_costs]
+        if missing:
+            raise InputError(f"no label cost for slice {missing[0]!r}; give one per slice")
+    total = sum(slices.shares[k] for k in slices.curves)
+    shares = {k: slices.shares[k] / total for k in slices.curves}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", FitWarning)
+        fits = {k: fit_curve(c, families=families, bootstrap=bootstrap, weights=weights,
+                             random_state=random_state) for k, c in slices.curves.items()}
+    current = {k: float(fits[k].largest_size) for k in fits}
+    split = split_budget(fits, shares=shares, current=current, label_costs=label_costs,
+                         budget=budget, targets=targets, interval=interval)
+    notes = [f"not measured: {reason}" for reason in slices.skipped.values()]
+    if notes:
+        notes.append("the overall error covers the measured slices only, weighted by their rows")
+    return BudgetSplit(table=split.table, overall_now=split.overall_now,
+                       overall_after=split.overall_after, budget=split.budget, level=split.level,
+                       targets=split.targets, notes=notes + split.notes)
