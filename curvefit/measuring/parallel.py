@@ -54,9 +54,10 @@ def _single_threaded(fn: Callable, args: tuple, kwargs: dict, tie: tuple | None 
 def tie_to_parent(parent_pid: int, scratch: str | None = None) -> None:
     """Make this worker process die with ``parent_pid`` (idempotent; called per task).
 
-    Standard input and output go to ``os.devnull``; a daemon thread polls
-    ``os.getppid()`` every `PARENT_POLL` seconds, and SIGTERM/SIGHUP are handled the same
-    way: kill the trainer programs started here, remove the run's scratch folder, exit.
+    Standard input, output and error go to ``os.devnull``; a daemon thread polls
+    ``os.getppid()`` every `PARENT_POLL` seconds and, once the parent is gone, kills the
+    trainer programs started here, removes the run's scratch folder and exits. SIGTERM
+    and SIGHUP kill the trainers and exit (the parent removes the scratch folder).
     ``scratch`` becomes this process's temporary folder (`tempfile.tempdir`).
     """
     global _guarded_for
@@ -70,7 +71,7 @@ def tie_to_parent(parent_pid: int, scratch: str | None = None) -> None:
     _detach_standard_streams()
     for name in ("SIGTERM", "SIGHUP"):
         if hasattr(signal, name) and threading.current_thread() is threading.main_thread():
-            signal.signal(getattr(signal, name), lambda signum, frame: _die_with_parent(128 + signum))
+            signal.signal(getattr(signal, name), _stop_on_signal)
     threading.Thread(target=_watch_parent, args=(parent_pid,), name="curvefit-parent-watch",
                      daemon=True).start()
 
@@ -126,14 +127,19 @@ def _watch_parent(parent_pid: int) -> None:
     _die_with_parent()
 
 
-def _die_with_parent(code: int = 1) -> None:
+def _stop_on_signal(signum, frame) -> None:
+    """SIGTERM/SIGHUP in a worker: its trainers go; the parent, if alive, removes the rest."""
+    _die_with_parent(128 + signum, remove_scratch=False)
+
+
+def _die_with_parent(code: int = 1, remove_scratch: bool = True) -> None:
     """Kill this process's trainer programs, remove the run's scratch folder, exit now."""
     models = sys.modules.get("curvefit.measuring.models")
     with contextlib.suppress(Exception):
         if models is not None:
             models.stop_trainers()
     scratch = tempfile.tempdir
-    if scratch and os.path.basename(scratch).startswith(SCRATCH_PREFIX):
+    if remove_scratch and scratch and os.path.basename(scratch).startswith(SCRATCH_PREFIX):
         shutil.rmtree(scratch, ignore_errors=True)
     os._exit(code)
 
