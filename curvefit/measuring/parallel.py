@@ -245,7 +245,11 @@ def run_tasks(tasks: Iterable[tuple[Callable, tuple, dict]], *, n_jobs: int = 1,
 
     if backend == "local":
         _start_trackers_quietly()
-        scratch = tempfile.mkdtemp(prefix=SCRATCH_PREFIX)
+        try:
+            scratch = tempfile.mkdtemp(prefix=SCRATCH_PREFIX)
+        except OSError as exc:
+            raise InputError(f"cannot create a temporary folder in {tempfile.gettempdir()}: "
+                             f"{exc.strerror or exc}; free space there or set TMPDIR") from None
         tie = (os.getpid(), scratch)
         calls = (delayed(_single_threaded)(fn, args, kwargs, tie) for fn, args, kwargs in tasks)
         try:
