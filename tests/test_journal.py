@@ -123,3 +123,13 @@ def test_resume_from_a_zero_byte_journal_measures_everything(tmp_path):
     assert curve.meta["resumed_cells"] == 0 and len(curve.points) == 2
     assert curve.points["test_error"].tolist() == fresh.points["test_error"].tolist()
     assert len(journal.read_text().splitlines()) == 3  # header and two cells
+
+
+def test_a_journal_that_is_not_a_regular_file_is_refused(tmp_path):
+    import os
+
+    fifo = tmp_path / "run.json.journal"
+    os.mkfifo(fifo)  # reading it would block forever
+    for resume in (True, False):
+        with pytest.raises(InputError, match="not a regular file"):
+            Journal.open(fifo, ID, resume=resume)

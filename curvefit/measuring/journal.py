@@ -97,6 +97,9 @@ class Journal:
         """
         path = Path(path)
         done: list[dict] = []
+        if path.exists() and not path.is_file():  # a FIFO would block the read forever
+            raise InputError(f"the journal {path} exists but is not a regular file; remove it or "
+                             "choose another --out")
         read = cls._read(path, identity) if resume and path.exists() else None
         if read is not None:  # None: nothing to resume (no journal, or no complete header)
             done, good_bytes = read
