@@ -206,6 +206,7 @@ def dask_client(scheduler: str | None = None, n_workers: int = 2):
             except (OSError, TimeoutError, ValueError) as exc:
                 raise InputError(f"cannot connect to the Dask scheduler at {scheduler}: {exc}") from None
         else:
+            _start_trackers_quietly()  # the cluster's processes use multiprocessing's tracker
             with dask.config.set({"distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": None}):
                 cluster = LocalCluster(n_workers=max(1, n_workers), threads_per_worker=1,
                                        processes=True, dashboard_address=None)
