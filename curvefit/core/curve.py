@@ -236,7 +236,8 @@ class Curve:
         """Read a run file, or a plain curve table if the file is a CSV."""
         path = Path(path)
         if not path.is_file():
-            raise InputError(f"run file not found: {path}")
+            raise InputError(f"{path} is not a regular file; give a run file (JSON) or a curve table"
+                             if path.exists() else f"run file not found: {path}")
         if path.suffix.lower() in (".csv", ".tsv", ".txt"):
             return cls.from_table(path)
         _check_file_size(path)
