@@ -131,7 +131,10 @@ def test_stopped_run_leaves_nothing_behind(iris_table, tmp_path, sig, kind, jobs
     _wait_for_cells(proc, journal, 2)
     assert len(_marked(mark)) >= (3 if jobs > 1 else 2)  # the parent, its workers or trainer
     proc.send_signal(sig)
+    stopped = time.monotonic()
+    # the pipes reach their end only when no process holds them: a `| tee` would hang
     _, stderr = proc.communicate(timeout=60)
+    assert time.monotonic() - stopped < 20
     if sig == signal.SIGKILL:
         assert proc.returncode == -signal.SIGKILL
     else:
