@@ -128,3 +128,140 @@ def test_plan_bad_input_is_one_line_and_exit_2(curve_table, args):
     assert r.returncode == 2, (args, r.stdout, r.stderr)
     lines = [ln for ln in r.stderr.splitlines() if ln.strip()]
     assert len(lines) == 1 and "Traceback" not in r.stderr, r.stderr
+
+
+# ---------------------------------------------------------------- per-slice curves
+def _bench_plans():
+    """scripts/bench_plans.py as a module (its generated two-region task)."""
+    import importlib.util
+    import sys
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[1]
+    sys.path.insert(0, str(root / "scripts"))
+    spec = importlib.util.spec_from_file_location("bench_plans", root / "scripts" / "bench_plans.py")
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module
+
+
+@pytest.fixture(scope="module")
+def sliced(tmp_path_factory):
+    """A two-region table plus a rare third region, measured with --slice region."""
+    folder = tmp_path_factory.mktemp("slices")
+    table = _bench_plans().two_region_table(1600, 0)
+    rare = table.iloc[:12].copy()
+    rare["region"] = "islands"
+    path = folder / "regions.csv"
+    pd.concat([table, rare], ignore_index=True).to_csv(path, index=False)
+    out = folder / "slices.json"
+    r = run_cli("measure", path, "--target", "y", "--model", "sklearn.tree:DecisionTreeClassifier",
+                "--param", "max_depth=6", "--param", "random_state=0", "--slice", "region",
+                "--repeats", "3", "--out", out, "--quiet")
+    return path, out, r
+
+
+def test_measure_slice_writes_one_curve_per_slice_and_names_the_rare_one(sliced):
+    _, out, r = sliced
+    assert r.returncode == 0, r.stderr
+    assert "north" in r.stdout and "south" in r.stdout and "too few rows" in r.stdout
+    assert "islands has only 12 rows" in r.stderr
+    doc = json.loads(out.read_text())
+    assert doc["format"] == "curvefit.slices/1"
+    by = {s["value"]: s for s in doc["slices"]}
+    assert by["islands"]["curve"] is None and by["islands"]["skipped"]
+    north = by["north"]["curve"]
+    sizes = sorted({p["size"] for p in north["points"]})
+    # the sizes count north's training rows only: up to its 75% share of its rows
+    assert sizes[-1] == round(0.75 * by["north"]["rows"]) or sizes[-1] == by["north"]["rows"] - round(
+        0.25 * by["north"]["rows"])
+
+
+def test_slice_curves_hold_the_other_slices_whole():
+    # each slice's test rows are its own, and its pool starts with every other slice's rows
+    from curvefit.measuring.slices import SliceSplit
+
+    codes = np.array(["a"] * 40 + ["b"] * 60)
+    plan = SliceSplit(codes, "a", 0.25).split(None, 2, 5)
+    for p in plan:
+        assert set(codes[p.test]) == {"a"} and len(p.test) == 10
+        assert set(codes[p.pool[:45]]) == {"b"} and set(codes[p.pool[45:]]) == {"a"}
+    other = SliceSplit(codes, "b", 0.25).split(None, 2, 5)
+    # the same split of the rows whichever slice grows
+    assert set(plan[0].test) | set(other[0].test) == set(np.concatenate([plan[0].test, other[0].test]))
+    assert not set(plan[0].test) & set(other[0].pool[:0])
+
+
+def _split(out, *args):
+    r = run_cli("plan", out, "--bootstrap", "100", "--json", *args)
+    assert r.returncode == 0, r.stderr
+    doc = json.loads(r.stdout)
+    return doc, {s["slice"]: s for s in doc["slices"]}
+
+
+def test_plan_splits_a_budget_by_equal_marginal_gains(sliced):
+    _, out, _ = sliced
+    doc, rows = _split(out, "--budget", "1500", "--label-cost", "1")
+    assert set(rows) == {"north", "south"}
+    assert sum(s["spend"] for s in rows.values()) == pytest.approx(1500, rel=1e-6)
+    gains = [s["gain_per_money"] for s in rows.values() if s["labels"] > 0]
+    if len(gains) == 2:  # both get labels: their last steps gain about equally
+        assert max(gains) <= 2 * min(gains) + 1e-12
+    after = doc["overall_after"]
+    assert after["low"] <= after["estimate"] <= after["high"] <= doc["overall_now"]["high"]
+    assert any("islands" in n for n in doc["notes"])
+    # labels of south ten times dearer: north's share can only grow
+    _, dear = _split(out, "--budget", "1500", "--slice-costs", "north=1,south=10")
+    assert dear["north"]["labels"] >= rows["north"]["labels"]
+    text = run_cli("plan", out, "--slice-errors", "north=0.12,south=0.4", "--slice-costs",
+                   "north=1,south=3", "--bootstrap", "100", "--quiet")
+    assert text.returncode == 0, text.stderr
+    assert "overall error after" in text.stdout
+
+
+def test_greedy_split_matches_a_direct_minimisation():
+    # reference: scipy's bounded scalar minimiser on the same fitted curves
+    from scipy.optimize import minimize_scalar
+
+    from curvefit.fitting.engine import fit_curve
+    from curvefit.fitting.rounds import split_budget
+
+    n = np.repeat([50, 100, 200, 400, 800], 3)
+    noise = np.tile([-0.002, 0.0, 0.002], 5)
+    fits = {"a": fit_curve(pd.DataFrame({"size": n, "test_error": 0.05 + 2 * n ** -0.5 + noise}),
+                           bootstrap=30, families="power-law-floor"),
+            "b": fit_curve(pd.DataFrame({"size": n, "test_error": 0.1 + 0.8 * n ** -0.4 + noise}),
+                           bootstrap=30, families="power-law-floor")}
+    shares, costs, budget = {"a": 0.3, "b": 0.7}, {"a": 2.0, "b": 1.0}, 3000.0
+
+    def overall(money_a):
+        ea = fits["a"].predict([800 + money_a / costs["a"]])["estimate"].iloc[0]
+        eb = fits["b"].predict([800 + (budget - money_a) / costs["b"]])["estimate"].iloc[0]
+        return shares["a"] * ea + shares["b"] * eb
+
+    best = minimize_scalar(overall, bounds=(0, budget), method="bounded", options={"xatol": 1})
+    split = split_budget(fits, shares=shares, current={"a": 800, "b": 800}, label_costs=costs,
+                         budget=budget, steps=1000).table.set_index("slice")
+    assert split.loc["a", "spend"] == pytest.approx(best.x, abs=0.02 * budget)
+    assert overall(split.loc["a", "spend"]) <= best.fun + 1e-6
+
+
+@pytest.mark.parametrize("args", [
+    ["plan", "{out}"],                                                     # no budget or targets
+    ["plan", "{out}", "--budget", "100", "--slice-errors", "north=0.1"],
+    ["plan", "{out}", "--budget", "100", "--slice-costs", "north=1"],     # south has no cost
+    ["plan", "{out}", "--budget", "100", "--slice-costs", "north"],
+    ["plan", "{out}", "--budget", "-3"],
+    ["plan", "{out}", "--slice-errors", "mars=0.1"],
+    ["measure", "{table}", "--target", "y", "--model", "sklearn.tree:DecisionTreeClassifier",
+     "--slice", "nope"],
+    ["measure", "{table}", "--target", "y", "--model", "sklearn.tree:DecisionTreeClassifier",
+     "--slice", "region", "--sizes", "10,20"],
+])
+def test_slice_bad_input_is_one_line_and_exit_2(sliced, args):
+    table, out, _ = sliced
+    r = run_cli(*[a.format(out=out, table=table) for a in args], "--bootstrap", "20") \
+        if args[0] == "plan" else run_cli(*[a.format(out=out, table=table) for a in args])
+    assert r.returncode == 2, (args, r.stdout, r.stderr)
+    lines = [ln for ln in r.stderr.splitlines() if ln.strip()]
+    assert len(lines) == 1 and "Traceback" not in r.stderr, r.stderr

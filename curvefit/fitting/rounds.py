@@ -648,6 +648,9 @@ def plan_slices(slices, *, budget=None, targets: dict | None = None, label_costs
 
     if not slices.curves:
         raise InputError("no slice was measured (all too rare); nothing to split")
+    if budget is not None:
+        check_positive(budget, "budget")
+    check_level(interval)
     if targets is not None:
         unknown = [k for k in targets if k not in slices.curves]
         if unknown:
