@@ -26,7 +26,7 @@ The last line reads
 ``adaptive/fixed fit-seconds: median R; coverage adaptive A%, fixed F%; ETA ratio median E``
 and the exit code is 0 only when R <= 0.4.
 
-Run (about 10 minutes on the shared 2-core machine)::
+Run (about 15 minutes under `nice -n 19` on the loaded 2-core machine)::
 
     nice -n 19 .venv/bin/python scripts/bench_adaptive.py [--tasks fair/linear,...] [--seeds 1]
 """
