@@ -481,5 +481,5 @@ def test_other_regression_losses_get_no_capacity_figure_and_say_why():
     curve = Curve.from_table(pd.DataFrame(rows))
     curve = Curve(curve.points, {"metric": "mae", "metric_info": {"name": "mae", "label": "MAE"}})
     est = effective_capacity(curve, bootstrap=20)
-    assert est.status == "not_applicable" and math.isnan(est.vc_dim)
+    assert est.status == "not_applicable" and est.method == "none" and math.isnan(est.vc_dim)
     assert est.message.startswith("No capacity figure for MAE") and "0-1 loss" in est.message

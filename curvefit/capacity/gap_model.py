@@ -482,7 +482,8 @@ def _before_the_knee(curve, sizes, means, sems, nus, reps, used, h, level, seed,
 
 
 def _method(loss: str) -> str:
-    """``"gap"`` for the VC-unit gap model, ``"optimism"`` for squared error's parameters."""
+    """``"gap"`` for the VC-unit gap model, ``"optimism"`` for squared error's parameters
+    (``"none"``, with status ``"not_applicable"``, for any other loss)."""
     return "gap" if loss == "zero_one" else "optimism"
 
 
@@ -501,7 +502,7 @@ def _no_figure(curve, sizes, means, sems, nus, reps, level, seed, probe):
                      np.full(len(sizes), np.nan))
     extra = _extra(curve, math.nan, math.nan, np.zeros(len(sizes), dtype=bool), sizes, None,
                    math.nan, seed, probe)
-    return CapacityEstimate(vc_dim=math.nan, low=math.nan, high=math.inf, level=level, method="gap",
+    return CapacityEstimate(vc_dim=math.nan, low=math.nan, high=math.inf, level=level, method="none",
                             above_range=False, design=design, scale=None, exponent=None, regime="",
                             notes=[STAT_NOTE], message=message, extra=extra,
                             status="not_applicable")

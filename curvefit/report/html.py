@@ -404,7 +404,8 @@ def _capacity_rows(results: Sequence[Any], probe: Any, interval: float) -> pd.Da
 
 # What each capacity method's figure is, for the capacity table.
 CAPACITY_METHODS = {"gap": "gap model (VC units)", "probe": "probe (VC dimension)",
-                    "optimism": "optimism of squared error (parameters)"}
+                    "optimism": "optimism of squared error (parameters)",
+                    "none": "none for this loss"}
 
 
 def capacity_row(label: str, c: Any, interval: float) -> dict:
@@ -611,9 +612,9 @@ def _tradeoff_section(page: _Page, tradeoff: Any) -> str | None:
 def _worst_case_section(page: _Page) -> str | None:
     if page.target_error is None:
         return None
-    curve = page.results[0].curve if page.results else None
-    if curve is not None and not is_zero_one(curve.metric):
-        why = vc_absent_reason(curve.metric, curve.metric_info)
+    others = [r.curve for r in page.results if not is_zero_one(r.curve.metric)]
+    if others and len(others) == len(page.results):  # no model measured with the 0-1 loss
+        why = vc_absent_reason(others[0].metric, others[0].metric_info)
         return f"<p>{esc(why[:1].upper() + why[1:])}.</p>"
     wc = next((r.worst_case for r in page.results if r.worst_case is not None), None)
     if wc is None:
