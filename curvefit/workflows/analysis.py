@@ -37,7 +37,7 @@ from curvefit.core.defaults import BOOTSTRAP, INTERVAL, SEED
 from curvefit.core.errors import InputError
 from curvefit.core.formatting import format_capacity, format_number, is_rate, is_zero_one
 from curvefit.core.jsonio import check_output_path, jsonable, read_json
-from curvefit.core.validate import check_count, check_error_target, check_level
+from curvefit.core.validate import check_count, check_error_target, check_level, check_seed
 from curvefit.report.labels import as_items, family_name, is_finite, model_label
 from curvefit.report.labels import field as field_of
 
@@ -137,6 +137,7 @@ def analyse(curves: Any, *, target_error: float | None = None, bootstrap: int = 
     """
     interval = check_level(interval)
     bootstrap = check_count(bootstrap, "bootstrap")
+    random_state = check_seed(random_state)  # refused here, not as a note in every fit
     items = as_items(curves)
     check_target(target_error, [c for _, c in items])
     results = []
