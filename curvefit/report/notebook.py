@@ -44,6 +44,7 @@ from curvefit.core.formatting import (
     format_level,
     format_number,
     format_range,
+    quantity_name,
 )
 from curvefit.report import plots
 from curvefit.report.html import capacity_row, curve_table, esc, html_table
@@ -83,7 +84,7 @@ def fit_html(fit: Any, interval: float = INTERVAL) -> str:
     asymptote and decay exponent with their intervals, and the family ranking."""
     metric = field(field(fit, "curve"), "metric", "error")
     n = field(fit, "largest_size")
-    quantity = {"gap": "gap", "train": "training error"}.get(field(fit, "on", "test"), "test error")
+    quantity = quantity_name(field(fit, "on", "test"), metric, field(field(fit, "curve"), "metric_info"))
     best, runner = family_name(fit.best), family_name(field(fit, "runner_up"))
     rows = [("chosen family", best + (f" (runner-up: {runner})" if runner else ""))]
     if is_finite(n):
@@ -108,8 +109,9 @@ def fit_html(fit: Any, interval: float = INTERVAL) -> str:
 def sample_html(sample: Any) -> str:
     """`SampleEstimate`: the samples needed with their interval, and the answer in words."""
     level = field(sample, "level", INTERVAL)
-    what = "gap" if field(sample, "kind") == "gap" else "test error"
     metric = field(sample, "metric")  # in the metric's units when the answer carries it
+    what = "gap" if field(sample, "kind") == "gap" else \
+        quantity_name("test_error", metric) if metric else "test error"
     target = field(sample, "target")
     rows = [(f"target {what}", format_error(target, metric) if metric else format_number(target)),
             ("labelled samples needed", samples_text(sample))]
