@@ -384,7 +384,7 @@ def test_shape_comparison_catches_a_new_column_a_lost_line_and_a_renamed_key():
 # 12,000-row measurements, probes, the nightly job: 10-20 minutes together) only with
 # CURVEFIT_DOCS_EXAMPLES=all (DEVELOPERS.md, "Documentation examples").
 SLOW_DOCS = {"README.md", "docs/report.md", "docs/fitting.md", "docs/capacity.md", "docs/history.md",
-             "docs/measure.md"}
+             "docs/measure.md", "docs/plans.md"}
 
 
 def example_documents():
