@@ -242,7 +242,7 @@ def run_tasks(tasks: Iterable[tuple[Callable, tuple, dict]], *, n_jobs: int = 1,
         for fn, args, kwargs in tasks:
             yield _single_threaded(fn, args, kwargs)
         return
-    from joblib import Parallel, delayed, parallel_backend
+    from joblib import Parallel, delayed
 
     if backend == "local":
         _start_trackers_quietly()
@@ -259,8 +259,77 @@ def run_tasks(tasks: Iterable[tuple[Callable, tuple, dict]], *, n_jobs: int = 1,
         finally:
             shutil.rmtree(scratch, ignore_errors=True)
         return
-    calls = (delayed(_single_threaded)(fn, args, kwargs) for fn, args, kwargs in tasks)
-    with dask_client(scheduler, n_workers=n_jobs if n_jobs > 0 else 2):
-        with parallel_backend("dask"):
-            par = Parallel(n_jobs=-1, return_as="generator_unordered")
-            yield from par(calls)
+    with dask_client(scheduler, n_workers=n_jobs if n_jobs > 0 else 2) as client:
+        yield from run_on_client(client, tasks)
+
+
+# objects of these types are never worth scattering (small, and often interned)
+_PLAIN = (int, float, complex, bool, str, bytes, type(None))
+
+
+def _shared_arguments(tasks: list[tuple[Callable, tuple, dict]]) -> list:
+    """The non-scalar positional arguments that two or more tasks hold (the same object):
+    the table, the model spec, the metric."""
+    seen: dict[int, Any] = {}
+    shared: dict[int, Any] = {}
+    for _, args, _ in tasks:
+        for a in args:
+            if isinstance(a, _PLAIN):
+                continue
+            if id(a) in seen:
+                shared[id(a)] = a
+            seen[id(a)] = a
+    return list(shared.values())
+
+
+def _dask_call(fn: Callable, kwargs: dict, *args):
+    return _single_threaded(fn, args, kwargs)
+
+
+SCATTER_TRIES = 20  # a worker that just died stays on the scheduler's list for a moment
+
+
+def _scatter(client, objects: list) -> list:
+    """Send each object to every worker once; retry while the scheduler still lists a
+    worker that died (sending to it fails until the scheduler has noticed)."""
+    for attempt in range(SCATTER_TRIES):
+        try:
+            return client.scatter(objects, broadcast=True, hash=False)
+        except OSError:  # distributed's CommClosedError is an OSError
+            if attempt == SCATTER_TRIES - 1:
+                raise
+            time.sleep(0.5)
+    return []
+
+
+def run_on_client(client, tasks: list[tuple[Callable, tuple, dict]]) -> Iterator[Any]:
+    """Run the tasks on a ``distributed.Client``; yield results in completion order.
+
+    Every argument that two or more tasks share (the same object: the table, the model
+    spec) is sent to each worker once with ``client.scatter(broadcast=True)``, and the
+    tasks receive its future, so a task carries only its own cells. When a worker dies,
+    the scheduler runs its tasks again on the others (Dask's
+    ``distributed.scheduler.allowed-failures``, 3 by default, bounds how often); a task
+    that still fails ends the run with one line, and a journaled run continues with
+    ``--resume``. Closing the generator (Ctrl-C) cancels the tasks not yet finished.
+    """
+    from distributed import as_completed
+    from distributed.scheduler import KilledWorker
+
+    shared = _shared_arguments(tasks)
+    futures_of: dict[int, Any] = {}
+    if shared:
+        scattered = _scatter(client, shared)
+        futures_of = {id(obj): fut for obj, fut in zip(shared, scattered)}
+    futures = [client.submit(_dask_call, fn, kwargs,
+                             *(futures_of.get(id(a), a) for a in args), pure=False)
+               for fn, args, kwargs in tasks]
+    try:
+        for fut in as_completed(futures):
+            try:
+                yield fut.result()
+            except KilledWorker as exc:
+                raise InputError(f"Dask workers died while running a task ({exc}); the "
+                                 "finished cells are in the journal: run again with --resume") from None
+    finally:
+        client.cancel(futures + list(futures_of.values()))
