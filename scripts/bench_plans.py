@@ -51,7 +51,7 @@ sys.path.insert(0, str(ROOT / "scripts"))
 import bench_forecast as bf  # noqa: E402
 
 import curvefit as cf  # noqa: E402
-from curvefit.fitting.rounds import plan_rounds, plan_slices  # noqa: E402
+from curvefit.fitting.rounds import best_schedule, plan_rounds, plan_slices, replay  # noqa: E402
 from curvefit.measuring.slices import measure_slices  # noqa: E402
 
 FEATURES = [f"x{i}" for i in range(6)]
@@ -175,10 +175,21 @@ def rounds_check(max_curves: int, probability: float, rounds: int, round_share: 
                 if plan.feasible:
                     reached, spend = replay_truth(plan.rounds.totals, n_true, have, k)
                     row.update(reached=reached, spend=spend, expected=plan.rounds.expected_cost,
-                               stated=plan.rounds.reach_probability)
+                               stated=plan.rounds.reach_probability,
+                               cost_covered=plan.rounds.cost_low <= spend <= plan.rounds.cost_high)
                     one = plan.one_shot.totals
                     r1, s1 = replay_truth(one, n_true, have, k)
                     row.update(one_shot_reached=r1, one_shot_spend=s1)
+                # the same draws with a penalty (20× the labels in hand) instead of a probability
+                pen = 20.0 * have
+                totals = best_schedule(plan.draws, current_n=have, label_cost=1, round_cost=k,
+                                       penalty=pen, max_rounds=rounds)
+                stated = replay("rounds", totals, plan.draws, current_n=have, label_cost=1,
+                                round_cost=k, penalty=pen, level=0.9)
+                rp, sp = replay_truth(totals, n_true, have, k)
+                row.update(penalty_reached=rp, penalty_spend=sp + (0 if rp else pen),
+                           penalty_stated=stated.reach_probability,
+                           penalty_expected=stated.expected_cost)
                 high = plan.answer.high
                 if math.isfinite(high):
                     ru, su = replay_truth((max(high, have),), n_true, have, k)
@@ -240,6 +251,13 @@ def main(argv=None) -> int:
         print(f"| upper end of the 90% interval at once | {len(both)} | "
               f"{100 * both['upper_reached'].mean():.0f}% | – | "
               f"{(both['upper_spend'] / both['have']).mean():.2f} |")
+        pen = r
+        print(f"| rounds, penalty 20× the labels in hand | {len(pen)} | "
+              f"{100 * pen['penalty_reached'].mean():.0f}% | {100 * pen['penalty_stated'].mean():.0f}% | "
+              f"{(pen['penalty_spend'] / pen['have']).mean():.2f} (expected "
+              f"{(pen['penalty_expected'] / pen['have']).mean():.2f}, penalties included) |")
+        print(f"\nthe rounds plan's 90% interval of its cost covers the spend replayed against the "
+              f"truth in {100 * f['cost_covered'].mean():.0f}% of {len(f)} targets")
         print(f"\ninfeasible (probability not reachable within the horizon): {int((~r['feasible']).sum())}; "
               f"rounds / upper-end spend on the {len(both)} targets with a finite upper end: "
               f"{ratio:.2f}\n")
