@@ -22,6 +22,7 @@ def _expected(totals, draws, current, c, k, penalty):
 
 def test_schedule_is_the_cheapest_of_every_schedule():
     # reference: exhaustive enumeration of every increasing schedule over the draws
+    # (docs/references.md#rounds-plan)
     rng = np.random.default_rng(1)
     draws = np.round(np.exp(rng.normal(7, 0.6, 12)))
     for k, penalty, rounds in [(0, 5000, 3), (300, 5000, 2), (50, 800, 3), (2000, 1e5, 3)]:
@@ -38,7 +39,7 @@ def test_schedule_is_the_cheapest_of_every_schedule():
 def test_one_purchase_stops_where_the_density_times_the_penalty_is_the_label_cost():
     # one purchase q against a need D with a lump-sum penalty P: d/dq [c·q + P·P(D > q)] = 0
     # at P·f(q) = c on the falling side of the density f; reference: scipy's log-normal
-    # density and brentq for the root
+    # density and brentq for the root (docs/references.md#rounds-plan)
     from scipy import optimize, stats
 
     dist = stats.lognorm(s=0.5, scale=math.exp(8))
@@ -177,6 +178,27 @@ def test_measure_slice_writes_one_curve_per_slice_and_names_the_rare_one(sliced)
         0.25 * by["north"]["rows"])
 
 
+def test_measure_slice_resumes_from_its_journals_to_the_same_points(sliced):
+    table, out, _ = sliced
+    again = out.parent / "again.json"
+    args = ["measure", table, "--target", "y", "--model", "sklearn.tree:DecisionTreeClassifier",
+            "--param", "max_depth=6", "--param", "random_state=0", "--slice", "region",
+            "--repeats", "3", "--quiet"]
+    first = run_cli(*args, "--out", again)
+    assert first.returncode == 0, first.stderr
+    assert (out.parent / "again.json.journals").is_dir()
+    resumed = run_cli(*args, "--out", again, "--resume")
+    assert resumed.returncode == 0, resumed.stderr
+
+    def errors(path):
+        doc = json.loads(path.read_text())
+        return {s["value"]: sorted((p["size"], p["repeat"], p["test_error"])
+                                   for p in s["curve"]["points"])
+                for s in doc["slices"] if s["curve"]}
+
+    assert errors(again) == errors(out)
+
+
 def test_slice_curves_hold_the_other_slices_whole():
     # each slice's test rows are its own, and its pool starts with every other slice's rows
     from curvefit.measuring.slices import SliceSplit
@@ -221,6 +243,7 @@ def test_plan_splits_a_budget_by_equal_marginal_gains(sliced):
 
 def test_greedy_split_matches_a_direct_minimisation():
     # reference: scipy's bounded scalar minimiser on the same fitted curves
+    # (docs/references.md#slice-acquisition)
     from scipy.optimize import minimize_scalar
 
     from curvefit.fitting.engine import fit_curve

@@ -159,10 +159,11 @@ def register(app: typer.Typer) -> None:
 def run_slice_measure(opts: dict, column: str) -> int:
     """`curvefit measure DATA ... --slice COL`: one curve per slice, written as one file."""
     from curvefit.core.formatting import format_error
+    from curvefit.core.jsonio import check_output_path
     from curvefit.measuring.slices import measure_slices_of_table
 
     unsupported = [f"--{k.replace('_', '-')}" for k in ("command", "test", "groups", "order", "goal",
-                                                         "plan_only", "sizes", "resume")
+                                                         "plan_only", "sizes")
                    if opts.get(k)]
     if unsupported:
         raise InputError(f"--slice does not combine with {', '.join(unsupported)}; per-slice "
@@ -172,13 +173,16 @@ def run_slice_measure(opts: dict, column: str) -> int:
     features = opts.get("features")
     if isinstance(features, str):
         features = [f.strip() for f in features.split(",") if f.strip()]
-    # the runner's progress lines say what is being measured
+    path = opts.get("out") or "slices.json"
+    check_output_path(path, "per-slice file")
+    # the runner's progress lines say what is being measured; each slice's cells are
+    # journaled in <out>.journals/ (--resume continues an interrupted run)
     result = measure_slices_of_table(
         opts["data"], target=opts["target"], column=column, model=opts["model"],
         params=opts.get("param"), features=features, repeats=opts["repeats"],
         test_size=opts["test_fraction"], metric=opts["metric"], n_jobs=opts["jobs"],
-        random_state=opts["seed"], progress=not opts["quiet"])
-    path = opts.get("out") or "slices.json"
+        random_state=opts["seed"], progress=not opts["quiet"],
+        journal_dir=f"{path}.journals", resume=bool(opts.get("resume")))
     result.write(path)
     if opts["json"]:
         emit_json(dict(result.to_dict(), written=str(path)))

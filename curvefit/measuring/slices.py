@@ -166,7 +166,7 @@ def slice_sizes(n_train: int, smallest: int, count: int = SLICE_SIZES) -> list[i
 def measure_slices(model, X, y, slices, *, column: str = "slice", repeats: int = REPEATS,
                    test_size: float = TEST_FRACTION, metric: str = "error", n_jobs: int = 1,
                    random_state=SEED, min_rows: int = MIN_ROWS, progress=False,
-                   journal_dir=None) -> SliceCurves:
+                   journal_dir=None, resume: bool = False) -> SliceCurves:
     """Measure one learning curve per slice (value of ``slices``), the others held whole.
 
     Parameters
@@ -181,7 +181,9 @@ def measure_slices(model, X, y, slices, *, column: str = "slice", repeats: int =
         Slices with fewer training rows than this (or fewer than ``MIN_TEST_ROWS`` test
         rows) are skipped, with the reason.
     journal_dir : path, optional
-        A folder for one journal per slice (``slice-<k>.journal``), so a run resumes.
+        A folder for one journal per slice (``slice-<k>.journal``, crash-safe cells).
+    resume : bool
+        Skip the cells already in those journals.
 
     Returns
     -------
@@ -222,10 +224,13 @@ def measure_slices(model, X, y, slices, *, column: str = "slice", repeats: int =
             continue
         other = splitter.other_rows(seed)
         own = slice_sizes(len(train), max(5, min(min_rows, len(train)) // 2))
-        journal = None if journal_dir is None else Path(journal_dir) / f"slice-{k}.journal"
+        journal = None
+        if journal_dir is not None:
+            Path(journal_dir).mkdir(parents=True, exist_ok=True)
+            journal = Path(journal_dir) / f"slice-{k}.journal"
         curve = measure(model, X, y, sizes=[other + s for s in own], repeats=repeats,
                         test_size=test_size, metric=metric, n_jobs=n_jobs, random_state=seed,
-                        splitter=splitter, journal=journal, resume=journal is not None,
+                        splitter=splitter, journal=journal, resume=bool(resume and journal),
                         progress=progress)
         points = curve.points.copy()
         points["size"] = points["size"] - other
@@ -240,7 +245,8 @@ def measure_slices(model, X, y, slices, *, column: str = "slice", repeats: int =
 def measure_slices_of_table(path, *, target: str, column: str, model: str | None,
                             params=None, features=None, repeats: int = REPEATS,
                             test_size: float = TEST_FRACTION, metric: str = "error",
-                            n_jobs: int = 1, random_state=SEED, progress=False) -> SliceCurves:
+                            n_jobs: int = 1, random_state=SEED, progress=False,
+                            journal_dir=None, resume: bool = False) -> SliceCurves:
     """`measure_slices` on a table file: the slices are the values of ``column``.
 
     The column stays a feature unless ``features`` leaves it out; it may be the target
@@ -262,7 +268,8 @@ def measure_slices_of_table(path, *, target: str, column: str, model: str | None
     spec = resolve_model(model, parse_params(params or []))
     return measure_slices(spec, ds.X, ds.y, codes.astype(str).to_numpy(), column=column,
                           repeats=repeats, test_size=test_size, metric=metric, n_jobs=n_jobs,
-                          random_state=random_state, progress=progress)
+                          random_state=random_state, progress=progress,
+                          journal_dir=journal_dir, resume=resume)
 
 
 def is_slices_file(path) -> bool:
