@@ -288,3 +288,36 @@ def test_slice_bad_input_is_one_line_and_exit_2(sliced, args):
     assert r.returncode == 2, (args, r.stdout, r.stderr)
     lines = [ln for ln in r.stderr.splitlines() if ln.strip()]
     assert len(lines) == 1 and "Traceback" not in r.stderr, r.stderr
+
+
+@pytest.fixture(scope="module")
+def train_curve(tmp_path_factory):
+    """The law of `curve_table` with a training error 0.05 − n^−0.5 beside it."""
+    rng = np.random.default_rng(4)
+    sizes = np.repeat(np.geomspace(50, 2000, 8).round(), 5)
+    truth = 0.05 + 2 * sizes ** -0.5
+    table = pd.DataFrame({"size": sizes, "repeat": np.tile(range(5), 8),
+                          "test_error": rng.binomial(1000, truth) / 1000,
+                          "train_error": np.clip(0.05 - sizes ** -0.5, 0, 1)})
+    path = tmp_path_factory.mktemp("plan-gap") / "curve.csv"
+    table.to_csv(path, index=False)
+    return path
+
+
+def test_plan_edge_cases_say_what_they_mean(train_curve):
+    # a target the labels in hand already reach: buy nothing
+    r = run_cli("plan", train_curve, "--error", "0.5", "--label-cost", "1", "--penalty", "1000",
+                "--bootstrap", "50", "--json")
+    assert r.returncode == 0, r.stderr
+    doc = json.loads(r.stdout)
+    assert doc["buy_now"] == 0 and doc["rule"][0].startswith("Buy nothing")
+    # a gap target, from the fitted gap
+    r = run_cli("plan", train_curve, "--gap", "0.05", "--label-cost", "1", "--probability", "0.8",
+                "--bootstrap", "50", "--json")
+    assert r.returncode == 0, r.stderr
+    assert json.loads(r.stdout)["kind"] == "gap"
+    # below the floor of 5%: no purchase reaches it with the probability asked
+    r = run_cli("plan", train_curve, "--error", "0.02", "--label-cost", "1", "--probability",
+                "0.9", "--bootstrap", "50")
+    assert r.returncode == 0, r.stderr
+    assert "No purchase within the horizon" in r.stdout
