@@ -178,13 +178,13 @@ def test_measure_slice_writes_one_curve_per_slice_and_names_the_rare_one(sliced)
         0.25 * by["north"]["rows"])
 
 
-def test_measure_slice_resumes_from_its_journals_to_the_same_points(sliced):
+def test_measure_slice_gives_the_same_points_with_two_workers_and_after_a_resume(sliced):
     table, out, _ = sliced
     again = out.parent / "again.json"
     args = ["measure", table, "--target", "y", "--model", "sklearn.tree:DecisionTreeClassifier",
             "--param", "max_depth=6", "--param", "random_state=0", "--slice", "region",
             "--repeats", "3", "--quiet"]
-    first = run_cli(*args, "--out", again)
+    first = run_cli(*args, "--out", again, "--jobs", "2")   # other workers, the same cells
     assert first.returncode == 0, first.stderr
     assert (out.parent / "again.json.journals").is_dir()
     resumed = run_cli(*args, "--out", again, "--resume")
