@@ -144,8 +144,9 @@ def run_measure(opts: dict) -> int:
                    "costs": curve.meta.get("costs"), "adaptive": curve.meta.get("adaptive")})
     else:
         _print_summary(curve, out_path, sanity)
-        _print_costs(curve)
         if curve.meta.get("adaptive"):
+            # the fixed grid's prediction and times are in meta.costs and the progress lines
+            _print_costs(curve)
             out.print(curve.meta["adaptive"]["summary"], markup=False)
     if n_failed:
         first = curve.failed_points().iloc[0]
