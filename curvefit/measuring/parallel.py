@@ -252,6 +252,12 @@ def run_tasks(tasks: Iterable[tuple[Callable, tuple, dict]], *, n_jobs: int = 1,
             raise InputError(f"cannot create a temporary folder in {tempfile.gettempdir()}: "
                              f"{exc.strerror or exc}; free space there or set TMPDIR") from None
         tie = (os.getpid(), scratch)
+        try:
+            tasks = _file_backed(tasks, scratch)
+        except OSError as exc:
+            shutil.rmtree(scratch, ignore_errors=True)
+            raise InputError(f"cannot write the table for the workers in {scratch}: "
+                             f"{exc.strerror or exc}; free space there or set TMPDIR") from None
         calls = (delayed(_single_threaded)(fn, args, kwargs, tie) for fn, args, kwargs in tasks)
         try:
             par = Parallel(n_jobs=n_jobs, return_as="generator_unordered", backend="loky")
@@ -284,6 +290,62 @@ def _shared_arguments(tasks: list[tuple[Callable, tuple, dict]]) -> list:
 
 def _dask_call(fn: Callable, kwargs: dict, *args):
     return _single_threaded(fn, args, kwargs)
+
+
+SHARE_BYTES = 1 << 20  # arrays from this size up are shared with local workers through a file
+
+
+def _file_backed(tasks: list[tuple[Callable, tuple, dict]], folder: str) -> list:
+    """The tasks with their shared large numeric arrays (or arrays inside a shared
+    DataFrame or dataclass, such as the cells' table) saved once in ``folder`` and
+    replaced by read-only memory maps of that file.
+
+    joblib sends a memory-mapped array to loky workers as its file name, so every task
+    carries a few hundred bytes instead of the table, and the workers map the same
+    pages: no copy of the table per task or per worker, and no hashing of it per task
+    (joblib's own automatic memory mapping hashes each large array at each dispatch).
+    """
+    memo: dict[int, Any] = {}
+    swap = {id(a): _mapped(a, folder, memo) for a in _shared_arguments(tasks)}
+    return [(fn, tuple(swap.get(id(a), a) for a in args), kwargs) for fn, args, kwargs in tasks]
+
+
+def _mapped(obj, folder: str, memo: dict):
+    import dataclasses
+
+    import numpy as np
+
+    if id(obj) in memo:
+        return memo[id(obj)][1]
+    out = obj
+    path = os.path.join(folder, f"shared-{len(memo)}.npy")
+    if isinstance(obj, np.ndarray) and not isinstance(obj, np.memmap):
+        if obj.dtype.kind in "biuf" and obj.nbytes >= SHARE_BYTES:
+            np.save(path, obj, allow_pickle=False)
+            out = np.load(path, mmap_mode="r")
+    elif type(obj).__name__ == "DataFrame" and type(obj).__module__.startswith("pandas"):
+        dtypes = set(obj.dtypes)
+        if len(dtypes) == 1 and next(iter(dtypes)).kind in "biuf" and obj.shape[1] > 0 \
+                and obj.shape[0] * obj.shape[1] * next(iter(dtypes)).itemsize >= SHARE_BYTES:
+            import pandas as pd
+
+            # column after column into a column-major file: no second copy in memory,
+            # and each column is contiguous as pandas keeps it
+            mm = np.lib.format.open_memmap(path, mode="w+", dtype=next(iter(dtypes)),
+                                           shape=obj.shape, fortran_order=True)
+            for j in range(obj.shape[1]):
+                mm[:, j] = obj.iloc[:, j].to_numpy()
+            mm.flush()
+            del mm
+            out = pd.DataFrame(np.load(path, mmap_mode="r"), columns=obj.columns, index=obj.index,
+                               copy=False)
+    elif dataclasses.is_dataclass(obj) and not isinstance(obj, type):
+        changed = {f.name: _mapped(getattr(obj, f.name), folder, memo)
+                   for f in dataclasses.fields(obj) if f.init}
+        if any(changed[k] is not getattr(obj, k) for k in changed):
+            out = dataclasses.replace(obj, **changed)
+    memo[id(obj)] = (obj, out)  # the object too: its id stays its own while the memo lives
+    return out
 
 
 SCATTER_TRIES = 20  # a worker that just died stays on the scheduler's list for a moment

@@ -1,0 +1,208 @@
+"""Benchmark: a million-row Parquet table, measured with --jobs 2, against scikit-learn.
+
+The table: ``--rows`` x 20 float64 features drawn from a standard normal (seed 0), and
+a 0/1 target ``y = [x . w + 0.5 e > 0]`` with ``w_j = (-1)^j / (j + 1)`` and ``e`` normal
+(the known rule). It is written once to Parquet in ``--folder`` and reused.
+
+Side by side, each in its own process whose whole process tree (workers included) is
+sampled with psutil every 0.05 s:
+
+A. ``curvefit measure table.parquet --target y --model sklearn.linear_model:SGDClassifier
+   --jobs 2``, 8 sizes from 1% of the training pool up to all of it, 3 repeats.
+B. scikit-learn's ``learning_curve`` on the same cells (curvefit's splits passed as an
+   explicit cv, the same absolute sizes, ``shuffle=False``), ``n_jobs=2`` with one BLAS
+   thread per worker, the table read from the same Parquet file.
+
+Printed: the table's in-memory bytes (features + target as float64/int64 arrays), the
+peak of the summed RSS and of the summed PSS (shared pages split between the processes
+that map them) of each tree, their ratios to the table bytes (target: curvefit's peak
+RSS <= 3 x table bytes), the wall times and their ratio (target A/B <= 1.1), and the
+overhead per cell: (2 x curvefit's wall - the sum of its cells' fit+predict seconds) /
+cells, at several table sizes (``--sizes-of-tables``).
+
+Run: ``nice -n 19 .venv/bin/python scripts/bench_scale.py`` (about 10 minutes here);
+``--quick`` uses 200,000 rows for a first look.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import subprocess
+import sys
+import tempfile
+import threading
+import time
+from pathlib import Path
+
+N_FEATURES = 20
+SEED = 0
+
+SKLEARN_SIDE = r"""
+import json, sys, time
+import numpy as np, pyarrow.parquet as pq
+from joblib import parallel_config
+from sklearn.linear_model import SGDClassifier
+from sklearn.model_selection import learning_curve
+from curvefit.measuring.splits import RandomSplit
+
+path, sizes, repeats, seed = sys.argv[1], json.loads(sys.argv[2]), int(sys.argv[3]), int(sys.argv[4])
+start = time.perf_counter()
+t = pq.read_table(path)
+names = [c for c in t.column_names if c != "y"]
+X = np.column_stack([t.column(c).to_numpy() for c in names])
+y = t.column("y").to_numpy()
+del t
+plans = RandomSplit(test_size=0.25, stratify=True).split(y, repeats, seed)
+cv = [(p.pool, p.test) for p in plans]
+with parallel_config(backend="loky", inner_max_num_threads=1):
+    learning_curve(SGDClassifier(random_state=0), X, y, train_sizes=sizes, cv=cv, n_jobs=2,
+                   shuffle=False, scoring="accuracy")
+print(json.dumps({"wall": time.perf_counter() - start}))
+"""
+
+
+def make_table(path: Path, rows: int) -> None:
+    import numpy as np
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    rng = np.random.default_rng(SEED)
+    X = rng.standard_normal((rows, N_FEATURES))
+    w = np.array([(-1) ** j / (j + 1) for j in range(N_FEATURES)])
+    y = (X @ w + 0.5 * rng.standard_normal(rows) > 0).astype(np.int64)
+    cols = {f"x{j}": X[:, j] for j in range(N_FEATURES)}
+    cols["y"] = y
+    tmp = path.with_suffix(".tmp")
+    pq.write_table(pa.table(cols), tmp)
+    os.replace(tmp, path)
+
+
+def table_bytes(rows: int) -> int:
+    return rows * (N_FEATURES + 1) * 8
+
+
+class TreeSampler:
+    """Peak summed RSS and PSS of a process and all its descendants."""
+
+    def __init__(self, pid: int, every: float = 0.05):
+        import psutil
+
+        self.root = psutil.Process(pid)
+        self.every, self.peak_rss, self.peak_pss, self.peak_procs = every, 0, 0, 0
+        self._stop = threading.Event()
+        self._thread = threading.Thread(target=self._run, daemon=True)
+        self._thread.start()
+
+    def _run(self) -> None:
+        import psutil
+
+        while not self._stop.is_set():
+            try:
+                procs = [self.root, *self.root.children(recursive=True)]
+            except psutil.Error:
+                return
+            rss = pss = 0
+            for p in procs:
+                try:
+                    info = p.memory_full_info()
+                except psutil.Error:
+                    continue
+                rss += info.rss
+                pss += getattr(info, "pss", info.rss)
+            self.peak_rss, self.peak_pss = max(self.peak_rss, rss), max(self.peak_pss, pss)
+            self.peak_procs = max(self.peak_procs, len(procs))
+            time.sleep(self.every)
+
+    def stop(self) -> None:
+        self._stop.set()
+        self._thread.join()
+
+
+def watched(argv: list[str], env: dict) -> tuple[float, TreeSampler, str]:
+    start = time.perf_counter()
+    proc = subprocess.Popen(argv, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
+    sampler = TreeSampler(proc.pid)
+    out, err = proc.communicate()
+    wall = time.perf_counter() - start
+    sampler.stop()
+    if proc.returncode != 0:
+        raise SystemExit(f"{argv[:4]} failed:\n{err[-3000:]}")
+    return wall, sampler, out
+
+
+def sizes_for(rows: int) -> list[int]:
+    import numpy as np
+
+    pool = rows - int(np.ceil(0.25 * rows))
+    return sorted({int(round(s)) for s in np.geomspace(pool / 100, pool, 8)})
+
+
+def run_curvefit(path: Path, rows: int, repeats: int, folder: Path, env: dict) -> dict:
+    sizes = sizes_for(rows)
+    out = folder / f"run-{rows}.json"
+    for p in (out, Path(f"{out}.journal")):
+        p.unlink(missing_ok=True)
+    argv = [sys.executable, "-m", "curvefit.cli.main", "measure", str(path), "--target", "y",
+            "--model", "sklearn.linear_model:SGDClassifier", "--sizes", ",".join(map(str, sizes)),
+            "--repeats", str(repeats), "--seed", str(SEED), "--jobs", "2", "--out", str(out), "--quiet"]
+    wall, sampler, _ = watched(argv, env)
+    points = json.loads(out.read_text())["points"]
+    fits = sum(float(p["fit_seconds"]) for p in points)
+    return {"rows": rows, "sizes": sizes, "wall": wall, "rss": sampler.peak_rss, "pss": sampler.peak_pss,
+            "procs": sampler.peak_procs, "cells": len(points), "fit_seconds": fits,
+            "failed": sum(p["status"] != "ok" for p in points)}
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--rows", type=int, default=1_000_000)
+    ap.add_argument("--repeats", type=int, default=3)
+    ap.add_argument("--sizes-of-tables", default="10000,100000",
+                    help="Smaller tables for the overhead per cell (besides --rows).")
+    ap.add_argument("--folder", default=None,
+                    help="Where the Parquet tables are kept (default: a temp folder).")
+    ap.add_argument("--quick", action="store_true", help="200,000 rows and one smaller table.")
+    args = ap.parse_args()
+    if args.quick:
+        args.rows, args.sizes_of_tables = 200_000, "20000"
+    folder = Path(args.folder or tempfile.mkdtemp(prefix="curvefit-bench-scale-"))
+    folder.mkdir(parents=True, exist_ok=True)
+    env = dict(os.environ, PYTHONPATH=str(Path(__file__).resolve().parents[1]))
+    print(f"load average {os.getloadavg()[0]:.2f}; tables in {folder}")
+
+    tables = sorted({int(s) for s in args.sizes_of_tables.split(",") if s} | {args.rows})
+    results = []
+    for rows in tables:
+        path = folder / f"scale-{rows}.parquet"
+        if not path.exists():
+            make_table(path, rows)
+        results.append(run_curvefit(path, rows, args.repeats, folder, env))
+    big = results[-1]
+    path = folder / f"scale-{args.rows}.parquet"
+    sk_wall, sk, _ = watched([sys.executable, "-c", SKLEARN_SIDE, str(path), json.dumps(big["sizes"]),
+                              str(args.repeats), str(SEED)], env)
+
+    tb = table_bytes(args.rows)
+    mb = 1 / 2**20
+    print(f"\n{args.rows:,} x {N_FEATURES} table: {tb * mb:.0f} MB in memory "
+          "(float64 features, int64 target)")
+    print(f"sizes {big['sizes']} x {args.repeats} repeats = {big['cells']} cells ({big['failed']} failed)")
+    print(f"{'':28}{'peak RSS MB':>12}{'/table':>8}{'peak PSS MB':>13}{'/table':>8}{'procs':>7}{'wall s':>9}")
+    for name, rss, pss, procs, wall in (("curvefit measure --jobs 2", big["rss"], big["pss"], big["procs"],
+                                         big["wall"]),
+                                        ("learning_curve n_jobs=2", sk.peak_rss, sk.peak_pss, sk.peak_procs,
+                                         sk_wall)):
+        print(f"{name:28}{rss * mb:12.0f}{rss / tb:8.2f}{pss * mb:13.0f}{pss / tb:8.2f}{procs:7d}{wall:9.1f}")
+    print(f"curvefit peak RSS / table bytes = {big['rss'] / tb:.2f} (target <= 3)")
+    print(f"wall ratio curvefit / learning_curve = {big['wall'] / sk_wall:.2f} (target <= 1.1)")
+    print("\noverhead per cell = (2 x wall - sum of the cells' fit+predict seconds) / cells")
+    print(f"{'rows':>10}{'cells':>7}{'wall s':>9}{'fit+predict s':>15}{'overhead/cell ms':>18}")
+    for r in results:
+        over = (2 * r["wall"] - r["fit_seconds"]) / r["cells"]
+        print(f"{r['rows']:>10,}{r['cells']:>7}{r['wall']:9.1f}{r['fit_seconds']:15.1f}{over * 1000:18.0f}")
+
+
+if __name__ == "__main__":
+    main()
