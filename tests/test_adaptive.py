@@ -90,6 +90,19 @@ def test_stops_when_the_target_is_out_of_reach():
     assert len(curve.points) < len(sizes) * 4
 
 
+def test_gap_goal_answers_from_the_gap_curve(cancer):
+    from sklearn.tree import DecisionTreeClassifier
+
+    curve = cf.measure(DecisionTreeClassifier(max_depth=3), *cancer, sizes=[20, 40, 80, 160, 320],
+                       repeats=3, random_state=5, goal="samples-for-gap:0.03", precision=0.5)
+    record = curve.meta["adaptive"]
+    assert record["answer"]["text"].startswith("rows for gap 0.03")
+    assert record["stop"]["reason"] in ("precision", "exhausted", "saturated", "unreachable")
+    # the answer is the one the engine gives for the gap of the same cells
+    again = cf.fit_curve(curve, on="gap", random_state=5).samples_for(gap=0.03)
+    assert again.n == pytest.approx(record["answer"]["estimate"])
+
+
 def test_chosen_cells_come_with_reasons_and_stay_in_the_candidates(cancer):
     curve = _adaptive(*cancer, goal="error-at:400", precision=1e-6)
     record = curve.meta["adaptive"]
