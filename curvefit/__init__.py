@@ -21,6 +21,7 @@ _EXPORTS = {
     "Estimate": "curvefit.core.estimate",
     "Curve": "curvefit.core.curve",
     "measure": "curvefit.measuring.runner",
+    "plan_measure": "curvefit.measuring.runner",
     "fit_curve": "curvefit.fitting.engine",
     "CurveFit": "curvefit.fitting.engine",
     "SampleEstimate": "curvefit.fitting.engine",
