@@ -397,7 +397,7 @@ def test_command_errors(command, match):
 def test_command_model_is_a_scikit_learn_estimator(tmp_path):
     cmd = f"{PY} t.py {{train}} {{test}} {{predictions}}"
     model = CommandModel(cmd, timeout=3)
-    assert model.get_params() == {"command": cmd, "timeout": 3}
+    assert model.get_params() == {"command": cmd, "timeout": 3, "file_format": "csv"}
     copy = clone(model)
     assert copy is not model and copy.get_params() == model.get_params()
     assert check_command(cmd)[-3:] == ["{train}", "{test}", "{predictions}"]
@@ -533,3 +533,72 @@ def test_cli_file_spec_in_parallel_workers(wine_csv, tmp_path, model_file):
     local = local.points[cols].sort_values(["size", "repeat"]).reset_index(drop=True)
     assert (parallel["status"] == "ok").all()
     pd.testing.assert_frame_equal(parallel, local)
+
+
+# Nearest centroid with numpy, reading Parquet or NPZ files; it also notes where it ran
+# (its folder, that folder's mode and files) in a log outside that folder.
+CENTROID_BINARY = """\
+    import json, os, stat, sys
+    import numpy as np
+    train, test, out, log = sys.argv[1:5]
+    if train.endswith(".npz"):
+        a, b = np.load(train), np.load(test)
+        X, y, T = a["X"], a["y"], b["X"]
+        names = [list(a["feature_names"]), list(b["feature_names"])]
+    else:
+        import pandas as pd
+        a, b = pd.read_parquet(train), pd.read_parquet(test)
+        X, y, T = a.drop(columns="target").to_numpy(), a["target"].to_numpy(), b.to_numpy()
+        names = [list(a.columns[:-1]), list(b.columns)]
+    classes = np.unique(y)
+    centres = np.array([X[y == c].mean(axis=0) for c in classes])
+    pred = classes[((T[:, None, :] - centres[None]) ** 2).sum(axis=2).argmin(axis=1)]
+    open(out, "w").write("".join(f"{p}\\n" for p in pred))
+    folder = os.path.dirname(train)
+    with open(log, "w") as f:
+        json.dump({"folder": folder, "mode": stat.S_IMODE(os.stat(folder).st_mode),
+                   "files": sorted(os.listdir(folder)), "names": names}, f)
+    """
+
+
+@pytest.mark.parametrize("fmt", ["parquet", "npz"])
+def test_binary_trainer_files_in_a_private_folder(tmp_path, iris_split, fmt):
+    import json
+
+    X_tr, X_te, y_tr, y_te = iris_split
+    trainer = script(tmp_path, "centroid_bin.py", CENTROID_BINARY)
+    log = tmp_path / "where.json"
+    spec = resolve_model(None, command=f"{PY} {trainer} {{train}} {{test}} {{predictions}} {log}",
+                         trainer_format=fmt)
+    assert spec.describe()["trainer_format"] == fmt
+    got = spec.make().fit(X_tr, y_tr).predict(X_te)
+    # scikit-learn's NearestCentroid (Euclidean) as the reference implementation
+    np.testing.assert_array_equal(got, NearestCentroid().fit(X_tr, y_tr).predict(X_te))
+    seen = json.loads(log.read_text())
+    assert seen["mode"] == 0o700  # private to the user running curvefit
+    # the two data files, besides the program's own output and its captured streams
+    assert seen["files"] == ["predictions.txt", "stderr.txt", "stdout.txt", f"test.{fmt}", f"train.{fmt}"]
+    assert seen["names"] == [list(X_tr.columns)] * 2
+    assert not os.path.exists(seen["folder"])  # removed after the run
+
+
+def test_trainer_format_through_the_command_line(tmp_path, wine_csv):
+    from tests.conftest import run_cli
+
+    trainer = script(tmp_path, "centroid_bin.py", CENTROID_BINARY)
+    cmd = f"{PY} {trainer} {{train}} {{test}} {{predictions}} {tmp_path / 'where.json'}"
+    common = ["measure", wine_csv, "--target", "target", "--sizes", "40,120", "--repeats", "1", "--quiet"]
+    r = run_cli(*common, "--command", cmd, "--trainer-format", "parquet", "--out", tmp_path / "p.json")
+    assert r.returncode == 0, r.stderr
+    import json
+
+    run = json.loads((tmp_path / "p.json").read_text())
+    assert run["meta"]["model"]["trainer_format"] == "parquet"
+    assert all(p["status"] == "ok" for p in run["points"])
+    bad = run_cli(*common, "--command", cmd, "--trainer-format", "xlsx", "--out", tmp_path / "b.json")
+    assert bad.returncode == 2 and bad.stderr.strip().splitlines() == [
+        "curvefit: error: trainer format must be one of csv, parquet, npz, got 'xlsx'"]
+    bad = run_cli(*common, "--model", "sklearn.tree:DecisionTreeClassifier", "--trainer-format", "npz",
+                  "--out", tmp_path / "b.json")
+    assert bad.returncode == 2 and bad.stderr.strip().splitlines() == [
+        "curvefit: error: --trainer-format applies to --command only"]

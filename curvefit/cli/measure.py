@@ -167,6 +167,8 @@ def register(app: typer.Typer) -> None:
                                                   help="Model parameter KEY=VALUE (repeatable)."),
         command: Optional[str] = typer.Option(None, "--command",
                                               help='Trainer program: "prog {train} {test} {predictions}".'),
+        trainer_format: Optional[str] = typer.Option(
+            None, "--trainer-format", help="Files a --command trainer reads: csv, parquet or npz."),
         features: Optional[str] = typer.Option(None, "--features",
                                                help="Feature columns a,b,c (default: all others)."),
         test: Optional[str] = typer.Option(None, "--test", help="Separate test table used by every repeat."),
@@ -217,7 +219,7 @@ def register(app: typer.Typer) -> None:
                  "seed": seed, "timeout": timeout, "resume": resume, "out": out_file,
                  "quiet": quiet, "json": as_json, "groups": groups, "order": order,
                  "size_unit": size_unit, "goal": goal, "precision": precision, "budget": budget,
-                 "plan_only": plan_only}
+                 "plan_only": plan_only, "trainer_format": trainer_format}
         conf = _read_config(config) if config else {}
         opts = {}
         for key, default in MEASURE_DEFAULTS.items():

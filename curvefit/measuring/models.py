@@ -52,9 +52,11 @@ from sklearn.base import BaseEstimator, clone
 
 from curvefit.core.errors import InputError
 from curvefit.core.jsonio import jsonable
-from curvefit.core.validate import check_positive
+from curvefit.core.validate import check_choice, check_positive
 
 PLACEHOLDERS = ("{train}", "{test}", "{predictions}")
+# how a trainer program receives its rows: CSV text, a Parquet file, or NumPy's .npz
+TRAINER_FORMATS = ("csv", "parquet", "npz")
 ENCODE_CHOICES = ("auto", "none")
 TARGET_COLUMN = "target"
 
@@ -184,6 +186,7 @@ class ModelSpec:
     name: str = ""
     estimator: Any = None          # "object" kind: an unfitted copy of the user's estimator
     factory: Callable | None = None  # "factory" kind: zero-argument callable
+    trainer_format: str = "csv"     # "command" kind: the files the program reads
 
     def _target(self) -> tuple[str, str]:
         target, _, attr = self.spec.rpartition(":")
@@ -192,7 +195,7 @@ class ModelSpec:
     def make(self):
         """A fresh, unfitted estimator (a new object on every call)."""
         if self.kind == "command":
-            return CommandModel(self.command, timeout=self.timeout)
+            return CommandModel(self.command, timeout=self.timeout, file_format=self.trainer_format)
         if self.kind == "object":
             return clone(self.estimator, safe=False)
         if self.kind == "factory":
@@ -225,6 +228,8 @@ class ModelSpec:
             d["params"] = {k: _plain(v) for k, v in _safe_params(self.estimator).items()}
         if self.kind == "factory":
             d["factory"] = _qualname(self.factory)
+        if self.trainer_format != "csv":  # absent for CSV: older journals still resume
+            d["trainer_format"] = self.trainer_format
         return d
 
     def __repr__(self) -> str:
@@ -273,7 +278,7 @@ def _check_params(est, spec: str) -> None:
 
 
 def resolve_model(spec: str | None, params: dict | None = None, *, command: str | None = None,
-                  timeout: float | None = None) -> ModelSpec:
+                  timeout: float | None = None, trainer_format: str = "csv") -> ModelSpec:
     """Turn a model spec (or a trainer command) into a validated `ModelSpec`.
 
     Parameters
@@ -288,6 +293,8 @@ def resolve_model(spec: str | None, params: dict | None = None, *, command: str 
         ``{predictions}``; split with `shlex`, run without a shell.
     timeout : float, optional
         Seconds allowed per run of the trainer command.
+    trainer_format : {"csv", "parquet", "npz"}
+        The files a trainer command receives (see `CommandModel`).
 
     Raises
     ------
@@ -304,6 +311,9 @@ def resolve_model(spec: str | None, params: dict | None = None, *, command: str 
     params = dict(params or {})
     if timeout is not None:
         timeout = check_positive(timeout, "timeout")
+    check_choice(trainer_format, "trainer format", TRAINER_FORMATS)
+    if trainer_format != "csv" and command is None:
+        raise InputError("--trainer-format applies to --command only")
     if command is not None:
         if spec:
             raise InputError("give either --model or --command, not both")
@@ -311,7 +321,7 @@ def resolve_model(spec: str | None, params: dict | None = None, *, command: str 
             raise InputError("--param does not apply to --command; put the trainer's options in the command")
         argv = check_command(command)
         return ModelSpec("command", str(command), {}, command=str(command), timeout=timeout,
-                         name=_command_label(argv))
+                         name=_command_label(argv), trainer_format=trainer_format)
     if spec is None or not str(spec).strip():
         raise InputError("no model given; use --model package.module:Name, "
                          "--model path/to/file.py:make_model, or "
@@ -539,12 +549,22 @@ class CommandModel(BaseEstimator):
     `predict_many` runs the program once for several tables (e.g. the training
     subsample and the test set) by concatenating their rows, and splits the result.
 
+    With ``file_format="parquet"`` the two files are ``train.parquet`` and
+    ``test.parquet`` (the same columns, written by pandas through pyarrow, no index);
+    with ``"npz"`` they are NumPy archives ``train.npz`` (arrays ``X``, 2-D float64,
+    ``y`` and ``feature_names``) and ``test.npz`` (``X`` and ``feature_names``), for
+    numeric features only. Large subsamples are read much faster from these than from
+    CSV text. The folder (mode 0700, from `tempfile.mkdtemp`) holds one cell's files
+    and is removed when the program has run.
+
     Parameters
     ----------
     command : str
         Command line with ``{train}``, ``{test}`` and ``{predictions}``.
     timeout : float, optional
         Seconds allowed per run of the program.
+    file_format : {"csv", "parquet", "npz"}
+        The files the program receives.
 
     References
     ----------
@@ -563,9 +583,10 @@ class CommandModel(BaseEstimator):
     [0, 0]
     """
 
-    def __init__(self, command: str = "", timeout: float | None = None):
+    def __init__(self, command: str = "", timeout: float | None = None, file_format: str = "csv"):
         self.command = command
         self.timeout = timeout
+        self.file_format = file_format
 
     # -- estimator API
     def fit(self, X, y):
@@ -602,14 +623,11 @@ class CommandModel(BaseEstimator):
     # -- the program run
     def _run(self, test: pd.DataFrame) -> np.ndarray:
         argv_template = check_command(self.command)
+        fmt = check_choice(self.file_format, "trainer file format", TRAINER_FORMATS)
         with _trainer_folder() as tmp:
-            paths = {"{train}": str(tmp / "train.csv"), "{test}": str(tmp / "test.csv"),
+            paths = {"{train}": str(tmp / f"train.{fmt}"), "{test}": str(tmp / f"test.{fmt}"),
                      "{predictions}": str(tmp / "predictions.txt")}
-            label = TARGET_COLUMN if TARGET_COLUMN not in self.X_train_.columns else TARGET_COLUMN + "_"
-            train = self.X_train_.copy()
-            train[label] = self.y_train_
-            train.to_csv(paths["{train}"], index=False)
-            test.to_csv(paths["{test}"], index=False)
+            _write_trainer_files(self.X_train_, self.y_train_, test, paths["{train}"], paths["{test}"], fmt)
             argv = []
             for arg in argv_template:
                 for key, value in paths.items():
@@ -628,6 +646,29 @@ class CommandModel(BaseEstimator):
                                    "(expected one value per test row in the {predictions} path)")
             text = pred_path.read_text(encoding="utf-8", errors="replace")
         return _parse_predictions(text, len(test), self.y_train_)
+
+
+def _write_trainer_files(X: pd.DataFrame, y: np.ndarray, test: pd.DataFrame, train_path: str,
+                         test_path: str, fmt: str) -> None:
+    """The training rows (features, then the label column) and the rows to predict."""
+    if fmt == "npz":
+        names = np.array([str(c) for c in X.columns])
+        try:
+            X_train, X_test = X.to_numpy(dtype=float), test.to_numpy(dtype=float)
+        except (TypeError, ValueError):
+            raise CommandError("npz trainer files hold numeric features only; "
+                               "use --trainer-format parquet or csv") from None
+        np.savez(train_path, X=X_train, y=np.asarray(y), feature_names=names)
+        np.savez(test_path, X=X_test, feature_names=names)
+        return
+    label = TARGET_COLUMN if TARGET_COLUMN not in X.columns else TARGET_COLUMN + "_"
+    train = X.assign(**{label: y})
+    if fmt == "parquet":
+        train.to_parquet(train_path, index=False)
+        test.to_parquet(test_path, index=False)
+    else:
+        train.to_csv(train_path, index=False)
+        test.to_csv(test_path, index=False)
 
 
 # trainer programs running in this process: process group id -> their temporary folder

@@ -92,7 +92,8 @@ def resolve_job_paths(job: dict, config_path: str | Path, source: str | None = N
 # The type of each setting a job file may hold: TOML types are kept, never converted, so
 # `resume = "false"` is refused rather than read as true (bool("false") is True).
 TEXT_KEYS = ("data", "target", "model", "command", "test", "metric", "encode", "backend",
-             "scheduler", "out", "groups", "order", "size_unit", "store", "series", "goal")
+             "scheduler", "out", "groups", "order", "size_unit", "store", "series", "goal",
+             "trainer_format")
 FLAG_KEYS = ("resume", "quiet", "json", "plan_only", "allow_data_change", "again")
 
 
@@ -171,6 +172,7 @@ MEASURE_DEFAULTS = {
     "json": False, "groups": None, "order": None, "size_unit": "rows",
     # adaptive measurement (curvefit.measuring.adaptive) and the plan of a run
     "goal": None, "precision": None, "budget": None, "plan_only": False,
+    "trainer_format": "csv",  # the files a --command trainer reads
 }
 
 
@@ -252,7 +254,8 @@ def measure_from_settings(opts: dict, *, progress: bool | None = None):
     from curvefit.measuring.runner import measure
 
     spec = resolve_model(opts["model"], _params(opts.get("param_config"), opts["param"]),
-                         command=opts["command"], timeout=opts["timeout"])
+                         command=opts["command"], timeout=opts["timeout"],
+                         trainer_format=opts["trainer_format"])
     X_test = y_test = None
     if opts["test"]:
         tdf = cfdata.load_table(opts["test"])
