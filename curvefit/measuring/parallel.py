@@ -17,6 +17,10 @@ resource trackers follow when their last worker is gone. A SIGTERM or SIGHUP sen
 worker (a CI runner stopping the whole process group) does the same. The run's parent
 keeps the workers' temporary files in one scratch folder that it removes when the tasks
 end, however they end (a worker killed by joblib's abort cannot clean up after itself).
+
+The table goes to the workers once, not with every task: arguments that several tasks
+share are saved once as memory-mapped files in that scratch folder (local workers map
+the same pages), or scattered to every Dask worker once (the tasks get its future).
 """
 
 from __future__ import annotations
