@@ -28,3 +28,38 @@ def test_local_results_identical_for_one_and_two_jobs():
 def test_unknown_backend_is_input_error():
     with pytest.raises(InputError, match="unknown backend"):
         list(run_tasks([(_cell, (0,), {})], backend="spark"))
+
+
+def _what_arrived(arr, frame, i):
+    import numpy as np
+
+    block = frame.to_numpy()
+    return i, isinstance(arr, np.memmap), not arr.flags.writeable, float(arr[i].sum()), float(block[i].sum())
+
+
+def test_a_shared_large_table_reaches_local_workers_as_a_memory_map():
+    import pandas as pd
+
+    arr = np.random.default_rng(0).standard_normal((40_000, 8))  # 2.5 MB: above the 1 MB line
+    frame = pd.DataFrame(arr.copy(), columns=[f"x{j}" for j in range(8)])
+    out = sorted(run_tasks([(_what_arrived, (arr, frame, i), {}) for i in range(4)], n_jobs=2))
+    assert [r[1:3] for r in out] == [(True, True)] * 4  # a read-only map, not a pickled copy
+    assert [r[3] for r in out] == [float(arr[i].sum()) for i in range(4)]
+    assert [r[4] for r in out] == [float(arr[i].sum()) for i in range(4)]
+
+
+def test_large_table_same_points_for_one_and_two_jobs():
+    import pandas as pd
+    from sklearn.linear_model import SGDClassifier
+
+    import curvefit as cf
+
+    rng = np.random.default_rng(3)
+    X = rng.standard_normal((30_000, 6))  # 1.4 MB, shared through the scratch folder
+    y = (X[:, 0] - X[:, 1] + 0.5 * rng.standard_normal(30_000) > 0).astype(int)
+    cols = ["size", "repeat", "train_error", "test_error", "n_test_errors", "status", "model_seed"]
+    kw = dict(sizes=[500, 4000, 20000], repeats=2, random_state=1)
+    for data in (X, pd.DataFrame(X, columns=[f"f{j}" for j in range(6)])):
+        one = cf.measure(SGDClassifier(), data, y, n_jobs=1, **kw)
+        two = cf.measure(SGDClassifier(), data, y, n_jobs=2, **kw)
+        pd.testing.assert_frame_equal(one.points[cols], two.points[cols])

@@ -333,15 +333,15 @@ def _mapped(obj, folder: str, memo: dict):
                 and obj.shape[0] * obj.shape[1] * next(iter(dtypes)).itemsize >= SHARE_BYTES:
             import pandas as pd
 
-            # column after column into a column-major file: no second copy in memory,
-            # and each column is contiguous as pandas keeps it
+            # column after column, one column per row of the file: no second copy in
+            # memory, and the file's array is the (columns x rows) block pandas keeps
             mm = np.lib.format.open_memmap(path, mode="w+", dtype=next(iter(dtypes)),
-                                           shape=obj.shape, fortran_order=True)
+                                           shape=obj.shape[::-1])
             for j in range(obj.shape[1]):
-                mm[:, j] = obj.iloc[:, j].to_numpy()
+                mm[j] = obj.iloc[:, j].to_numpy()
             mm.flush()
             del mm
-            out = pd.DataFrame(np.load(path, mmap_mode="r"), columns=obj.columns, index=obj.index,
+            out = pd.DataFrame(np.load(path, mmap_mode="r").T, columns=obj.columns, index=obj.index,
                                copy=False)
     elif dataclasses.is_dataclass(obj) and not isinstance(obj, type):
         changed = {f.name: _mapped(getattr(obj, f.name), folder, memo)
