@@ -42,10 +42,11 @@ def test_a_shared_large_table_reaches_local_workers_as_a_memory_map():
 
     arr = np.random.default_rng(0).standard_normal((40_000, 8))  # 2.5 MB: above the 1 MB line
     frame = pd.DataFrame(arr.copy(), columns=[f"x{j}" for j in range(8)])
-    out = sorted(run_tasks([(_what_arrived, (arr, frame, i), {}) for i in range(4)], n_jobs=2))
-    assert [r[1:3] for r in out] == [(True, True)] * 4  # a read-only map, not a pickled copy
-    assert [r[3] for r in out] == [float(arr[i].sum()) for i in range(4)]
-    assert [r[4] for r in out] == [float(arr[i].sum()) for i in range(4)]
+    for given in (arr, np.asfortranarray(arr)):  # row- and column-major
+        out = sorted(run_tasks([(_what_arrived, (given, frame, i), {}) for i in range(4)], n_jobs=2))
+        assert [r[1:3] for r in out] == [(True, True)] * 4  # a read-only map, not a pickled copy
+        assert [r[3] for r in out] == [float(arr[i].sum()) for i in range(4)]
+        assert [r[4] for r in out] == [float(arr[i].sum()) for i in range(4)]
 
 
 def test_large_table_same_points_for_one_and_two_jobs():

@@ -325,7 +325,14 @@ def _mapped(obj, folder: str, memo: dict):
     path = os.path.join(folder, f"shared-{len(memo)}.npy")
     if isinstance(obj, np.ndarray) and not isinstance(obj, np.memmap):
         if obj.dtype.kind in "biuf" and obj.nbytes >= SHARE_BYTES:
-            np.save(path, obj, allow_pickle=False)
+            # always row-major, copied in slices (a column-major array needs no second copy;
+            # joblib rebuilds views of column-major maps wrongly in the workers)
+            mm = np.lib.format.open_memmap(path, mode="w+", dtype=obj.dtype, shape=obj.shape)
+            step = max(1, (16 << 20) // max(1, obj[:1].nbytes))
+            for start in range(0, len(obj), step):
+                mm[start:start + step] = obj[start:start + step]
+            mm.flush()
+            del mm
             out = np.load(path, mmap_mode="r")
     elif type(obj).__name__ == "DataFrame" and type(obj).__module__.startswith("pandas"):
         dtypes = set(obj.dtypes)
