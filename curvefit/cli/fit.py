@@ -154,13 +154,15 @@ def register(app: typer.Typer) -> None:
         import pandas as pd
 
         from curvefit.core.jsonio import check_output_path, write_json
-        from curvefit.core.validate import check_level, parse_list
+        from curvefit.core.validate import check_level, check_positive, parse_list
         from curvefit.fitting.sanity import sanity_check
 
         if out_file:  # refused before the fit: a device, FIFO, link or folder
             check_output_path(out_file, "fit file")
         interval = check_level(pick_interval(interval, level))
         sizes = parse_list(at, float, name="--at size") if at is not None else None
+        for n in sizes if sizes is not None else []:  # refused before the fit, in one line
+            check_positive(n, "--at size")
         with warnings.catch_warnings(), status(f"fitting the curve families to {run} "
                                                f"({bootstrap} bootstrap replicates)", quiet):
             # the 10× prediction is asked for on purpose; its caution is in the fit's warnings
