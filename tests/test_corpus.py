@@ -177,6 +177,22 @@ def test_results_of_the_baseline_are_stored():
     assert json.loads((CORPUS / "index.json").read_text())["pairs"]
 
 
+def test_results_of_the_shipped_calibration_are_stored():
+    """The README's after-figures come from these files: every data set scored with the
+    correction fitted on the others (scripts/calibrate_forecasts.py --answers)."""
+    results = CORPUS / "results"
+    forecasts = pd.read_csv(results / "calibrated-forecasts.csv")
+    assert forecasts[["dataset", "model"]].drop_duplicates().shape[0] == 128
+    at_pool = forecasts[forecasts["horizon"] == "pool"]
+    mae = lambda col: float(np.mean(np.abs(at_pool[col] - at_pool["measured"])))  # noqa: E731
+    assert mae("estimate") / mae("power_law_floor") == pytest.approx(0.89, abs=0.005)
+    assert mae("estimate") / mae("last_value") == pytest.approx(0.69, abs=0.005)
+    samples = pd.read_csv(results / "calibrated-samples.csv")
+    samples = samples[samples["reference"] == "measured"]
+    assert float(np.median(np.abs(samples["ln_ratio"]))) == pytest.approx(0.63, abs=0.005)
+    assert 0.85 <= samples["covered"].mean() <= 1.0
+
+
 @pytest.fixture(scope="module")
 def calibrate():
     return _script("calibrate_forecasts")
