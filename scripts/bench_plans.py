@@ -22,6 +22,9 @@
    (reached) or the rounds run out (missed); its spend is the labels plus the round costs.
    Beside it: the one-shot upper-end purchase (the upper end of ``samples_for``'s 90%
    interval, bought at once, one round cost), where that end is finite.
+   With ``--replan``, each plan is also followed as docs/plans.md recommends: buy its
+   first round only, re-measure (the corpus curve up to the largest measured size held),
+   plan again with the rounds left, and so on.
 
 Last line: ``slice split within X% of the best brute-force split; rounds reach the target
 in P% of curves at C× the one-shot upper-end cost``.
@@ -145,7 +148,7 @@ def round_cases(max_curves: int, cut: float = 0.25):
             if target < float(means.loc[fitted].min()):
                 targets.append((target, bf.crossing(sizes, means.to_numpy(), target)))
         if targets:
-            yield f"{dataset}/{model}", sub, targets
+            yield f"{dataset}/{model}", sub, targets, curve
 
 
 def replay_truth(totals, n_true: float, have: float, round_cost: float) -> tuple[bool, float]:
@@ -158,10 +161,29 @@ def replay_truth(totals, n_true: float, have: float, round_cost: float) -> tuple
     return before >= n_true, spend
 
 
+def replanned(full, target: float, n_true: float, have: float, round_cost: float,
+              probability: float, rounds: int, bootstrap: int) -> tuple[bool, float]:
+    """Buy only the first round of each plan, then re-measure (the corpus' sizes up to
+    what is held) and plan again with the rounds left."""
+    total, spend, left = have, 0.0, rounds
+    while left > 0 and total < n_true:
+        sizes = full.points["size"].to_numpy(float)
+        upto = sizes[sizes <= total].max()
+        now = cf.Curve(full.points[full.points["size"] <= upto], dict(full.meta))
+        plan = plan_rounds(now, test_error=target, label_cost=1, round_cost=round_cost,
+                           probability=probability, max_rounds=left, current_n=total,
+                           bootstrap=bootstrap)
+        if not plan.feasible or not plan.rounds.totals:
+            break
+        spend += plan.rounds.totals[0] - total + round_cost
+        total, left = plan.rounds.totals[0], left - 1
+    return total >= n_true, spend
+
+
 def rounds_check(max_curves: int, probability: float, rounds: int, round_share: float,
-                 bootstrap: int) -> pd.DataFrame:
+                 bootstrap: int, replan: bool = False) -> pd.DataFrame:
     rows = []
-    for name, sub, targets in round_cases(max_curves):
+    for name, sub, targets, full in round_cases(max_curves):
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             fit = cf.fit_curve(sub, bootstrap=bootstrap)
@@ -177,6 +199,10 @@ def rounds_check(max_curves: int, probability: float, rounds: int, round_share: 
                     row.update(reached=reached, spend=spend, expected=plan.rounds.expected_cost,
                                stated=plan.rounds.reach_probability,
                                cost_covered=plan.rounds.cost_low <= spend <= plan.rounds.cost_high)
+                    if replan:
+                        rr, sr = replanned(full, target, n_true, have, k, probability, rounds,
+                                           bootstrap)
+                        row.update(replan_reached=rr, replan_spend=sr)
                     one = plan.one_shot.totals
                     r1, s1 = replay_truth(one, n_true, have, k)
                     row.update(one_shot_reached=r1, one_shot_spend=s1)
@@ -211,6 +237,8 @@ def main(argv=None) -> int:
                     help="round cost as a share of the labels in hand")
     ap.add_argument("--bootstrap", type=int, default=200)
     ap.add_argument("--skip-slices", action="store_true")
+    ap.add_argument("--replan", action="store_true",
+                    help="also re-measure and re-plan after every round (slower)")
     ap.add_argument("--skip-rounds", action="store_true")
     args = ap.parse_args(argv)
     within = math.nan
@@ -232,7 +260,7 @@ def main(argv=None) -> int:
     if not args.skip_rounds:
         t0 = time.time()
         r = rounds_check(args.max_curves, args.probability, args.rounds, args.round_cost,
-                         args.bootstrap)
+                         args.bootstrap, replan=args.replan)
         f = r[r["feasible"]]
         both = f.dropna(subset=["upper_spend"])
         reach = 100 * f["reached"].mean()
@@ -251,6 +279,10 @@ def main(argv=None) -> int:
         print(f"| upper end of the 90% interval at once | {len(both)} | "
               f"{100 * both['upper_reached'].mean():.0f}% | – | "
               f"{(both['upper_spend'] / both['have']).mean():.2f} |")
+        if "replan_reached" in f:
+            print(f"| rounds, re-measured and re-planned after each round | {len(f)} | "
+                  f"{100 * f['replan_reached'].mean():.0f}% | {100 * f['stated'].mean():.0f}% | "
+                  f"{(f['replan_spend'] / f['have']).mean():.2f} |")
         pen = r
         print(f"| rounds, penalty 20× the labels in hand | {len(pen)} | "
               f"{100 * pen['penalty_reached'].mean():.0f}% | {100 * pen['penalty_stated'].mean():.0f}% | "
