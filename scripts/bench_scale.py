@@ -198,10 +198,18 @@ def main() -> None:
     print(f"curvefit peak RSS / table bytes = {big['rss'] / tb:.2f} (target <= 3)")
     print(f"wall ratio curvefit / learning_curve = {big['wall'] / sk_wall:.2f} (target <= 1.1)")
     print("\noverhead per cell = (2 x wall - sum of the cells' fit+predict seconds) / cells")
-    print(f"{'rows':>10}{'cells':>7}{'wall s':>9}{'fit+predict s':>15}{'overhead/cell ms':>18}")
+    print("(and the tree's peak RSS: what it grows by with the table is the table's own cost)")
+    print(f"{'rows':>10}{'cells':>7}{'wall s':>9}{'fit+predict s':>15}{'overhead/cell ms':>18}"
+          f"{'peak RSS MB':>13}")
     for r in results:
         over = (2 * r["wall"] - r["fit_seconds"]) / r["cells"]
-        print(f"{r['rows']:>10,}{r['cells']:>7}{r['wall']:9.1f}{r['fit_seconds']:15.1f}{over * 1000:18.0f}")
+        print(f"{r['rows']:>10,}{r['cells']:>7}{r['wall']:9.1f}{r['fit_seconds']:15.1f}{over * 1000:18.0f}"
+              f"{r['rss'] * mb:13.0f}")
+    small, big = results[0], results[-1]
+    if big["rows"] > small["rows"]:
+        grown = (big["rss"] - small["rss"]) / (table_bytes(big["rows"]) - table_bytes(small["rows"]))
+        print(f"peak RSS grows by {grown:.2f} x the table's bytes from {small['rows']:,} "
+              f"to {big['rows']:,} rows")
 
 
 if __name__ == "__main__":
