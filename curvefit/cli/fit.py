@@ -21,12 +21,23 @@ from curvefit.cli.common import (
 from curvefit.cli.common import print_table as _print_table
 from curvefit.core.defaults import BOOTSTRAP, SEED
 from curvefit.core.errors import FitWarning
-from curvefit.core.formatting import format_error, format_estimate, format_level, format_number, format_range
+from curvefit.core.formatting import (
+    format_error,
+    format_estimate,
+    format_level,
+    format_number,
+    format_range,
+    quantity_name,
+)
 
 ON_HELP = "Quantity to fit: test, train or gap (test − train)."
 WEIGHTS_HELP = "Least-squares weights: sem (inverse variance, floored), index (by size rank) or none."
 BOOTSTRAP_HELP = f"Bootstrap replicates for the intervals (default {BOOTSTRAP})."
-QUANTITY = {"test": "test error", "train": "train error", "gap": "generalization gap"}
+
+
+def quantity(fit) -> str:
+    """What the fit is on, in the metric's words ("test error", "test MSE", "generalization gap")."""
+    return quantity_name(fit.on, fit.curve.metric, fit.curve.metric_info)
 
 
 def print_table(head: list[str], rows: list[list[str]], indent: str = "  ") -> None:
@@ -48,7 +59,7 @@ def read_and_fit(run: str, *, on: str = "test", families: str = "auto",
 def _print_ranking(fit) -> None:
     sizes = fit.sizes
     held = fit.n_holdout
-    out.print(f"{QUANTITY[fit.on]} of {len(sizes)} sizes, {sizes.min():,.0f}–{sizes.max():,.0f} "
+    out.print(f"{quantity(fit)} of {len(sizes)} sizes, {sizes.min():,.0f}–{sizes.max():,.0f} "
               "labelled samples", markup=False)
     out.print(f"ranking by the rule that chooses (forecast error = mean absolute error of rolling "
               f"forecasts over the {held} largest size{'s' if held != 1 else ''}): "
@@ -79,7 +90,7 @@ def _print_chosen(fit, interval: float) -> None:
                 + ([""] if params["note"].any() else []), prow)
     asym, expo = fit.asymptote(interval), fit.exponent(interval)
     if asym is not None and math.isfinite(asym.estimate):
-        out.print(f"as n grows, the {QUANTITY[fit.on]} {fit.describe_asymptote(interval)}",
+        out.print(f"as n grows, the {quantity(fit)} {fit.describe_asymptote(interval)}",
                   markup=False)
     if expo is not None:
         out.print("decay exponent: " + format_estimate(expo.estimate, expo.low, expo.high, interval),
@@ -93,7 +104,7 @@ def print_forecasts(fit, table, interval: float, title: str) -> None:
     out.print(title, markup=False)
     rows = [[f"{r.size:,.0f} ({format_number(r.size / n_max, 3)}×)", format_error(r.estimate, metric),
              format_range(r.low, r.high, "error", metric)] for r in table.itertuples()]
-    print_table(["size", QUANTITY[fit.on], f"{format_level(interval)} interval"], rows)
+    print_table(["size", quantity(fit), f"{format_level(interval)} interval"], rows)
 
 
 def predictions(fit, interval: float):

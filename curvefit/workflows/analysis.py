@@ -104,6 +104,13 @@ def run_step(fn: Callable[[], Any], notes: list, what: str):
 
 
 # --------------------------------------------------------------------------- analysis
+
+def check_fit_settings(interval, bootstrap, random_state) -> tuple:
+    """The level, bootstrap count and seed of every fit, checked once (refused here, not as
+    a note in every fit)."""
+    return check_level(interval), check_count(bootstrap, "bootstrap"), check_seed(random_state)
+
+
 def analyse(curves: Any, *, target_error: float | None = None, bootstrap: int = BOOTSTRAP,
             random_state: int = SEED, interval: float = INTERVAL, capacity: bool = True,
             labels: Sequence[str] | None = None, sources: Sequence[str] | None = None,
@@ -135,9 +142,7 @@ def analyse(curves: Any, *, target_error: float | None = None, bootstrap: int = 
         One per curve, in the given order. A step that fails leaves its field None
         and a note saying why.
     """
-    interval = check_level(interval)
-    bootstrap = check_count(bootstrap, "bootstrap")
-    random_state = check_seed(random_state)  # refused here, not as a note in every fit
+    interval, bootstrap, random_state = check_fit_settings(interval, bootstrap, random_state)
     items = as_items(curves)
     check_target(target_error, [c for _, c in items])
     results = []
@@ -403,6 +408,7 @@ def report_runs(runs: Sequence[str | os.PathLike], out: str | os.PathLike = "rep
     check_target(target_error, curves)
     probe = read_probe(capacity) if capacity else None
     trade = read_tradeoff(tradeoff) if tradeoff else None
+    check_fit_settings(interval, bootstrap, random_state)  # before the first progress line
     if progress is not None:
         progress(f"fitting {len(curves)} run(s) ...")
     results = analyse(curves, target_error=target_error, bootstrap=bootstrap,
