@@ -26,10 +26,13 @@ COMMAND_LINE = re.compile(r"^(?:\$ )?curvefit ([a-z][a-z-]*)(?=\s|$)(.*)$")
 FENCE = re.compile(r"^\s*(`{3,}|~{3,})(.*)$")
 INLINE = re.compile(r"(?<!`)`([^`\n]+)`(?!`)")
 QUOTED = re.compile(r"\"[^\"]*\"|'[^']*'")
-# Options of the benchmark scripts and of other programs named in the docs.
-NOT_CURVEFIT = re.compile(r"scripts/|pytest|pip |ruff |python -c")
-# Options of examples/trainer.py (docs/capacity.md), and curvefit's own --help/--version.
-NOT_CHECKED = {"--k", "--help", "--version"}
+# Options of the benchmark scripts (named by path or by file name, `bench_forecast.py
+# --simulate`) and of other programs named in the docs.
+NOT_CURVEFIT = re.compile(r"scripts/|\w\.py\b(?!:)|pytest|pip |ruff |python -c")  # not a model file.py:name
+# Options of examples/trainer.py (docs/capacity.md), of scripts named in the sentence
+# around them (--replan: scripts/bench_plans.py; --fit-drop: scripts/calibrate_forecasts.py),
+# and curvefit's own --help/--version.
+NOT_CHECKED = {"--k", "--replan", "--fit-drop", "--help", "--version"}
 
 HELP_SCRIPT = """
 import contextlib, io, json, sys
