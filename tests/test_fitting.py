@@ -564,6 +564,21 @@ def test_unreachable_target_keeps_a_finite_lower_end():
     assert s.beyond_horizon or "not reachable" in s.message
 
 
+def test_a_curve_levelling_off_below_the_target_is_never_called_unreachable():
+    # a slow power law with no floor (0.5·n^-0.17, exact up to small noise) crosses 1e-6 only
+    # near n = 10^33, beyond the searched sizes: the answer is "more than N", since the
+    # fitted level (about 0) lies below the target
+    n = np.repeat([40, 80, 160, 300], 3)
+    table = pd.DataFrame({"size": n, "test_error": 0.5 * n ** -0.17
+                          + np.tile([-0.001, 0.0, 0.001], 4)})
+    fit = fit_curve(table, bootstrap=100, random_state=0)
+    asym = fit.asymptote()
+    assert asym is not None and asym.estimate < 1e-6
+    s = fit.samples_for(test_error=1e-6)
+    assert s.beyond_horizon and math.isinf(s.n)
+    assert "not reachable" not in s.message and "cannot say how much more" in s.message
+
+
 def test_open_upper_end_says_why():
     fit = _exact_law_fit()
     s = fit.samples_for(test_error=0.055)

@@ -700,6 +700,12 @@ class CurveFit:
         metric = self.curve.metric
         what = quantity_name(kind, metric, self.curve.metric_info)
         beyond = reachable and c.source == "fitted" and c.beyond_horizon
+        if (not reachable and not math.isfinite(c.point) and asym is not None
+                and math.isfinite(asym.estimate) and asym.estimate < target
+                and not (math.isfinite(asym.low) and asym.low > target)):
+            # the fitted curve levels off below the target but crosses it only beyond the
+            # search limit: far beyond the horizon, not "not reachable"
+            reachable, beyond = True, True
         if not reachable:
             n, high = math.inf, math.inf
             low = c.low if math.isfinite(c.low) and c.low < horizon else math.inf
