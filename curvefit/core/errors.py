@@ -8,7 +8,19 @@ problem and, where there is one, the fix.
 
 
 class InputError(ValueError):
-    """Bad input or usage: one clear line for the user, exit code 2 on the CLI."""
+    """Bad input or usage: one clear line for the user, exit code 2 on the CLI.
+
+    Line breaks inside the message (from a column name or a value the user gave) are
+    shown escaped, so the message stays one line.
+
+    >>> str(InputError("no column 'a\\nb'"))
+    "no column 'a\\\\nb'"
+    """
+
+    def __init__(self, *args):
+        if len(args) == 1 and isinstance(args[0], str):
+            args = (args[0].replace("\r", "\\r").replace("\n", "\\n"),)
+        super().__init__(*args)
 
 
 class FitWarning(UserWarning):
