@@ -35,8 +35,9 @@ from curvefit.measuring.metrics import Metric, constant_loss
 
 @dataclass(frozen=True, eq=False)
 class CellData:
-    """Everything a cell needs besides its indices; pickled once per task (numpy
-    arrays above 1 MB are memory-mapped by joblib instead of copied)."""
+    """Everything a cell needs besides its indices. Shared by every task of a run: its
+    large numeric arrays reach local workers as one memory-mapped file and Dask workers
+    as one scattered copy each (`curvefit.measuring.parallel`)."""
 
     X: Any
     y: np.ndarray
