@@ -17,6 +17,7 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import shutil
 import subprocess
 import sys
 import tempfile
@@ -91,6 +92,7 @@ def main() -> None:
             p.terminate()
         for p in procs:
             p.wait(timeout=30)
+        shutil.rmtree(folder, ignore_errors=True)
     same = local.points[COMPARE].equals(remote.points[COMPARE])
     fits = float(pd.to_numeric(local.points["fit_seconds"]).max())
     print(f"largest fit + predict: {fits:.2f} s")
