@@ -63,8 +63,21 @@ def _report(result, json_out: bool, quiet: bool, junit: Optional[Path] = None) -
               f"{comparison.baseline_id}: {'; '.join(comparison.reasons)}; pass "
               "--allow-data-change to compare anyway", file=sys.stderr)
     elif not quiet and not json_out:
-        err.print(f"recorded run {comparison.run_id} in {result.store} (series {result.series}): "
+        err.print(f"recorded run {comparison.run_id} in {shown_path(result.store)} (series {result.series}): "
                   f"{comparison.message}", markup=False, highlight=False)
+
+
+
+def shown_path(store) -> str:
+    """A store path as the user would write it: relative to the working folder when inside
+    it (job files resolve paths to absolute ones), a URL or an outside path unchanged."""
+    import os
+
+    text = str(store)
+    if "://" in text or not os.path.isabs(text):
+        return text
+    rel = os.path.relpath(text)
+    return text if rel.startswith("..") else rel
 
 
 def _accept(run_id: int, run, config, store, json_out: bool, quiet: bool) -> None:
