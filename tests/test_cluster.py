@@ -148,8 +148,14 @@ def test_shared_table_reaches_each_worker_once(cluster):
     out = sorted(run_tasks(tasks, n_jobs=2, backend="dask", scheduler=cluster.address))
     assert [r[0] for r in out] == list(range(16))
     assert {r[3] for r in out} == {float(payload.values.sum())}
-    # per task the copy would be unpickled 16 times in all; scattered, once per worker
-    assert max(r[2] for r in out) == 1, out
+    # sent with every task, the copy would be unpickled 16 times in all (8 per worker);
+    # scattered, a worker unpickles it once, or twice where Dask's broadcast reaches it
+    # as a replica of another worker's copy: the count does not grow with the tasks
+    per_worker = {}
+    for _, pid, count, _ in out:
+        per_worker[pid] = max(per_worker.get(pid, 0), count)
+    assert max(per_worker.values()) <= 2, out
+    assert sum(per_worker.values()) <= 4, out
     assert len({r[1] for r in out}) >= 1
 
 
