@@ -68,14 +68,19 @@ def _whole(value, name: str) -> int:
     raise InputError(f"{name} must be a whole number, got {value!r}")
 
 
+def _number(value, name: str, kind: str = "a number") -> float:
+    """``value`` as a float, or one InputError naming ``kind`` (bools and text refused)."""
+    if not isinstance(value, (bool, str, bytes)):
+        try:
+            return float(value)
+        except (TypeError, ValueError, OverflowError):
+            pass
+    raise InputError(f"{name} must be {kind}, got {value!r}")
+
+
 def check_level(level, name: str = "interval") -> float:
     """An interval level strictly between 0 and 1 (``0.9`` for 90%)."""
-    if isinstance(level, (bool, str, bytes)):
-        raise InputError(f"{name} must be a number between 0 and 1, got {level!r}")
-    try:
-        value = float(level)
-    except (TypeError, ValueError, OverflowError):
-        raise InputError(f"{name} must be a number between 0 and 1, got {level!r}") from None
+    value = _number(level, name, "a number between 0 and 1")
     if not 0.0 < value < 1.0:
         raise InputError(f"{name} must be between 0 and 1 (e.g. 0.9 for 90%), got {level!r}")
     return value
@@ -126,12 +131,7 @@ def check_jobs(n_jobs, name: str = "n_jobs") -> int:
 
 def check_positive(value, name: str, allow_zero: bool = False, maximum: float | None = None) -> float:
     """A finite number > 0 (≥ 0 with ``allow_zero``), at most ``UPPER_LIMITS[name]`` if set."""
-    if isinstance(value, (bool, str, bytes)):
-        raise InputError(f"{name} must be a number, got {value!r}")
-    try:
-        v = float(value)
-    except (TypeError, ValueError, OverflowError):
-        raise InputError(f"{name} must be a number, got {value!r}") from None
+    v = _number(value, name)
     if not math.isfinite(v) or v < 0 or (v == 0 and not allow_zero):
         raise InputError(f"{name} must be {'≥' if allow_zero else '>'} 0, got {value!r}")
     top, why = _limit(name, maximum)
@@ -157,12 +157,7 @@ def check_probability(value, name: str) -> float:
     ...
     curvefit.core.errors.InputError: delta must be at least 1e-300 (...), got 1e-320
     """
-    if isinstance(value, (bool, str, bytes)):
-        raise InputError(f"{name} must be a number strictly between 0 and 1, got {value!r}")
-    try:
-        v = float(value)
-    except (TypeError, ValueError, OverflowError):
-        raise InputError(f"{name} must be a number strictly between 0 and 1, got {value!r}") from None
+    v = _number(value, name, "a number strictly between 0 and 1")
     if not 0.0 < v < 1.0 or not math.isfinite(v):
         raise InputError(f"{name} must lie strictly between 0 and 1, got {value!r}; "
                          f"use e.g. {name}=0.05")
@@ -188,12 +183,7 @@ def check_error_target(value, name: str = "target_error", rate: bool = True) -> 
     >>> check_error_target(2, rate=False)
     2.0
     """
-    if isinstance(value, (bool, str, bytes)):
-        raise InputError(f"{name} must be a number, got {value!r}")
-    try:
-        v = float(value)
-    except (TypeError, ValueError, OverflowError):
-        raise InputError(f"{name} must be a number, got {value!r}") from None
+    v = _number(value, name)
     if not math.isfinite(v):
         raise InputError(f"{name} must be a finite number, got {value!r}")
     if rate and not 0.0 < v < 1.0:
