@@ -23,7 +23,7 @@ from curvefit.core.defaults import BOOTSTRAP, INTERVAL, SEED
 from curvefit.core.errors import FitWarning, InputError
 from curvefit.core.formatting import format_level
 from curvefit.core.jsonio import write_json, write_text_atomic
-from curvefit.core.validate import check_count
+from curvefit.core.validate import check_jobs
 from curvefit.workflows.analysis import ModelResult, analyse, answer_target, run_step
 
 TARGET = "rejected"
@@ -196,7 +196,7 @@ def run_demo(out_dir: str | Path = "curvefit-demo", *, n_jobs: int = 2,
     from curvefit.report.html import write_report
 
     log = log or (lambda s: None)
-    check_count(n_jobs, "n_jobs", minimum=1)
+    n_jobs = check_jobs(n_jobs)
     t0 = time.perf_counter()
     out_dir = Path(out_dir)
     if out_dir.exists() and not out_dir.is_dir():
