@@ -2,10 +2,7 @@
 --plan-only, bad goals, and the robust power law of fit seconds."""
 
 import json
-import signal
-import subprocess
 import sys
-import time
 
 import numpy as np
 import pandas as pd
@@ -15,7 +12,7 @@ from sklearn.datasets import load_breast_cancer, load_iris
 from sklearn.linear_model import LogisticRegression
 
 import curvefit as cf
-from conftest import ROOT, run_cli
+from conftest import kill_when_journaled, run_cli
 from curvefit.measuring.adaptive import AdaptiveDesign, parse_goal
 from curvefit.measuring.costs import fit_cost_model, pilot_sizes, plan_seconds
 
@@ -138,17 +135,8 @@ def test_kill_9_then_resume_gives_the_uninterrupted_cells(iris_csv, tmp_path):
             "--goal", "error-at:110", "--precision", "0.0001"]
     out = tmp_path / "run.json"
     journal = tmp_path / "run.json.journal"
-    proc = subprocess.Popen([sys.executable, "-m", "curvefit.cli.main", *args, "--out", str(out)],
-                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, cwd=ROOT)
-    deadline = time.time() + 240
-    while time.time() < deadline:   # kill it inside the second round (first pass: 10 cells)
-        if journal.exists() and len(journal.read_text().splitlines()) >= 1 + 12:
-            break
-        if proc.poll() is not None:
-            pytest.fail("the run finished before it could be killed")
-        time.sleep(0.05)
-    proc.send_signal(signal.SIGKILL)
-    proc.wait()
+    # kill it inside the second round (first pass: 10 cells)
+    kill_when_journaled(args, out, journal, lines=1 + 12, timeout=240)
     assert not out.exists()
     kept = len(journal.read_text().splitlines()) - 1
     resumed = run_cli(*args, "--out", out, "--resume")

@@ -11,7 +11,7 @@ import pandas as pd
 import pytest
 from sklearn.datasets import load_iris
 
-from conftest import ROOT, run_cli
+from conftest import ROOT, kill_when_journaled, run_cli
 
 LOGREG = "sklearn.linear_model:LogisticRegression"
 COMPARE = ["size", "repeat", "train_error", "test_error", "n_test", "n_test_errors", "status", "message"]
@@ -228,17 +228,7 @@ def test_kill_9_then_resume_gives_the_uninterrupted_points(iris_csv, tmp_path):
             "--sizes", "20,50,110", "--repeats", "3", "--seed", "3", "--quiet"]
     out = tmp_path / "run.json"
     journal = tmp_path / "run.json.journal"
-    proc = subprocess.Popen([sys.executable, "-m", "curvefit.cli.main", *args, "--out", str(out)],
-                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, cwd=ROOT)
-    deadline = time.time() + 120
-    while time.time() < deadline:
-        if journal.exists() and len(journal.read_text().splitlines()) >= 4:  # header + 3 cells
-            break
-        if proc.poll() is not None:
-            pytest.fail("the run finished before it could be killed")
-        time.sleep(0.05)
-    proc.send_signal(signal.SIGKILL)
-    proc.wait()
+    kill_when_journaled(args, out, journal, lines=4)  # header + 3 cells
     assert not out.exists()
     kept = len(journal.read_text().splitlines()) - 1
     assert 3 <= kept < 9
