@@ -70,7 +70,7 @@ def measure(model, X, y, *, sizes: Sequence[int] | None = None, repeats: int = R
             timeout: float | None = None, encode: str = "auto", groups=None, order=None,
             size_unit: str = "rows", progress: bool | Callable = False, meta: dict | None = None,
             splitter=None, goal: str | None = None, precision: float | None = None,
-            budget: float | None = None) -> Curve:
+            budget: float | None = None, reuse: Sequence[dict] | None = None) -> Curve:
     """Measure a learning curve: train and test error against training-set size.
 
     Parameters
@@ -136,6 +136,9 @@ def measure(model, X, y, *, sizes: Sequence[int] | None = None, repeats: int = R
         most this.
     budget : float, optional
         With ``goal``: compute seconds (summed fit seconds) the run may spend.
+    reuse : list of dict, optional
+        Result rows of an earlier run that hold for this one (same rows, seeds and
+        split; `curvefit.measuring.growing` decides which): their cells are not trained.
 
     Returns
     -------
@@ -184,7 +187,7 @@ def measure(model, X, y, *, sizes: Sequence[int] | None = None, repeats: int = R
         return _assemble_curve(rows, inputs, split, spec, settings, meta_in, started=started,
                                resumed=0)
 
-    points, resumed, record = _execute(inputs, split, spec, settings, adaptive, make_curve)
+    points, resumed, record = _execute(inputs, split, spec, settings, adaptive, make_curve, reuse)
     return _assemble_curve(points, inputs, split, spec, settings, {**record, **meta_in},
                            started=started, resumed=resumed)
 
@@ -549,7 +552,7 @@ def _duplicate_test_fraction(inputs: _Inputs, splitter, plans) -> float | None:
 
 # ---------------------------------------------------------------------- 4. execution
 def _execute(inputs: _Inputs, split: _SplitPlan, spec, settings: _Settings,
-             adaptive=None, make_curve=None) -> tuple[list[dict], int, dict]:
+             adaptive=None, make_curve=None, reuse=None) -> tuple[list[dict], int, dict]:
     """Run the cells the journal does not hold; return every point in (repeat, size) order,
     how many came from the journal, and what the run recorded about its costs (and, when
     adaptive, its decisions)."""
@@ -565,6 +568,8 @@ def _execute(inputs: _Inputs, split: _SplitPlan, spec, settings: _Settings,
         with _reporting(settings.report) as report:
             cells = CellRunner(inputs, split, spec, settings, journal, report, previous)
             cells.make_curve = make_curve
+            # cells of an earlier run that still hold (curvefit.measuring.growing)
+            cells.done.update({(int(c["size"]), int(c["repeat"])): c for c in reuse or ()})
             if adaptive is None:
                 wanted = [(s, r) for r in range(settings.repeats) for s in split.sizes]
                 cells.keep_only(wanted)
