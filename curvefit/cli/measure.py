@@ -141,9 +141,14 @@ def run_measure(opts: dict) -> int:
                    "metric": curve.meta["metric_info"], "split": curve.meta["split"],
                    "sizes": curve.meta["sizes"], "repeats": curve.meta["repeats"],
                    "summary": _summary_rows(curve), "sanity": sanity.to_dict(),
-                   "costs": curve.meta.get("costs"), "adaptive": curve.meta.get("adaptive")})
+                   "costs": curve.meta.get("costs"), "adaptive": curve.meta.get("adaptive"),
+                   "rounds": curve.meta.get("rounds"), "reused_cells": curve.meta.get("reused_cells")})
     else:
         _print_summary(curve, out_path, sanity)
+        if curve.meta.get("rounds"):
+            from curvefit.measuring.growing import growth_summary
+
+            out.print(growth_summary(curve), markup=False)
         if curve.meta.get("adaptive"):
             # the fixed grid's prediction and times are in meta.costs and the progress lines
             _print_costs(curve)
@@ -207,6 +212,12 @@ def register(app: typer.Typer) -> None:
         slice_col: Optional[str] = typer.Option(
             None, "--slice", help="Measure one curve per value of this column (that slice's "
             "training rows grow, the others stay whole); writes a per-slice file."),
+        previous: Optional[str] = typer.Option(
+            None, "--previous", help="Run file of this table before rows were appended: its "
+            "finished cells are reused, only the new sizes are measured."),
+        no_reuse: Optional[bool] = typer.Option(
+            None, "--no-reuse", help="With --previous: the same rounds and split, every cell "
+            "trained anew."),
         config: Optional[str] = typer.Option(None, "--config", help="TOML file with option values."),
         quiet: Optional[bool] = typer.Option(None, "--quiet", help=QUIET_HELP),
         as_json: Optional[bool] = typer.Option(None, "--json", help="Print a JSON summary only."),
@@ -219,14 +230,20 @@ def register(app: typer.Typer) -> None:
                  "seed": seed, "timeout": timeout, "resume": resume, "out": out_file,
                  "quiet": quiet, "json": as_json, "groups": groups, "order": order,
                  "size_unit": size_unit, "goal": goal, "precision": precision, "budget": budget,
-                 "plan_only": plan_only, "trainer_format": trainer_format}
+                 "plan_only": plan_only, "trainer_format": trainer_format,
+                 "previous": previous, "no_reuse": no_reuse}
         conf = _read_config(config) if config else {}
+        earlier = {}  # a grown run keeps the previous run's settings unless given
+        if given["previous"] or conf.get("previous"):
+            from curvefit.measuring.growing import previous_settings
+
+            earlier = previous_settings(given["previous"] or conf["previous"])
         opts = {}
         for key, default in MEASURE_DEFAULTS.items():
             if key == "param":
                 continue
             value = given[key]
-            opts[key] = value if value is not None else conf.get(key, default)
+            opts[key] = value if value is not None else conf.get(key, earlier.get(key, default))
         opts["param"] = given["param"]
         opts["param_config"] = conf.get("param")
         if slice_col is not None:  # per-slice curves: curvefit/cli/plan.py

@@ -163,7 +163,7 @@ def run_slice_measure(opts: dict, column: str) -> int:
     from curvefit.measuring.slices import measure_slices_of_table
 
     unsupported = [f"--{k.replace('_', '-')}" for k in ("command", "test", "groups", "order", "goal",
-                                                         "plan_only", "sizes")
+                                                         "plan_only", "sizes", "previous")
                    if opts.get(k)]
     if unsupported:
         raise InputError(f"--slice does not combine with {', '.join(unsupported)}; per-slice "

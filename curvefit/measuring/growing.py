@@ -139,6 +139,35 @@ def table_rounds(previous: Curve) -> list[dict]:
              "fingerprint": None, "table_fingerprint": data.get("fingerprint")}]
 
 
+def previous_settings(path) -> dict:
+    """The measuring options a grown run takes from the run file at ``path`` unless given
+    (keys of the command line's options: repeats, seed, test_fraction, metric, encode)."""
+    meta = Curve.read(path).meta
+    found = {"repeats": meta.get("repeats"), "seed": meta.get("seed"),
+             "test_fraction": meta.get("test_size"), "metric": meta.get("metric"),
+             "encode": meta.get("encode")}
+    return {k: v for k, v in found.items() if v is not None}
+
+
+def growth_summary(curve: Curve) -> str:
+    """One line on a grown run: its round, the rows added and the cells reused and trained.
+
+    Examples
+    --------
+    >>> c = Curve(pd.DataFrame({"size": [10, 20], "repeat": [0, 0], "test_error": [.3, .2]}),
+    ...           {"rounds": [{"rows": 100}, {"rows": 130, "new_rows": 30}],
+    ...            "reused_cells": [[10, 0]]})
+    >>> growth_summary(c)
+    'round 2 of the table: 30 new rows (130 in all); 1 cell reused from the previous run, 1 trained'
+    """
+    rounds, reused = curve.meta.get("rounds") or [], curve.meta.get("reused_cells") or []
+    last = rounds[-1]
+    n_reused, n_trained = len(reused), len(curve.points) - len(reused)
+    return (f"round {len(rounds)} of the table: {last.get('new_rows', 0):,} new rows "
+            f"({last['rows']:,} in all); {n_reused} cell{'s' if n_reused != 1 else ''} reused from "
+            f"the previous run, {n_trained} trained")
+
+
 def _frame_of(X, y) -> pd.DataFrame:
     """Features and target as one frame, for the rows fingerprint of a table from Python."""
     frame = X.reset_index(drop=True) if isinstance(X, pd.DataFrame) else pd.DataFrame(np.asarray(X))

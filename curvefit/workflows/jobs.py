@@ -93,8 +93,8 @@ def resolve_job_paths(job: dict, config_path: str | Path, source: str | None = N
 # `resume = "false"` is refused rather than read as true (bool("false") is True).
 TEXT_KEYS = ("data", "target", "model", "command", "test", "metric", "encode", "backend",
              "scheduler", "out", "groups", "order", "size_unit", "store", "series", "goal",
-             "trainer_format")
-FLAG_KEYS = ("resume", "quiet", "json", "plan_only", "allow_data_change", "again")
+             "trainer_format", "previous")
+FLAG_KEYS = ("resume", "quiet", "json", "plan_only", "allow_data_change", "again", "no_reuse")
 
 
 def _text(value, key: str) -> str:
@@ -173,6 +173,8 @@ MEASURE_DEFAULTS = {
     # adaptive measurement (curvefit.measuring.adaptive) and the plan of a run
     "goal": None, "precision": None, "budget": None, "plan_only": False,
     "trainer_format": "csv",  # the files a --command trainer reads
+    # a grown table: the run of the table before it grew (curvefit.measuring.growing)
+    "previous": None, "no_reuse": False,
 }
 
 
@@ -293,13 +295,24 @@ def measure_from_settings(opts: dict, *, progress: bool | None = None):
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         if opts.get("plan_only"):
+            if opts.get("previous"):
+                raise InputError("--plan-only does not combine with --previous")
             from curvefit.measuring.runner import plan_measure
 
             # times two pilot cells, writes nothing
             return plan_measure(spec, ds.X, ds.y, **common), None, caught
-        curve = measure(
-            spec, ds.X, ds.y, journal=journal_path(out_path) if out_path else None,
-            resume=bool(opts["resume"]) and out_path is not None, progress=progress, **common)
+        if opts.get("no_reuse") and not opts.get("previous"):
+            raise InputError("--no-reuse belongs to a grown run; give --previous RUN too")
+        run = dict(journal=journal_path(out_path) if out_path else None,
+                   resume=bool(opts["resume"]) and out_path is not None, progress=progress)
+        if opts.get("previous"):  # a grown table: reuse the cells of the run before it grew
+            from curvefit.core.curve import Curve
+            from curvefit.measuring.growing import measure_grown
+
+            curve = measure_grown(spec, ds.X, ds.y, Curve.read(opts["previous"]), table=df,
+                                  reuse=not opts.get("no_reuse"), **run, **common)
+        else:
+            curve = measure(spec, ds.X, ds.y, **run, **common)
     if out_path is not None:
         out_path.parent.mkdir(parents=True, exist_ok=True)
         curve.write(out_path)
