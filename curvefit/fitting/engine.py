@@ -136,6 +136,12 @@ class SampleEstimate:
         True when the fitted curve reaches the target only beyond ``horizon``: the
         answer is "more than ``horizon``; this curve cannot say how much more", and
         ``n`` is ``inf``.
+    metric : str or None
+        The loss of the curve the answer was read from (``"error"``, ``"mse"``, a
+        scorer's name), so the target prints in its units ("a test MSE of 3,000",
+        "15.0% test error"); None in answers made before it was recorded.
+    metric_info : dict or None
+        The curve's ``metric_info`` (its ``label`` names a scorer's loss in words).
     """
 
     n: float
@@ -150,6 +156,8 @@ class SampleEstimate:
     warnings: tuple = ()
     horizon: float = math.inf
     beyond_horizon: bool = False
+    metric: str | None = None
+    metric_info: dict | None = field(default=None, hash=False)
 
     def to_dict(self) -> dict:
         d = asdict(self)
@@ -726,7 +734,8 @@ class CurveFit:
         return SampleEstimate(n=n, low=float(low), high=float(high), level=level, target=target,
                               kind=kind, reachable=bool(reachable), asymptote=asym,
                               message=message, warnings=tuple(cautions), horizon=float(horizon),
-                              beyond_horizon=bool(beyond))
+                              beyond_horizon=bool(beyond), metric=metric,
+                              metric_info=dict(self.curve.metric_info))
 
     def _widened(self, target: float, horizon: float, level: float) -> bool:
         """Whether the band's upper edge at the horizon is above ``target`` only because of

@@ -37,7 +37,7 @@ import numpy as np
 
 from curvefit.core.defaults import BOOTSTRAP, INTERVAL, SEED
 from curvefit.core.errors import FitWarning, InputError
-from curvefit.core.formatting import format_count, format_error, format_money, is_rate
+from curvefit.core.formatting import format_count, format_error, format_money, is_rate, quantity_name
 from curvefit.core.validate import check_count, check_error_target, check_level, check_positive
 
 # Quantiles of the band turned into draws of the samples needed (midpoints of an even grid).
@@ -172,7 +172,9 @@ class RoundPlan:
         return lines
 
     def _quantity(self) -> str:
-        return "gap" if self.kind == "gap" else "test error"
+        if self.kind == "gap":
+            return "gap"
+        return quantity_name("test_error", self.metric, getattr(self.answer, "metric_info", None))
 
     def to_dict(self) -> dict:
         quantiles = {f"{q:g}": _quantile(self.draws, q) for q in (0.05, 0.25, 0.5, 0.75, 0.95)}

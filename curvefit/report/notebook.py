@@ -109,9 +109,11 @@ def fit_html(fit: Any, interval: float = INTERVAL) -> str:
 def sample_html(sample: Any) -> str:
     """`SampleEstimate`: the samples needed with their interval, and the answer in words."""
     level = field(sample, "level", INTERVAL)
-    metric = field(sample, "metric")  # in the metric's units when the answer carries it
-    what = "gap" if field(sample, "kind") == "gap" else \
-        quantity_name("test_error", metric) if metric else "test error"
+    # the loss of the curve answered ("test MSE", "15.0%"); an answer saved before the
+    # metric was recorded shows its target as a plain number
+    metric = field(sample, "metric")
+    kind = "gap" if field(sample, "kind") == "gap" else "test_error"
+    what = quantity_name(kind, metric, field(sample, "metric_info"))
     target = field(sample, "target")
     rows = [(f"target {what}", format_error(target, metric) if metric else format_number(target)),
             ("labelled samples needed", samples_text(sample))]
@@ -142,6 +144,7 @@ def tradeoff_html(tradeoff: Any) -> str:
     """`Tradeoff`: the best value per size (lowest mean test error) and the values within
     one standard error of it."""
     metric = field(tradeoff, "metric", "error")
+    quantity = quantity_name("test_error", metric, field(field(tradeoff, "meta"), "metric_info"))
     best = tradeoff.best_per_size()
     frame = pd.DataFrame({
         "size": best["size"].astype(int),
@@ -152,7 +155,7 @@ def tradeoff_html(tradeoff: Any) -> str:
     })
     values = ", ".join(map(str, field(tradeoff, "values", []) or []))
     return panel(f"Trade-off over {tradeoff.param} ({values})", html_table(frame),
-                 ["best: the lowest mean test error at each size; within one s.e.: the values "
+                 [f"best: the lowest mean {quantity} at each size; within one s.e.: the values "
                   "whose mean is at most the best's plus its standard error"])
 
 
