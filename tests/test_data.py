@@ -102,7 +102,7 @@ def test_fingerprint_changes_with_content_and_order(wine_mixed):
 
 def test_fingerprint_is_sha256_hex(wine_mixed):
     fp = table_fingerprint(wine_mixed)
-    assert len(fp) == 64 and int(fp, 16) >= 0
+    assert fp.startswith("v2:") and len(fp) == 67 and int(fp[3:], 16) >= 0
 
 
 def test_npz_loading(tmp_path):

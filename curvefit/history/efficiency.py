@@ -45,6 +45,7 @@ import numpy as np
 from curvefit.core.defaults import INTERVAL, SEED
 from curvefit.core.errors import InputError
 from curvefit.core.validate import check_count, check_level
+from curvefit.measuring.data import is_legacy_fingerprint, same_fingerprint
 
 # Replicates of the parametric bootstrap (cheap: a few sizes per replicate).
 EFFICIENCY_BOOTSTRAP = 2000
@@ -197,13 +198,17 @@ def same_splits(current, baseline) -> bool:
     >>> same_splits(a, a), same_splits(a, NS(meta={**a.meta, "seed": 1}))
     (True, False)
     """
-    keys = []
+    keys, datas = [], []
     for c in (current, baseline):
         meta = getattr(c, "meta", {}) or {}
         data = meta.get("data") if isinstance(meta.get("data"), dict) else {}
-        keys.append((meta.get("seed"), data.get("fingerprint"), str(meta.get("split")),
-                     meta.get("test_size"), meta.get("repeats")))
-    return keys[0] == keys[1] and keys[0][0] is not None and keys[0][1] is not None
+        datas.append(data)
+        keys.append((meta.get("seed"), str(meta.get("split")), meta.get("test_size"),
+                     meta.get("repeats")))
+    fps = [d.get("fingerprint") for d in datas]
+    legacy = datas[1 if is_legacy_fingerprint(fps[0]) else 0].get("legacy_fingerprint")
+    return (keys[0] == keys[1] and keys[0][0] is not None
+            and same_fingerprint(fps[0], fps[1], legacy=legacy))
 
 
 def decreasing_fit(values: np.ndarray) -> np.ndarray:

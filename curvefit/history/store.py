@@ -45,6 +45,7 @@ from curvefit.core.jsonio import jsonable
 from curvefit.core.legacy import rename_legacy
 from curvefit.core.validate import check_count, check_positive
 from curvefit.history import figures as tracking
+from curvefit.measuring.data import is_legacy_fingerprint, same_fingerprint
 
 # "cfhs" (curvefit history store) as a 32-bit integer: marks the file as ours.
 APPLICATION_ID = 0x63666873
@@ -811,7 +812,7 @@ class Store:
         brow = self._run_row(bid)
         base = {n: f for n, f in self.headline(bid).items() if n not in tracking.EFFICIENCY}
         reasons = []
-        if (row["data_fingerprint"] or None) != (brow["data_fingerprint"] or None):
+        if not same_data(row, brow):
             reasons.append(f"data fingerprint differs from run {bid}'s "
                            f"({_short(brow['data_fingerprint'])} → {_short(row['data_fingerprint'])})")
         if (row["metric"] or "error") != (brow["metric"] or "error"):
@@ -913,6 +914,23 @@ def already_recorded(series: str, run_id: int) -> str:
 
 def _short(fp: str | None) -> str:
     return "none" if not fp else str(fp)[:12]
+
+
+def same_data(row: Mapping[str, Any], brow: Mapping[str, Any]) -> bool:
+    """Whether two stored runs (rows with ``data_fingerprint`` and ``meta``) measured the
+    same data; a run recorded with the old fingerprint form matches a ``v2:`` one through
+    the old-form fingerprint the newer run also recorded (``meta["data"]["legacy_fingerprint"]``,
+    see `curvefit.measuring.data.same_fingerprint`)."""
+    fp, bfp = row["data_fingerprint"] or None, brow["data_fingerprint"] or None
+    if fp == bfp:
+        return True
+    newer = brow if is_legacy_fingerprint(fp) else row
+    try:
+        data = json.loads(newer["meta"] or "{}").get("data")
+    except (ValueError, AttributeError, RecursionError):
+        data = None
+    legacy = data.get("legacy_fingerprint") if isinstance(data, dict) else None
+    return same_fingerprint(bfp, fp, legacy=legacy if isinstance(legacy, str) else None)
 
 
 def _fingerprint(meta: Mapping[str, Any]) -> str | None:

@@ -39,6 +39,24 @@ def journal_path(run_path: str | os.PathLike) -> Path:
     return run_path.with_name(run_path.name + ".journal")
 
 
+def journal_identity(path: str | os.PathLike) -> dict | None:
+    """The run identity in a journal's header line, or None when there is no readable
+    header (no journal, an empty or torn one); `Journal.open` checks the rest.
+
+    Used before resuming to see which data fingerprint the journal was started with.
+    """
+    if not Path(path).is_file():  # absent, or a FIFO that would block the read
+        return None
+    try:
+        with open(path, "rb") as fh:
+            line = fh.readline(1 << 20)
+        header = json.loads(line.decode("utf-8")) if line.endswith(b"\n") else None
+    except (OSError, UnicodeDecodeError, ValueError, RecursionError):
+        return None
+    run = header.get("run") if isinstance(header, dict) else None
+    return run if isinstance(run, dict) else None
+
+
 def _canonical(obj: Any) -> str:
     return json.dumps(jsonable(obj), sort_keys=True, allow_nan=False)
 

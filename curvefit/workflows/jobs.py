@@ -206,7 +206,8 @@ def _sizes(value) -> list[int] | None:
     return check_sizes(parse_list(value, float, name="size", integer_range=True))
 
 
-def measure_from_settings(opts: dict, *, progress: bool | None = None):
+def measure_from_settings(opts: dict, *, progress: bool | None = None,
+                          legacy_fingerprint: bool = False):
     """Load, validate and measure what a job's settings (or merged options) describe.
 
     The one place that turns settings into a `Curve`: ``curvefit measure`` and the
@@ -214,10 +215,12 @@ def measure_from_settings(opts: dict, *, progress: bool | None = None):
     of `MEASURE_DEFAULTS`. Writes the run file when ``opts["out"]`` is set
     (the journal goes beside it). Returns ``(curve, out_path or None, caught warnings)``;
     with ``plan_only`` the first item is the run's `MeasurePlan` and nothing is written.
+    ``legacy_fingerprint`` also records the table's old-form fingerprint (slow; the
+    nightly track asks for it when its store holds runs recorded in that form).
     """
     # data problems are reported before scikit-learn is even imported (it is slow to load)
     from curvefit.measuring import data as cfdata
-    from curvefit.measuring.journal import journal_path
+    from curvefit.measuring.journal import journal_identity, journal_path
 
     # every setting is checked before the data is read and before any journal is opened
     check_job_settings({k: v for k, v in opts.items() if v is not None and k != "jobs"})
@@ -274,6 +277,14 @@ def measure_from_settings(opts: dict, *, progress: bool | None = None):
         check_output_path(out_path, "run file", new_folder=True)
         check_output_path(journal_path(out_path), "journal", new_folder=True)
     data_meta = ds.describe()
+    if opts["resume"] and out_path is not None:
+        # a journal started before the v2 fingerprint resumes under the fingerprint it holds
+        recorded = (journal_identity(journal_path(out_path)) or {}).get("data")
+        if cfdata.same_fingerprint(recorded, ds.fingerprint,
+                                   legacy=lambda: cfdata.legacy_table_fingerprint(df)):
+            data_meta["fingerprint"] = recorded
+    if legacy_fingerprint:
+        data_meta["legacy_fingerprint"] = cfdata.legacy_table_fingerprint(df)
     data_meta["path"] = str(opts["data"])
     if opts["test"]:
         data_meta["test_path"] = str(opts["test"])

@@ -202,7 +202,9 @@ def track_job(job: Mapping[str, Any], *, curve=None, progress: bool = False) -> 
     notes: list[str] = []
     if curve is None:
         check_store_path(settings["store"])
-        curve, messages = measure_job(job, progress=progress)
+        curve, messages = measure_job(
+            job, progress=progress,
+            legacy_fingerprint=holds_old_fingerprints(settings["store"], settings["series"]))
         notes.extend(messages)
         failed = len(curve.failed_points())
         if failed:
@@ -212,7 +214,19 @@ def track_job(job: Mapping[str, Any], *, curve=None, progress: bool = False) -> 
     return result
 
 
-def measure_job(job: Mapping[str, Any], *, progress: bool = False):
+def holds_old_fingerprints(store: str, series: str) -> bool:
+    """Whether runs of ``series`` hold a data fingerprint of the old (untagged) form; a new
+    run then records that form too, so the comparison can tell whether the data changed."""
+    from curvefit.history.store import Store
+    from curvefit.measuring.data import is_legacy_fingerprint
+
+    with Store(store) as st:
+        if not st.path_exists() or series not in st.series_names():
+            return False
+        return any(is_legacy_fingerprint(fp) for fp in st.runs(series)["data_fingerprint"])
+
+
+def measure_job(job: Mapping[str, Any], *, progress: bool = False, legacy_fingerprint: bool = False):
     """Measure the learning curve a job file describes (the ``measure`` step of a track).
 
     Same meaning of the keys as ``curvefit measure`` (`measure_from_settings` does the
@@ -237,7 +251,8 @@ def measure_job(job: Mapping[str, Any], *, progress: bool = False):
     opts = {k: job.get(k, default) for k, default in MEASURE_DEFAULTS.items()}
     opts.update(param=None, param_config=job.get("param"), out=job.get("out"),
                 quiet=not progress, json=False)
-    curve, _path, caught = measure_from_settings(opts, progress=progress)
+    curve, _path, caught = measure_from_settings(opts, progress=progress,
+                                                 legacy_fingerprint=legacy_fingerprint)
     return curve, list(dict.fromkeys(str(w.message).splitlines()[0] for w in caught))
 
 
