@@ -142,18 +142,33 @@ def register(app: typer.Typer) -> None:
         if (penalty is None) == (probability is None):
             raise InputError("give exactly one of --penalty (the cost of a miss) and "
                              "--probability (the required chance of reaching the target)")
+        curve = Curve.read(run)
         with status(f"fitting {run} and planning the rounds", quiet):
-            plan = plan_rounds(Curve.read(run), test_error=error, gap=gap, label_cost=label_cost,
+            plan = plan_rounds(curve, test_error=error, gap=gap, label_cost=label_cost,
                                round_cost=round_cost, penalty=penalty, probability=probability,
                                max_rounds=rounds, current_n=current, interval=interval,
                                families=families, bootstrap=bootstrap, weights=weights,
                                random_state=seed)
+        grown = curve.meta.get("rounds")  # a grown table (measure --previous): its rounds so far
         if json_out:
-            emit_json(plan.to_dict())
+            emit_json({**plan.to_dict(), "table_rounds": grown} if grown else plan.to_dict())
             return
+        if grown:
+            out.print(table_rounds_line(grown), markup=False)
         print_plan(plan)
         for note in plan.warnings:
             warn(note, quiet)
+
+
+def table_rounds_line(rounds: list) -> str:
+    """The labels of each round a grown run records, in one line."""
+    from curvefit.core.formatting import format_count
+
+    parts = [f"{r.get('round', k + 1)}: {'+' if k else ''}{format_count(r['new_rows'])}"
+             for k, r in enumerate(rounds)]
+    last = rounds[-1]
+    return (f"Labels per round of the table so far: {', '.join(parts)} ({format_count(last['rows'])} "
+            f"rows in all, {format_count(last['pool'])} in the training pool).")
 
 
 def run_slice_measure(opts: dict, column: str) -> int:
