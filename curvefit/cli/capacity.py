@@ -200,6 +200,9 @@ def register(app: typer.Typer) -> None:
             if stray:
                 raise InputError(f"{stray[0]} belongs to the probe; add --probe, or give only "
                                  "a run file for the gap model")
+            if source is None:  # before the status line: a usage error prints one line
+                raise InputError("no run file given; usage: curvefit capacity RUN, or "
+                                 "curvefit capacity --probe DATA --model SPEC")
             with status(f"fitting the gap model to {source}", quiet):
                 est, metric = _run_gap(source, settings, with_probe)
         if out_file:
@@ -242,9 +245,6 @@ def _run_gap(source, settings: dict, with_probe: str | None = None):
     from curvefit.core.curve import Curve
     from curvefit.core.jsonio import read_json
 
-    if source is None:
-        raise InputError("no run file given; usage: curvefit capacity RUN, or "
-                         "curvefit capacity --probe DATA --model SPEC")
     probe = None
     if with_probe:
         probe = CapacityEstimate.from_dict(read_json(with_probe, what="probe file"))
