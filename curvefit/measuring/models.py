@@ -35,6 +35,7 @@ import inspect
 import json
 import math
 import os
+import secrets
 import shlex
 import shutil
 import signal
@@ -554,8 +555,8 @@ class CommandModel(BaseEstimator):
     with ``"npz"`` they are NumPy archives ``train.npz`` (arrays ``X``, 2-D float64,
     ``y`` and ``feature_names``) and ``test.npz`` (``X`` and ``feature_names``), for
     numeric features only. Large subsamples are read much faster from these than from
-    CSV text. The folder (mode 0700, from `tempfile.mkdtemp`) holds one cell's files
-    and is removed when the program has run.
+    CSV text. The folder (mode 0700, a random name under the temporary folder) holds one
+    cell's files and is removed when the program has run.
 
     Parameters
     ----------
@@ -680,7 +681,7 @@ _LIVE_TRAINERS: dict[int, Path | None] = {}
 # (`kill -9` of a one-process run, a worker killed by the system), it kills the trainers
 # still listed, removes their folders and exits.
 _WATCH_CODE = """\
-import json, os, shutil, signal, sys
+import json, os, shutil, signal, sys, time
 live = {}
 for line in sys.stdin:
     op, folder, pgid = json.loads(line)
@@ -688,22 +689,45 @@ for line in sys.stdin:
         live[folder] = pgid
     else:
         live.pop(folder, None)
-for folder, pgid in live.items():
+for pgid in live.values():
     if pgid:
         try:
             os.killpg(pgid, signal.SIGKILL)
         except OSError:
             pass
-    shutil.rmtree(folder, ignore_errors=True)
+for folder, pgid in live.items():
+    for _ in range(100 if pgid else 0):  # a dying trainer may still create a file
+        try:
+            os.killpg(pgid, 0)
+        except OSError:
+            break
+        time.sleep(0.02)
+    for _ in range(3):
+        shutil.rmtree(folder, ignore_errors=True)
+        if not os.path.lexists(folder):
+            break
+        time.sleep(0.1)
 """
 _watch: dict = {}  # {"owner": pid, "proc": Popen} of this process's trainer watch
 
 
 @contextlib.contextmanager
 def _trainer_folder():
-    """A private temporary folder, known to the trainer watch until it is removed."""
-    folder = Path(tempfile.mkdtemp(prefix="curvefit-trainer-"))
-    _tell_watch("+", folder, None)
+    """A private temporary folder (mode 0700), known to the trainer watch from before it
+    exists until it is removed: a kill between creating it and telling the watch would
+    otherwise leave it behind."""
+    base = Path(tempfile.gettempdir())
+    while True:
+        folder = base / f"curvefit-trainer-{secrets.token_hex(8)}"
+        _tell_watch("+", folder, None)
+        try:
+            folder.mkdir(mode=0o700)
+            break
+        except FileExistsError:
+            _tell_watch("-", folder, None)
+        except BaseException:
+            _tell_watch("-", folder, None)
+            raise
     try:
         yield folder
     finally:
