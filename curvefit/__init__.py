@@ -30,6 +30,7 @@ _EXPORTS = {
     "plan_slices": "curvefit.fitting.rounds",
     "split_budget": "curvefit.fitting.rounds",
     "measure_slices": "curvefit.measuring.slices",
+    "measure_grown": "curvefit.measuring.growing",
     "effective_capacity": "curvefit.capacity.gap_model",
     "probe_capacity": "curvefit.capacity.probe",
     "CapacityEstimate": "curvefit.capacity.result",

@@ -181,6 +181,7 @@ def check_older_rows(rounds: list[dict], table: pd.DataFrame, *, X=None, y=None)
     """Check that the grown table starts with the rows the last round measured; return the
     grown table's rows fingerprint. ``table`` is the table file as loaded (None for data
     from Python: ``X`` and ``y`` are fingerprinted)."""
+    from curvefit.measuring import data
     from curvefit.measuring.data import array_fingerprint, leading_rows_fingerprint, table_fingerprint
 
     frame = table if table is not None else _frame_of(X, y)
@@ -196,6 +197,10 @@ def check_older_rows(rounds: list[dict], table: pd.DataFrame, *, X=None, y=None)
         same = leading_rows_fingerprint(frame, old) == last["fingerprint"]
     elif table is not None:
         same = table_fingerprint(table.iloc[:old]) == last.get("table_fingerprint")
+        # run files written before the table fingerprint changed form record the older form
+        legacy = getattr(data, "legacy_table_fingerprint", None)
+        if not same and legacy is not None:
+            same = legacy(table.iloc[:old]) == last.get("table_fingerprint")
     else:
         same = array_fingerprint(_head(X, old), np.asarray(y)[:old]) == last.get("table_fingerprint")
     if not same:
