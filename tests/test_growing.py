@@ -17,7 +17,7 @@ from curvefit.core.curve import Curve
 from curvefit.core.errors import InputError
 from curvefit.measuring.growing import GrowingSplit, grown_sizes, measure_grown
 from curvefit.measuring.runner import measure
-from curvefit.measuring.splits import RandomSplit
+from curvefit.measuring.splits import GroupSplit, RandomSplit
 
 MODEL_FILE = '''
 import os
@@ -181,8 +181,29 @@ def test_third_round_and_refusals():
         measure_grown(model, moved, y, second)
     with pytest.raises(InputError, match="time-ordered"):
         measure_grown(model, X, y, second, order=np.arange(len(y)))
-    with pytest.raises(InputError, match="grouped"):
-        measure_grown(model, X, y, second, groups=np.arange(len(y)) % 10)
+    with pytest.raises(InputError, match="groups"):
+        measure_grown(model, X, y, second, size_unit="groups")
+
+
+def test_grouped_table_grows_by_new_groups_only():
+    from sklearn.datasets import load_breast_cancer
+    from sklearn.tree import DecisionTreeClassifier
+
+    X, y = load_breast_cancer(return_X_y=True)
+    groups = np.arange(len(y)) // 4  # four rows per group; the appended rows are new groups
+    old = measure(DecisionTreeClassifier(max_depth=3, random_state=0), X[:440], y[:440],
+                  groups=groups[:440], sizes=[40, 100], repeats=2)
+    grown = measure_grown(DecisionTreeClassifier(max_depth=3, random_state=0), X, y, old, groups=groups)
+    fresh = measure_grown(DecisionTreeClassifier(max_depth=3, random_state=0), X, y, old,
+                          groups=groups, reuse=False)
+    cols = ["size", "repeat", "train_error", "test_error", "n_train_groups", "n_test_groups"]
+    assert len(grown.meta["reused_cells"]) == 4 and grown.points[cols].equals(fresh.points[cols])
+    assert grown.meta["split"]["kind"] == "groups"
+    leaky = groups.copy()
+    tested = GroupSplit(groups[:440]).split(y[:440], 2, random_state=0)[1].test[0]
+    leaky[440:] = groups[tested]  # every new row in a group that repeat 1 tests on
+    with pytest.raises(InputError, match="new rows belong to groups that the first round's split tests on"):
+        measure_grown(DecisionTreeClassifier(max_depth=3), X, y, old, groups=leaky)
 
 
 def test_grown_sizes_continue_the_grid():

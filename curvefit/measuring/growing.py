@@ -21,9 +21,12 @@ older rows: `curvefit.measuring.data.leading_rows_fingerprint` of the rows the l
 round had (a run measured before rounds were recorded is checked with its whole-table
 fingerprint on the same number of leading rows instead).
 
+A grouped split grows too (sizes counting rows): round 1's test groups stay the test
+groups, and a later row of a group that any repeat tests on is refused, since it would
+leak into training; rows of new groups, or of groups no repeat tests on, join the pool.
 Splits that cannot grow this way are refused: a time-ordered split tests on the latest
-rows, which appended rows replace; a grouped split would let new rows of a test group
-into training; a separate test set is not checked for identity by the run file.
+rows, which appended rows replace; sizes counted in groups would change when an older
+group gains rows; a separate test set is not identified by the run file.
 
 References
 ----------
@@ -42,7 +45,7 @@ import pandas as pd
 
 from curvefit.core.curve import Curve
 from curvefit.core.errors import InputError
-from curvefit.measuring.splits import RandomSplit, RepeatSplit, stratified_order
+from curvefit.measuring.splits import GroupSplit, RandomSplit, RepeatSplit, stratified_order
 
 # Spawn-key offset of the new rows' permutation of round k (k + offset; the splitters'
 # own streams are 0 and 1).
@@ -57,10 +60,14 @@ class GrowingSplit:
 
     Parameters
     ----------
-    base : RandomSplit
-        The split of round 1's rows (a plain run's splitter).
+    base : RandomSplit or GroupSplit
+        The split of round 1's rows (a plain run's splitter; a GroupSplit of round 1's
+        group ids, sizes counting rows).
     rounds : list of int
         Rows of the table at each round, increasing; the last is the grown table's.
+    groups : array-like, optional
+        With a GroupSplit: the group id of every row of the grown table. A later row
+        whose group any repeat tests on is refused (it would leak into training).
 
     Examples
     --------
@@ -72,8 +79,9 @@ class GrowingSplit:
     (True, True, [12, 13, 14, 15, 16, 17, 18, 19])
     """
 
-    base: RandomSplit
+    base: RandomSplit | GroupSplit
     rounds: list
+    groups: object = None
     size_unit: str = field(default="rows", init=False)
 
     @property
@@ -85,7 +93,9 @@ class GrowingSplit:
         if len(y) != self.rounds[-1]:
             raise InputError(f"the grown table has {len(y)} rows, its rounds say {self.rounds[-1]}")
         out = []
-        for plan in self.base.split(y[:self.rounds[0]], repeats, random_state):
+        plans = self.base.split(y[:self.rounds[0]], repeats, random_state)
+        codes = None if self.groups is None else self._group_codes(plans)
+        for plan in plans:
             parts = [plan.pool]
             for k in range(1, len(self.rounds)):
                 new = np.arange(self.rounds[k - 1], self.rounds[k])
@@ -93,8 +103,28 @@ class GrowingSplit:
                     int(random_state), spawn_key=(plan.repeat, _ROUND_STREAM + k)))
                 order = stratified_order(y[new], rng) if self.base.stratify else rng.permutation(len(new))
                 parts.append(new[order])
-            out.append(RepeatSplit(plan.repeat, plan.test, np.concatenate(parts)))
+            pool = np.concatenate(parts)
+            out.append(RepeatSplit(plan.repeat, plan.test, pool, None,
+                                   None if codes is None else codes[pool],
+                                   None if codes is None else codes[plan.test]))
         return out
+
+    def _group_codes(self, plans) -> np.ndarray:
+        """One code per group over the grown table; refuses later rows of a test group."""
+        values = self.groups if isinstance(self.groups, pd.Series) else pd.Series(list(self.groups))
+        values = values.reset_index(drop=True)
+        if len(values) != self.rounds[-1]:
+            raise InputError(f"the group column has {len(values)} values for {self.rounds[-1]} rows")
+        codes = pd.factorize(values)[0]
+        tested = np.unique(np.concatenate([codes[p.test] for p in plans]))
+        leaking = np.isin(codes[self.rounds[0]:], tested)
+        if leaking.any():
+            example = values.iloc[self.rounds[0] + int(np.argmax(leaking))]
+            raise InputError(f"{int(leaking.sum()):,} new rows belong to groups that the first "
+                             f"round's split tests on (e.g. {example!r}); they would leak into "
+                             "training, so a grouped table can grow only by new groups or groups "
+                             "no repeat tests on; measure the grown table afresh")
+        return codes
 
     def describe(self) -> dict:
         return {**self.base.describe(), "rounds": [int(n) for n in self.rounds]}
@@ -315,14 +345,16 @@ def measure_grown(model, X, y, previous: Curve, *, reuse: bool = True, table=Non
     if order is not None:
         raise InputError("a time-ordered split (--order) tests on the latest rows, which the new "
                          "rows replace; measure the grown table afresh (without --previous)")
-    if groups is not None or size_unit != "rows":
-        raise InputError("a grouped split (--groups) cannot grow: new rows of a test group "
-                         "would leak into training; measure the grown table afresh")
+    if size_unit != "rows":
+        raise InputError("sizes counted in groups cannot grow (new rows of an older group would "
+                         "change the older sizes); use --size-unit rows, or measure afresh")
     if goal is not None:
         raise InputError("--goal (adaptive measurement) does not combine with --previous")
     old = previous.meta
     rounds = table_rounds(previous)
-    fingerprint = check_older_rows(rounds, table, X=X, y=y)
+    # the features as the runner sees them (a group column named in X is not one)
+    features = X.drop(columns=[groups]) if isinstance(groups, str) and isinstance(X, pd.DataFrame) else X
+    fingerprint = check_older_rows(rounds, table, X=features, y=y)
     repeats = old.get("repeats") if repeats is None else repeats
     random_state = old.get("seed") if random_state is None else random_state
     metric = old.get("metric") if metric is None else metric
@@ -333,19 +365,19 @@ def measure_grown(model, X, y, previous: Curve, *, reuse: bool = True, table=Non
     spec = as_model_spec(model, timeout=options.get("timeout"))
     probe = spec.make()
     n_rows = len(y)
-    base = RandomSplit(test_size=test_size, stratify=_task_of(probe, y) == "classification")
-    splitter = GrowingSplit(base, [int(r["rows"]) for r in rounds] + [n_rows])
     task = _task_of(probe, y)
+    splitter = _growing_splitter(X, groups, test_size, task == "classification",
+                                 [int(r["rows"]) for r in rounds] + [n_rows])
+    plans = splitter.split(np.asarray(y), int(repeats), int(random_state))
     _check_same_run(previous, spec, {"seed": random_state, "repeats": repeats, "encode": encode,
                                      "metric": resolve_metric(metric, task).name, "task": task},
                     splitter.describe())
     if reuse and old.get("encoding") is not None:
-        now = with_encoding(probe, X, encode)[1]
+        now = with_encoding(probe, features, encode)[1]
         if now != old["encoding"]:
             raise InputError(f"the new rows change how the features are encoded (before: "
                              f"{old['encoding']}; now: {now}), so the older cells no longer hold; "
                              "measure with --no-reuse")
-    plans = splitter.split(np.asarray(y), int(repeats), int(random_state))
     pool = min(p.n_units for p in plans)
     if sizes is None:
         sizes = grown_sizes(old.get("sizes") or previous.sizes, pool)
@@ -355,11 +387,28 @@ def measure_grown(model, X, y, previous: Curve, *, reuse: bool = True, table=Non
     if rounds[0].get("fingerprint") is None:  # a plain previous run: its rows' fingerprint now
         from curvefit.measuring.data import leading_rows_fingerprint
 
-        frame = table if table is not None else _frame_of(X, y)
+        frame = table if table is not None else _frame_of(features, y)
         rounds[0]["fingerprint"] = leading_rows_fingerprint(frame, int(rounds[0]["rows"]))
         rounds[0].pop("table_fingerprint", None)
     record = {"rounds": rounds + [new_round], "reused_cells": [[int(c["size"]), int(c["repeat"])]
                                                               for c in cells]}
     return measure(spec, X, y, sizes=sizes, repeats=repeats, test_size=test_size, metric=metric,
                    random_state=random_state, encode=encode, splitter=splitter, reuse=cells,
-                   meta={**(meta or {}), **record}, **options)
+                   groups=groups, meta={**(meta or {}), **record}, **options)
+
+
+def _growing_splitter(X, groups, test_size, stratify: bool, rounds: list) -> GrowingSplit:
+    """The grown table's split: round 1's split as a plain run draws it (a group split
+    when ``groups`` is given: values, or a column of ``X``), later rows appended."""
+    if groups is None:
+        return GrowingSplit(RandomSplit(test_size=test_size, stratify=stratify), rounds)
+    if isinstance(groups, str):
+        if not isinstance(X, pd.DataFrame) or groups not in X.columns:
+            raise InputError(f"group column {groups!r} not found among the features")
+        values = X[groups].reset_index(drop=True)
+    elif isinstance(groups, pd.Series):
+        values = groups.reset_index(drop=True)
+    else:  # as the runner reads group values given from Python
+        values = pd.Series(np.asarray(groups, dtype=object))
+    base = GroupSplit(values.iloc[:rounds[0]], test_size=test_size, size_unit="rows", stratify=stratify)
+    return GrowingSplit(base, rounds, groups=values)
