@@ -146,3 +146,34 @@ def test_old_store_fingerprint_is_not_a_data_change(tmp_path, cancer):
     with sqlite3.connect(tmp_path / "h.db") as con:
         fps = [r[0] for r in con.execute("SELECT data_fingerprint FROM runs ORDER BY id")]
     assert fps[0] == old and fps[1].startswith("v2:")
+
+
+def test_only_the_used_columns_are_read(tmp_path, cancer):
+    """With --features, a column the run does not use is never decoded: here its bytes are
+    not UTF-8, so reading it fails, and the run still succeeds on the other columns."""
+    small = cancer[["mean radius", "mean texture", "worst area", "target"]].head(300)
+    text = small.to_csv(index=False).encode()
+    lines = text.splitlines()
+    bad = [lines[0] + b",notes"] + [ln + (b",\xff\xfe" if i % 2 else b",ok") for i, ln in enumerate(lines[1:])]
+    (tmp_path / "t.csv").write_bytes(b"\n".join(bad) + b"\n")
+    args = ["measure", "t.csv", "--target", "target", "--model", "sklearn.tree:DecisionTreeClassifier",
+            "--sizes", "40,80", "--repeats", "1", "--quiet", "--json"]
+    res = run_cli(*args, "--features", "worst area,mean radius", "--out", "run.json", cwd=tmp_path)
+    assert res.returncode == 0, res.stderr
+    meta = json.loads((tmp_path / "run.json").read_text())["meta"]
+    used = load_table(tmp_path / "t.csv", columns=["target", "mean radius", "worst area"])
+    assert list(used.columns) == ["mean radius", "worst area", "target"]  # the file's order
+    assert meta["data"]["fingerprint"] == table_fingerprint(used)
+    everything = run_cli(*args, "--out", "all.json", cwd=tmp_path)         # all columns: read fails
+    assert everything.returncode == 2 and "cannot read" in everything.stderr
+    assert len(everything.stderr.strip().splitlines()) == 1
+
+
+def test_parquet_columns_read_one_by_one(tmp_path):
+    df = _numbers(100)
+    df.index = pd.RangeIndex(100, 200)
+    df.to_parquet(tmp_path / "t.parquet")
+    whole = load_table(tmp_path / "t.parquet")
+    pd.testing.assert_frame_equal(whole, pd.read_parquet(tmp_path / "t.parquet"))
+    part = load_table(tmp_path / "t.parquet", columns=["t", "a"])
+    pd.testing.assert_frame_equal(part, pd.read_parquet(tmp_path / "t.parquet")[["a", "t"]])

@@ -68,7 +68,7 @@ def _data_suffix(path: Path) -> str:
     return suffixes[-1] if suffixes else ""
 
 
-def load_table(path: str | os.PathLike) -> pd.DataFrame:
+def load_table(path: str | os.PathLike, columns=None) -> pd.DataFrame:
     """Read a data table from CSV, TSV/TXT (separator sniffed), Parquet or NPZ.
 
     Parameters
@@ -79,6 +79,10 @@ def load_table(path: str | os.PathLike) -> pd.DataFrame:
         detected from the file), ``.parquet``/``.pq`` (via pyarrow), or ``.npz`` with
         arrays ``X`` (2-D) and ``y`` (1-D) and optionally ``feature_names``. Text
         formats may be compressed (``.csv.gz``).
+    columns : list of str, optional
+        Read only these columns (kept in the file's order; see `table_columns`): the
+        other columns of a CSV are not converted at all and those of a Parquet file
+        not read. Every name must be in the file. Default: all columns.
 
     Returns
     -------
@@ -108,20 +112,7 @@ def load_table(path: str | os.PathLike) -> pd.DataFrame:
     if suffix in _CSV_SUFFIXES | _SNIFF_SUFFIXES and path.suffix.lower() not in _COMPRESSION:
         _check_delimiters(path)
     try:
-        if suffix in _CSV_SUFFIXES:
-            df = pd.read_csv(path, low_memory=False)  # one dtype per column, not per chunk
-            if df.shape[1] == 1 and any(sep in str(df.columns[0]) for sep in ";\t|"):
-                # a ".csv" written with semicolons or tabs (common with decimal commas)
-                df = pd.read_csv(path, sep=None, engine="python")
-        elif suffix in _SNIFF_SUFFIXES:
-            df = pd.read_csv(path, sep=None, engine="python")
-        elif suffix in _PARQUET_SUFFIXES:
-            df = pd.read_parquet(path)
-        elif suffix in _NPZ_SUFFIXES:
-            df = _read_npz(path)
-        else:
-            raise InputError(f"unknown data format {suffix or '(no extension)'!r} for {path}; "
-                             "use .csv, .tsv, .txt, .parquet or .npz")
+        df = _read_frame(path, suffix, None if columns is None else [str(c) for c in columns])
     except InputError:
         raise
     except pd.errors.EmptyDataError:
@@ -141,6 +132,70 @@ def load_table(path: str | os.PathLike) -> pd.DataFrame:
         raise InputError(f"data file {path} has duplicate column names: {_list_names(dupes)}; rename them")
     df.columns = [str(c) for c in df.columns]
     return df
+
+
+def _read_frame(path: Path, suffix: str, columns: list | None, header_only: bool = False) -> pd.DataFrame:
+    """The table (or, with ``header_only``, its empty header) in ``columns`` (None: all)."""
+    rows = 0 if header_only else None
+    if suffix in _CSV_SUFFIXES | _SNIFF_SUFFIXES:
+        sniff = suffix in _SNIFF_SUFFIXES
+        if not sniff:
+            head = pd.read_csv(path, nrows=0)
+            # a ".csv" written with semicolons or tabs (common with decimal commas)
+            sniff = head.shape[1] == 1 and any(sep in str(head.columns[0]) for sep in ";\t|")
+            if header_only and not sniff:
+                return head
+        if sniff:
+            return pd.read_csv(path, sep=None, engine="python", usecols=columns, nrows=rows)
+        return pd.read_csv(path, low_memory=False, usecols=columns)  # one dtype per column
+    if suffix in _PARQUET_SUFFIXES:
+        import pyarrow.parquet as pq
+
+        names = [n for n in pq.read_schema(path).names if n not in _parquet_index_columns(path)]
+        if header_only:
+            return pd.DataFrame(columns=names)
+        # column by column, each converted without a copy (numbers without gaps): the
+        # peak stays near one copy of the table instead of Arrow's and pandas' side by side
+        kwargs = {"split_blocks": True, "self_destruct": True}
+        parts = {name: pd.read_parquet(path, columns=[name], to_pandas_kwargs=kwargs)[name]
+                 for name in names if columns is None or name in columns}
+        return pd.DataFrame(parts, copy=False) if parts else pd.read_parquet(path, columns=[])
+    if suffix in _NPZ_SUFFIXES:
+        df = _read_npz(path)
+        return df[[c for c in df.columns if columns is None or c in columns]]
+    raise InputError(f"unknown data format {suffix or '(no extension)'!r} for {path}; "
+                     "use .csv, .tsv, .txt, .parquet or .npz")
+
+
+def _parquet_index_columns(path: Path) -> set:
+    """Columns pandas stored for a DataFrame's index (restored as the index, not data)."""
+    import pyarrow.parquet as pq
+
+    meta = pq.read_schema(path).pandas_metadata or {}
+    return {c for c in meta.get("index_columns", []) if isinstance(c, str)}
+
+
+def table_columns(path: str | os.PathLike) -> list[str]:
+    """The column names of a data file, from its header (Parquet: its schema) only.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> d = pathlib.Path(tempfile.mkdtemp())
+    >>> _ = (d / "t.csv").write_text("a,b,y\n1,2,0\n3,4,1\n")
+    >>> table_columns(d / "t.csv")
+    ['a', 'b', 'y']
+    """
+    path = Path(path)
+    suffix = _data_suffix(path)
+    if not path.is_file() or suffix in _NPZ_SUFFIXES:
+        return [str(c) for c in load_table(path).columns]  # its errors; NPZ has no header
+    try:
+        return [str(c) for c in _read_frame(path, suffix, None, header_only=True).columns]
+    except InputError:
+        raise
+    except Exception:  # an unreadable file: load_table says why
+        return [str(c) for c in load_table(path).columns]
 
 
 _DELIMITERS = {",": "commas", "\t": "tabs", ";": "semicolons", "|": "bars"}

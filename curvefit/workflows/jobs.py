@@ -206,6 +206,26 @@ def _sizes(value) -> list[int] | None:
     return check_sizes(parse_list(value, float, name="size", integer_range=True))
 
 
+def _present(header: list, wanted) -> list | None:
+    """The ``wanted`` columns in the file's order, or None (read all) when one is absent:
+    the checks after reading then name it and list the file's columns."""
+    wanted = set(wanted)
+    return [c for c in header if c in wanted] if wanted <= set(header) else None
+
+
+def _used_columns(opts: dict, features) -> list | None:
+    """The columns a run reads when its features are named: those, the target and the
+    group/order columns (the fingerprint then covers these); None (all) otherwise."""
+    from curvefit.measuring.data import table_columns
+
+    if not features:
+        return None
+    if isinstance(features, str):
+        features = [f.strip() for f in features.split(",") if f.strip()]
+    wanted = [*features, str(opts["target"])] + [str(opts[o]) for o in ("groups", "order") if opts[o]]
+    return _present(table_columns(opts["data"]), wanted)
+
+
 def measure_from_settings(opts: dict, *, progress: bool | None = None,
                           legacy_fingerprint: bool = False):
     """Load, validate and measure what a job's settings (or merged options) describe.
@@ -234,10 +254,10 @@ def measure_from_settings(opts: dict, *, progress: bool | None = None,
         raise InputError("no target column given; pass --target COL")
     if opts["encode"] not in ("auto", "none"):
         raise InputError(f"unknown --encode {opts['encode']!r}; use auto or none")
-    df = cfdata.load_table(opts["data"])
     features = opts["features"]
     if isinstance(features, (list, tuple)):
         features = [str(f) for f in features]
+    df = cfdata.load_table(opts["data"], columns=_used_columns(opts, features))
     columns = [str(c) for c in df.columns]
     special = {}
     for option in ("groups", "order"):
@@ -263,7 +283,8 @@ def measure_from_settings(opts: dict, *, progress: bool | None = None,
                          trainer_format=opts["trainer_format"])
     X_test = y_test = None
     if opts["test"]:
-        tdf = cfdata.load_table(opts["test"])
+        used = ds.feature_names + [ds.target]
+        tdf = cfdata.load_table(opts["test"], columns=_present(cfdata.table_columns(opts["test"]), used))
         missing = [c for c in ds.feature_names + [ds.target] if c not in tdf.columns]
         if missing:
             raise InputError(f"the test file {opts['test']} lacks the columns "
