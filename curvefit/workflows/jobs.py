@@ -29,7 +29,7 @@ from curvefit.core.validate import (
 MAX_JOB_BYTES = 2 ** 20
 
 # Keys whose values are paths, resolved against the job file's folder.
-PATH_KEYS = ("data", "test", "store", "out")
+PATH_KEYS = ("data", "test", "store", "out", "previous")
 
 
 def read_toml(path: str | Path, what: str = "config file") -> dict:
@@ -60,7 +60,7 @@ def read_toml(path: str | Path, what: str = "config file") -> dict:
 def resolve_job_paths(job: dict, config_path: str | Path, source: str | None = None) -> dict:
     """Resolve a job file's relative paths against the file's own folder (in place).
 
-    Touches the keys ``data``, ``test``, ``store``, ``out`` and the file part of a
+    Touches the keys ``data``, ``test``, ``store``, ``out``, ``previous`` and the file part of a
     ``file.py:make_model`` model spec.
 
     Examples
