@@ -170,9 +170,10 @@ def register(app: typer.Typer) -> None:
         interval = pick_interval(interval, level)
         extras = (parse_list(extra, float, name="extra amount", integer_range=True)
                   if extra is not None else None)
+        curve = Curve.read(run)  # a bad run file is one line, before any status line
         with status(f"fitting the curve families to {run} ({bootstrap} bootstrap replicates) "
                     "and solving for the answer", quiet):
-            need = labels_needed(Curve.read(run), test_error=error, gap=gap, current_n=current,
+            need = labels_needed(curve, test_error=error, gap=gap, current_n=current,
                                  cost_per_label=label_cost, budget=budget, extra=extras,
                                  vc_dim=vc_dim, interval=interval, families=families,
                                  bootstrap=bootstrap, weights=weights, random_state=seed)
