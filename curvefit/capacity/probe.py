@@ -9,6 +9,7 @@ not depend on ``n_jobs`` or the backend.
 
 from __future__ import annotations
 
+import contextlib
 import math
 import time
 from dataclasses import dataclass
@@ -22,6 +23,7 @@ from curvefit.capacity.vc_curve import fit_vc_curve, phi, phi_inverse
 from curvefit.core.defaults import INTERVAL, SEED
 from curvefit.core.errors import InputError
 from curvefit.core.formatting import format_capacity, format_number
+from curvefit.core.progress import Progress, progress_callback
 from curvefit.core.stats import sem
 from curvefit.core.validate import check_count, check_jobs, check_level, check_seed
 
@@ -82,7 +84,7 @@ def probe_capacity(model, X=None, *, n_features: int | None = None, sizes=None,
                    repeats: int = 10, n_jobs: int = 1, backend: str = "local",
                    scheduler: str | None = None, random_state: int = SEED,
                    max_n: int = DEFAULT_MAX_N, bootstrap: int = PROBE_BOOTSTRAP,
-                   interval: float = INTERVAL, progress=None) -> CapacityEstimate:
+                   interval: float = INTERVAL, progress=False) -> CapacityEstimate:
     """Effective VC dimension of a learner by the max-deviation experiment.
 
     For each half-size n of the design, 2n inputs are drawn (rows resampled from
@@ -124,8 +126,13 @@ def probe_capacity(model, X=None, *, n_features: int | None = None, sizes=None,
         Bootstrap replicates for the interval (``PROBE_BOOTSTRAP`` by default).
     interval : float
         Interval level.
-    progress : callable, optional
-        Called with one line of text after each round.
+    progress : bool or callable
+        ``True`` shows progress on stderr (`curvefit.core.progress.Progress`: a bar on a
+        terminal, plain lines in a log). A callable is called as ``progress(done, total,
+        cell)`` after each finished cell (``cell``: a dict with ``n``, ``round``,
+        ``xi``, ``status``), and once before each round with ``cell=None``. ``total``
+        counts the cells run and planned; before the second round is planned it holds
+        an estimate of that round's cells (``repeats`` per design point).
 
     Returns
     -------
@@ -157,35 +164,42 @@ def probe_capacity(model, X=None, *, n_features: int | None = None, sizes=None,
 
 
 def run_probe(spec, inputs: ProbeInputs, settings: ProbeSettings, *, sizes=None,
-              progress=None) -> CapacityEstimate:
+              progress=False) -> CapacityEstimate:
     """The probe of :func:`probe_capacity` for a model already turned into a ``ModelSpec``
-    (``curvefit.measuring.models.as_model_spec``) and checked inputs and settings."""
+    (``curvefit.measuring.models.as_model_spec``) and checked inputs and settings;
+    ``progress`` as there."""
     max_n, capped_by_rows = settings.max_n, False
     if inputs.pool is not None and 2 * max_n > len(inputs.pool):
         # More rows than the data holds would repeat points and cap ξ below 1 for any learner.
         max_n, capped_by_rows = max(1, len(inputs.pool) // 2), True
-    cells = _ProbeCells(spec, inputs, settings)
-    if sizes is not None:
-        ns = _fixed_sizes(sizes, inputs)
-        max_n = max(ns)
-        df = cells.run({n: settings.repeats for n in ns})
-        h = fit_probe(df, max_n)
-    else:
-        df, h = _adaptive_design(cells, inputs.n_features, settings.repeats, max_n,
-                                 progress or (lambda _msg: None))
+    report = progress_callback(progress, "probing", "cells")
+    cells = _ProbeCells(spec, inputs, settings, report)
+    # a bar is wiped however the probe ends
+    with report if isinstance(report, Progress) else contextlib.nullcontext():
+        if sizes is not None:
+            ns = _fixed_sizes(sizes, inputs)
+            max_n = max(ns)
+            df = cells.run({n: settings.repeats for n in ns})
+            h = fit_probe(df, max_n)
+        else:
+            df, h = _adaptive_design(cells, inputs.n_features, settings.repeats, max_n)
     return probe_estimate(df, h, max_n, capped_by_rows, inputs, settings)
 
 
 class _ProbeCells:
-    """Runs design rounds of probe cells and keeps every finished cell."""
+    """Runs design rounds of probe cells, keeps every finished cell and reports each one
+    to ``report`` (``(done, total, cell, extra=...)`` events, or None)."""
 
-    def __init__(self, spec, inputs: ProbeInputs, settings: ProbeSettings):
+    def __init__(self, spec, inputs: ProbeInputs, settings: ProbeSettings, report=None):
         self.spec, self.inputs, self.settings = spec, inputs, settings
+        self.report = report or (lambda done, total, cell, extra=None: None)
         self.done: list[dict] = []
         self.round = 0
+        self.note: dict = {}  # shown after the count: the round, the estimate so far
 
-    def run(self, design: dict[int, int]) -> pd.DataFrame:
-        """Run ``repeats`` cells per half-size n of ``design``; all cells so far as a table."""
+    def run(self, design: dict[int, int], later: int = 0) -> pd.DataFrame:
+        """Run ``repeats`` cells per half-size n of ``design``; all cells so far as a table.
+        ``later``: cells expected in rounds not planned yet (counted in the progress total)."""
         from curvefit.measuring.parallel import run_tasks
 
         self.round += 1
@@ -193,9 +207,16 @@ class _ProbeCells:
         tasks = [(_probe_cell, (self.spec, self.inputs.pool, self.inputs.n_features, n,
                                (seed, rnd, n, r), (rnd, n, r)), {})
                  for n, k in sorted(design.items()) for r in range(k)]
-        results = run_tasks(tasks, n_jobs=s.n_jobs, backend=s.backend, scheduler=s.scheduler)
+        total = len(self.done) + len(tasks) + later
+        self.report(len(self.done), total, None, extra=self.note)
+        finished = []
+        for result in run_tasks(tasks, n_jobs=s.n_jobs, backend=s.backend, scheduler=s.scheduler):
+            finished.append(result)
+            self.report(len(self.done) + len(finished), total,
+                        {k: result[k] for k in ("n", "xi", "status")} | {"round": rnd},
+                        extra=self.note)
         # Completion order differs between backends; sort by key for identical numbers.
-        self.done.extend(sorted(results, key=lambda r: r["key"]))
+        self.done.extend(sorted(finished, key=lambda r: r["key"]))
         df = pd.DataFrame(self.done)
         if not (df["status"] == "ok").any():
             first = df.loc[df["status"] != "ok", "message"].iloc[0]
@@ -213,12 +234,14 @@ def _fixed_sizes(sizes, inputs: ProbeInputs) -> list[int]:
     return ns
 
 
-def _adaptive_design(cells: _ProbeCells, d: int, repeats: int, max_n: int, say):
+def _adaptive_design(cells: _ProbeCells, d: int, repeats: int, max_n: int):
     """Two rounds: n spread over τ around a guess of h (widened while ξ stays high), then
     refined around the first estimate with repeats where ξ is noisiest. ``(cells, h)``."""
     r1 = max(3, repeats // 3)
+    second = repeats * ROUND2_POINTS  # about the second round's cells, for the progress total
     h_guess = float(d + 1)
-    df = cells.run({n: r1 for n in _design_sizes(h_guess, ROUND1_TAUS, max_n)})
+    cells.note = {"round": "1 of 2"}
+    df = cells.run({n: r1 for n in _design_sizes(h_guess, ROUND1_TAUS, max_n)}, later=second)
     h = fit_probe(df, max_n)
     # Widen while ξ is still high at the largest n tried (the fit is not inside the design).
     while int(df["n"].max()) < max_n and h > df["n"].max() / 2.0:
@@ -226,13 +249,12 @@ def _adaptive_design(cells: _ProbeCells, d: int, repeats: int, max_n: int, say):
         new = {n: r1 for n in _design_sizes(h_guess, ROUND1_TAUS, max_n) if n > df["n"].max()}
         if not new:
             break
-        df = cells.run(new)
+        df = cells.run(new, later=second)
         h = fit_probe(df, max_n)
-    say(f"probe round 1: {len(df)} cells, h ≈ {format_capacity(h)}")
+    cells.note = {"round": "2 of 2", "h so far": f"≈ {format_capacity(h)}"}
     ns2 = _design_sizes(h, np.geomspace(0.5, 30.0, ROUND2_POINTS), max_n)
     df = cells.run(dict(zip(ns2, _allocate(df, ns2, repeats))))
     h = fit_probe(df, max_n)
-    say(f"probe round 2: {len(df)} cells, h ≈ {format_capacity(h)}")
     return df, h
 
 

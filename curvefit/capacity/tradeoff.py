@@ -11,6 +11,7 @@ on a VC axis by the max-deviation probe (:mod:`curvefit.capacity.probe`).
 from __future__ import annotations
 
 import ast
+import contextlib
 import math
 from dataclasses import dataclass, field
 from typing import Any
@@ -22,6 +23,7 @@ from curvefit.capacity.probe import ProbeSettings, probe_inputs, run_probe
 from curvefit.core.defaults import SEED
 from curvefit.core.errors import InputError
 from curvefit.core.jsonio import jsonable
+from curvefit.core.progress import Progress, progress_callback
 
 TABLE_COLUMNS = ["param", "value", "size", "n_repeats", "n_failed", "train_mean", "train_sem",
                  "test_mean", "test_sem", "gap_mean"]
@@ -204,7 +206,7 @@ def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: 
              n_jobs: int = 1, backend: str = "local", scheduler: str | None = None,
              test_size: float = 0.25, metric: str = "error", probe: bool = False,
              probe_repeats: int = 6, probe_max_n: int = 1000, timeout: float | None = None,
-             progress=None) -> Tradeoff:
+             progress=False) -> Tradeoff:
     """Train and test error against one complexity parameter at several sample sizes.
 
     Every value is measured with the same seed, hence on the same splits and
@@ -233,8 +235,12 @@ def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: 
         Also probe each setting's effective VC dimension (numeric features only).
     probe_repeats, probe_max_n
         Probe budget per setting.
-    progress : callable, optional
-        Called with one line of text per value.
+    progress : bool or callable
+        ``True`` shows progress on stderr (`curvefit.core.progress.Progress`: a bar on a
+        terminal, plain lines in a log). A callable is called as ``progress(done, total,
+        item)`` with the cells of every setting in one count (``item``: the setting's
+        ``value`` and ``part``, ``"measure"`` or ``"probe"``); the cells of a part not
+        started yet are counted as many as the same part of the setting before.
 
     Returns
     -------
@@ -266,7 +272,8 @@ def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: 
     sizes = [int(s) for s in sizes]
     base = as_model_spec(model, timeout=timeout)  # the one conversion; every setting is a copy of it
     specs = [setting_spec(base, param, value) for value in values]  # bad values fail before work
-    say = progress or (lambda _m: None)
+    report = progress_callback(progress, "trade-off", "cells")
+    tally = _Tally(report, len(values), probe)
     inputs = settings = None
     if probe:
         # Check the probe's inputs and budget before any measuring, so bad ones fail at once.
@@ -276,22 +283,25 @@ def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: 
                                  bootstrap=PROBE_BOOTSTRAP, random_state=random_state,
                                  n_jobs=n_jobs, backend=backend, scheduler=scheduler)
     rows, capacities, failed_total, resolved = [], {}, 0, {}
-    for value, label, spec in zip(values, labels, specs):
-        curve = measure(spec, X, y, sizes=sizes, repeats=repeats, test_size=test_size,
-                        metric=metric, n_jobs=n_jobs, backend=backend, scheduler=scheduler,
-                        random_state=random_state, timeout=timeout)
-        failed_total += len(curve.failed_points())
-        # the loss the runner resolved ("error" on a numeric target is MSE) and its label
-        resolved = {"metric": curve.metric, "metric_info": curve.metric_info}
-        value_rows = _size_rows(param, value, curve, sizes)
-        if probe:
-            est = run_probe(spec, inputs, settings)
-            capacities[label] = est.to_dict()
-            for row in value_rows:
-                row.update({"capacity": est.vc_dim, "capacity_low": est.low,
-                            "capacity_high": est.high, "capacity_above_range": est.above_range})
-        rows += value_rows
-        say(f"{param}={label}: measured {len(sizes)} sizes")
+    # a bar is wiped however the work ends
+    with report if isinstance(report, Progress) else contextlib.nullcontext():
+        for value, label, spec in zip(values, labels, specs):
+            curve = measure(spec, X, y, sizes=sizes, repeats=repeats, test_size=test_size,
+                            metric=metric, n_jobs=n_jobs, backend=backend, scheduler=scheduler,
+                            random_state=random_state, timeout=timeout,
+                            progress=tally.part(value, f"{param}={label}", "measure"))
+            failed_total += len(curve.failed_points())
+            # the loss the runner resolved ("error" on a numeric target is MSE) and its label
+            resolved = {"metric": curve.metric, "metric_info": curve.metric_info}
+            value_rows = _size_rows(param, value, curve, sizes)
+            if probe:
+                est = run_probe(spec, inputs, settings,
+                                progress=tally.part(value, f"{param}={label}", "probe"))
+                capacities[label] = est.to_dict()
+                for row in value_rows:
+                    row.update({"capacity": est.vc_dim, "capacity_low": est.low,
+                                "capacity_high": est.high, "capacity_above_range": est.above_range})
+            rows += value_rows
     cols = TABLE_COLUMNS + (CAPACITY_COLUMNS if probe else [])
     table = pd.DataFrame(rows, columns=cols)
     # Object dtype keeps ints as ints and None as None (pandas would make them floats/NaN).
@@ -304,6 +314,46 @@ def tradeoff(model, X, y, *, vary: dict, sizes, repeats: int = 3, random_state: 
     return Tradeoff(table=table, param=str(param), values=values,
                     metric=str(resolved.get("metric", metric)),
                     capacities=capacities, meta=meta)
+
+
+class _Tally:
+    """The cells of a trade-off in one count: each setting's measuring and probe cells.
+
+    Each part (a setting's measurement, its probe) reports its own ``(done, total)``;
+    a part not started yet counts as many cells as the last part of its kind, so the
+    total is an estimate until the last setting starts and the count reaches its end
+    only when the last part ends.
+    """
+
+    def __init__(self, report, n_settings: int, probe: bool):
+        self.report = report
+        self.kinds = ("measure", "probe") if probe else ("measure",)
+        self.expected = n_settings * len(self.kinds)
+        self.parts: list[list[int]] = []          # [done, total] of each part started
+        self.latest: dict[str, int] = {}          # the last total seen per kind
+
+    def part(self, value, setting: str, kind: str):
+        """The progress callable of one part (``None`` when nothing is reported)."""
+        if self.report is None:
+            return None
+        counts = [0, 0]
+        self.parts.append(counts)
+
+        def update(done: int, total: int, item=None) -> None:
+            counts[0], counts[1] = done, total
+            self.latest[kind] = total
+            self._emit({"value": value, "part": kind},
+                       setting + (", capacity probe" if kind == "probe" else ""))
+        return update
+
+    def _emit(self, item: dict, note: str) -> None:
+        done = sum(c[0] for c in self.parts)
+        total = sum(c[1] for c in self.parts)
+        # the parts not started yet: each setting left has one part of every kind
+        left = self.expected - len(self.parts)
+        total += sum(self.latest.get(self.kinds[(len(self.parts) + i) % len(self.kinds)], 0)
+                     for i in range(left))
+        self.report(done, max(total, done), item, extra=note)
 
 
 def _checked_vary(vary) -> tuple[str, list, list[str]]:

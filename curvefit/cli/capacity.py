@@ -18,8 +18,8 @@ from typing import List, Optional
 import typer
 
 from curvefit.cli.common import (
+    QUIET_HELP,
     emit_json,
-    err,
     interval_option,
     level_alias,
     out,
@@ -164,7 +164,7 @@ def register(app: typer.Typer) -> None:
         backend: str = typer.Option("local", "--backend", help="local or dask."),
         scheduler: Optional[str] = typer.Option(None, "--scheduler", help="Dask scheduler address."),
         seed: int = typer.Option(SEED, "--seed", help="Random seed."),
-        quiet: bool = typer.Option(False, "--quiet", help="No progress on stderr."),
+        quiet: bool = typer.Option(False, "--quiet", help=QUIET_HELP),
         json_out: bool = typer.Option(False, "--json", help="Print the estimate as JSON only."),
         out_file: Optional[str] = typer.Option(None, "--out",
                                                help="Also save the estimate as JSON (for curvefit report "
@@ -181,13 +181,12 @@ def register(app: typer.Typer) -> None:
         if bootstrap is not None:
             settings["bootstrap"] = bootstrap
         if probe:
-            show = not (quiet or json_out)
             if with_probe:
                 raise InputError("--with-probe belongs to the gap model; drop it or --probe")
             est = _run_probe(source, model, command, timeout, param, target, features, n_features,
                              sizes,
                              dict(settings, n_jobs=jobs, backend=backend, scheduler=scheduler,
-                                  progress=(lambda m: err.print(m, markup=False)) if show else None,
+                                  progress=not (quiet or json_out),
                                   **{k: v for k, v in (("repeats", repeats), ("max_n", max_n))
                                      if v is not None}))
             metric = "error"

@@ -7,7 +7,7 @@ from typing import List, Optional
 
 import typer
 
-from curvefit.cli.common import emit_json, err, out, print_table
+from curvefit.cli.common import QUIET_HELP, emit_json, out, print_table, warn
 from curvefit.core.defaults import SEED
 from curvefit.core.errors import InputError
 from curvefit.core.formatting import format_capacity, format_error, metric_name, quantity_name
@@ -77,7 +77,7 @@ def register(app: typer.Typer) -> None:
         backend: str = typer.Option("local", "--backend", help="local or dask."),
         scheduler: Optional[str] = typer.Option(None, "--scheduler", help="Dask scheduler address."),
         seed: int = typer.Option(SEED, "--seed", help="Random seed."),
-        quiet: bool = typer.Option(False, "--quiet", help="No progress on stderr."),
+        quiet: bool = typer.Option(False, "--quiet", help=QUIET_HELP),
         json_out: bool = typer.Option(False, "--json", help="Print the result as JSON only."),
         out_file: Optional[str] = typer.Option(None, "--out",
                                                help="Also save the result as JSON (for curvefit report "
@@ -119,12 +119,11 @@ def register(app: typer.Typer) -> None:
         df = cfdata.load_table(data)
         feats = [f.strip() for f in features.split(",") if f.strip()] if features else None
         ds = cfdata.prepare(df, target, feats)
-        show = not (quiet or json_out)
         tr = tradeoff(spec, ds.X, ds.y, vary=varied, sizes=[int(s) for s in size_list],
                       repeats=repeats, random_state=seed, n_jobs=jobs, backend=backend,
                       scheduler=scheduler, test_size=test_fraction, metric=metric,
                       probe=probe, timeout=timeout,
-                      progress=(lambda m: err.print(m, markup=False)) if show else None)
+                      progress=not (quiet or json_out))
         if out_file:
             write_json(out_file, tr.to_dict(), what="trade-off file")
         if json_out:
@@ -134,7 +133,6 @@ def register(app: typer.Typer) -> None:
             if out_file:
                 out.print(f"wrote {out_file}", markup=False)
         if tr.meta.get("failed_cells"):
-            if not json_out:
-                err.print(f"{tr.meta['failed_cells']} fit(s) failed and were left out "
-                          "(recorded in the table's failed column)", markup=False)
+            warn(f"{tr.meta['failed_cells']} fit(s) failed and were left out "
+                 "(recorded in the table's failed column)", quiet)
             raise typer.Exit(3)
