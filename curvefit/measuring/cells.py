@@ -49,6 +49,53 @@ class CellData:
     encoder_steps: tuple | None = None
     # "classification" or "regression": what the constant predictor predicts
     task: str = "classification"
+    # the column names when `build` stored DataFrames of one numeric dtype as row-major
+    # arrays: a cell then gathers its rows from the array and wraps them in a DataFrame
+    columns: tuple | None = None
+
+    @classmethod
+    def build(cls, X, y, X_test, y_test, encode: str, encoder_steps: tuple | None,
+              task: str) -> "CellData":
+        """The run's cell data. Tables whose columns share one numeric dtype (with the
+        default row index) are kept as one row-major array: a cell's subsample is then a
+        gather of whole rows (not a gather per column) and reaches the model as a
+        DataFrame over that array, with the same names, dtypes and values as before,
+        which scikit-learn converts to an array without a copy."""
+        rows = _row_major(X)
+        test_rows = rows if X_test is X else _row_major(X_test)
+        if rows is None or test_rows is None:
+            return cls(X, y, X_test, y_test, encode, encoder_steps, task)
+        return cls(rows, y, test_rows, y_test, encode, encoder_steps, task,
+                   columns=tuple(X.columns))
+
+    def frame(self):
+        """The training table as the model sees it (a DataFrame when it was one)."""
+        if self.columns is None:
+            return self.X
+        return pd.DataFrame(self.X, columns=list(self.columns), copy=False)
+
+    def take(self, table, idx):
+        """Rows ``idx`` of ``table`` (``X`` or ``X_test``), as a DataFrame when it was one."""
+        if self.columns is None:
+            return _take(table, idx)
+        return pd.DataFrame(table[idx], columns=list(self.columns), index=pd.Index(idx), copy=False)
+
+
+def _row_major(table) -> np.ndarray | None:
+    """A DataFrame of one numeric dtype with the index 0..n-1 as a (rows x columns)
+    C-ordered array (one copy, filled column by column); None for any other table."""
+    if not isinstance(table, pd.DataFrame) or table.shape[1] == 0:
+        return None
+    dtypes = set(table.dtypes)
+    dtype = next(iter(dtypes))
+    if len(dtypes) != 1 or not isinstance(dtype, np.dtype) or dtype.kind not in "iuf":
+        return None
+    if not table.index.equals(pd.RangeIndex(len(table))):
+        return None
+    out = np.empty(table.shape, dtype=dtype)
+    for j in range(table.shape[1]):
+        out[:, j] = table.iloc[:, j].to_numpy()
+    return out
 
 
 def encoder_steps(wrapped, probe) -> tuple | None:
@@ -66,7 +113,7 @@ def _encoded(est, data: CellData):
     if data.encoder_steps is None:
         from curvefit.measuring.models import with_encoding
 
-        return with_encoding(est, data.X, data.encode)[0]
+        return with_encoding(est, data.frame(), data.encode)[0]
     if not data.encoder_steps:
         return est
     from sklearn.base import clone
@@ -156,8 +203,8 @@ def run_cell(data: CellData, spec, metric: Metric, cell: dict) -> dict:
     timeout = cell.pop("timeout")
     result = dict(cell, train_error=math.nan, test_error=math.nan, n_test=len(test_idx),
                   n_test_errors=math.nan, fit_seconds=math.nan, status="ok", message="")
-    X_tr, y_tr = _take(data.X, train_idx), data.y[train_idx]
-    X_te, y_te = _take(data.X_test, test_idx), data.y_test[test_idx]
+    X_tr, y_tr = data.take(data.X, train_idx), data.y[train_idx]
+    X_te, y_te = data.take(data.X_test, test_idx), data.y_test[test_idx]
     # outside the timed fit: the constant predictor sees the same rows, not the features
     result["baseline_error"] = constant_loss(metric, y_tr, y_te, data.task)
     start = time.perf_counter()

@@ -665,8 +665,7 @@ def prepare(df: pd.DataFrame, target: str, features=None, *, drop=(),
     columns = [str(c) for c in df.columns]
     if len(set(columns)) != len(columns):
         raise InputError("the table has duplicate column names; rename them")
-    df = df.copy()
-    df.columns = columns
+    df = df.set_axis(columns, axis=1)  # the caller's frame keeps its names; no copy of the data
     target = str(target)
     if target not in columns:
         raise InputError(f"target column {target!r} not in the table; available columns: "

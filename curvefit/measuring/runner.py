@@ -254,9 +254,9 @@ def plan_measure(model, X, y, *, sizes: Sequence[int] | None = None, repeats: in
         splitter=splitter, goal=goal, precision=precision, budget=budget)
     grid = [(s, r) for r in range(settings.repeats) for s in split.sizes]
     cells = grid if adaptive is None else sorted(adaptive.first_pass(), key=lambda k: (k[1], k[0]))
-    data = CellData(inputs.X, inputs.y, inputs.X if inputs.X_test is None else inputs.X_test,
-                    inputs.y if inputs.y_test is None else inputs.y_test, settings.encode,
-                    inputs.encoder_steps, inputs.task)
+    data = CellData.build(inputs.X, inputs.y, inputs.X if inputs.X_test is None else inputs.X_test,
+                          inputs.y if inputs.y_test is None else inputs.y_test, settings.encode,
+                          inputs.encoder_steps, inputs.task)
     pilot = [(s, 0) for s in pilot_sizes(split.sizes)]
     # an untimed warm-up fit first: a process's first fit pays for imports and caches
     run_cells(data, spec, inputs.metric, _plan_cells([(split.sizes[0], 0)], split, spec, settings))
@@ -612,9 +612,9 @@ class CellRunner:
         self.eta = Eta(worker_count(settings.n_jobs) if settings.backend == "local"
                        else max(1, settings.n_jobs))
         self.prediction: dict = {}
-        self._data = CellData(inputs.X, inputs.y, inputs.X if inputs.X_test is None else inputs.X_test,
-                              inputs.y if inputs.y_test is None else inputs.y_test, settings.encode,
-                              inputs.encoder_steps, inputs.task)
+        self._data = CellData.build(inputs.X, inputs.y, inputs.X if inputs.X_test is None else inputs.X_test,
+                                    inputs.y if inputs.y_test is None else inputs.y_test, settings.encode,
+                                    inputs.encoder_steps, inputs.task)
 
     def keep_only(self, keys) -> None:
         """Forget journal cells that are not among ``keys`` (a plan changed since)."""
