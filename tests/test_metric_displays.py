@@ -46,7 +46,7 @@ def test_every_regression_display_says_test_mse_never_test_error(diabetes_fit):
     plan = plan_rounds(curve, test_error=3500, label_cost=1.0, penalty=10_000.0, fit=fit)
     capacity = cf.effective_capacity(curve)
     shown = {
-        "curve": _text(curve._repr_html_()), "fit": _text(fit._repr_html_()),
+        "curve": _text(curve._repr_html_()) + repr(curve), "fit": _text(fit._repr_html_()) + repr(fit),
         "answer": _text(answer._repr_html_()) + repr(answer),
         "gap answer": _text(gap._repr_html_()) + repr(gap),
         "trade-off": _text(trade._repr_html_()) + repr(trade),
@@ -55,6 +55,7 @@ def test_every_regression_display_says_test_mse_never_test_error(diabetes_fit):
     }
     for name, text in shown.items():
         assert "test error" not in text, (name, text)
+        assert not re.search(r"\d[eE][+-]?\d", text), (name, text)   # never e-notation
     assert "target test MSE 3,000" in shown["answer"]          # the metric's units, separators
     assert "target generalization gap 500" in shown["gap answer"]
     assert "Curve fit on the test MSE" in shown["fit"]

@@ -608,7 +608,8 @@ class CurveFit:
         d = self._state.data
         span = f"{d.m} sizes {d.sizes.min():,.0f}–{d.n_max:,.0f}" if d.m else "no sizes"
         asym = self.asymptote()
-        tail = f", asymptote {asym.estimate:.4g}" if asym is not None and math.isfinite(asym.estimate) else ""
+        tail = (f", asymptote {format_error(asym.estimate, self.curve.metric)}"
+                if asym is not None and math.isfinite(asym.estimate) else "")
         return (f"CurveFit(on={self.on!r}, best={self.best!r}, runner_up={self.runner_up!r}, "
                 f"{span}{tail}, {len(self.warnings)} warnings)")
 
