@@ -225,7 +225,7 @@ def run_slice_measure(opts: dict, column: str) -> int:
     return 0
 
 
-def _pairs(text: str | None, option: str) -> dict | None:
+def parse_pairs(text: str | None, option: str) -> dict | None:
     """``a=1,b=2`` as ``{"a": 1.0, "b": 2.0}``."""
     if text is None:
         return None
@@ -246,8 +246,8 @@ def plan_slice_budget(slices, budget, label_cost, slice_costs, slice_errors, *, 
                       families, bootstrap, weights, seed, quiet):
     from curvefit.fitting.rounds import plan_slices
 
-    costs = _pairs(slice_costs, "--slice-costs")
-    targets = _pairs(slice_errors, "--slice-errors")
+    costs = parse_pairs(slice_costs, "--slice-costs")
+    targets = parse_pairs(slice_errors, "--slice-errors")
     if costs is not None and label_cost is not None:
         raise InputError("give --label-cost (one price) or --slice-costs (per slice), not both")
     if (budget is None) == (targets is None):

@@ -45,6 +45,8 @@ N_QUANTILES = 100
 # Points of the size grid on which each band quantile is searched for the target.
 GRID_POINTS = 400
 MAX_ROUNDS = 20
+# How each strategy is named to a reader (the terminal and the report).
+STRATEGY_TITLES = {"rounds": "rounds", "one-shot": "one purchase", "upper-end": "upper end at once"}
 
 
 @dataclass(frozen=True)
@@ -77,6 +79,11 @@ class Strategy:
     reach_probability: float
     expected_rounds: float
     expected_labels: float
+
+    @property
+    def title(self) -> str:
+        """The strategy's name for a reader (``"one purchase"``)."""
+        return STRATEGY_TITLES.get(self.name, self.name)
 
     def to_dict(self) -> dict:
         return {"name": self.name, "totals": list(self.totals),
@@ -170,6 +177,13 @@ class RoundPlan:
             f"a miss costs the penalty of {format_money(self.penalty)}." if self.penalty is not None
             else f"the plan reaches the target with probability {plan.reach_probability:.0%}."))
         return lines
+
+    def cost_ratios(self) -> dict:
+        """Expected cost of the rounds plan over each alternative's (``name -> ratio``)."""
+        if self.rounds is None:
+            return {}
+        return {s.name: self.rounds.expected_cost / s.expected_cost
+                for s in (self.one_shot, self.upper_end) if s is not None and s.expected_cost > 0}
 
     def _quantity(self) -> str:
         if self.kind == "gap":
@@ -342,7 +356,8 @@ def replay(name: str, totals, draws, *, current_n: float, label_cost: float, rou
 
 
 # ----------------------------------------------------------------------- the API
-def _check_plan(label_cost, round_cost, penalty, probability, max_rounds, interval):
+def check_plan_settings(label_cost, round_cost, penalty, probability, max_rounds, interval):
+    """The settings of a plan in rounds, checked (one check for `plan_rounds` and the report)."""
     label_cost = check_positive(label_cost, "label_cost")
     round_cost = check_positive(round_cost, "round_cost", allow_zero=True)
     if (penalty is None) == (probability is None):
@@ -413,7 +428,7 @@ def plan_rounds(curve, *, test_error=None, gap=None, label_cost, round_cost=0.0,
     """
     from curvefit.fitting.engine import fit_curve
 
-    label_cost, round_cost, penalty, probability, max_rounds, level = _check_plan(
+    label_cost, round_cost, penalty, probability, max_rounds, level = check_plan_settings(
         label_cost, round_cost, penalty, probability, max_rounds, interval)
     if (test_error is None) == (gap is None):
         raise InputError("give exactly one target: test_error=E or gap=G")
@@ -480,6 +495,8 @@ class BudgetSplit:
     targets : dict or None
         Per-slice targets, when the split reaches targets instead of spending a budget.
     notes : list of str
+    fits : dict
+        ``slice -> CurveFit`` the split was read from (not written by `to_dict`).
     """
 
     table: object
@@ -489,6 +506,7 @@ class BudgetSplit:
     level: float
     targets: dict | None = None
     notes: list = field(default_factory=list)
+    fits: dict = field(default_factory=dict, repr=False, compare=False)
 
     def to_dict(self) -> dict:
         return {"format": "curvefit.split/1", "budget": self.budget, "level": self.level,
@@ -611,7 +629,7 @@ def split_budget(fits: dict, *, shares: dict, current: dict, label_costs, budget
                        overall_after=_overall(after_rows, level),
                        budget=float(budget) if budget is not None else spent, level=level,
                        targets=None if targets is None else {str(k): v for k, v in targets.items()},
-                       notes=notes)
+                       notes=notes, fits=dict(fits))
 
 
 def _plain_value(value):
@@ -679,4 +697,4 @@ def plan_slices(slices, *, budget=None, targets: dict | None = None, label_costs
         notes.append("the overall error covers the measured slices only, weighted by their rows")
     return BudgetSplit(table=split.table, overall_now=split.overall_now,
                        overall_after=split.overall_after, budget=split.budget, level=split.level,
-                       targets=split.targets, notes=notes + split.notes)
+                       targets=split.targets, notes=notes + split.notes, fits=split.fits)

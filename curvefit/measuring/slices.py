@@ -166,7 +166,8 @@ def slice_sizes(n_train: int, smallest: int, count: int = SLICE_SIZES) -> list[i
 def measure_slices(model, X, y, slices, *, column: str = "slice", repeats: int = REPEATS,
                    test_size: float = TEST_FRACTION, metric: str = "error", n_jobs: int = 1,
                    random_state=SEED, min_rows: int = MIN_ROWS, progress=False,
-                   journal_dir=None, resume: bool = False) -> SliceCurves:
+                   journal_dir=None, resume: bool = False,
+                   n_sizes: int = SLICE_SIZES) -> SliceCurves:
     """Measure one learning curve per slice (value of ``slices``), the others held whole.
 
     Parameters
@@ -184,6 +185,8 @@ def measure_slices(model, X, y, slices, *, column: str = "slice", repeats: int =
         A folder for one journal per slice (``slice-<k>.journal``, crash-safe cells).
     resume : bool
         Skip the cells already in those journals.
+    n_sizes : int
+        Sizes measured per slice (geometric, up to all its training rows; at least 3).
 
     Returns
     -------
@@ -203,6 +206,7 @@ def measure_slices(model, X, y, slices, *, column: str = "slice", repeats: int =
     if len(codes) and any(v is None or (isinstance(v, float) and math.isnan(v)) for v in codes.tolist()):
         raise InputError(f"the {column} column has missing values; fill them or drop those rows")
     repeats = check_count(repeats, "repeats", minimum=1)
+    n_sizes = check_count(n_sizes, "sizes", minimum=3)
     seed = check_seed(random_state)
     seed = SEED if seed is None else int(seed)
     values = sorted(set(codes.tolist()), key=str)
@@ -223,7 +227,7 @@ def measure_slices(model, X, y, slices, *, column: str = "slice", repeats: int =
                           f"training and {MIN_TEST_ROWS} test rows")
             continue
         other = splitter.other_rows(seed)
-        own = slice_sizes(len(train), max(5, min(min_rows, len(train)) // 2))
+        own = slice_sizes(len(train), max(5, min(min_rows, len(train)) // 2), n_sizes)
         journal = None
         if journal_dir is not None:
             Path(journal_dir).mkdir(parents=True, exist_ok=True)

@@ -1,7 +1,8 @@
 """The HTML report: one self-contained file a practitioner reads top to bottom.
 
 Layout, in order: the answer (how many labelled samples reach the target, or why the
-target is out of reach), the learning curves, the family ranking, capacity, the
+target is out of reach), the learning curves, what to buy (a plan in rounds and a
+budget split across slices, when given), the family ranking, capacity, the
 complexity trade-off, worst-case bounds against the measured answer, cautions, and the
 run metadata. Figures are embedded as base64 PNG data URIs and the CSS is inline, so
 the file needs no network, no script and no font from anywhere; `write_report` also
@@ -630,6 +631,117 @@ def _worst_case_section(page: _Page) -> str | None:
                                 "learning curve (with its interval).")])
 
 
+BUYING_CAUTION = ("These are statistical estimates read from the fitted learning curves and "
+                  "their intervals at the stated level, not guarantees. They hold while new "
+                  "labels come from the same population and the model stays the same; "
+                  "re-measure after each round and plan again.")
+
+
+def _buying_section(page: _Page, buying: Any) -> str | None:
+    """What to buy: the plan in rounds and the split across slices, as they were handed in."""
+    if buying is None:
+        return None
+    body = [f'<p class="note">{esc(BUYING_CAUTION)}</p>']
+    if getattr(buying, "rounds", None) is not None:
+        body.append(_rounds_block(buying.rounds, buying.model))
+    if getattr(buying, "split", None) is not None:
+        body.append(_split_block(page, buying.split, buying.slices))
+    body += [f'<p class="note warn">{esc(n)}</p>' for n in dict.fromkeys(buying.notes)]
+    return "".join(body)
+
+
+def _rounds_block(plan: Any, model: str | None) -> str:
+    metric = plan.metric
+    terms = (f"a miss after the last round costs {format_money(plan.penalty)}"
+             if plan.penalty is not None
+             else f"the target must be reached with probability {plan.probability:.0%}")
+    head = (f"<h3>In rounds{f' ({esc(model)})' if model else ''}</h3>"
+            f"<p>To reach {esc(format_error(plan.target, metric))} "
+            f"{esc(quantity_name(plan.kind, metric))} from the "
+            f"{esc(format_count(plan.current_n))} labelled samples in hand: at most "
+            f"{plan.max_rounds} round{'s' if plan.max_rounds != 1 else ''}, "
+            f"{esc(format_money(plan.label_cost))} per label, "
+            f"{esc(format_money(plan.round_cost))} per round, and {esc(terms)}. "
+            "<strong>Labels to buy now: "
+            f"{esc(format_count(plan.buy_now))}</strong>.</p>")
+    rule = "<ul>" + "".join(f"<li>{esc(line)}</li>" for line in plan.rule()) + "</ul>"
+    level = format_level(plan.level)
+    rows = []
+    for s in (plan.rounds, plan.one_shot, plan.upper_end):
+        if s is None:
+            continue
+        rows.append({"strategy": s.title,
+                     "labels in all, by round": (" / ".join(format_count(t) for t in s.totals)
+                                                 or "nothing"),
+                     "expected cost": format_money(s.expected_cost),
+                     f"{level} interval of the cost": (f"{format_money(s.cost_low)}–"
+                                                          f"{format_money(s.cost_high)}"),
+                     "spread (sd)": format_money(s.cost_sd),
+                     "reaches the target": f"{s.reach_probability:.0%}",
+                     "rounds held": f"{s.expected_rounds:.1f}"})
+    table = html_table(pd.DataFrame(rows)) if rows else ""
+    ratios = plan.cost_ratios()
+    names = {"one-shot": plan.one_shot, "upper-end": plan.upper_end}
+    compare = ("<p>Expected cost of the plan in rounds: " + ", ".join(
+        f"{r:.2f}× {esc(names[k].title)}" for k, r in ratios.items()) + ".</p>") if ratios else ""
+    if plan.upper_end is None:
+        compare += ('<p class="small">The upper end at once is not priced: the interval of the '
+                    "samples needed has no upper end.</p>")
+    q = plan.to_dict()["samples_needed"]["quantiles"]
+    spread = ('<p class="small">Samples needed in all, as the forecast\'s band spreads them: '
+              + esc(", ".join(f"{float(k):.0%} quantile {format_count(v)}" for k, v in q.items()))
+              + ". Each strategy is replayed on these draws for its expected cost, spread and "
+              "chance of reaching the target.</p>")
+    return head + rule + table + compare + spread
+
+
+def _split_block(page: _Page, split: Any, slices: Any) -> str:
+    column = getattr(slices, "column", None) or "slice"
+    curves = getattr(slices, "curves", {}) or {}
+    first = next(iter(curves.values()), None)
+    metric = getattr(first, "metric", "error")
+    level = format_level(split.level)
+    if split.targets:
+        lead = (f"Labels to buy per {esc(column)} for its own target "
+                f"({esc(format_money(split.budget))} in all).")
+    else:
+        lead = (f"A budget of {esc(format_money(split.budget))} split across the values of "
+                f"{esc(column)}: each part of it goes where the fitted curve falls most per "
+                "unit of money, so the last labels bought in each slice that gets any buy the "
+                "same fall of the overall error.")
+    body = [f"<h3>Per slice ({esc(column)})</h3><p>{lead}</p>"]
+    if curves:
+        fig = plots.slice_curves_figure(curves, split.fits, split.table, interval=split.level,
+                                        column=column)
+        body.append(page.figure(
+            "slice-curves", fig, f"learning curves per {column} with the purchase marked",
+            f"One curve per {column}: that slice's training rows grow while the other slices "
+            f"keep all of theirs; the error is measured on that slice's test rows. Markers: "
+            f"mean over repeats (thick bar ± one standard error, thin capped bar: exact {level} "
+            f"interval of one repeat's test set); lines: the chosen family with its shaded "
+            f"{level} band, in the slice's own line style; large outlined marker: the error "
+            f"expected after the purchase, with its {level} interval."))
+    t = split.table
+    view = pd.DataFrame({
+        column: [str(v) for v in t["slice"]],
+        "share": [f"{v:.0%}" for v in t["share"]],
+        "rows now": [format_count(v) for v in t["rows_now"]],
+        "label cost": [format_money(v) for v in t["label_cost"]],
+        "buy": [format_count(v) if is_finite(v) else MISSING for v in t["labels"]],
+        "spend": [format_money(v) for v in t["spend"]],
+        "error now": [format_error(v, metric) for v in t["error_now"]],
+        "error after": [format_error(v, metric) for v in t["error_after"]],
+        f"{level} interval": [format_range(lo, hi, "error", metric)
+                              for lo, hi in zip(t["low"], t["high"])],
+    })
+    body.append(html_table(view))
+    for name, e in (("now", split.overall_now), ("after the purchase", split.overall_after)):
+        body.append(f"<p>Overall error {name}: <strong>{esc(format_error(e.estimate, metric))}"
+                    f"</strong> ({esc(format_interval(e.low, e.high, e.level, 'error', metric))}; "
+                    "the slices weighted by their shares of the rows).</p>")
+    return "".join(body)
+
+
 def _cautions_section(page: _Page) -> str:
     body = ['<ul class="caution">' + "".join(f"<li>{esc(c)}</li>" for c in CAUTIONS) + "</ul>"]
     for r in page.results:
@@ -694,7 +806,7 @@ def build_report(results: Any, *, target_error: float | None = None, probe: Any 
                  tradeoff: Any = None, purchase: pd.DataFrame | None = None,
                  purchase_note: str | None = None, title: str = "Learning-curve report",
                  interval: float = INTERVAL, figure_dir: str | os.PathLike | None = None,
-                 created: str | None = None) -> str:
+                 created: str | None = None, buying: Any = None) -> str:
     """Render the report as one self-contained HTML string.
 
     Parameters
@@ -717,6 +829,9 @@ def build_report(results: Any, *, target_error: float | None = None, probe: Any 
         When given, each figure is also written there as PNG and SVG.
     created : str, optional
         Timestamp to print (default: now, UTC).
+    buying : BuyingPlan, optional
+        A plan in rounds and a split across slices
+        (`curvefit.workflows.analysis.plan_buying`): adds the "What to buy" section.
 
     Returns
     -------
@@ -731,6 +846,7 @@ def build_report(results: Any, *, target_error: float | None = None, probe: Any 
     versions = _versions()
     sections = [("answer", "The answer", _answer_section(page, purchase, purchase_note)),
                 ("curves", "Learning curves", _curves_section(page)),
+                ("buying", "What to buy", _buying_section(page, buying)),
                 ("ranking", "Curve families", _ranking_section(page)),
                 ("capacity", "Capacity", _capacity_section(page, probe)),
                 ("tradeoff", "Complexity trade-off", _tradeoff_section(page, tradeoff)),

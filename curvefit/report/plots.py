@@ -360,7 +360,7 @@ def _draw_measured(ax, summ: pd.DataFrame, st: dict, label: str, show_train: boo
 
 
 def _draw_fit(ax, fit: Any, summ: pd.DataFrame, a: dict | None, st: dict, label: str,
-              interval: float, span: list) -> None:
+              interval: float, span: list, runner_up: bool = True, line: Any = "-") -> None:
     """The chosen family with its band and the runner-up, extrapolated to show the answer."""
     top = float(summ["size"].max())  # this model's own largest size, not the running max
     right = top * 4
@@ -382,9 +382,9 @@ def _draw_fit(ax, fit: Any, summ: pd.DataFrame, a: dict | None, st: dict, label:
         ax.fill_between(lines.size, lines.low, lines.high, where=band, color=st["color"],
                         alpha=0.14, linewidth=0, zorder=1,
                         label=f"{label}: {format_level(interval)} band ({name})")
-    ax.plot(lines.size, lines.estimate, color=st["color"], linewidth=1.8, linestyle="-",
+    ax.plot(lines.size, lines.estimate, color=st["color"], linewidth=1.8, linestyle=line,
             zorder=2, label=f"{label}: fit, {name}")
-    if lines.runner_up_estimate is not None:
+    if runner_up and lines.runner_up_estimate is not None:
         ax.plot(lines.size, lines.runner_up_estimate, color=st["color"], linewidth=1.1,
                 linestyle=(0, (5, 2)), alpha=0.9, zorder=2,
                 label=f"{label}: runner-up, {lines.runner_up}")
@@ -420,6 +420,80 @@ def _draw_answer(ax, a: dict, target_error: float, st: dict, i: int, span: list)
 
 
 _KIND_ORDER = ["test", "train", "constant", "measured", "fit", "runner-up", "VC", "power", "band"]
+
+
+@_styled
+def slice_curves_figure(curves: Any, fits: Any = None, split: Any = None, *,
+                        interval: float = INTERVAL, column: str | None = None,
+                        title: str | None = None, ax: Any = None) -> Figure:
+    """Each slice's learning curve, its fitted family with a band, and what a purchase buys.
+
+    Parameters
+    ----------
+    curves : dict value -> Curve
+        Per-slice curves (`curvefit.measuring.slices.SliceCurves.curves`); their sizes
+        count that slice's training rows.
+    fits : dict value -> CurveFit, optional
+        Each slice's fit; the chosen family is drawn in the slice's own line style with
+        its ``interval`` band.
+    split : pandas.DataFrame, optional
+        A budget split's table (``slice, rows_now, labels, error_after, low, high``):
+        the error expected after the purchase is marked at ``rows_now + labels`` with
+        its interval.
+    interval : float
+    column : str, optional
+        The slices' column, named on the x-axis.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    items = [(str(k), c) for k, c in as_items(curves)]
+    fig, ax = _new_axes(ax=ax)
+    rows = {}
+    if isinstance(split, pd.DataFrame) and len(split):
+        rows = {str(r["slice"]): r for _, r in split.iterrows()}
+    limit = axis_limit(dict(items))
+    span = [math.inf, 0.0, limit]
+    metric, info = None, None
+    for i, (label, curve) in enumerate(items):
+        summ = curve.summary(interval) if len(curve.ok_points()) else pd.DataFrame()
+        if not len(summ):
+            continue
+        metric, info = getattr(curve, "metric", None), getattr(curve, "metric_info", None)
+        st = style(i)
+        _draw_measured(ax, summ, st, label, False, span)
+        fit = _matching(fits, label, i) if fits is not None else None
+        if isinstance(fits, Mapping) and fit is None:  # keys may be numbers, labels are text
+            fit = next((f for k, f in fits.items() if str(k) == label), None)
+        if fit is not None:
+            _draw_fit(ax, fit, summ, None, st, label, interval, span, runner_up=False,
+                      line=st["linestyle"])
+        row = rows.get(label)
+        if row is not None and is_finite(row["labels"]) and float(row["labels"]) > 0:
+            at = float(row["rows_now"]) + float(row["labels"])
+            y, lo, hi = (float(row[k]) for k in ("error_after", "low", "high"))
+            ax.errorbar([at], [y], yerr=[[max(y - lo, 0.0)], [max(hi - y, 0.0)]],
+                        fmt=st["marker"], ms=10, mfc=st["color"], mec="black", mew=1.0,
+                        color=st["color"], elinewidth=1.4, capsize=4, zorder=6,
+                        label=f"{label}: after buying {format_count(row['labels'])}")
+            span[1] = max(span[1], at)
+    if not math.isfinite(span[0]):
+        ax.text(0.5, 0.5, "no slice curve to draw", transform=ax.transAxes,
+                ha="center", va="center", color=NEUTRAL)
+    else:
+        ax.set_xscale("log")
+        ax.set_xlim(span[0] / 1.25, span[1] * 1.25)
+        ax.xaxis.set_major_formatter(_count_formatter)
+        ax.xaxis.set_minor_formatter(FuncFormatter(lambda v, _p: ""))
+    what = f"{column} slice" if column else "slice"
+    ax.set_xlabel(f"labelled rows of that {what} (training, log scale); the other slices "
+                  "stay whole")
+    ax.set_ylabel(metric_label(metric, info=info) + " on that slice's test rows")
+    _value_axis(ax, metric)
+    ax.set_title(title or "Per-slice learning curves")
+    _legend_outside(ax)
+    return fig
 
 
 def _value_axis(ax, metric) -> None:

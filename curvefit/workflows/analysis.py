@@ -90,6 +90,41 @@ class ReportResult:
     path: Path
     figures: list
     results: list
+    buying: Any = None          # BuyingPlan, when the report has a "what to buy" section
+
+
+@dataclass
+class BuyingPlan:
+    """What to buy: a plan in rounds for one model and a budget split across slices.
+
+    Attributes
+    ----------
+    rounds : RoundPlan or None
+        `curvefit.fitting.rounds.plan_rounds` on ``model``'s fit (the report's first model:
+        the one that reaches the target with the fewest labels).
+    model : str or None
+        The label of the model the rounds plan is for.
+    split : BudgetSplit or None
+        `curvefit.fitting.rounds.plan_slices` on ``slices``; its ``fits`` are the slices'
+        curves.
+    slices : SliceCurves or None
+        The per-slice curves (``curvefit measure ... --slice COL``).
+    notes : list of str
+        Why a piece is missing, or what the plans warn about.
+    """
+
+    rounds: Any = None
+    model: str | None = None
+    split: Any = None
+    slices: Any = None
+    notes: list = field(default_factory=list)
+
+    def to_dict(self) -> dict:
+        return jsonable({"rounds": self.rounds.to_dict() if self.rounds is not None else None,
+                         "model": self.model,
+                         "split": self.split.to_dict() if self.split is not None else None,
+                         "slice_column": self.slices.column if self.slices is not None else None,
+                         "notes": list(self.notes)})
 
 
 def run_step(fn: Callable[[], Any], notes: list, what: str):
@@ -299,6 +334,119 @@ def worst_case(res: ModelResult, capacity: Any, target_error: float,
                      eps, delta, rows, eps_source=source, lower_bound=above)
 
 
+def check_buying(*, target_error=None, label_cost=None, round_cost=None, penalty=None,
+                 probability=None, max_rounds=None, slices=None, budget=None, slice_costs=None,
+                 slice_errors=None, interval: float = INTERVAL) -> dict | None:
+    """The settings of a "what to buy" section, checked before any fitting.
+
+    A plan in rounds is asked for by ``penalty`` or ``probability`` (and then needs
+    ``target_error`` and ``label_cost``); a budget split by ``slices`` (and then needs
+    ``budget`` or ``slice_errors``). Returns the checked settings, or None when neither
+    is asked for.
+    """
+    from curvefit.fitting.rounds import check_plan_settings
+
+    rounds = penalty is not None or probability is not None
+    if slices is None and any(v is not None for v in (budget, slice_costs, slice_errors)):
+        raise InputError("slices (the per-slice curves, from curvefit measure --slice) are "
+                         "needed by budget, slice_costs and slice_errors")
+    if not rounds and any(v is not None for v in (round_cost, max_rounds)):
+        raise InputError("round_cost and max_rounds shape a plan in rounds; give penalty (the "
+                         "cost of a miss) or probability (the chance of reaching the target)")
+    if not rounds and slices is None:
+        if label_cost is not None:
+            raise InputError("label_cost prices a plan: give penalty or probability for a plan "
+                             "in rounds, or slices for a split across slices")
+        return None
+    settings = {"slices": slices, "budget": budget, "targets": slice_errors, "rounds": None}
+    if rounds:
+        if target_error is None:
+            raise InputError("a plan in rounds needs target_error, the test error to reach")
+        if label_cost is None:
+            raise InputError("a plan in rounds needs label_cost, the price of one label")
+        cost, per_round, pen, prob, most, _ = check_plan_settings(
+            label_cost, 0.0 if round_cost is None else round_cost, penalty, probability,
+            3 if max_rounds is None else max_rounds, interval)
+        settings["rounds"] = dict(label_cost=cost, round_cost=per_round, penalty=pen,
+                                  probability=prob, max_rounds=most)
+    if slices is not None:
+        if (budget is None) == (slice_errors is None):
+            raise InputError("budget (money to split) or slice_errors (a target per slice), "
+                             "one of them, goes with per-slice curves")
+        if slice_costs is not None and label_cost is not None:
+            raise InputError("give label_cost (one price) or slice_costs (per slice), not both")
+        settings["label_costs"] = (slice_costs if slice_costs is not None else
+                                   label_cost if label_cost is not None else 1.0)
+    return settings
+
+
+def plan_buying(results: Sequence[ModelResult], *, target_error: float | None = None,
+                label_cost: float | None = None, round_cost: float | None = None,
+                penalty: float | None = None, probability: float | None = None,
+                max_rounds: int | None = None, slices: Any = None, budget: float | None = None,
+                slice_costs: dict | None = None, slice_errors: dict | None = None,
+                interval: float = INTERVAL, bootstrap: int = BOOTSTRAP,
+                random_state: int = SEED) -> BuyingPlan | None:
+    """What to buy: a plan in rounds for the first model, and a budget split across slices.
+
+    Parameters
+    ----------
+    results : list of ModelResult
+        From `analyse`; the plan in rounds is made on the fit of the model that reaches
+        ``target_error`` with the fewest labels (the report's first model).
+    target_error, label_cost, round_cost, penalty, probability, max_rounds
+        As for `curvefit.fitting.rounds.plan_rounds` (``penalty`` or ``probability``
+        asks for the plan; ``round_cost`` 0 and ``max_rounds`` 3 by default).
+    slices : SliceCurves, optional
+        Per-slice curves; with ``budget`` (money to split) or ``slice_errors``
+        (``slice -> target``), `curvefit.fitting.rounds.plan_slices` splits the purchase.
+    slice_costs : dict, optional
+        ``slice -> price of one label`` (else ``label_cost``, else 1 per label).
+    interval, bootstrap, random_state
+        Level of every interval; bootstrap replicates and seed of the slices' fits.
+
+    Returns
+    -------
+    BuyingPlan or None
+        None when neither a plan in rounds nor a split was asked for. A step that fails
+        leaves its field None and a note saying why.
+
+    References
+    ----------
+    .. [1] R. Mahmood et al., "Optimizing Data Collection for Machine Learning",
+           NeurIPS 2022 (rounds).
+    .. [2] K. H. Tae and S. E. Whang, "Slice Tuner", SIGMOD 2021 (per-slice acquisition).
+    """
+    from curvefit.fitting.rounds import plan_rounds, plan_slices
+    from curvefit.report.html import order_results
+
+    settings = check_buying(target_error=target_error, label_cost=label_cost,
+                            round_cost=round_cost, penalty=penalty, probability=probability,
+                            max_rounds=max_rounds, slices=slices, budget=budget,
+                            slice_costs=slice_costs, slice_errors=slice_errors, interval=interval)
+    if settings is None:
+        return None
+    plan = BuyingPlan(slices=slices)
+    if slices is not None:
+        plan.split = plan_slices(slices, budget=budget, targets=slice_errors,
+                                 label_costs=settings["label_costs"], interval=interval,
+                                 bootstrap=bootstrap, random_state=random_state)
+        plan.notes += [f"split: {n}" for n in plan.split.notes]
+    if settings["rounds"] is not None:
+        best = next((r for r in order_results(list(results)) if r.fit is not None), None)
+        if best is None:
+            plan.notes.append("plan in rounds: no model has a fitted curve")
+        else:
+            plan.model = best.label
+            plan.rounds = run_step(lambda: plan_rounds(best.curve, test_error=target_error,
+                                                       fit=best.fit, interval=interval,
+                                                       **settings["rounds"]),
+                                   plan.notes, "plan in rounds")
+            if plan.rounds is not None:
+                plan.notes += [f"plan in rounds: {n}" for n in plan.rounds.warnings]
+    return plan
+
+
 def result_summary(res: ModelResult) -> dict:
     """Plain JSON-ready headline of one model: chosen family, answer, capacity, the
     constant predictor and the sanity flags, notes."""
@@ -378,7 +526,8 @@ def report_runs(runs: Sequence[str | os.PathLike], out: str | os.PathLike = "rep
                 tradeoff: str | os.PathLike | None = None, title: str = "Learning-curve report",
                 bootstrap: int = BOOTSTRAP, random_state: int = SEED,
                 interval: float = INTERVAL,
-                progress: Callable[[str], None] | None = None) -> ReportResult:
+                progress: Callable[[str], None] | None = None,
+                buying: dict | None = None) -> ReportResult:
     """Read run files, analyse them and write the self-contained HTML report.
 
     Parameters
@@ -396,6 +545,9 @@ def report_runs(runs: Sequence[str | os.PathLike], out: str | os.PathLike = "rep
         Settings of every fit (same seed, same report).
     progress : callable, optional
         Receives one line of progress text.
+    buying : dict, optional
+        The keyword arguments of `plan_buying` for a "what to buy" section; its
+        ``slices`` may be the path of a per-slice file.
 
     Returns
     -------
@@ -409,13 +561,25 @@ def report_runs(runs: Sequence[str | os.PathLike], out: str | os.PathLike = "rep
     probe = read_probe(capacity) if capacity else None
     trade = read_tradeoff(tradeoff) if tradeoff else None
     check_fit_settings(interval, bootstrap, random_state)  # before the first progress line
+    buying = dict(buying or {})
+    if isinstance(buying.get("slices"), (str, os.PathLike)):
+        from curvefit.measuring.slices import SliceCurves
+
+        buying["slices"] = SliceCurves.read(buying["slices"])
+    check_buying(target_error=target_error, interval=interval, **buying)
     if progress is not None:
         progress(f"fitting {len(curves)} run(s) ...")
     results = analyse(curves, target_error=target_error, bootstrap=bootstrap,
                       random_state=random_state, interval=interval,
                       labels=run_labels(curves, runs), sources=[str(p) for p in runs],
                       probe=probe)
+    plan = None
+    if buying:
+        if progress is not None:
+            progress("planning what to buy ...")
+        plan = plan_buying(results, target_error=target_error, interval=interval,
+                           bootstrap=bootstrap, random_state=random_state, **buying)
     path = write_report(out, results, target_error=target_error, probe=probe, tradeoff=trade,
-                        title=title, interval=interval)
+                        title=title, interval=interval, buying=plan)
     figures = sorted(str(p) for p in figure_dir_for(path).glob("*"))
-    return ReportResult(path, figures, results)
+    return ReportResult(path, figures, results, plan)
