@@ -43,6 +43,7 @@ import subprocess
 import sys
 import tempfile
 import threading
+import time
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Callable
@@ -772,7 +773,7 @@ def _run_program(argv: list[str], fout, ferr, timeout: float | None, folder: Pat
     if folder is not None:
         _tell_watch("+", folder, proc.pid)
     try:
-        return proc.wait(timeout=timeout)
+        return _wait_then_clear_group(proc, timeout)
     except subprocess.TimeoutExpired:
         _kill_group(proc)
         raise CommandTimeout(f"trainer command timed out after {timeout:g} s (killed)") from None
@@ -783,6 +784,36 @@ def _run_program(argv: list[str], fout, ferr, timeout: float | None, folder: Pat
         _LIVE_TRAINERS.pop(proc.pid, None)
         if folder is not None:
             _tell_watch("+", folder, None)  # the group is gone; the folder until it is removed
+
+
+def _wait_then_clear_group(proc: subprocess.Popen, timeout: float | None) -> int:
+    """Wait for the trainer to end, then kill whatever is left in its process group (a
+    helper it started and did not stop, or one a process-tree kill missed) and reap it.
+
+    The trainer is reaped only after the kill: until then its id, which is the group's,
+    cannot be reused, so the kill reaches no one else.
+    """
+    if not hasattr(os, "waitid"):  # no wait-without-reaping here: reap, then clear
+        code = proc.wait(timeout=timeout)
+        with contextlib.suppress(OSError):
+            os.killpg(proc.pid, signal.SIGKILL)
+        return code
+    flags = os.WEXITED | os.WNOWAIT
+    try:
+        if timeout is None:
+            os.waitid(os.P_PID, proc.pid, flags)
+        else:
+            deadline, delay = time.monotonic() + timeout, 0.0005
+            while os.waitid(os.P_PID, proc.pid, flags | os.WNOHANG) is None:
+                if time.monotonic() > deadline:
+                    raise subprocess.TimeoutExpired(proc.args, timeout)
+                time.sleep(delay)
+                delay = min(2 * delay, 0.01)
+    except ChildProcessError:
+        pass  # already reaped elsewhere
+    with contextlib.suppress(OSError):
+        os.killpg(proc.pid, signal.SIGKILL)
+    return proc.wait()
 
 
 def stop_trainers() -> None:
