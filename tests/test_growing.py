@@ -174,6 +174,8 @@ def test_third_round_and_refusals():
         measure_grown(model, X[:100], y[:100], second)
     with pytest.raises(InputError, match="seed"):
         measure_grown(model, X, y, second, random_state=5)
+    with pytest.raises(InputError, match="had 4 features, this one 3"):
+        measure_grown(model, X[:, :3], y, second)
     with pytest.raises(InputError, match="another model"):
         measure_grown(DecisionTreeClassifier(max_depth=2), X, y, second)
     moved = np.r_[X[1:2], X[0:1], X[2:]]

@@ -271,6 +271,28 @@ def _check_same_run(previous: Curve, spec, settings: dict, split_description: di
                          "a grown run keeps the previous run's split and --test-fraction")
 
 
+def _check_same_columns(old: dict, meta: dict, features) -> None:
+    """The same target and feature columns as the previous run (the rows fingerprint
+    covers the whole table, not which columns the model reads)."""
+    names = meta.get("features")
+    if names is None and isinstance(features, pd.DataFrame):
+        names = [str(c) for c in features.columns]
+    for what, before, now in (("target", old.get("target"), meta.get("target")),
+                              ("features", old.get("features"), names)):
+        if before is not None and now is not None and before != now:
+            raise InputError(f"the previous run used the {what} {_listed(before)}, this one "
+                             f"{_listed(now)}; a grown run reads the same columns")
+    n_before = (old.get("data") or {}).get("n_features")
+    if n_before is not None and n_before != int(np.shape(features)[1]):
+        raise InputError(f"the previous run had {n_before} features, this one "
+                         f"{int(np.shape(features)[1])}; a grown run reads the same columns")
+
+
+def _listed(value) -> str:
+    return ", ".join(map(str, value[:8])) + (" ..." if len(value) > 8 else "") \
+        if isinstance(value, list) else repr(value)
+
+
 def _task_of(probe, y) -> str:
     from sklearn.base import is_classifier, is_regressor
 
@@ -354,6 +376,7 @@ def measure_grown(model, X, y, previous: Curve, *, reuse: bool = True, table=Non
     rounds = table_rounds(previous)
     # the features as the runner sees them (a group column named in X is not one)
     features = X.drop(columns=[groups]) if isinstance(groups, str) and isinstance(X, pd.DataFrame) else X
+    _check_same_columns(old, meta or {}, features)  # first: the fingerprint covers those columns
     fingerprint = check_older_rows(rounds, table, X=features, y=y)
     repeats = old.get("repeats") if repeats is None else repeats
     random_state = old.get("seed") if random_state is None else random_state
