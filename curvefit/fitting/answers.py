@@ -143,9 +143,11 @@ def horizon_text(what: str, target_text: str, c: Crossing, d: FitData, level: fl
 
 def answer_text(d: FitData, n: float, c: Crossing, kind: str, target: float, level: float,
                 metric: str, family: str, logarithmic: bool,
-                info: dict | None = None) -> tuple[str, list]:
+                info: dict | None = None, floor: str = "") -> tuple[str, list]:
     """The message and cautions of a reachable answer of ``n`` samples; ``info`` is the
-    curve's ``metric_info``, whose label names the loss."""
+    curve's ``metric_info``, whose label names the loss; ``floor`` describes the chosen
+    family's level when its interval lies above the target (the averaged forecast
+    reaches the target all the same)."""
     tgt = format_error(target, metric)
     reached = format_quantity(target, kind, metric, info)
     count = format_count(n)
@@ -166,6 +168,9 @@ def answer_text(d: FitData, n: float, c: Crossing, kind: str, target: float, lev
         message = (f"To bring the generalization gap down to {tgt} you need about "
                    f"{count} labelled samples{interval}.")
     cautions = _answer_cautions(d, n, c, target, metric, family, logarithmic)
+    if floor:
+        cautions.insert(0, f"the averaged forecast of the families reaches the target, but "
+                           f"the chosen family {family} {floor}, so this is uncertain")
     if cautions:
         message += " Note: " + "; ".join(cautions) + "."
     return message, cautions

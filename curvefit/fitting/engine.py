@@ -703,9 +703,13 @@ class CurveFit:
                                                                      horizon, level),
                               level=level, shifted=shifted)
         asym = self.asymptote(level)
+        # the chosen family's floor interval lies wholly above the target
+        above_floor = asym is not None and math.isfinite(asym.low) and asym.low > target
+        # the answer follows the forecast that predict prints: where the averaged,
+        # corrected forecast reaches the target within the horizon, it is answered (with a
+        # caution when the chosen family's floor lies above it), not called unreachable
         reachable = c.source == "measured" or (
-            math.isfinite(c.point) and not (asym is not None and math.isfinite(asym.low)
-                                            and asym.low > target))
+            math.isfinite(c.point) and (not above_floor or c.point <= horizon))
         metric = self.curve.metric
         what = quantity_name(kind, metric, self.curve.metric_info)
         beyond = reachable and c.source == "fitted" and c.beyond_horizon
@@ -729,9 +733,11 @@ class CurveFit:
             if c.source == "measured":
                 n = max(n, float(d.sizes[0]))  # fewer than the smallest size were not measured
             low, high = c.low, c.high
+            floor = (self.describe_asymptote(level)
+                     if c.source == "fitted" and above_floor else "")
             message, cautions = answer_text(d, n, c, kind, target, level, metric, self.best,
                                             self.approach == "logarithmic",
-                                            info=self.curve.metric_info)
+                                            info=self.curve.metric_info, floor=floor)
         return SampleEstimate(n=n, low=float(low), high=float(high), level=level, target=target,
                               kind=kind, reachable=bool(reachable), asymptote=asym,
                               message=message, warnings=tuple(cautions), horizon=float(horizon),
