@@ -17,8 +17,16 @@ Printed: the table's in-memory bytes (features + target as float64/int64 arrays)
 peak of the summed RSS and of the summed PSS (shared pages split between the processes
 that map them) of each tree, their ratios to the table bytes (target: curvefit's peak
 RSS <= 3 x table bytes), the wall times and their ratio (target A/B <= 1.1), and the
-overhead per cell: (2 x curvefit's wall - the sum of its cells' fit+predict seconds) /
-cells, at several table sizes (``--sizes-of-tables``).
+overhead per cell at several table sizes (``--sizes-of-tables`` and ``--rows``).
+
+Overhead per cell, measured as the marginal cost of cells (start-up, the run's
+whole-table work and the per-repeat split cancel out): two runs of the same table with 3
+repeats and small sizes between 100 and 1,000 rows, one with 8 sizes and one with 40,
+in one process (``--jobs 1``: no assumption about how busy two workers were); overhead
+per cell = (the difference in wall - the difference in the cells' summed fit+predict
+seconds) / the difference in cells. Beside it, the subsample read: the time this process
+takes to gather each of those cells' training and test rows from the table as a
+row-major array (what a cell reads). Target: overhead <= 5 ms + the read.
 
 Run: ``nice -n 19 .venv/bin/python scripts/bench_scale.py`` (about 10 minutes here);
 ``--quick`` uses 200,000 rows for a first look.
@@ -35,6 +43,8 @@ import tempfile
 import threading
 import time
 from pathlib import Path
+
+import numpy as np
 
 N_FEATURES = 20
 SEED = 0
@@ -139,20 +149,62 @@ def sizes_for(rows: int) -> list[int]:
     return sorted({int(round(s)) for s in np.geomspace(pool / 100, pool, 8)})
 
 
-def run_curvefit(path: Path, rows: int, repeats: int, folder: Path, env: dict) -> dict:
-    sizes = sizes_for(rows)
+def run_curvefit(path: Path, rows: int, repeats: int, folder: Path, env: dict, sizes=None,
+                 jobs: int = 2) -> dict:
+    sizes = sizes or sizes_for(rows)
     out = folder / f"run-{rows}.json"
     for p in (out, Path(f"{out}.journal")):
         p.unlink(missing_ok=True)
     argv = [sys.executable, "-m", "curvefit.cli.main", "measure", str(path), "--target", "y",
             "--model", "sklearn.linear_model:SGDClassifier", "--sizes", ",".join(map(str, sizes)),
-            "--repeats", str(repeats), "--seed", str(SEED), "--jobs", "2", "--out", str(out), "--quiet"]
+            "--repeats", str(repeats), "--seed", str(SEED), "--jobs", str(jobs), "--out", str(out), "--quiet"]
     wall, sampler, _ = watched(argv, env)
     points = json.loads(out.read_text())["points"]
     fits = sum(float(p["fit_seconds"]) for p in points)
     return {"rows": rows, "sizes": sizes, "wall": wall, "rss": sampler.peak_rss, "pss": sampler.peak_pss,
             "procs": sampler.peak_procs, "cells": len(points), "fit_seconds": fits,
             "failed": sum(p["status"] != "ok" for p in points)}
+
+
+MARGINAL_SIZES = ([100, 139, 193, 268, 373, 518, 720, 1000],
+                  sorted({int(round(s)) for s in 10 ** (2 + 0.025 * np.arange(41))}))
+MARGINAL_REPEATS = 3
+
+
+def read_seconds(path: Path, repeats: int, sizes: list[int]) -> float:
+    """Mean seconds to gather one marginal cell's training and test rows (features and
+    target) from the table as a row-major array, over the cells of the larger run."""
+    import numpy as np
+    import pyarrow.parquet as pq
+
+    from curvefit.measuring.splits import RandomSplit
+
+    t = pq.read_table(path)
+    names = [c for c in t.column_names if c != "y"]
+    X = np.ascontiguousarray(np.column_stack([t.column(c).to_numpy() for c in names]))
+    y = t.column("y").to_numpy()
+    del t
+    plans = RandomSplit(test_size=0.25, stratify=True).split(y, repeats, SEED)
+    spent, cells = 0.0, 0
+    for plan in plans:
+        for size in sizes:
+            train = plan.train_indices(size)
+            start = time.perf_counter()
+            _ = (X[train], y[train], X[plan.test], y[plan.test])
+            spent += time.perf_counter() - start
+            cells += 1
+    return spent / cells
+
+
+def marginal_overhead(path: Path, rows: int, folder: Path, env: dict, jobs: int = 1) -> dict:
+    """Overhead per cell from two runs that differ only in their number of sizes."""
+    few, many = (run_curvefit(path, rows, MARGINAL_REPEATS, folder, env, sizes=sizes, jobs=jobs)
+                 for sizes in MARGINAL_SIZES)
+    cells = many["cells"] - few["cells"]
+    over = (jobs * (many["wall"] - few["wall"]) - (many["fit_seconds"] - few["fit_seconds"])) / cells
+    return {"rows": rows, "cells": cells, "overhead": over,
+            "read": read_seconds(path, MARGINAL_REPEATS, MARGINAL_SIZES[1]),
+            "walls": (few["wall"], many["wall"]), "jobs": jobs}
 
 
 def main() -> None:
@@ -173,12 +225,13 @@ def main() -> None:
     print(f"load average {os.getloadavg()[0]:.2f}; tables in {folder}")
 
     tables = sorted({int(s) for s in args.sizes_of_tables.split(",") if s} | {args.rows})
-    results = []
+    results, marginal = [], []
     for rows in tables:
         path = folder / f"scale-{rows}.parquet"
         if not path.exists():
             make_table(path, rows)
         results.append(run_curvefit(path, rows, args.repeats, folder, env))
+        marginal.append(marginal_overhead(path, rows, folder, env))
     big = results[-1]
     path = folder / f"scale-{args.rows}.parquet"
     sk_wall, sk, _ = watched([sys.executable, "-c", SKLEARN_SIDE, str(path), json.dumps(big["sizes"]),
@@ -197,13 +250,23 @@ def main() -> None:
         print(f"{name:28}{rss * mb:12.0f}{rss / tb:8.2f}{pss * mb:13.0f}{pss / tb:8.2f}{procs:7d}{wall:9.1f}")
     print(f"curvefit peak RSS / table bytes = {big['rss'] / tb:.2f} (target <= 3)")
     print(f"wall ratio curvefit / learning_curve = {big['wall'] / sk_wall:.2f} (target <= 1.1)")
-    print("\noverhead per cell = (2 x wall - sum of the cells' fit+predict seconds) / cells")
-    print("(and the tree's peak RSS: what it grows by with the table is the table's own cost)")
-    print(f"{'rows':>10}{'cells':>7}{'wall s':>9}{'fit+predict s':>15}{'overhead/cell ms':>18}"
+    print(f"\noverhead per cell, marginal: (extra wall - extra fit+predict seconds) / extra cells, "
+          f"{len(MARGINAL_SIZES[0])} vs {len(MARGINAL_SIZES[1])} sizes of 100..1,000 rows x "
+          f"{MARGINAL_REPEATS} repeats, --jobs 1;\nread = gathering a cell's train and test rows; "
+          "target <= 5 ms + read")
+    print(f"{'rows':>10}{'extra cells':>13}{'walls s':>14}{'overhead/cell ms':>18}{'read/cell ms':>14}"
+          f"{'beyond read ms':>16}")
+    for m in marginal:
+        beyond = (m["overhead"] - m["read"]) * 1000
+        print(f"{m['rows']:>10,}{m['cells']:>13}{m['walls'][0]:7.1f}{m['walls'][1]:7.1f}"
+              f"{m['overhead'] * 1000:18.1f}{m['read'] * 1000:14.1f}{beyond:16.1f}")
+    print("\nthe full runs per table size: the old whole-run figure (2 x wall - fit+predict) / cells")
+    print("(start-up and whole-table work charged to the cells) and the tree's peak RSS")
+    print(f"{'rows':>10}{'cells':>7}{'wall s':>9}{'fit+predict s':>15}{'whole-run/cell ms':>19}"
           f"{'peak RSS MB':>13}")
     for r in results:
         over = (2 * r["wall"] - r["fit_seconds"]) / r["cells"]
-        print(f"{r['rows']:>10,}{r['cells']:>7}{r['wall']:9.1f}{r['fit_seconds']:15.1f}{over * 1000:18.0f}"
+        print(f"{r['rows']:>10,}{r['cells']:>7}{r['wall']:9.1f}{r['fit_seconds']:15.1f}{over * 1000:19.0f}"
               f"{r['rss'] * mb:13.0f}")
     small, big = results[0], results[-1]
     if big["rows"] > small["rows"]:

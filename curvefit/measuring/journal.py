@@ -178,8 +178,8 @@ class Journal:
             _check_cell(c, f"the journal {path}, line {line}")
         return cells, good
 
-    def _write(self, record: dict) -> None:
-        line = (_canonical(record) + "\n").encode("utf-8")
+    def _write(self, *records: dict) -> None:
+        line = "".join(_canonical(record) + "\n" for record in records).encode("utf-8")
         try:
             self._fh.write(line)
             self._fh.flush()
@@ -191,6 +191,11 @@ class Journal:
     def append(self, cell: dict) -> None:
         """Record one finished cell durably (returns after fsync)."""
         self._write(cell)
+
+    def append_many(self, cells: list[dict]) -> None:
+        """Record cells that finished together (one task's) durably, with one fsync."""
+        if cells:
+            self._write(*cells)
 
     def close(self) -> None:
         if self._fh is not None and not self._fh.closed:

@@ -1,8 +1,8 @@
 """Run independent cells in parallel, locally or on a Dask cluster, one BLAS thread each.
 
 Every task is a picklable callable plus arguments; results come back as they finish so
-that callers can journal them at once. Each task runs under
-``threadpoolctl.threadpool_limits(1)``: without it, BLAS/OpenMP threads oversubscribe
+that callers can journal them at once. Each task runs with every native thread pool
+limited to one thread (threadpoolctl, `one_thread_each`): without it, BLAS/OpenMP threads oversubscribe
 the cores (measured here: ~10x slower on 2 cores) and floating-point reductions can
 depend on the thread count, so results would differ between ``n_jobs`` settings.
 Randomness must come in with the task's arguments (seeded per cell), never from the
@@ -46,12 +46,29 @@ SCRATCH_PREFIX = "curvefit-run-"  # the run's folder for the workers' temporary 
 _guarded_for: int | None = None  # the parent pid a worker of this process is tied to
 
 
-def _single_threaded(fn: Callable, args: tuple, kwargs: dict, tie: tuple | None = None):
-    from threadpoolctl import threadpool_limits
+_controller: tuple[int, Any] | None = None  # (modules loaded when made, ThreadpoolController)
 
+
+def one_thread_each():
+    """A context that limits every native thread pool (BLAS, OpenMP) to one thread.
+
+    Finding the pools costs about 10 ms (threadpoolctl scans the loaded libraries), more
+    than a small cell's fit, so the controller is kept and made again only after new
+    modules were imported (a new native library comes only with one).
+    """
+    global _controller
+    from threadpoolctl import ThreadpoolController
+
+    if _controller is None or _controller[0] != len(sys.modules):
+        controller = ThreadpoolController()
+        _controller = (len(sys.modules), controller)
+    return _controller[1].limit(limits=1)
+
+
+def _single_threaded(fn: Callable, args: tuple, kwargs: dict, tie: tuple | None = None):
     if tie is not None:
         tie_to_parent(*tie)
-    with threadpool_limits(limits=1):
+    with one_thread_each():
         return fn(*args, **kwargs)
 
 

@@ -650,9 +650,9 @@ class CellRunner:
 
         for results in (run_tasks(tasks, n_jobs=self.settings.n_jobs, backend=self.settings.backend,
                                   scheduler=self.settings.scheduler) if tasks else ()):
+            if self.journal is not None:  # a task's cells: one fsync for them all
+                self.journal.append_many(results)
             for result in results:
-                if self.journal is not None:
-                    self.journal.append(result)
                 self.done[(int(result["size"]), int(result["repeat"]))] = result
                 self.eta.finished(_seconds(result))
                 left -= 1
