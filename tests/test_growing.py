@@ -1,7 +1,7 @@
 """A grown table: `curvefit measure GROWN --previous OLD` reuses the older cells.
 
 The table is scikit-learn's breast-cancer data (569 rows), shuffled once; the first
-437 rows are the table first measured, all 569 the table after 30% more labels were
+438 rows are the table first measured, all 569 the table after 30% more labels were
 bought. The model is a file-defined decision tree that appends one line to a log per
 fit, so a test counts the trainings a run did.
 """
@@ -107,14 +107,38 @@ def test_grown_run_trains_only_new_cells_and_equals_a_fresh_run(tables):
     assert [t["new_rows"] for t in json.loads(r.stdout)["table_rounds"]] == [n_old, len(frame) - n_old]
 
 
-def test_changed_older_row_is_refused(tables):
+@pytest.mark.parametrize("change, expected", [
+    (["--seed", "3"], "the previous run used seed 0, this one 3"),
+    (["--model", "sklearn.linear_model:LogisticRegression"], "another model"),
+    (["--data", "short.csv"], "the grown table has 400 rows, fewer than the 438 rows"),
+    (["--data", "changed.csv"], "the first 438 rows of the grown table differ from the rows"),
+])
+def test_changed_rows_fewer_rows_and_other_settings_are_refused(tables, change, expected, capsys):
+    """The command line in this process (no process start-up per case): exit 2, one line."""
+    import signal
+
+    from curvefit.cli.main import main
+
     folder, frame, n_old = tables
+    frame.iloc[:400].to_csv(folder / "short.csv", index=False)
     changed = frame.copy()
     changed.iloc[3, 0] += 1.0
     changed.to_csv(folder / "changed.csv", index=False)
-    r = _measure(folder, "changed.csv", "changed.json", "--previous", folder / "old.json")
-    assert r["code"] == 2 and r["fits"] == 0
-    assert r["stderr"].count("\n") == 1 and f"the first {n_old} rows of the grown table differ" in r["stderr"]
+    args = {"--data": "grown.csv", "--model": f"{folder / 'counted.py'}:make_model"}
+    args.update(dict(zip(change[::2], change[1::2])))
+    data = str(folder / args.pop("--data"))
+    argv = ["measure", data, "--target", "target", "--previous", str(folder / "old.json"),
+            "--out", str(folder / "refused.json"), *[x for kv in args.items() for x in kv]]
+    handlers = {s: signal.getsignal(s) for s in (signal.SIGTERM, signal.SIGHUP)}
+    try:
+        with pytest.raises(SystemExit) as stop:
+            main(argv)
+    finally:  # the command installs its own SIGTERM/SIGHUP handlers
+        for sig, handler in handlers.items():
+            signal.signal(sig, handler)
+    err = capsys.readouterr().err
+    assert stop.value.code == 2 and err.count("\n") == 1 and expected in err, err
+    assert not (folder / "refused.json").exists()
 
 
 def test_killed_grown_run_resumes(tables):
