@@ -193,6 +193,13 @@ def test_third_round_and_refusals():
     fresh = measure_grown(DecisionTreeClassifier(random_state=0), X, y, second, reuse=False)
     cols = ["size", "repeat", "train_error", "test_error"]
     assert third.points[cols].equals(fresh.points[cols])
+    # a failed cell of the previous run is trained again, not copied
+    points = second.points.copy()
+    points.loc[0, "status"] = "failed"
+    again = measure_grown(DecisionTreeClassifier(random_state=0), X, y, Curve(points, second.meta))
+    assert len(again.meta["reused_cells"]) == len(second.points) - 1
+    assert [int(points.loc[0, "size"]), int(points.loc[0, "repeat"])] not in again.meta["reused_cells"]
+    assert again.points[cols].equals(third.points[cols])
     model = DecisionTreeClassifier(random_state=0)
     with pytest.raises(InputError, match="fewer than the 120 rows"):
         measure_grown(model, X[:100], y[:100], second)
