@@ -10,6 +10,7 @@ import pytest
 
 from conftest import ROOT, run_cli
 from curvefit.core.curve import Curve
+from curvefit.measuring.slices import SliceCurves
 
 
 @pytest.mark.slow
@@ -50,9 +51,20 @@ def test_demo_end_to_end(tmp_path):
     assert plan["test_error"].is_monotonic_decreasing
     assert json.loads((out / "plan.json").read_text())["rows"]
 
+    # the per-variety curves, the plan in rounds and the budget split per variety
+    assert "in rounds (gradient-boosted trees)" in r.stdout and "per variety, 2,000 buys" in r.stdout
+    slices = SliceCurves.read(out / "slices-variety.json")
+    assert slices.column == "variety" and len(slices.curves) == 5
+    buying = json.loads((out / "buying-plan.json").read_text())
+    assert buying["model"] == "gradient-boosted trees" and buying["rounds"]["rule"]
+    split = buying["split"]
+    assert {s["slice"] for s in split["slices"]} == set(slices.curves)
+    assert 0 < sum(s["spend"] for s in split["slices"]) <= 2000 + 1e-6  # the invented budget
+
     page = (out / "report.html").read_text(encoding="utf-8")
     assert page.index('id="answer"') < page.index('id="curves"') < page.index('id="metadata"')
     assert f"{100 * target:.1f}%" in page
+    assert page.index('id="curves"') < page.index('id="buying"') < page.index('id="metadata"')
 
     class Imgs(HTMLParser):
         n = 0
@@ -62,8 +74,9 @@ def test_demo_end_to_end(tmp_path):
 
     p = Imgs()
     p.feed(page)
-    assert p.n >= 3
+    assert p.n >= 4
     assert (out / "report_files" / "learning-curve.png").is_file()
+    assert (out / "report_files" / "slice-curves.png").is_file()
     assert (out / "report_files" / "learning-curve.svg").is_file()
 
 

@@ -1,7 +1,7 @@
 """`curvefit demo [--out DIR]`: the whole job on the bundled packhouse scenario.
 
 The work is `curvefit.workflows.demo.run_demo` (``cf.run_demo``); this command prints
-what it found and where it wrote the run files, the fits, the plan and the report.
+what it found and where it wrote the run files, the fits, the plans and the report.
 """
 
 from __future__ import annotations
@@ -48,6 +48,36 @@ def _print_plan(res) -> None:
               f"({format_interval(row['low'], row['high'], INTERVAL, 'error')})", markup=False)
 
 
+def _print_buying(res) -> None:
+    """The plan in rounds in one line, the split per variety in one line."""
+    from curvefit.core.formatting import format_count, format_money
+
+    buying = res.buying
+    if buying is None:
+        return
+    plan = buying.rounds
+    if plan is not None and plan.rounds is not None:
+        ratios = ", ".join(f"{r:.2f}× {s.title}" for r, s in
+                           ((plan.cost_ratios().get(k), v) for k, v in
+                            (("one-shot", plan.one_shot), ("upper-end", plan.upper_end)))
+                           if r is not None)
+        out.print(f"in rounds ({buying.model}): buy {format_count(plan.buy_now)} labels now, at "
+                  f"most {plan.max_rounds} rounds; expected cost "
+                  f"{format_money(plan.rounds.expected_cost)}"
+                  + (f" ({ratios})" if ratios else ""), markup=False)
+    split = buying.split
+    if split is not None:
+        column = buying.slices.column
+        parts = ", ".join(f"{r.slice} {format_count(r.labels)}" for r in split.table.itertuples()
+                          if r.labels > 0)
+        after = split.overall_after
+        out.print(f"per {column}, {format_money(split.budget)} buys: {parts or 'nothing'}; "
+                  f"overall error {format_error(split.overall_now.estimate)} -> "
+                  f"{format_error(after.estimate)} "
+                  f"({format_interval(after.low, after.high, after.level, 'error')})",
+                  markup=False)
+
+
 def register(app: typer.Typer) -> None:
     @app.command("demo")
     def demo_cmd(
@@ -70,6 +100,8 @@ def register(app: typer.Typer) -> None:
                        "runs": {k: str(v) for k, v in res.runs.items()},
                        "fit": str(res.fit_file),
                        "plan": str(res.plan_csv) if res.plan_csv else None,
+                       "slices": str(res.slices_file) if res.slices_file else None,
+                       "buying": str(res.buying_file) if res.buying_file else None,
                        "models": [result_summary(r) for r in res.results]})
             return
         out.print("[bold]curvefit demo[/bold]: fruit grading at a fictional packhouse "
@@ -77,6 +109,8 @@ def register(app: typer.Typer) -> None:
         _print_models(res)
         _print_target(res)
         _print_plan(res)
+        _print_buying(res)
         out.print(f"files in {res.out_dir}: run files, fit.json, plan.csv/plan.json, "
-                  f"report ({res.seconds:.0f} s)", markup=False)
+                  f"slices-variety.json, buying-plan.json, report ({res.seconds:.0f} s)",
+                  markup=False)
         out.print(str(res.report), markup=False)

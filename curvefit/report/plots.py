@@ -360,10 +360,12 @@ def _draw_measured(ax, summ: pd.DataFrame, st: dict, label: str, show_train: boo
 
 
 def _draw_fit(ax, fit: Any, summ: pd.DataFrame, a: dict | None, st: dict, label: str,
-              interval: float, span: list, runner_up: bool = True, line: Any = "-") -> None:
-    """The chosen family with its band and the runner-up, extrapolated to show the answer."""
+              interval: float, span: list, runner_up: bool = True, line: Any = "-",
+              reach: float = 4.0) -> None:
+    """The chosen family with its band and the runner-up, extrapolated to show the answer
+    (or to ``reach`` × the largest size without one)."""
     top = float(summ["size"].max())  # this model's own largest size, not the running max
-    right = top * 4
+    right = top * reach
     if a and is_finite(a["high"]):
         right = max(right, a["high"] * 1.3)
     elif a and is_finite(a["n"]):
@@ -448,37 +450,42 @@ def slice_curves_figure(curves: Any, fits: Any = None, split: Any = None, *,
     -------
     matplotlib.figure.Figure
     """
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
+
     items = [(str(k), c) for k, c in as_items(curves)]
+    fits = {str(k): f for k, f in fits.items()} if isinstance(fits, Mapping) else {}
+    rows = ({str(r["slice"]): r for _, r in split.iterrows()}
+            if isinstance(split, pd.DataFrame) else {})
     fig, ax = _new_axes(ax=ax)
-    rows = {}
-    if isinstance(split, pd.DataFrame) and len(split):
-        rows = {str(r["slice"]): r for _, r in split.iterrows()}
-    limit = axis_limit(dict(items))
-    span = [math.inf, 0.0, limit]
-    metric, info = None, None
+    span = [math.inf, 0.0, axis_limit(dict(items))]
+    metric, info, handles = None, None, []
     for i, (label, curve) in enumerate(items):
         summ = curve.summary(interval) if len(curve.ok_points()) else pd.DataFrame()
         if not len(summ):
             continue
         metric, info = getattr(curve, "metric", None), getattr(curve, "metric_info", None)
         st = style(i)
-        _draw_measured(ax, summ, st, label, False, span)
-        fit = _matching(fits, label, i) if fits is not None else None
-        if isinstance(fits, Mapping) and fit is None:  # keys may be numbers, labels are text
-            fit = next((f for k, f in fits.items() if str(k) == label), None)
+        # the constant predictor's lines would crowd five slices: the slices' table has it
+        _draw_measured(ax, summ.drop(columns=["baseline_mean"], errors="ignore"), st, label,
+                       False, span)
+        fit = fits.get(label)
         if fit is not None:
             _draw_fit(ax, fit, summ, None, st, label, interval, span, runner_up=False,
-                      line=st["linestyle"])
+                      line=st["linestyle"], reach=1.6)
+        text = label + (f" ({family_name(getattr(fit, 'best', None))})" if fit is not None else "")
         row = rows.get(label)
         if row is not None and is_finite(row["labels"]) and float(row["labels"]) > 0:
             at = float(row["rows_now"]) + float(row["labels"])
             y, lo, hi = (float(row[k]) for k in ("error_after", "low", "high"))
             ax.errorbar([at], [y], yerr=[[max(y - lo, 0.0)], [max(hi - y, 0.0)]],
                         fmt=st["marker"], ms=10, mfc=st["color"], mec="black", mew=1.0,
-                        color=st["color"], elinewidth=1.4, capsize=4, zorder=6,
-                        label=f"{label}: after buying {format_count(row['labels'])}")
+                        color=st["color"], elinewidth=1.4, capsize=4, zorder=6)
             span[1] = max(span[1], at)
-    if not math.isfinite(span[0]):
+            text += f", buys {format_count(row['labels'])}"
+        handles.append(Line2D([], [], color=st["color"], marker=st["marker"],
+                              linestyle=st["linestyle"], linewidth=1.8, label=text))
+    if not handles:
         ax.text(0.5, 0.5, "no slice curve to draw", transform=ax.transAxes,
                 ha="center", va="center", color=NEUTRAL)
     else:
@@ -486,13 +493,17 @@ def slice_curves_figure(curves: Any, fits: Any = None, split: Any = None, *,
         ax.set_xlim(span[0] / 1.25, span[1] * 1.25)
         ax.xaxis.set_major_formatter(_count_formatter)
         ax.xaxis.set_minor_formatter(FuncFormatter(lambda v, _p: ""))
+        handles += [Patch(color=NEUTRAL, alpha=0.2, label=f"{format_level(interval)} band"),
+                    Line2D([], [], marker="o", ms=9, mfc=NEUTRAL, mec="black", linestyle="none",
+                           label="after the purchase, with its interval")]
+        fig.legend(handles=handles, loc="outside lower center", ncols=2, handlelength=2.6,
+                   columnspacing=1.6)
     what = f"{column} slice" if column else "slice"
     ax.set_xlabel(f"labelled rows of that {what} (training, log scale); the other slices "
                   "stay whole")
     ax.set_ylabel(metric_label(metric, info=info) + " on that slice's test rows")
     _value_axis(ax, metric)
     ax.set_title(title or "Per-slice learning curves")
-    _legend_outside(ax)
     return fig
 
 

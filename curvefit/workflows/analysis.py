@@ -373,7 +373,8 @@ def check_buying(*, target_error=None, label_cost=None, round_cost=None, penalty
         if (budget is None) == (slice_errors is None):
             raise InputError("budget (money to split) or slice_errors (a target per slice), "
                              "one of them, goes with per-slice curves")
-        if slice_costs is not None and label_cost is not None:
+        if slice_costs is not None and label_cost is not None and not rounds:
+            # with a plan in rounds, label_cost prices the rounds and slice_costs the split
             raise InputError("give label_cost (one price) or slice_costs (per slice), not both")
         settings["label_costs"] = (slice_costs if slice_costs is not None else
                                    label_cost if label_cost is not None else 1.0)
@@ -401,7 +402,8 @@ def plan_buying(results: Sequence[ModelResult], *, target_error: float | None = 
         Per-slice curves; with ``budget`` (money to split) or ``slice_errors``
         (``slice -> target``), `curvefit.fitting.rounds.plan_slices` splits the purchase.
     slice_costs : dict, optional
-        ``slice -> price of one label`` (else ``label_cost``, else 1 per label).
+        ``slice -> price of one label`` in the split (else ``label_cost``, else 1 per
+        label); beside a plan in rounds, ``label_cost`` prices the rounds only.
     interval, bootstrap, random_state
         Level of every interval; bootstrap replicates and seed of the slices' fits.
 

@@ -4,8 +4,10 @@ Measures two models of different capacity (a logistic regression and a gradient-
 tree ensemble) on the synthetic fruit-grading table shipped with the package
 (`curvefit.workflows.packhouse`), fits their learning curves, picks a target the better
 model can reach, answers how many labelled samples it needs, prices a label purchase at
-an invented cost, and writes the run files, the fits, the plan and the HTML report into
-one folder. ``curvefit demo`` runs it and prints the `DemoResult`.
+an invented cost, plans that purchase in rounds, measures the better model per apple
+variety and splits a label budget across the varieties at invented per-variety label
+costs, and writes the run files, the fits, the plans and the HTML report into one folder.
+``curvefit demo`` runs it and prints the `DemoResult`.
 """
 
 from __future__ import annotations
@@ -24,7 +26,7 @@ from curvefit.core.errors import FitWarning, InputError
 from curvefit.core.formatting import format_level
 from curvefit.core.jsonio import write_json, write_text_atomic
 from curvefit.core.validate import check_jobs
-from curvefit.workflows.analysis import ModelResult, analyse, answer_target, run_step
+from curvefit.workflows.analysis import ModelResult, analyse, answer_target, plan_buying, run_step
 
 TARGET = "rejected"
 GROUPS = "orchard"
@@ -37,6 +39,22 @@ EXTRA_LABELS = [2000, 5000, 10000, 20000, 40000]
 # Multiples of the largest measured size whose forecast may become the target, in order.
 TARGET_MULTIPLES = (3.0, 2.0, 1.5, 1.0)
 TITLE = "Demo: fruit grading at a fictional packhouse"
+# The plan in rounds, at invented costs: setting up a labelling round and retraining, and
+# a season graded above the target.
+ROUND_COST = 300.0
+PENALTY = 8000.0
+MAX_ROUNDS = 3
+# The purchase split per apple variety. Few sizes and repeats, and the boosted trees
+# with 60 iterations instead of 150, keep this step to a few seconds.
+SLICE_COLUMN = "variety"
+SLICE_SIZES = 5
+SLICE_REPEATS = 2
+SLICE_BOOTSTRAP = 100
+SLICE_BUDGET = 2000.0
+# Invented label prices per variety: a russet's rough skin hides blemishes, so grading
+# one takes longer; Embervale is picked from steep slopes.
+SLICE_COSTS = {"Ambercrest": 0.40, "Brindle Pippin": 0.40, "Coldharbour": 0.40,
+               "Dunmore Russet": 1.00, "Embervale": 0.60}
 
 
 def make_logistic():
@@ -54,6 +72,13 @@ def make_boosted():
     from sklearn.ensemble import HistGradientBoostingClassifier
 
     return HistGradientBoostingClassifier(max_iter=150, learning_rate=0.1)
+
+
+def make_boosted_light():
+    """The gradient-boosted trees with fewer iterations: the per-variety curves' model."""
+    from sklearn.ensemble import HistGradientBoostingClassifier
+
+    return HistGradientBoostingClassifier(max_iter=60, learning_rate=0.1)
 
 
 def demo_models() -> list[tuple[str, str, Callable]]:
@@ -78,6 +103,9 @@ class DemoResult:
     plan: object = None
     results: list = field(default_factory=list)
     seconds: float = math.nan
+    slices_file: Path | None = None
+    buying_file: Path | None = None
+    buying: object = None      # BuyingPlan: the plan in rounds and the split per variety
 
 
 def choose_target(fit, largest: float) -> float | None:
@@ -139,6 +167,43 @@ def _best(results: list[ModelResult]) -> ModelResult | None:
     return next((r for r in sorted(results, key=last_error) if r.fit is not None), None)
 
 
+def _measure_varieties(best: ModelResult, out_dir: Path, n_jobs: int, random_state: int, log):
+    """The better model's curve per apple variety (the others whole); slices-variety.json."""
+    from curvefit.measuring.data import load_table, prepare
+    from curvefit.measuring.slices import measure_slices
+    from curvefit.workflows.packhouse import demo_table_path
+
+    table = load_table(demo_table_path())
+    data = prepare(table, TARGET, drop=NOT_FEATURES)
+    factory = {"gradient-boosted trees": make_boosted_light}.get(
+        best.label, next((f for _, label, f in demo_models() if label == best.label), make_boosted_light))
+    t = time.perf_counter()
+    log(f"measuring {best.label} per {SLICE_COLUMN} ({SLICE_SIZES} sizes x {SLICE_REPEATS} "
+        "repeats per variety) ...")
+    slices = measure_slices(factory, data.X, data.y, table[SLICE_COLUMN].astype(str).to_numpy(),
+                            column=SLICE_COLUMN, repeats=SLICE_REPEATS, test_size=TEST_SIZE,
+                            n_jobs=n_jobs, random_state=random_state, n_sizes=SLICE_SIZES)
+    path = out_dir / f"slices-{SLICE_COLUMN}.json"
+    slices.write(path)
+    log(f"  done in {time.perf_counter() - t:.0f} s -> {path}")
+    return slices, path
+
+
+def _plan_buying(results: list[ModelResult], best: ModelResult, target: float | None,
+                 out_dir: Path, n_jobs: int, random_state: int, bootstrap: int, log):
+    """The plan in rounds for the target and the budget split per variety; buying-plan.json."""
+    slices, slices_file = _measure_varieties(best, out_dir, n_jobs, random_state, log)
+    rounds = ({} if target is None else
+              dict(target_error=target, label_cost=COST_PER_LABEL, round_cost=ROUND_COST,
+                   penalty=PENALTY, max_rounds=MAX_ROUNDS))
+    log("planning what to buy ...")
+    buying = plan_buying(results, slices=slices, budget=SLICE_BUDGET, slice_costs=SLICE_COSTS,
+                         bootstrap=min(bootstrap, SLICE_BOOTSTRAP), random_state=random_state,
+                         **rounds)
+    buying_file = write_json(out_dir / "buying-plan.json", buying.to_dict(), what="buying plan")
+    return buying, slices_file, buying_file
+
+
 def _write_fits(path: Path, target: float | None, results: list[ModelResult]) -> Path:
     doc = {"format": "curvefit.demo-fits/1", "target_error": target,
            "fits": {r.label: (r.fit.to_dict() if r.fit is not None else None) for r in results},
@@ -178,8 +243,9 @@ def run_demo(out_dir: str | Path = "curvefit-demo", *, n_jobs: int = 2,
     Parameters
     ----------
     out_dir : path
-        Folder for the run files, ``fit.json``, ``plan.csv``/``plan.json`` and
-        ``report.html`` (created if absent).
+        Folder for the run files, ``fit.json``, ``plan.csv``/``plan.json``, the
+        per-variety curves ``slices-variety.json``, ``buying-plan.json`` (the plan in
+        rounds and the budget split) and ``report.html`` (created if absent).
     n_jobs : int
         Parallel fits while measuring.
     random_state : int
@@ -215,11 +281,15 @@ def run_demo(out_dir: str | Path = "curvefit-demo", *, n_jobs: int = 2,
             answer_target(results, target)
         fit_file = _write_fits(out_dir / "fit.json", target, results)
         plan, plan_csv, plan_json, note = _plan(best, out_dir) if best else (None,) * 4
+        buying, slices_file, buying_file = (
+            _plan_buying(results, best, target, out_dir, n_jobs, random_state, bootstrap, log)
+            if best else (None,) * 3)
         log("writing the report ...")
         report = write_report(out_dir / "report.html", results, target_error=target,
-                              purchase=plan, purchase_note=note, title=TITLE)
+                              purchase=plan, purchase_note=note, title=TITLE, buying=buying)
     return DemoResult(out_dir=out_dir, report=report, runs=runs, fit_file=fit_file,
                       plan_csv=plan_csv, plan_json=plan_json, target_error=target,
                       best_label=best.label if best else None,
                       answer=best.answer if best else None, plan=plan, results=results,
-                      seconds=time.perf_counter() - t0)
+                      seconds=time.perf_counter() - t0, slices_file=slices_file,
+                      buying_file=buying_file, buying=buying)
