@@ -313,7 +313,7 @@ def reusable_cells(previous: Curve, sizes, repeats: int) -> list[dict]:
 
 
 def measure_grown(model, X, y, previous: Curve, *, reuse: bool = True, table=None, sizes=None,
-                  repeats=None, random_state=None, metric=None, test_size=None, encode="auto",
+                  repeats=None, random_state=None, metric=None, test_size=None, encode=None,
                   X_test=None, y_test=None, groups=None, order=None, size_unit: str = "rows",
                   goal=None, meta: dict | None = None, **options) -> Curve:
     """Measure a grown table, reusing the cells of ``previous`` that still hold.
@@ -333,7 +333,7 @@ def measure_grown(model, X, y, previous: Curve, *, reuse: bool = True, table=Non
     sizes : list of int, optional
         Default: the previous sizes and their geometric grid continued to the grown pool
         (`grown_sizes`).
-    repeats, random_state, metric, test_size :
+    repeats, random_state, metric, test_size, encode :
         Default to the previous run's; a different value is refused.
     **options
         Passed to `measure` (n_jobs, backend, scheduler, journal, resume, timeout, progress).
@@ -361,17 +361,7 @@ def measure_grown(model, X, y, previous: Curve, *, reuse: bool = True, table=Non
     from curvefit.measuring.models import as_model_spec, with_encoding
     from curvefit.measuring.runner import measure
 
-    if X_test is not None:
-        raise InputError("a grown run cannot use a separate test set (--test): the run file "
-                         "does not identify it; measure the grown table afresh")
-    if order is not None:
-        raise InputError("a time-ordered split (--order) tests on the latest rows, which the new "
-                         "rows replace; measure the grown table afresh (without --previous)")
-    if size_unit != "rows":
-        raise InputError("sizes counted in groups cannot grow (new rows of an older group would "
-                         "change the older sizes); use --size-unit rows, or measure afresh")
-    if goal is not None:
-        raise InputError("--goal (adaptive measurement) does not combine with --previous")
+    _refuse_unsupported(X_test=X_test, order=order, size_unit=size_unit, goal=goal)
     old = previous.meta
     rounds = table_rounds(previous)
     # the features as the runner sees them (a group column named in X is not one)
@@ -382,6 +372,7 @@ def measure_grown(model, X, y, previous: Curve, *, reuse: bool = True, table=Non
     random_state = old.get("seed") if random_state is None else random_state
     metric = old.get("metric") if metric is None else metric
     test_size = old.get("test_size") if test_size is None else test_size
+    encode = old.get("encode", "auto") if encode is None else encode
     if not isinstance(test_size, (int, float)):
         raise InputError("the previous run has no test fraction (it used a separate test set); "
                          "measure the grown table afresh")
@@ -405,19 +396,42 @@ def measure_grown(model, X, y, previous: Curve, *, reuse: bool = True, table=Non
     if sizes is None:
         sizes = grown_sizes(old.get("sizes") or previous.sizes, pool)
     cells = reusable_cells(previous, sizes, int(repeats)) if reuse else []
-    new_round = {"round": len(rounds) + 1, "rows": n_rows, "new_rows": n_rows - int(rounds[-1]["rows"]),
-                 "pool": pool, "fingerprint": fingerprint}
-    if rounds[0].get("fingerprint") is None:  # a plain previous run: its rows' fingerprint now
-        from curvefit.measuring.data import leading_rows_fingerprint
-
-        frame = table if table is not None else _frame_of(features, y)
-        rounds[0]["fingerprint"] = leading_rows_fingerprint(frame, int(rounds[0]["rows"]))
-        rounds[0].pop("table_fingerprint", None)
-    record = {"rounds": rounds + [new_round], "reused_cells": [[int(c["size"]), int(c["repeat"])]
-                                                              for c in cells]}
+    record = {"rounds": _rounds_record(rounds, table if table is not None else _frame_of(features, y),
+                                       pool, fingerprint),
+              "reused_cells": [[int(c["size"]), int(c["repeat"])] for c in cells]}
     return measure(spec, X, y, sizes=sizes, repeats=repeats, test_size=test_size, metric=metric,
                    random_state=random_state, encode=encode, splitter=splitter, reuse=cells,
                    groups=groups, meta={**(meta or {}), **record}, **options)
+
+
+def _refuse_unsupported(*, X_test, order, size_unit, goal) -> None:
+    """One line for each kind of run that cannot grow (see the module docstring)."""
+    if X_test is not None:
+        raise InputError("a grown run cannot use a separate test set (--test): the run file "
+                         "does not identify it; measure the grown table afresh")
+    if order is not None:
+        raise InputError("a time-ordered split (--order) tests on the latest rows, which the new "
+                         "rows replace; measure the grown table afresh (without --previous)")
+    if size_unit != "rows":
+        raise InputError("sizes counted in groups cannot grow (new rows of an older group would "
+                         "change the older sizes); use --size-unit rows, or measure afresh")
+    if goal is not None:
+        raise InputError("--goal (adaptive measurement) does not combine with --previous")
+
+
+def _rounds_record(rounds: list[dict], frame: pd.DataFrame, pool: int, fingerprint: str) -> list[dict]:
+    """The rounds so far and the new one; a plain previous run's round 1 gets its rows
+    fingerprint now (its run file holds only the whole-table one)."""
+    from curvefit.measuring.data import leading_rows_fingerprint
+
+    rounds = [dict(r) for r in rounds]
+    if rounds[0].get("fingerprint") is None:
+        rounds[0]["fingerprint"] = leading_rows_fingerprint(frame, int(rounds[0]["rows"]))
+        rounds[0].pop("table_fingerprint", None)
+    n_rows = len(frame)
+    return rounds + [{"round": len(rounds) + 1, "rows": n_rows,
+                      "new_rows": n_rows - int(rounds[-1]["rows"]), "pool": pool,
+                      "fingerprint": fingerprint}]
 
 
 def _growing_splitter(X, groups, test_size, stratify: bool, rounds: list) -> GrowingSplit:
