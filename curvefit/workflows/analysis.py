@@ -568,7 +568,7 @@ def report_runs(runs: Sequence[str | os.PathLike], out: str | os.PathLike = "rep
         from curvefit.measuring.slices import SliceCurves
 
         buying["slices"] = SliceCurves.read(buying["slices"])
-    check_buying(target_error=target_error, interval=interval, **buying)
+    wanted = check_buying(target_error=target_error, interval=interval, **buying)
     if progress is not None:
         progress(f"fitting {len(curves)} run(s) ...")
     results = analyse(curves, target_error=target_error, bootstrap=bootstrap,
@@ -576,7 +576,7 @@ def report_runs(runs: Sequence[str | os.PathLike], out: str | os.PathLike = "rep
                       labels=run_labels(curves, runs), sources=[str(p) for p in runs],
                       probe=probe)
     plan = None
-    if buying:
+    if wanted is not None:
         if progress is not None:
             progress("planning what to buy ...")
         plan = plan_buying(results, target_error=target_error, interval=interval,
