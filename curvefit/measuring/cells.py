@@ -49,9 +49,10 @@ class CellData:
     encoder_steps: tuple | None = None
     # "classification" or "regression": what the constant predictor predicts
     task: str = "classification"
-    # the column names when `build` stored DataFrames of one numeric dtype as row-major
-    # arrays: a cell then gathers its rows from the array and wraps them in a DataFrame
-    columns: tuple | None = None
+    # the column names (a pandas Index, made once) when `build` stored DataFrames of one
+    # numeric dtype as row-major arrays: a cell then gathers its rows from the array and
+    # wraps them in a DataFrame
+    columns: pd.Index | None = None
 
     @classmethod
     def build(cls, X, y, X_test, y_test, encode: str, encoder_steps: tuple | None,
@@ -66,19 +67,19 @@ class CellData:
         if rows is None or test_rows is None:
             return cls(X, y, X_test, y_test, encode, encoder_steps, task)
         return cls(rows, y, test_rows, y_test, encode, encoder_steps, task,
-                   columns=tuple(X.columns))
+                   columns=pd.Index(X.columns))
 
     def frame(self):
         """The training table as the model sees it (a DataFrame when it was one)."""
         if self.columns is None:
             return self.X
-        return pd.DataFrame(self.X, columns=list(self.columns), copy=False)
+        return pd.DataFrame(self.X, columns=self.columns, copy=False)
 
     def take(self, table, idx):
         """Rows ``idx`` of ``table`` (``X`` or ``X_test``), as a DataFrame when it was one."""
         if self.columns is None:
             return _take(table, idx)
-        return pd.DataFrame(table[idx], columns=list(self.columns), index=pd.Index(idx), copy=False)
+        return pd.DataFrame(table[idx], columns=self.columns, index=pd.Index(idx), copy=False)
 
 
 def _row_major(table) -> np.ndarray | None:
