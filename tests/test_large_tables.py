@@ -154,7 +154,8 @@ def test_only_the_used_columns_are_read(tmp_path, cancer):
     small = cancer[["mean radius", "mean texture", "worst area", "target"]].head(300)
     text = small.to_csv(index=False).encode()
     lines = text.splitlines()
-    bad = [lines[0] + b",notes"] + [ln + (b",\xff\xfe" if i % 2 else b",ok") for i, ln in enumerate(lines[1:])]
+    bad = [lines[0] + b",notes"] + [ln + (b",\xff\xfe" if i % 2 else b",ok")
+                                    for i, ln in enumerate(lines[1:])]
     (tmp_path / "t.csv").write_bytes(b"\n".join(bad) + b"\n")
     args = ["measure", "t.csv", "--target", "target", "--model", "sklearn.tree:DecisionTreeClassifier",
             "--sizes", "40,80", "--repeats", "1", "--quiet", "--json"]
@@ -177,3 +178,27 @@ def test_parquet_columns_read_one_by_one(tmp_path):
     pd.testing.assert_frame_equal(whole, pd.read_parquet(tmp_path / "t.parquet"))
     part = load_table(tmp_path / "t.parquet", columns=["t", "a"])
     pd.testing.assert_frame_equal(part, pd.read_parquet(tmp_path / "t.parquet")[["a", "t"]])
+
+
+def test_row_major_cells_give_the_same_points(cancer):
+    """A numeric table kept as one row-major array: the model sees the same rows (same
+    names, index and values) and the cell the same numbers as from the DataFrame."""
+    from curvefit.measuring.cells import CellData, run_cell
+    from curvefit.measuring.metrics import resolve_metric
+    from curvefit.measuring.models import resolve_model
+
+    X, y = cancer.drop(columns="target"), cancer["target"].to_numpy()
+    packed = CellData.build(X, y, X, y, "auto", (), "classification")
+    plain = CellData(X, y, X, y, "auto", (), "classification")
+    assert list(packed.columns) == list(X.columns) and packed.X.flags.c_contiguous
+    idx = np.array([5, 1, 400, 7])
+    pd.testing.assert_frame_equal(packed.take(packed.X, idx), X.iloc[idx])
+    spec = resolve_model("sklearn.linear_model:LogisticRegression", {"max_iter": 50})
+    metric = resolve_metric("error", "classification")
+    cell = {"size": 120, "repeat": 0, "model_seed": 3, "timeout": None,
+            "train_idx": np.arange(0, 240, 2), "test_idx": np.arange(300, 569)}
+    keys = ["train_error", "test_error", "baseline_error", "n_test_errors"]
+    a, b = run_cell(packed, spec, metric, cell), run_cell(plain, spec, metric, cell)
+    assert [a[k] for k in keys] == [b[k] for k in keys]
+    mixed = X.assign(flag=np.arange(len(X)) % 2)          # two dtypes: left as a DataFrame
+    assert CellData.build(mixed, y, mixed, y, "auto", (), "classification").columns is None
