@@ -52,9 +52,15 @@ def test_a_ci_log_shows_the_probe_in_plain_lines_over_both_rounds():
     assert any("; round 2 of 2, h so far ≈ " in line for line in lines)
 
 
-def test_quiet_hides_the_probe_progress():
-    r = run_cli(*PROBE, "--sizes", "2,4,8", "--quiet", env=EVERY_EVENT)
-    assert r.returncode == 0 and r.stderr == "", r.stderr
+def test_quiet_hides_the_probe_progress_but_not_the_warning_about_failed_cells():
+    # 5 neighbours cannot be found among 2n = 2 or 4 training rows: those cells fail
+    r = run_cli("capacity", "--probe", "--model", "sklearn.neighbors:KNeighborsClassifier",
+                "--n-features", "2", "--sizes", "1,2,8,16", "--repeats", "3", "--bootstrap", "10",
+                "--quiet", env=EVERY_EVENT)
+    assert r.returncode == 0, r.stderr
+    lines = r.stderr.splitlines()
+    assert len(lines) == 1 and lines[0].startswith(
+        "curvefit: warning: 6 of 12 probe cells failed and were left out (the first: ValueError: "), lines
 
 
 def test_a_ci_log_shows_one_tradeoff_count_over_settings_and_probes(iris_csv):

@@ -328,6 +328,7 @@ def probe_estimate(df: pd.DataFrame, h: float, max_n: int, capped_by_rows: bool,
              "inputs": "normal" if inputs.pool is None else "resampled",
              "max_n": max_n, "seed": settings.random_state, "bootstrap": settings.bootstrap,
              "cells": int(len(df)), "failed_cells": n_failed,
+             "first_failure": str(df.loc[df["status"] != "ok", "message"].iloc[0]) if n_failed else None,
              "fit_seconds": float(df["seconds"].sum()), "h_fit": float(h), "lack_of_fit": misfit}
     return CapacityEstimate(vc_dim=float(vc), low=float(low), high=float(high), level=level,
                             method="probe", above_range=bool(above), design=design, notes=notes,

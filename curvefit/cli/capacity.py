@@ -26,6 +26,7 @@ from curvefit.cli.common import (
     pick_interval,
     print_table,
     status,
+    warn,
 )
 from curvefit.core.defaults import SEED
 from curvefit.core.errors import InputError
@@ -190,6 +191,10 @@ def register(app: typer.Typer) -> None:
                                   **{k: v for k, v in (("repeats", repeats), ("max_n", max_n))
                                      if v is not None}))
             metric = "error"
+            failed = est.extra.get("failed_cells")
+            if failed:  # also a note on stdout; a log reader sees it on stderr
+                warn(f"{failed} of {est.extra.get('cells')} probe cells failed and were left out "
+                     f"(the first: {est.extra.get('first_failure')})", quiet)
         else:
             stray = [name for name, v in (("--model", model), ("--command", command),
                                           ("--timeout", timeout), ("--param", param),
