@@ -654,16 +654,16 @@ def _rounds_block(plan: Any, model: str | None) -> str:
     metric = plan.metric
     terms = (f"a miss after the last round costs {format_money(plan.penalty)}"
              if plan.penalty is not None
-             else f"the target must be reached with probability {plan.probability:.0%}")
+             else f"the target must be reached with probability {format_level(plan.probability)}")
     head = (f"<h3>In rounds{f' ({esc(model)})' if model else ''}</h3>"
             f"<p>To reach {esc(format_error(plan.target, metric))} "
             f"{esc(quantity_name(plan.kind, metric))} from the "
             f"{esc(format_count(plan.current_n))} labelled samples in hand: at most "
             f"{plan.max_rounds} round{'s' if plan.max_rounds != 1 else ''}, "
             f"{esc(format_money(plan.label_cost))} per label, "
-            f"{esc(format_money(plan.round_cost))} per round, and {esc(terms)}. "
-            "<strong>Labels to buy now: "
-            f"{esc(format_count(plan.buy_now))}</strong>.</p>")
+            f"{esc(format_money(plan.round_cost))} per round, and {esc(terms)}."
+            + (f" <strong>Labels to buy now: {esc(format_count(plan.buy_now))}</strong>."
+               if plan.feasible else "") + "</p>")
     rule = "<ul>" + "".join(f"<li>{esc(line)}</li>" for line in plan.rule()) + "</ul>"
     level = format_level(plan.level)
     rows = []
