@@ -398,8 +398,8 @@ def plan_buying(results: Sequence[ModelResult], *, target_error: float | None = 
     target_error, label_cost, round_cost, penalty, probability, max_rounds
         As for `curvefit.fitting.rounds.plan_rounds` (``penalty`` or ``probability``
         asks for the plan; ``round_cost`` 0 and ``max_rounds`` 3 by default).
-    slices : SliceCurves, optional
-        Per-slice curves; with ``budget`` (money to split) or ``slice_errors``
+    slices : SliceCurves or path, optional
+        Per-slice curves (or their file); with ``budget`` (money to split) or ``slice_errors``
         (``slice -> target``), `curvefit.fitting.rounds.plan_slices` splits the purchase.
     slice_costs : dict, optional
         ``slice -> price of one label`` in the split (else ``label_cost``, else 1 per
@@ -420,8 +420,11 @@ def plan_buying(results: Sequence[ModelResult], *, target_error: float | None = 
     .. [2] K. H. Tae and S. E. Whang, "Slice Tuner", SIGMOD 2021 (per-slice acquisition).
     """
     from curvefit.fitting.rounds import plan_rounds, plan_slices
+    from curvefit.measuring.slices import SliceCurves
     from curvefit.report.html import order_results
 
+    if isinstance(slices, (str, os.PathLike)):
+        slices = SliceCurves.read(slices)
     settings = check_buying(target_error=target_error, label_cost=label_cost,
                             round_cost=round_cost, penalty=penalty, probability=probability,
                             max_rounds=max_rounds, slices=slices, budget=budget,
