@@ -308,6 +308,275 @@ def run_answers(points: pd.DataFrame, folds: dict, args) -> str:
     return report
 
 
+# ====================================================================== --variants
+# Other ways of forming the point forecast, scored with the same leave-one-data-set-out
+# log-space correction on top (each data set corrected by the others' fit). Point
+# forecasts only (no bootstrap); the samples-needed figure is read from the point curve
+# (where the corrected forecast first reaches the target within HORIZON × the largest
+# fitted size), a proxy of the engine's answer.
+VARIANT_HORIZON = 100.0
+
+
+def record_families(rows: pd.DataFrame) -> list[dict]:
+    """Each family's curve, weight and rolling-origin errors for every cut of one corpus
+    curve, on the measured sizes and on a grid up to 1,000× the largest fitted size."""
+    from curvefit.fitting.intervals import falls
+
+    ok = rows[(rows["status"] == "ok") & np.isfinite(rows["test_error"])]
+    means = ok.groupby("size")["test_error"].mean()
+    sizes = means.index.to_numpy(dtype=float)
+    pool = float(rows["pool"].iloc[0])
+    curve = bench.as_curve(rows)
+    out = []
+    for cut, frac in bench.CUTS:
+        fitted = sizes[sizes <= frac * pool]
+        if len(fitted) < bench.MIN_FIT_SIZES:
+            continue
+        n_fit = float(fitted.max())
+        sub = cf.Curve(curve.points[curve.points["size"] <= n_fit], dict(curve.meta))
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            fit = cf.fit_curve(sub, bootstrap=0, calibration="none")
+            plain = cf.fit_curve(sub, families="power-law-floor", weights="none", bootstrap=0)
+        grid = np.geomspace(n_fit, 1000 * n_fit, 400)
+        at = np.concatenate([sizes, grid])
+        state = fit._state
+        families = {}
+        for name, ff in state.fits.items():
+            if ff.theta is None or ff.family.baseline:
+                continue
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                families[name] = {"curve": fit.predict_family(name, at), "weight": ff.weight,
+                                  "usable": bool(ff.eligible and ff.origins and ff.status != "failed"),
+                                  "poor": ff.status == "poor fit",
+                                  "origins": [np.asarray(e) for _, e, _ in ff.origins]}
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            averaged = fit.predict(at, interval=LEVEL)["estimate"].to_numpy()
+            try:
+                unweighted = plain.predict_family("power-law-floor", at)
+            except Exception:  # the family failed: the last value
+                unweighted = np.full(len(at), float(means.loc[n_fit]))
+        y, sem = state.data.y, np.nan_to_num(state.data.sem)
+        out.append({"dataset": rows["dataset"].iloc[0], "model": rows["model"].iloc[0],
+                    "cut": cut, "n_fit": n_fit, "pool": pool, "means": means, "sizes": sizes,
+                    "at": at, "grid": grid, "families": families, "averaged": averaged,
+                    "unweighted": unweighted, "best": fit.best, "fallen": falls(state.data),
+                    "recent_drop": float(y[-3] - y[-1]) if len(y) >= 3 else 0.0,
+                    "recent_noise": float(math.hypot(sem[-3], sem[-1])) if len(y) >= 3 else 0.0})
+    return out
+
+
+def _at(rec: dict, size: float) -> int:
+    return int(np.argmin(np.abs(rec["at"] - size)))
+
+
+def _scored_sizes(rec: dict) -> list[float]:
+    out = [rec["pool"]]
+    for k in bench.HORIZONS:
+        s = nearest(rec["sizes"], k * rec["n_fit"])
+        if s is not None and rec["n_fit"] < s <= rec["pool"]:
+            out.append(s)
+    return out
+
+
+def _as_parts(recs: list, curves: list) -> pd.DataFrame:
+    """The rows ``fit_tail`` reads, for point curves ``curves`` of the records."""
+    rows = []
+    for rec, c in zip(recs, curves):
+        top = float(c[_at(rec, rec["n_fit"])])
+        for s in _scored_sizes(rec):
+            rows.append({"size": s, "n_fit": rec["n_fit"], "at_largest": top,
+                         "estimate": float(c[_at(rec, s)]), "measured": float(rec["means"].loc[s])})
+    return pd.DataFrame(rows)
+
+
+def _tail(rec: dict, c: np.ndarray, power: float, slope: float) -> np.ndarray:
+    top = float(c[_at(rec, rec["n_fit"])])
+    if not (math.isfinite(top) and top > 0):
+        return c
+    with np.errstate(all="ignore"):
+        logs = (power * np.log(np.maximum(c / top, LOG_FLOOR))
+                + slope * np.log(np.maximum(rec["at"], rec["n_fit"]) / rec["n_fit"]))
+        return np.where((rec["at"] > rec["n_fit"]) & np.isfinite(c), top * np.exp(logs), c)
+
+
+def _combine(rec: dict, weights: dict) -> np.ndarray:
+    weights = {k: w for k, w in weights.items() if w > 0 and k in rec["families"]}
+    if not weights:
+        return rec["averaged"]
+    total = sum(weights.values())
+    return sum(w / total * rec["families"][k]["curve"] for k, w in weights.items())
+
+
+def _weights_from(rec: dict, score) -> dict:
+    """Inverse-score weights over the families the shipped average may use, shares
+    below 2% dropped (as ``selection.family_weights``)."""
+    fams = rec["families"]
+    usable = {k: f for k, f in fams.items() if f["usable"]}
+    good = {k: f for k, f in usable.items() if not f["poor"]} or usable
+    if not good or not any(f["weight"] > 0 for f in fams.values()):
+        return {}
+    inv = {k: 1.0 / max(score(f["origins"]), 1e-300) for k, f in good.items()}
+    total = sum(inv.values())
+    return {k: v / total for k, v in inv.items() if v / total >= 0.02}
+
+
+def _weighted_median(rec: dict) -> np.ndarray:
+    fams = {k: f for k, f in rec["families"].items() if f["weight"] > 0}
+    if not fams:
+        return rec["averaged"]
+    P = np.array([f["curve"] for f in fams.values()])
+    W = np.array([f["weight"] for f in fams.values()])[:, None] * np.ones_like(P)
+    order = np.argsort(P, axis=0)
+    P, W = np.take_along_axis(P, order, 0), np.take_along_axis(W, order, 0)
+    j = np.argmax(np.cumsum(W, 0) / W.sum(0) >= 0.5, axis=0)
+    return P[j, np.arange(P.shape[1])]
+
+
+def _shrunk(rec: dict, threshold: float = 1.0) -> np.ndarray:
+    """The change beyond the data scaled by min(1, drop over the last 3 sizes / (threshold ×
+    its noise)): towards the last value where the recent slope is within noise."""
+    c = rec["averaged"]
+    noise = rec["recent_noise"]
+    share = 1.0 if noise <= 0 else float(np.clip(rec["recent_drop"] / (threshold * noise), 0, 1))
+    top = c[_at(rec, rec["n_fit"])]
+    return np.where(rec["at"] > rec["n_fit"], top + share * (c - top), c)
+
+
+def point_variants() -> dict:
+    """name -> (function record -> uncorrected point curve, tail grouping or None)."""
+    mean_sq = lambda o: float(np.mean([np.mean(e ** 2) for e in o]))  # noqa: E731
+    farthest = lambda o: float(np.mean([e[-1] ** 2 for e in o]))  # noqa: E731
+    first_far = lambda o: float(o[0][-1] ** 2)  # noqa: E731
+    shipped = lambda r: r["averaged"]  # noqa: E731
+    return {
+        "shipped: families weighted by 1/(mean squared rolling-origin error)": (shipped, None),
+        "weighted median of the families": (_weighted_median, None),
+        "equal weights": (lambda r: _combine(r, {k: 1.0 for k, f in r["families"].items()
+                                                 if f["weight"] > 0}), None),
+        "the chosen family alone": (lambda r: r["families"][r["best"]]["curve"]
+                                    if r["best"] in r["families"] else r["averaged"], None),
+        "weights from each origin's farthest held-out size": (
+            lambda r: _combine(r, _weights_from(r, farthest)) if _weights_from(r, farthest)
+            else r["averaged"], None),
+        "weights from the first origin's farthest size (largest ratio)": (
+            lambda r: _combine(r, _weights_from(r, first_far)) if _weights_from(r, first_far)
+            else r["averaged"], None),
+        "weights recomputed as shipped (check)": (
+            lambda r: _combine(r, _weights_from(r, mean_sq)) if _weights_from(r, mean_sq)
+            else r["averaged"], None),
+        "shrunk towards the last value when the recent drop is within 1 noise unit": (_shrunk, None),
+        "tail correction per model type": (shipped, "model"),
+        "tail correction per chosen family": (shipped, "best"),
+        "tail correction per shape (fallen beyond noise or not)": (shipped, "fallen"),
+        "mixed with the unweighted power-law-floor, share learned": (shipped, "mix"),
+    }
+
+
+MIX_SHARES = (0.0, 0.1, 0.2, 0.3, 0.4, 0.5)
+
+
+def _fold_curves(recs: list, curves: list, group) -> list:
+    """Each data set's curves with the log-space correction fitted on the other data sets
+    (per ``group`` value when given, on at least 10 curves, else on all of them)."""
+    names = np.array([r["dataset"] for r in recs])
+    out = [None] * len(recs)
+    for name in sorted(set(names)):
+        train = [i for i in range(len(recs)) if names[i] != name]
+        cache = {}
+        for i in np.nonzero(names == name)[0]:
+            key = None if group is None else recs[i][group]
+            if key not in cache:
+                use = [j for j in train if key is None or recs[j][group] == key]
+                use = use if len(use) >= 10 else train
+                cache[key] = fit_tail(_as_parts([recs[j] for j in use], [curves[j] for j in use]))
+            out[i] = _tail(recs[i], curves[i], *cache[key])
+    return out
+
+
+def _mixed_fold_curves(recs: list) -> list:
+    """The averaged forecast mixed with the unweighted power-law-floor; the share and the
+    correction chosen on the other data sets (lowest MAE at the pool, 1/4 cut)."""
+    names = np.array([r["dataset"] for r in recs])
+    out = [None] * len(recs)
+    for name in sorted(set(names)):
+        train = [i for i in range(len(recs)) if names[i] != name]
+        best = None
+        for share in MIX_SHARES:
+            curves = [(1 - share) * r["averaged"] + share * r["unweighted"] for r in recs]
+            power, slope = fit_tail(_as_parts([recs[j] for j in train], [curves[j] for j in train]))
+            err = sum(abs(_tail(recs[j], curves[j], power, slope)[_at(recs[j], recs[j]["pool"])]
+                          - recs[j]["means"].loc[recs[j]["pool"]])
+                      for j in train if recs[j]["cut"] == "1/4")
+            if best is None or err < best[0]:
+                best = (err, share, power, slope)
+        _, share, power, slope = best
+        for i in np.nonzero(names == name)[0]:
+            r = recs[i]
+            out[i] = _tail(r, (1 - share) * r["averaged"] + share * r["unweighted"], power, slope)
+    return out
+
+
+def score_points(recs: list, curves: list, cut: str = "1/4") -> dict:
+    """MAE at the pool against the unweighted power-law-floor and the last value, and the
+    median |ln(n / n_true)| of the point curve's answers (bench_forecast's targets)."""
+    err = plf = last = 0.0
+    ratios = []
+    for rec, c in zip(recs, curves):
+        if rec["cut"] != cut:
+            continue
+        measured = float(rec["means"].loc[rec["pool"]])
+        i = _at(rec, rec["pool"])
+        err += abs(c[i] - measured)
+        plf += abs(rec["unweighted"][i] - measured)
+        last += abs(float(rec["means"].loc[rec["n_fit"]]) - measured)
+        means = rec["means"]
+        ms, mv = means.index.to_numpy(float), means.to_numpy(float)
+        fitted_floor = float(mv[ms <= rec["n_fit"]].min())
+        beyond = c[len(rec["sizes"]):]
+        for k in bench.HORIZONS:
+            s = nearest(rec["sizes"], k * rec["n_fit"])
+            if s is None or not (rec["n_fit"] < s <= rec["pool"]):
+                continue
+            target = float(means.loc[s])
+            n_true = bench.crossing(ms, mv, target)
+            if not (target < fitted_floor and math.isfinite(n_true) and n_true > rec["n_fit"]):
+                continue
+            reached = np.nonzero(beyond <= target)[0]
+            n = float(rec["grid"][reached[0]]) if len(reached) else math.inf
+            ratios.append(abs(math.log(n / n_true))
+                          if n <= VARIANT_HORIZON * rec["n_fit"] else math.inf)
+    return {"÷ power-law-floor": err / plf, "÷ last value": err / last,
+            "samples needed (point curve)": float(np.median(ratios)) if ratios else math.nan,
+            "no answer": float(np.mean(np.isinf(ratios))) if ratios else math.nan}
+
+
+def run_variants(points: pd.DataFrame, cache: Path | None) -> str:
+    import pickle
+
+    if cache is not None and cache.exists():
+        recs = pickle.loads(cache.read_bytes())
+    else:
+        recs = []
+        for _, rows in bench.curve_groups(points):
+            recs += record_families(rows)
+        if cache is not None:
+            cache.write_bytes(pickle.dumps(recs))
+    table = []
+    for name, (make, group) in point_variants().items():
+        if group == "mix":
+            curves = _mixed_fold_curves(recs)
+        else:
+            curves = _fold_curves(recs, [make(r) for r in recs], group)
+        scores = score_points(recs, curves)
+        table.append({"point forecast (1/4 cut, leave one data set out)": name,
+                      **{k: (f"{v:.0%}" if k == "no answer" else f"{v:.3f}")
+                         for k, v in scores.items()}})
+    return bench.markdown(pd.DataFrame(table))
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--corpus", type=Path, default=ROOT / "corpus")
@@ -323,9 +592,17 @@ def main(argv=None) -> int:
     ap.add_argument("--cuts", default="1/4,1/10", help="cuts scored by --answers")
     ap.add_argument("--label", default="calibrated", help="name of the --answers result files")
     ap.add_argument("--no-results", action="store_true", help="--answers prints only")
+    ap.add_argument("--variants", action="store_true",
+                    help="only score other ways of forming the point forecast (no bootstrap)")
+    ap.add_argument("--variants-cache", type=Path, default=None,
+                    help="pickle file for the family curves of --variants")
     args = ap.parse_args(argv)
     start = time.perf_counter()
     points, _ = bench.load_corpus(args.corpus)
+    if args.variants:
+        print(run_variants(points, args.variants_cache))
+        print(f"({(time.perf_counter() - start) / 60:.1f} min)")
+        return 0
     if args.cache is not None and args.cache.exists():
         parts = pd.read_csv(args.cache)
     else:
