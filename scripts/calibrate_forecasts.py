@@ -49,10 +49,19 @@ Steps:
 4. the correction fitted on all data sets is written to the package (``--no-write``
    skips it).
 
+``--variants`` instead scores other ways of forming the point forecast (weighted median,
+equal weights, the chosen family alone, weights from the farthest held-out sizes, a
+shrink towards the last value, the correction per model type, chosen family or shape, a
+mix with the unweighted power law whose share is chosen on the other data sets), each
+with its own leave-one-data-set-out correction, on point forecasts only (bootstrap 0;
+about 13 minutes under load, ``--variants-cache`` keeps the family curves); the table is
+``corpus/results/variants-corpus.md``.
+
 Run::
 
     nice -n 19 .venv/bin/python scripts/calibrate_forecasts.py --answers   # ~15 min on 2 cores
     nice -n 19 .venv/bin/python scripts/calibrate_forecasts.py --cache parts.csv --answers --cuts 1/4
+    nice -n 19 .venv/bin/python scripts/calibrate_forecasts.py --variants --variants-cache fams.pkl
 """
 
 from __future__ import annotations
