@@ -421,7 +421,7 @@ def _combine(rec: dict, weights: dict) -> np.ndarray:
 
 def _weights_from(rec: dict, score) -> dict:
     """Inverse-score weights over the families the shipped average may use, shares
-    below 2% dropped (as ``selection.family_weights``)."""
+    below 2% dropped and the rest renormalised (as ``selection.family_weights``)."""
     fams = rec["families"]
     usable = {k: f for k, f in fams.items() if f["usable"]}
     good = {k: f for k, f in usable.items() if not f["poor"]} or usable
@@ -429,7 +429,8 @@ def _weights_from(rec: dict, score) -> dict:
         return {}
     inv = {k: 1.0 / max(score(f["origins"]), 1e-300) for k, f in good.items()}
     total = sum(inv.values())
-    return {k: v / total for k, v in inv.items() if v / total >= 0.02}
+    kept = {k: v for k, v in inv.items() if v / total >= 0.02}
+    return {k: v / sum(kept.values()) for k, v in kept.items()}
 
 
 def _weighted_median(rec: dict) -> np.ndarray:
