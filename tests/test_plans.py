@@ -321,3 +321,31 @@ def test_plan_edge_cases_say_what_they_mean(train_curve):
                 "0.9", "--bootstrap", "50")
     assert r.returncode == 0, r.stderr
     assert "No purchase within the horizon" in r.stdout
+
+
+def test_a_budget_split_buys_whole_labels_and_speaks_the_metric(capsys):
+    """Whole labels within the budget (the money left goes one label at a time), and a
+    regression split is printed as MSE, not as an error rate."""
+    from curvefit.cli.plan import print_split
+    from curvefit.core.curve import Curve
+    from curvefit.fitting.engine import fit_curve
+    from curvefit.fitting.rounds import split_budget
+
+    n = np.repeat([50, 100, 200, 400], 3)
+    noise = np.tile([-20.0, 0.0, 20.0], 4)
+    fits = {}
+    for name, scale in (("a", 9000.0), ("b", 600.0)):
+        frame = pd.DataFrame({"size": n, "repeat": np.tile([0, 1, 2], 4),
+                              "test_error": 2500 + scale * n ** -0.5 + noise})
+        fits[name] = fit_curve(Curve(frame, meta={"metric": "mse"}), bootstrap=30)
+    costs = {"a": 1.5, "b": 1.0}
+    split = split_budget(fits, shares={"a": 0.5, "b": 0.5}, current={"a": 400, "b": 400},
+                         label_costs=costs, budget=301)
+    table = split.table.set_index("slice")
+    assert all(float(v).is_integer() for v in table["labels"])
+    spent = sum(table.loc[k, "labels"] * costs[k] for k in costs)
+    assert spent <= 301 and 301 - spent < max(costs.values())
+    print_split(split)
+    text = capsys.readouterr().out
+    assert "overall test MSE after" in text and "MSE now" in text
+    assert "%" not in text.replace("50%", "").replace("90%", "")  # shares and the level only

@@ -173,7 +173,7 @@ def table_rounds_line(rounds: list) -> str:
 
 def run_slice_measure(opts: dict, column: str) -> int:
     """`curvefit measure DATA ... --slice COL`: one curve per slice, written as one file."""
-    from curvefit.core.formatting import format_error
+    from curvefit.core.formatting import format_error, quantity_name
     from curvefit.core.jsonio import check_output_path
     from curvefit.measuring.slices import measure_slices_of_table
 
@@ -215,8 +215,11 @@ def run_slice_measure(opts: dict, column: str) -> int:
                      f"{format_error(first['test_mean'], curve.metric)} at {int(first['size']):,}",
                      f"{format_error(last['test_mean'], curve.metric)} at {int(last['size']):,}",
                      "measured"])
+    measured = next(iter(result.curves.values()), None)
+    quantity = (quantity_name("test_error", measured.metric, measured.metric_info)
+                if measured is not None else "test error")
     out.print(f"per-slice curves of {column} (each slice's training rows grow, the others stay "
-              "whole; test error on that slice's test rows):", markup=False)
+              f"whole; {quantity} on that slice's test rows):", markup=False)
     print_table([column, "rows", "share", "smallest size", "all its rows", "status"], rows,
                 align="first-left")
     for reason in result.skipped.values():
@@ -270,21 +273,28 @@ def print_split(split) -> None:
         format_level,
         format_money,
         format_range,
+        quantity_name,
     )
 
+    fitted = next(iter(split.fits.values()), None)
+    metric = fitted.curve.metric if fitted is not None else "error"
+    quantity = quantity_name("test_error", metric, fitted.curve.metric_info if fitted is not None else None)
+    short = "error" if metric == "error" else quantity.removeprefix("test ")
     if split.targets:
         out.print("Labels to buy per slice for its target (each slice's curve answers for its "
                   f"own; {format_money(split.budget)} in all):", markup=False)
     else:
         out.print(f"Labels to buy per slice for a budget of {format_money(split.budget)} (the "
-                  "fall of the overall error per unit of money is equalised across the slices "
+                  f"fall of the overall {short} per unit of money is equalised across the slices "
                   "that get labels):", markup=False)
     rows = [[str(r.slice), f"{r.share:.0%}", format_count(r.rows_now), format_money(r.label_cost),
-             format_count(r.labels), format_money(r.spend), format_error(r.error_now),
-             format_error(r.error_after), format_range(r.low, r.high, "error")]
+             format_count(r.labels), format_money(r.spend), format_error(r.error_now, metric),
+             format_error(r.error_after, metric), format_range(r.low, r.high, "error", metric)]
             for r in split.table.itertuples()]
-    print_table(["slice", "share", "rows now", "label cost", "buy", "spend", "error now",
-                 "error after", f"{format_level(split.level)} interval"], rows, align="first-left")
+    print_table(["slice", "share", "rows now", "label cost", "buy", "spend", f"{short} now",
+                 f"{short} after", f"{format_level(split.level)} interval"], rows, align="first-left")
     for name, e in (("now", split.overall_now), ("after", split.overall_after)):
-        out.print(f"overall error {name}: {format_error(e.estimate)} "
-                  f"({format_interval(e.low, e.high, e.level, kind='error')})", markup=False)
+        out.print(f"overall {'error' if metric == 'error' else quantity} {name}: "
+                  f"{format_error(e.estimate, metric)} "
+                  f"({format_interval(e.low, e.high, e.level, kind='error', metric=metric)})",
+                  markup=False)

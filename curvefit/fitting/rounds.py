@@ -594,7 +594,7 @@ def split_budget(fits: dict, *, shares: dict, current: dict, label_costs, budget
         warnings.simplefilter("always", FitWarning)
         if budget is not None:
             budget = check_positive(budget, "budget")
-            labels = _greedy(fits, shares, current, costs, budget, steps)
+            labels = _whole_labels(_greedy(fits, shares, current, costs, budget, steps), costs, budget)
         else:
             labels = {}
             for k in names:
@@ -603,7 +603,7 @@ def split_budget(fits: dict, *, shares: dict, current: dict, label_costs, budget
                     labels[k] = 0.0
                     continue
                 ans = fits[k].samples_for(test_error=t, interval=level)
-                labels[k] = max(ans.n - current[k], 0.0) if ans.reachable else math.nan
+                labels[k] = float(max(math.ceil(ans.n - current[k] - 1e-9), 0)) if ans.reachable else math.nan
                 if not ans.reachable:
                     notes.append(f"slice {k}: {ans.message}")
         rows, now_rows, after_rows = [], [], []
@@ -634,6 +634,18 @@ def split_budget(fits: dict, *, shares: dict, current: dict, label_costs, budget
 
 def _plain_value(value):
     return value.item() if hasattr(value, "item") else value
+
+
+def _whole_labels(labels: dict, costs: dict, budget: float) -> dict:
+    """Whole labels within the budget: each slice's share rounded down, then the money left
+    to the slices with the largest fractions, one label each while it lasts."""
+    whole = {k: float(math.floor(v + 1e-9)) for k, v in labels.items()}
+    left = budget - sum(whole[k] * costs[k] for k in whole)
+    for k in sorted(labels, key=lambda k: whole[k] - labels[k]):
+        if labels[k] - whole[k] > 1e-9 and costs[k] <= left + 1e-9:
+            whole[k] += 1.0
+            left -= costs[k]
+    return whole
 
 
 def _greedy(fits, shares, current, costs, budget: float, steps: int) -> dict:
