@@ -20,13 +20,14 @@ RSS <= 3 x table bytes), the wall times and their ratio (target A/B <= 1.1), and
 overhead per cell at several table sizes (``--sizes-of-tables`` and ``--rows``).
 
 Overhead per cell, measured as the marginal cost of cells (start-up, the run's
-whole-table work and the per-repeat split cancel out): two runs of the same table with 3
-repeats and small sizes between 100 and 1,000 rows, one with 8 sizes and one with 40,
-in one process (``--jobs 1``: no assumption about how busy two workers were); overhead
-per cell = (the difference in wall - the difference in the cells' summed fit+predict
-seconds) / the difference in cells. Beside it, the subsample read: the time this process
-takes to gather each of those cells' training and test rows from the table as a
-row-major array (what a cell reads). Target: overhead <= 5 ms + the read.
+whole-table work and the per-repeat split cancel out): in one process that has read the
+table and imported everything once, ``curvefit.measure`` runs twice on it (journal on,
+in process: no assumption about how busy two workers were), with 3 repeats of small
+sizes between 100 and 1,000 rows, 8 sizes and then 41; overhead per cell = (the
+difference in wall - the difference in the cells' summed fit+predict seconds) / the
+difference in cells, the median of 3 such pairs (the machine is shared). Beside it, the
+subsample read: the time to gather one of those cells' training and test rows from the
+table as a row-major array (what a cell reads). Target: overhead <= 5 ms + the read.
 
 Run: ``nice -n 19 .venv/bin/python scripts/bench_scale.py`` (about 10 minutes here);
 ``--quick`` uses 200,000 rows for a first look.
@@ -149,15 +150,14 @@ def sizes_for(rows: int) -> list[int]:
     return sorted({int(round(s)) for s in np.geomspace(pool / 100, pool, 8)})
 
 
-def run_curvefit(path: Path, rows: int, repeats: int, folder: Path, env: dict, sizes=None,
-                 jobs: int = 2) -> dict:
-    sizes = sizes or sizes_for(rows)
+def run_curvefit(path: Path, rows: int, repeats: int, folder: Path, env: dict) -> dict:
+    sizes = sizes_for(rows)
     out = folder / f"run-{rows}.json"
     for p in (out, Path(f"{out}.journal")):
         p.unlink(missing_ok=True)
     argv = [sys.executable, "-m", "curvefit.cli.main", "measure", str(path), "--target", "y",
             "--model", "sklearn.linear_model:SGDClassifier", "--sizes", ",".join(map(str, sizes)),
-            "--repeats", str(repeats), "--seed", str(SEED), "--jobs", str(jobs), "--out", str(out), "--quiet"]
+            "--repeats", str(repeats), "--seed", str(SEED), "--jobs", "2", "--out", str(out), "--quiet"]
     wall, sampler, _ = watched(argv, env)
     points = json.loads(out.read_text())["points"]
     fits = sum(float(p["fit_seconds"]) for p in points)
@@ -171,40 +171,55 @@ MARGINAL_SIZES = ([100, 139, 193, 268, 373, 518, 720, 1000],
 MARGINAL_REPEATS = 3
 
 
-def read_seconds(path: Path, repeats: int, sizes: list[int]) -> float:
-    """Mean seconds to gather one marginal cell's training and test rows (features and
-    target) from the table as a row-major array, over the cells of the larger run."""
-    import numpy as np
-    import pyarrow.parquet as pq
+MARGINAL_SIDE = r"""
+import json, sys, tempfile, time
+from pathlib import Path
+import numpy as np
+from curvefit.measuring.data import load_table, prepare
+from curvefit.measuring.models import resolve_model
+from curvefit.measuring.runner import measure
+from curvefit.measuring.splits import RandomSplit
 
-    from curvefit.measuring.splits import RandomSplit
+path, few, many, repeats, trials = sys.argv[1], *map(json.loads, sys.argv[2:6])
+ds = prepare(load_table(path), "y")
+spec = resolve_model("sklearn.linear_model:SGDClassifier", {})
+folder = Path(tempfile.mkdtemp())
+measure(spec, ds.X, ds.y, sizes=few[:2], repeats=1, random_state=0)  # warm-up: imports, caches
+pairs, walls = [], []
+for trial in range(trials):
+    runs = []
+    for sizes in (few, many):
+        start = time.perf_counter()
+        curve = measure(spec, ds.X, ds.y, sizes=sizes, repeats=repeats, random_state=0,
+                        journal=folder / f"j{trial}-{len(sizes)}")
+        runs.append((time.perf_counter() - start, float(curve.points["fit_seconds"].sum()),
+                     len(curve.points)))
+    (w0, f0, c0), (w1, f1, c1) = runs
+    pairs.append(((w1 - w0) - (f1 - f0)) / (c1 - c0))
+    walls.append((w0, w1))
+X = np.ascontiguousarray(ds.X.to_numpy())
+spent, cells = 0.0, 0
+for plan in RandomSplit(test_size=0.25, stratify=True).split(ds.y, repeats, 0):
+    for size in many:
+        train = plan.train_indices(size)
+        start = time.perf_counter()
+        _ = (X[train], ds.y[train], X[plan.test], ds.y[plan.test])
+        spent += time.perf_counter() - start
+        cells += 1
+print(json.dumps({"pairs": pairs, "walls": walls, "cells": c1 - c0, "read": spent / cells}))
+"""
 
-    t = pq.read_table(path)
-    names = [c for c in t.column_names if c != "y"]
-    X = np.ascontiguousarray(np.column_stack([t.column(c).to_numpy() for c in names]))
-    y = t.column("y").to_numpy()
-    del t
-    plans = RandomSplit(test_size=0.25, stratify=True).split(y, repeats, SEED)
-    spent, cells = 0.0, 0
-    for plan in plans:
-        for size in sizes:
-            train = plan.train_indices(size)
-            start = time.perf_counter()
-            _ = (X[train], y[train], X[plan.test], y[plan.test])
-            spent += time.perf_counter() - start
-            cells += 1
-    return spent / cells
 
+def marginal_overhead(path: Path, rows: int, env: dict, trials: int = 3) -> dict:
+    """Overhead per cell: the median over ``trials`` of two in-process runs that differ
+    only in their number of sizes; and the read of one cell's rows."""
+    import statistics
 
-def marginal_overhead(path: Path, rows: int, folder: Path, env: dict, jobs: int = 1) -> dict:
-    """Overhead per cell from two runs that differ only in their number of sizes."""
-    few, many = (run_curvefit(path, rows, MARGINAL_REPEATS, folder, env, sizes=sizes, jobs=jobs)
-                 for sizes in MARGINAL_SIZES)
-    cells = many["cells"] - few["cells"]
-    over = (jobs * (many["wall"] - few["wall"]) - (many["fit_seconds"] - few["fit_seconds"])) / cells
-    return {"rows": rows, "cells": cells, "overhead": over,
-            "read": read_seconds(path, MARGINAL_REPEATS, MARGINAL_SIZES[1]),
-            "walls": (few["wall"], many["wall"]), "jobs": jobs}
+    _, _, out = watched([sys.executable, "-c", MARGINAL_SIDE, str(path), *map(json.dumps, MARGINAL_SIZES),
+                         str(MARGINAL_REPEATS), str(trials)], env)
+    res = json.loads(out.strip().splitlines()[-1])
+    return {"rows": rows, "cells": res["cells"], "overhead": statistics.median(res["pairs"]),
+            "pairs": res["pairs"], "read": res["read"]}
 
 
 def main() -> None:
@@ -231,7 +246,7 @@ def main() -> None:
         if not path.exists():
             make_table(path, rows)
         results.append(run_curvefit(path, rows, args.repeats, folder, env))
-        marginal.append(marginal_overhead(path, rows, folder, env))
+        marginal.append(marginal_overhead(path, rows, env))
     big = results[-1]
     path = folder / f"scale-{args.rows}.parquet"
     sk_wall, sk, _ = watched([sys.executable, "-c", SKLEARN_SIDE, str(path), json.dumps(big["sizes"]),
@@ -252,14 +267,15 @@ def main() -> None:
     print(f"wall ratio curvefit / learning_curve = {big['wall'] / sk_wall:.2f} (target <= 1.1)")
     print(f"\noverhead per cell, marginal: (extra wall - extra fit+predict seconds) / extra cells, "
           f"{len(MARGINAL_SIZES[0])} vs {len(MARGINAL_SIZES[1])} sizes of 100..1,000 rows x "
-          f"{MARGINAL_REPEATS} repeats, --jobs 1;\nread = gathering a cell's train and test rows; "
-          "target <= 5 ms + read")
-    print(f"{'rows':>10}{'extra cells':>13}{'walls s':>14}{'overhead/cell ms':>18}{'read/cell ms':>14}"
-          f"{'beyond read ms':>16}")
+          f"{MARGINAL_REPEATS} repeats, in process,\nmedian of 3 pairs (the pairs in brackets); "
+          "read = gathering one cell's train and test rows; target <= 5 ms + read")
+    print(f"{'rows':>10}{'extra cells':>13}{'overhead/cell ms':>18}{'read/cell ms':>14}"
+          f"{'beyond read ms':>16}   pairs ms")
     for m in marginal:
         beyond = (m["overhead"] - m["read"]) * 1000
-        print(f"{m['rows']:>10,}{m['cells']:>13}{m['walls'][0]:7.1f}{m['walls'][1]:7.1f}"
-              f"{m['overhead'] * 1000:18.1f}{m['read'] * 1000:14.1f}{beyond:16.1f}")
+        pairs = ", ".join(f"{p * 1000:.1f}" for p in m["pairs"])
+        print(f"{m['rows']:>10,}{m['cells']:>13}{m['overhead'] * 1000:18.1f}{m['read'] * 1000:14.1f}"
+              f"{beyond:16.1f}   [{pairs}]")
     print("\nthe full runs per table size: the old whole-run figure (2 x wall - fit+predict) / cells")
     print("(start-up and whole-table work charged to the cells) and the tree's peak RSS")
     print(f"{'rows':>10}{'cells':>7}{'wall s':>9}{'fit+predict s':>15}{'whole-run/cell ms':>19}"
