@@ -1,8 +1,17 @@
 """Shared test fixtures."""
 
+import atexit
+import contextlib
+import json
 import os
+import shutil
+import signal
+import socket
 import subprocess
 import sys
+import tempfile
+import threading
+import uuid
 from pathlib import Path
 
 import pytest
@@ -11,12 +20,91 @@ ROOT = Path(__file__).resolve().parents[1]
 
 
 def run_cli(*args, cwd=None, timeout=300, env=None, input=None):
-    """Run the real ``curvefit`` command line in a subprocess; returns CompletedProcess."""
+    """Run the real ``curvefit`` command line in its own process; returns CompletedProcess.
+
+    The process is forked from a server that has the big libraries imported already
+    (tests/cli_server.py), which saves about a second of start-up per command; it runs
+    as ``python -m curvefit.cli.main`` would. An environment change that those libraries
+    read when imported (thread counts, Python or matplotlib settings), or
+    CURVEFIT_TEST_FORK=0, runs a fresh interpreter instead.
+    """
     e = dict(os.environ)
     e.update(env or {})
-    return subprocess.run([sys.executable, "-m", "curvefit.cli.main", *map(str, args)],
-                          capture_output=True, text=True, cwd=cwd, timeout=timeout,
-                          env=e, input=input)
+    argv = [str(a) for a in args]
+    address = None if _import_sensitive(e) else _fork_server()
+    if address is None:
+        return subprocess.run([sys.executable, "-m", "curvefit.cli.main", *argv],
+                              capture_output=True, text=True, cwd=cwd, timeout=timeout,
+                              env=e, input=input)
+    return _run_forked(address, argv, str(Path(cwd or os.getcwd()).resolve()), e, timeout, input)
+
+
+_SERVER: dict = {}
+_SERVER_LOCK = threading.Lock()
+_IMPORT_SENSITIVE = ("OMP_", "OPENBLAS_", "MKL_", "BLIS_", "VECLIB_", "NUMEXPR_", "PYTHON",
+                     "MPLBACKEND", "MPLCONFIGDIR", "MALLOC_", "LD_", "SKLEARN_", "JOBLIB_", "LOKY_")
+
+
+def _import_sensitive(env: dict) -> bool:
+    if env.get("CURVEFIT_TEST_FORK") == "0":
+        return True
+    base = _SERVER.get("env", os.environ)
+    changed = {k for k in set(env) | set(base) if env.get(k) != base.get(k)}
+    return any(k.startswith(_IMPORT_SENSITIVE) for k in changed)
+
+
+def _fork_server() -> str | None:
+    """The server's socket address, starting it on first use (None: it could not start)."""
+    with _SERVER_LOCK:
+        if "address" not in _SERVER:
+            _SERVER["address"] = None
+            folder = tempfile.mkdtemp(prefix="curvefit-test-cli-")
+            address = os.path.join(folder, "socket")
+            proc = subprocess.Popen([sys.executable, str(Path(__file__).with_name("cli_server.py")),
+                                     address], stdin=subprocess.PIPE, stdout=subprocess.PIPE, cwd=ROOT)
+            if proc.stdout.readline().strip() == b"ready":
+                _SERVER.update(address=address, proc=proc, folder=folder, env=dict(os.environ))
+                atexit.register(_stop_server)
+            else:
+                proc.kill()
+        return _SERVER["address"]
+
+
+def _stop_server() -> None:
+    proc = _SERVER.get("proc")
+    if proc is not None:
+        proc.stdin.close()
+        proc.wait(timeout=30)
+        shutil.rmtree(_SERVER["folder"], ignore_errors=True)
+
+
+def _run_forked(address: str, argv: list[str], cwd: str, env: dict, timeout, input):
+    files = {name: os.path.join(_SERVER["folder"], f"{uuid.uuid4().hex}.{name}")
+             for name in ("stdin", "stdout", "stderr")}
+    for name in files:
+        Path(files[name]).write_text(input if name == "stdin" and input is not None else "")
+    try:
+        with socket.socket(socket.AF_UNIX, socket.SOCK_STREAM) as conn:
+            conn.connect(address)
+            conn.settimeout(timeout)
+            stream = conn.makefile("rwb", buffering=0)
+            stream.write((json.dumps(dict(files, args=argv, cwd=cwd, env=env)) + "\n").encode())
+            pid = int(stream.readline().split()[1])
+            try:
+                code = int(stream.readline().split()[1])
+            except (TimeoutError, socket.timeout):
+                with contextlib.suppress(OSError):
+                    os.kill(pid, signal.SIGKILL)
+                raise subprocess.TimeoutExpired(argv, timeout) from None
+        # decoded with universal newlines, as subprocess.run(text=True) does
+        out, err = (Path(files[name]).read_bytes().decode().replace("\r\n", "\n").replace("\r", "\n")
+                    for name in ("stdout", "stderr"))
+    finally:
+        for path in files.values():
+            with contextlib.suppress(OSError):
+                os.unlink(path)
+    return subprocess.CompletedProcess([sys.executable, "-m", "curvefit.cli.main", *argv], code,
+                                       out, err)
 
 
 def kill_when_journaled(args, out, journal, lines: int, timeout: float = 120):
