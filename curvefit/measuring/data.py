@@ -743,8 +743,8 @@ def _label_array(y_series: pd.Series) -> np.ndarray:
         return s.to_numpy(dtype=bool)
     if pd.api.types.is_numeric_dtype(s.dtype):
         values = s.to_numpy(dtype="float64")
-        if np.all(values == np.round(values)):
-            return values.astype("int64")
+        if np.all(values == np.round(values)) and np.all(np.abs(values) < 2.0 ** 53):
+            return values.astype("int64")  # exact: whole numbers a float holds exactly
         return values
     if isinstance(s.dtype, pd.CategoricalDtype):
         s = s.astype(object)
