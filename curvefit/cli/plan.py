@@ -287,8 +287,11 @@ def print_split(split) -> None:
         out.print(f"Labels to buy per slice for a budget of {format_money(split.budget)} (the "
                   f"fall of the overall {short} per unit of money is equalised across the slices "
                   "that get labels):", markup=False)
-    rows = [[str(r.slice), f"{r.share:.0%}", format_count(r.rows_now), format_money(r.label_cost),
-             format_count(r.labels), format_money(r.spend), format_error(r.error_now, metric),
+    def exact(v) -> str:  # labels to buy are whole and exact, not rounded to 3 figures
+        return f"{int(round(v)):,}" if v == v and abs(v) != float("inf") else format_count(v)
+
+    rows = [[str(r.slice), f"{r.share:.0%}", exact(r.rows_now), format_money(r.label_cost),
+             exact(r.labels), format_money(r.spend), format_error(r.error_now, metric),
              format_error(r.error_after, metric), format_range(r.low, r.high, "error", metric)]
             for r in split.table.itertuples()]
     print_table(["slice", "share", "rows now", "label cost", "buy", "spend", f"{short} now",
