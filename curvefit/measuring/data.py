@@ -182,7 +182,7 @@ def table_columns(path: str | os.PathLike) -> list[str]:
     --------
     >>> import tempfile, pathlib
     >>> d = pathlib.Path(tempfile.mkdtemp())
-    >>> _ = (d / "t.csv").write_text("a,b,y\n1,2,0\n3,4,1\n")
+    >>> _ = (d / "t.csv").write_text("a,b,y\\n1,2,0\\n3,4,1\\n")
     >>> table_columns(d / "t.csv")
     ['a', 'b', 'y']
     """
