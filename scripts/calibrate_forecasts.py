@@ -108,6 +108,18 @@ def nearest(sizes: np.ndarray, n: float) -> float | None:
     return float(s) if abs(math.log(s / n)) <= math.log(TOLERANCE) else None
 
 
+def cut_curves(rows: pd.DataFrame, sizes: np.ndarray, pool: float):
+    """(cut name, largest fitted size, the curve up to it) for each cut of one corpus curve
+    that leaves enough sizes to fit."""
+    curve = bench.as_curve(rows)
+    for cut, frac in bench.CUTS:
+        fitted = sizes[sizes <= frac * pool]
+        if len(fitted) < bench.MIN_FIT_SIZES:
+            continue
+        n_fit = float(fitted.max())
+        yield cut, n_fit, cf.Curve(curve.points[curve.points["size"] <= n_fit], dict(curve.meta))
+
+
 def record_curve(rows: pd.DataFrame, bootstrap: int, seed: int) -> list[dict]:
     """Band parts at the scored sizes of one corpus curve, for both cuts."""
     ok = rows[(rows["status"] == "ok") & np.isfinite(rows["test_error"])]
@@ -117,14 +129,8 @@ def record_curve(rows: pd.DataFrame, bootstrap: int, seed: int) -> list[dict]:
     pool = float(rows["pool"].iloc[0])
     has_truth = rows["true_error"].notna().any()
     truth = ok.groupby("size")["true_error"].mean() if has_truth else None
-    curve = bench.as_curve(rows)
     out = []
-    for cut, frac in bench.CUTS:
-        fitted = sizes[sizes <= frac * pool]
-        if len(fitted) < bench.MIN_FIT_SIZES:
-            continue
-        n_fit = float(fitted.max())
-        sub = cf.Curve(curve.points[curve.points["size"] <= n_fit], dict(curve.meta))
+    for cut, n_fit, sub in cut_curves(rows, sizes, pool):
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             fit = cf.fit_curve(sub, bootstrap=bootstrap, random_state=seed, calibration="none")
@@ -335,14 +341,8 @@ def record_families(rows: pd.DataFrame) -> list[dict]:
     means = ok.groupby("size")["test_error"].mean()
     sizes = means.index.to_numpy(dtype=float)
     pool = float(rows["pool"].iloc[0])
-    curve = bench.as_curve(rows)
     out = []
-    for cut, frac in bench.CUTS:
-        fitted = sizes[sizes <= frac * pool]
-        if len(fitted) < bench.MIN_FIT_SIZES:
-            continue
-        n_fit = float(fitted.max())
-        sub = cf.Curve(curve.points[curve.points["size"] <= n_fit], dict(curve.meta))
+    for cut, n_fit, sub in cut_curves(rows, sizes, pool):
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             fit = cf.fit_curve(sub, bootstrap=0, calibration="none")
