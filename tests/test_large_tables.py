@@ -170,6 +170,29 @@ def test_only_the_used_columns_are_read(tmp_path, cancer):
     assert len(everything.stderr.strip().splitlines()) == 1
 
 
+@pytest.mark.parametrize("command", [
+    ["measure", "--slice", "grade", "--repeats", "1", "--out", "slices.json"],
+    ["capacity", "--probe", "--max-n", "40", "--repeats", "1", "--bootstrap", "10"],
+    ["tradeoff", "--vary", "max_depth=1,3", "--sizes", "40,80", "--repeats", "1"],
+], ids=["measure-slice", "capacity-probe", "tradeoff"])
+def test_other_commands_read_only_the_used_columns(tmp_path, cancer, command):
+    """Per-slice curves, the capacity probe and the trade-off read, like measure, only the
+    named features, the target (and the slice column): an unreadable unused column is
+    never decoded."""
+    small = cancer[["mean radius", "worst area", "target"]].head(240).assign(
+        grade=np.tile(["a", "b"], 120))
+    lines = small.to_csv(index=False).encode().splitlines()
+    bad = [lines[0] + b",notes"] + [ln + (b",\xff\xfe" if i % 2 else b",ok")
+                                    for i, ln in enumerate(lines[1:])]
+    (tmp_path / "t.csv").write_bytes(b"\n".join(bad) + b"\n")
+    name, *options = command
+    lead = 1 if name == "capacity" else 0  # capacity --probe DATA ...
+    res = run_cli(name, *options[:lead], "t.csv", "--target", "target",
+                  "--model", "sklearn.tree:DecisionTreeClassifier", "--features", "worst area,mean radius",
+                  *options[lead:], "--quiet", cwd=tmp_path)
+    assert res.returncode in (0, 3), res.stderr
+
+
 def test_parquet_columns_read_one_by_one(tmp_path):
     df = _numbers(100)
     df.index = pd.RangeIndex(100, 200)

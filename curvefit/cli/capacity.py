@@ -95,10 +95,10 @@ def _probe_inputs(data: str | None, target: str | None, features: str | None,
         raise InputError("give either a DATA file or --n-features, not both")
     from curvefit.measuring import data as cfdata
 
-    df = cfdata.load_table(data)
     feats = None
     if features:
         feats = [f.strip() for f in features.split(",") if f.strip()]
+    df = cfdata.load_used_columns(data, feats and [*feats, *([target] if target else [])])
     if target:
         ds = cfdata.prepare(df, target, feats)
         X = ds.X

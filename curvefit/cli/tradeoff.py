@@ -116,8 +116,8 @@ def register(app: typer.Typer) -> None:
         # Fail on a parameter or value the model does not take before any work starts.
         for value in varied[name]:
             setting_spec(spec, name, value)
-        df = cfdata.load_table(data)
         feats = [f.strip() for f in features.split(",") if f.strip()] if features else None
+        df = cfdata.load_used_columns(data, feats and [*feats, target])
         ds = cfdata.prepare(df, target, feats)
         tr = tradeoff(spec, ds.X, ds.y, vary=varied, sizes=[int(s) for s in size_list],
                       repeats=repeats, random_state=seed, n_jobs=jobs, backend=backend,

@@ -175,6 +175,28 @@ def _parquet_index_columns(path: Path) -> set:
     return {c for c in meta.get("index_columns", []) if isinstance(c, str)}
 
 
+def load_used_columns(path: str | os.PathLike, wanted) -> pd.DataFrame:
+    """The table with only the ``wanted`` columns, in the file's order, when the header has
+    every one of them; otherwise (or with no ``wanted``) the whole table, so the checks after
+    reading name a missing column and list the file's columns.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> d = pathlib.Path(tempfile.mkdtemp())
+    >>> _ = (d / "t.csv").write_text("a,b,note,y\\n1,2,x,0\\n3,4,z,1\\n")
+    >>> list(load_used_columns(d / "t.csv", ["y", "a"]).columns)
+    ['a', 'y']
+    >>> list(load_used_columns(d / "t.csv", ["a", "missing"]).columns)
+    ['a', 'b', 'note', 'y']
+    """
+    if not wanted:
+        return load_table(path)
+    wanted = {str(w) for w in wanted}
+    header = table_columns(path)
+    return load_table(path, columns=[c for c in header if c in wanted] if wanted <= set(header) else None)
+
+
 def table_columns(path: str | os.PathLike) -> list[str]:
     """The column names of a data file, from its header (Parquet: its schema) only.
 

@@ -259,8 +259,8 @@ def measure_slices_of_table(path, *, target: str, column: str, model: str | None
     from curvefit.measuring import data as cfdata
     from curvefit.measuring.models import parse_params, resolve_model
 
-    df = cfdata.load_table(path)
     column = str(column)
+    df = cfdata.load_used_columns(path, features and [*map(str, features), str(target), column])
     if column not in [str(c) for c in df.columns]:
         raise InputError(f"--slice column {column!r} not in the table; available columns: "
                          f"{', '.join(str(c) for c in list(df.columns)[:25])}")

@@ -206,24 +206,14 @@ def _sizes(value) -> list[int] | None:
     return check_sizes(parse_list(value, float, name="size", integer_range=True))
 
 
-def _present(header: list, wanted) -> list | None:
-    """The ``wanted`` columns in the file's order, or None (read all) when one is absent:
-    the checks after reading then name it and list the file's columns."""
-    wanted = set(wanted)
-    return [c for c in header if c in wanted] if wanted <= set(header) else None
-
-
 def _used_columns(opts: dict, features) -> list | None:
     """The columns a run reads when its features are named: those, the target and the
     group/order columns (the fingerprint then covers these); None (all) otherwise."""
-    from curvefit.measuring.data import table_columns
-
     if not features:
         return None
     if isinstance(features, str):
         features = [f.strip() for f in features.split(",") if f.strip()]
-    wanted = [*features, str(opts["target"])] + [str(opts[o]) for o in ("groups", "order") if opts[o]]
-    return _present(table_columns(opts["data"]), wanted)
+    return [*features, str(opts["target"])] + [str(opts[o]) for o in ("groups", "order") if opts[o]]
 
 
 def measure_from_settings(opts: dict, *, progress: bool | None = None,
@@ -257,7 +247,7 @@ def measure_from_settings(opts: dict, *, progress: bool | None = None,
     features = opts["features"]
     if isinstance(features, (list, tuple)):
         features = [str(f) for f in features]
-    df = cfdata.load_table(opts["data"], columns=_used_columns(opts, features))
+    df = cfdata.load_used_columns(opts["data"], _used_columns(opts, features))
     columns = [str(c) for c in df.columns]
     special = {}
     for option in ("groups", "order"):
@@ -283,8 +273,7 @@ def measure_from_settings(opts: dict, *, progress: bool | None = None,
                          trainer_format=opts["trainer_format"])
     X_test = y_test = None
     if opts["test"]:
-        used = ds.feature_names + [ds.target]
-        tdf = cfdata.load_table(opts["test"], columns=_present(cfdata.table_columns(opts["test"]), used))
+        tdf = cfdata.load_used_columns(opts["test"], ds.feature_names + [ds.target])
         missing = [c for c in ds.feature_names + [ds.target] if c not in tdf.columns]
         if missing:
             raise InputError(f"the test file {opts['test']} lacks the columns "
