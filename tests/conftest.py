@@ -32,11 +32,18 @@ def run_cli(*args, cwd=None, timeout=300, env=None, input=None):
     e.update(env or {})
     argv = [str(a) for a in args]
     address = None if _import_sensitive(e) else _fork_server()
-    if address is None:
-        return subprocess.run([sys.executable, "-m", "curvefit.cli.main", *argv],
-                              capture_output=True, text=True, cwd=cwd, timeout=timeout,
-                              env=e, input=input)
-    return _run_forked(address, argv, str(Path(cwd or os.getcwd()).resolve()), e, timeout, input)
+    if address is not None:
+        try:
+            return _run_forked(address, argv, str(Path(cwd or os.getcwd()).resolve()), e, timeout, input)
+        except _ServerGone:
+            pass  # the command did not start: run it in a fresh interpreter
+    return subprocess.run([sys.executable, "-m", "curvefit.cli.main", *argv],
+                          capture_output=True, text=True, cwd=cwd, timeout=timeout,
+                          env=e, input=input)
+
+
+class _ServerGone(Exception):
+    """The fork server could not be reached before the command started."""
 
 
 _SERVER: dict = {}
@@ -85,11 +92,17 @@ def _run_forked(address: str, argv: list[str], cwd: str, env: dict, timeout, inp
         Path(files[name]).write_text(input if name == "stdin" and input is not None else "")
     try:
         with socket.socket(socket.AF_UNIX, socket.SOCK_STREAM) as conn:
-            conn.connect(address)
-            conn.settimeout(timeout)
-            stream = conn.makefile("rwb", buffering=0)
-            stream.write((json.dumps(dict(files, args=argv, cwd=cwd, env=env)) + "\n").encode())
-            pid = int(stream.readline().split()[1])
+            try:
+                conn.connect(address)
+                conn.settimeout(timeout)
+                stream = conn.makefile("rwb", buffering=0)
+                stream.write((json.dumps(dict(files, args=argv, cwd=cwd, env=env)) + "\n").encode())
+                started = stream.readline().split()
+            except OSError:
+                raise _ServerGone from None
+            if len(started) != 2 or started[0] != b"pid":
+                raise _ServerGone
+            pid = int(started[1])
             try:
                 code = int(stream.readline().split()[1])
             except (TimeoutError, socket.timeout):
