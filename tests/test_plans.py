@@ -76,16 +76,20 @@ def test_required_probability_is_met_exactly_on_the_draws():
 
 
 # ---------------------------------------------------------------- through the command line
-@pytest.fixture(scope="module")
-def curve_table(tmp_path_factory):
-    """A curve of the law 0.05 + 2·n^−0.5 with binomial test noise (1,000 test rows)."""
-    rng = np.random.default_rng(3)
+def _law_table(seed: int) -> pd.DataFrame:
+    """The law 0.05 + 2·n^−0.5 with binomial test noise (1,000 test rows), 8 sizes × 5 repeats."""
+    rng = np.random.default_rng(seed)
     sizes = np.repeat(np.geomspace(50, 2000, 8).round(), 5)
     truth = 0.05 + 2 * sizes ** -0.5
-    table = pd.DataFrame({"size": sizes, "repeat": np.tile(range(5), 8),
-                          "test_error": rng.binomial(1000, truth) / 1000})
+    return pd.DataFrame({"size": sizes, "repeat": np.tile(range(5), 8),
+                         "test_error": rng.binomial(1000, truth) / 1000})
+
+
+@pytest.fixture(scope="module")
+def curve_table(tmp_path_factory):
+    """A curve of the law of `_law_table`."""
     path = tmp_path_factory.mktemp("plan") / "curve.csv"
-    table.to_csv(path, index=False)
+    _law_table(3).to_csv(path, index=False)
     return path
 
 
@@ -292,13 +296,9 @@ def test_slice_bad_input_is_one_line_and_exit_2(sliced, args):
 
 @pytest.fixture(scope="module")
 def train_curve(tmp_path_factory):
-    """The law of `curve_table` with a training error 0.05 − n^−0.5 beside it."""
-    rng = np.random.default_rng(4)
-    sizes = np.repeat(np.geomspace(50, 2000, 8).round(), 5)
-    truth = 0.05 + 2 * sizes ** -0.5
-    table = pd.DataFrame({"size": sizes, "repeat": np.tile(range(5), 8),
-                          "test_error": rng.binomial(1000, truth) / 1000,
-                          "train_error": np.clip(0.05 - sizes ** -0.5, 0, 1)})
+    """The law of `_law_table` with a training error 0.05 − n^−0.5 beside it."""
+    table = _law_table(4)
+    table["train_error"] = np.clip(0.05 - table["size"] ** -0.5, 0, 1)
     path = tmp_path_factory.mktemp("plan-gap") / "curve.csv"
     table.to_csv(path, index=False)
     return path
