@@ -198,14 +198,34 @@ def prediction_band(sizes, level: float, data: FitData, fits: dict, boots: dict 
 
 def falls(data: FitData) -> bool:
     """Whether the curve falls from its smallest to its largest size by at least
-    ``FLAT_Z`` standard errors (always True for train error, which rises)."""
+    ``FLAT_Z`` standard errors, or from any other smaller size by a margin corrected for
+    the extra comparisons (one-sided 2.5% split over them, Bonferroni), so one very noisy
+    smallest size does not hide a clear fall after it. Always True for train error,
+    which rises.
+
+    Examples
+    --------
+    A fall hidden by a noisy first size (a least-squares regression's MSE):
+
+    >>> from types import SimpleNamespace
+    >>> d = SimpleNamespace(on="test", m=5, y=np.array([44850, 6624, 3697, 3174, 3065]),
+    ...                     sem=np.array([24020, 589, 191, 188, 129]))
+    >>> falls(d)
+    True
+    >>> falls(SimpleNamespace(on="test", m=3, y=np.array([0.30, 0.29, 0.30]),
+    ...                       sem=np.array([0.01, 0.01, 0.01])))
+    False
+    """
     if data.on == "train" or data.m < 2:
         return True
     scale = noise_scale(data.sem)
-    drop = float(data.y[0] - data.y[-1])
+    y = np.asarray(data.y, dtype=float)
     if scale is None:
-        return drop > 0
-    return drop >= FLAT_Z * math.hypot(float(scale[0]), float(scale[-1]))
+        return bool(y[0] - y[-1] > 0)
+    z = (y[:-1] - y[-1]) / np.hypot(scale[:-1], scale[-1])
+    if z[0] >= FLAT_Z:
+        return True
+    return bool(np.max(z) >= ndtri(1.0 - 0.025 / max(len(z), 1)))
 
 
 def data_variance_at(data: FitData, sizes) -> np.ndarray:
