@@ -247,6 +247,9 @@ def test_ranking_table_is_in_the_order_of_the_rule_that_chooses(files, tmp_path,
     assert [t[1] for t in table] == [row["family"] for row in rows]
     assert table[0][-1] == "chosen" and table[1][-1] == "runner-up"
     assert f"(runner-up: {doc['runner_up']})" in r.stdout
+    # the last value is never chosen, and its row says so instead of a plain 'converged'
+    last = next(t for t in table if t[1] == "last-value")
+    assert "baseline" in last and "converged" not in last
 
 
 def _pinned_curve():

@@ -65,12 +65,14 @@ def _print_ranking(fit) -> None:
               f"forecasts over the {held} largest size{'s' if held != 1 else ''}): "
               f"{fit.ranking_rule}; families that cannot be chosen come last (a 'poor fit' misses "
               "the measured points, lack of fit = reduced chi-square against their standard "
-              "errors; 'implausible' goes below 0 or above the measured range beyond the data):",
+              "errors; 'implausible' goes below 0 or above the measured range beyond the data; "
+              "the last value is a 'baseline' to compare with, never chosen):",
               markup=False)
     rows = []
     for rank, r in enumerate(fit.table.itertuples(), start=1):
         role = "chosen" if r.chosen else ("runner-up" if r.family == fit.runner_up else "")
-        status = r.status if r.eligible else "implausible"
+        status = ("baseline" if r.family == "last-value" and r.status != "failed"
+                  else r.status if r.eligible else "implausible")
         rows.append([str(rank), r.family, r.formula, format_number(r.forecast_error),
                      format_number(r.aicc, 5), format_number(r.lack_of_fit, 3), status,
                      "tie" if r.tied else "", role])
