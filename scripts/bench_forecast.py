@@ -414,6 +414,13 @@ SIM_REPEATS = 5
 SIM_TEST = 1000
 SIM_FAR = (2, 10, 40)
 SIM_TARGETS = (2, 10)
+# What simulation (i) draws, said the way a run says it: every repeat's test rows are
+# fresh draws from an unlimited population and its training set carries no variance of
+# its own, so repeats share no rows: a pool far beyond the sizes. A curve without this
+# is read as repeats re-splitting one table whose pool is the largest size (what a
+# table from elsewhere usually is), and its band would count the binomial test noise as
+# shared by all repeats, which here it is not.
+LAW_META = {"n_pool": 10 ** 12, "n_test": SIM_TEST}
 
 
 def _score_fit(fit, truth_at, floor: float, n_max: float) -> dict:
@@ -445,7 +452,7 @@ def simulate_law(n_datasets: int, bootstrap: int, seed: int) -> pd.DataFrame:
         errors = rng.binomial(SIM_TEST, sim_law(sizes)) / SIM_TEST
         curve = cf.Curve.from_table(pd.DataFrame({
             "size": sizes, "repeat": np.tile(np.arange(SIM_REPEATS), len(SIM_SIZES)),
-            "test_error": errors, "n_test": SIM_TEST}))
+            "test_error": errors, "n_test": SIM_TEST}), meta=LAW_META)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             fit = cf.fit_curve(curve, bootstrap=bootstrap, random_state=d)

@@ -4,7 +4,8 @@ Fast versions of the two simulations of scripts/bench_forecast.py --simulate (th
 ones run 150 and 40 data sets there). Each check states what the intervals covered
 before the averaged forecast and the fresh-data-set variance (the issue's measurements,
 150 / 40 data sets) and what they cover now; the bands asserted are ones a 90% interval
-meets with room for the few data sets here and the old code did not.
+meets with room for the few data sets here and the old code did not (too narrow first,
+then too wide for the known law).
 """
 
 import math
@@ -21,6 +22,12 @@ LEVEL = 0.9
 SIZES = sorted({int(round(s)) for s in np.geomspace(50, 2000, 8)})
 REPEATS = 5
 N_TEST = 1000
+
+
+# Every repeat of simulation (i) draws its test rows afresh from an unlimited population
+# (and its training set adds no variance): said as a run says it, a pool far beyond the
+# sizes, so the repeats share no rows (scripts/bench_forecast.py: LAW_META).
+INDEPENDENT_DRAWS = {"n_pool": 10 ** 12, "n_test": N_TEST}
 
 
 def law(n):
@@ -49,7 +56,7 @@ def law_runs():
         errors = rng.binomial(N_TEST, law(sizes)) / N_TEST
         curve = cf.Curve.from_table(pd.DataFrame({
             "size": sizes, "repeat": np.tile(np.arange(REPEATS), len(SIZES)),
-            "test_error": errors, "n_test": N_TEST}))
+            "test_error": errors, "n_test": N_TEST}), meta=INDEPENDENT_DRAWS)
         fit = _fit(curve, d, bootstrap=40)
         far = np.array([2, 10, 40]) * n_max
         with warnings.catch_warnings():
@@ -67,17 +74,20 @@ def law_runs():
 
 def test_law_bands_cover_the_true_curve(law_runs):
     # before: 90% at 2×, 70% at 10× and 40× on these 30 data sets (77% in all; 15 of the
-    # 21 misses too optimistic; the issue measured 86/79/81% on 150); now 100/97/93%
+    # 21 misses too optimistic; the issue measured 86/79/81% on 150). Then the averaged
+    # forecast, the model error and the fresh-data variance: 100/97/93% (97% in all), too
+    # wide, with the model error floored point by point and the binomial noise counted
+    # as shared; now 93/90/87% (90% in all; 3 of the 9 misses too optimistic)
     cover = law_runs[["cov_2x", "cov_10x", "cov_40x"]].to_numpy()
     misses_above = law_runs[["above_2x", "above_10x", "above_40x"]].to_numpy().sum()
-    assert cover.mean() >= 0.85, (cover.mean(axis=0), misses_above)
+    assert 0.85 <= cover.mean() <= 0.95, (cover.mean(axis=0), misses_above)
     assert misses_above <= max(1, 0.75 * (~cover).sum())   # misses no longer one-sided
 
 
 def test_law_samples_needed_cover_the_true_size(law_runs):
     # before: the interval of the samples needed for the error at 10× covered the true n
-    # (20,000) in 70% of these data sets; now in ≥ 85%. The point answer stays within a
-    # factor 2 of it in the median (0.53 now, 0.73 before: the flat end of the curve
+    # (20,000) in 70% of these data sets; now in ≥ 85% (90%). The point answer stays within a
+    # factor 2 of it in the median (0.82 now, 0.73 before: the flat end of the curve
     # makes it sensitive; the interval is what carries the uncertainty)
     assert law_runs["need_cov"].mean() >= 0.85, law_runs["need_cov"].mean()
     assert 0.5 <= float(np.nanmedian(law_runs["ratio"])) <= 2.0
@@ -150,3 +160,25 @@ def test_runner_bands_cover_the_true_error(runner_runs):
     # the true error at 2× lies near 0.11 (scripts/bench_forecast.py --simulate: 0.1098
     # from 100 training samples per size); the check above used 20
     assert runner_runs["truth"].iloc[0] == pytest.approx(0.1098, abs=0.003)
+
+
+def test_a_separate_test_set_counts_as_shared_by_every_repeat():
+    from curvefit.fitting.data import dataset_variance, split_sizes
+    from curvefit.measuring.splits import GivenTestSplit, RandomSplit
+
+    # the engine reads the split as the runner describes it: with one given test set
+    # every repeat scores the same rows, so all of its binomial noise is shared (τ = 1;
+    # docs/references.md#fresh-data-variance); the name once differed ("given"), and such runs
+    # were read as re-drawing their test rows
+    sizes = np.array([100.0, 300.0])
+    given = split_sizes({"n_pool": 300, "n_test": 100,
+                         "split": GivenTestSplit(n_test=100).describe()}, [], sizes)
+    drawn = split_sizes({"n_pool": 300, "n_test": 100,
+                         "split": RandomSplit(test_size=100).describe()}, [], sizes)
+    assert given["fixed_test"] and not drawn["fixed_test"]
+    args = (sizes, np.array([0.01, 0.01]), np.array([0.2, 0.1]), np.array([5, 5]), "test", "error")
+    v_given, _ = dataset_variance(*args, given)
+    v_drawn, _ = dataset_variance(*args, drawn)
+    # the whole binomial variance e(1 − e)/n_test of the largest size is shared
+    assert v_given[-1] >= 0.1 * 0.9 / 100 - 1e-12
+    assert np.all(v_given > v_drawn)

@@ -123,7 +123,8 @@ def split_sizes(meta: dict, n_test_points, sizes) -> dict:
         n_test = float(np.median(finite)) if len(finite) else \
             pool * ASSUMED_TEST_FRACTION / (1 - ASSUMED_TEST_FRACTION)
     split = meta.get("split") if isinstance(meta.get("split"), dict) else {}
-    fixed = split.get("kind") == "given" or meta.get("test_data") is not None
+    # the runner names a separate test set "given_test" (measuring/splits.GivenTestSplit)
+    fixed = split.get("kind") == "given_test" or meta.get("test_data") is not None
     return {"pool": pool, "n_test": float(n_test), "n_rows": pool + float(n_test),
             "fixed_test": bool(fixed), "known": bool(known)}
 
