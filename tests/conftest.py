@@ -144,3 +144,66 @@ def kill_when_journaled(args, out, journal, lines: int, timeout: float = 120):
 @pytest.fixture
 def cli():
     return run_cli
+
+
+# what a source checkout has that a wheel must not need
+_NOT_SOURCE = shutil.ignore_patterns(".git", ".venv", "build", "dist", "*.egg-info", "__pycache__",
+                                     ".pytest_cache", ".hypothesis", "curvefit-demo", "corpus")
+
+
+def run_checked(args, *, cwd, timeout, env) -> subprocess.CompletedProcess:
+    """Run a program; fails the test with its output when it exits non-zero."""
+    r = subprocess.run([str(a) for a in args], cwd=cwd, env=env, capture_output=True, text=True,
+                       timeout=timeout)
+    command = " ".join(map(str, args))
+    assert r.returncode == 0, f"{command} failed ({r.returncode}):\n{r.stdout[-3000:]}\n{r.stderr[-3000:]}"
+    return r
+
+
+@pytest.fixture(scope="session")
+def installed_demo(tmp_path_factory):
+    """`curvefit demo` run once, from an empty folder, by the built wheel installed (not
+    editable) into a fresh virtual environment: what a user gets from ``pip install``.
+
+    tests/test_wheel.py checks the install, tests/test_demo.py what the demo wrote and
+    printed: one demo run serves both. The wheel is built from a copy of the checkout (so
+    the build leaves nothing in it) with pip's build isolation, and installed with
+    ``--no-deps`` into a venv without pip of its own whose site-packages also lists the
+    project venv's (a .pth line: the libraries there, not their .pth files, so not the
+    editable checkout); ``pip check`` then proves that the wheel's declared requirements
+    are met. The libraries are the ones scripts/_venv.sh installed from the same list in
+    pyproject.toml; installing them again from the registry took minutes.
+    """
+    import sysconfig
+    from types import SimpleNamespace
+
+    tmp = tmp_path_factory.mktemp("wheel")
+    env = {k: v for k, v in os.environ.items() if k not in ("PYTHONPATH", "VIRTUAL_ENV", "PYTHONHOME")}
+    env["PIP_DISABLE_PIP_VERSION_CHECK"] = "1"
+    source = tmp / "source"
+    shutil.copytree(ROOT, source, ignore=_NOT_SOURCE)
+    pip = [sys.executable, "-m", "pip"]
+    run_checked([*pip, "wheel", "--quiet", "--no-deps", "-w", tmp / "wheels", source], cwd=tmp,
+                timeout=900, env=env)
+    (wheel,) = (tmp / "wheels").glob("curvefit-*.whl")
+
+    venv = tmp / "venv"
+    run_checked([sys.executable, "-m", "venv", "--without-pip", venv], cwd=tmp, timeout=300, env=env)
+    python = venv / "bin" / "python"
+    site = run_checked([python, "-c", "import sysconfig; print(sysconfig.get_paths()['purelib'])"],
+                       cwd=tmp, timeout=120, env=env).stdout.strip()
+    ours = dict.fromkeys(sysconfig.get_paths()[k] for k in ("purelib", "platlib"))
+    Path(site, "project-libraries.pth").write_text("".join(f"{p}\n" for p in ours))
+    run_checked([*pip, "--python", python, "install", "--quiet", "--no-deps", wheel], cwd=tmp,
+                timeout=900, env=env)
+    check = subprocess.run([*pip, "--python", python, "check"], cwd=tmp, env=env,
+                           capture_output=True, text=True, timeout=300)
+    where = run_checked([python, "-c", "import curvefit; print(curvefit.__file__)"], cwd=tmp,
+                        timeout=120, env=env).stdout.strip()
+
+    empty = tmp / "empty"
+    empty.mkdir()
+    out = empty / "demo-out"
+    demo = subprocess.run([venv / "bin" / "curvefit", "demo", "--out", out], cwd=empty, env=env,
+                          capture_output=True, text=True, timeout=1800)
+    return SimpleNamespace(venv=venv, wheel=wheel, check=check, where=Path(where), out=out, demo=demo)

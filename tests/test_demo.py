@@ -1,4 +1,9 @@
-"""`curvefit demo` end to end: the whole chain on the bundled packhouse data."""
+"""`curvefit demo` end to end: the whole chain on the bundled packhouse data.
+
+The demo's output is that of the one demo run of the session, by the installed wheel
+(the fixture ``installed_demo`` in tests/conftest.py, which tests/test_wheel.py checks
+too): the same command on the same code, run once instead of twice.
+"""
 
 from __future__ import annotations
 
@@ -14,9 +19,8 @@ from curvefit.measuring.slices import SliceCurves
 
 
 @pytest.mark.slow
-def test_demo_end_to_end(tmp_path):
-    out = tmp_path / "demo"
-    r = run_cli("demo", "--out", out, timeout=600)
+def test_demo_end_to_end(installed_demo):
+    out, r = installed_demo.out, installed_demo.demo
     assert r.returncode == 0, r.stderr
     lines = r.stdout.strip().splitlines()
     assert lines[-1] == str(out / "report.html")  # the report's path closes the summary
