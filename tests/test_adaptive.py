@@ -13,7 +13,7 @@ from sklearn.linear_model import LogisticRegression
 
 import curvefit as cf
 from conftest import kill_when_journaled, run_cli
-from curvefit.measuring.adaptive import AdaptiveDesign, parse_goal
+from curvefit.measuring.adaptive import AdaptiveDesign, effective_cells, parse_goal
 from curvefit.measuring.costs import fit_cost_model, pilot_sizes, plan_seconds
 
 LOGREG = "sklearn.linear_model:LogisticRegression"
@@ -243,6 +243,16 @@ def test_cost_model_slope_is_theil_sen_through_the_size_medians():
     assert cost.exponent == pytest.approx(slope, rel=1e-12)
     assert cost.exponent == pytest.approx(1.4, abs=0.1)
     assert plan_seconds(cost, [1600] * 4, n_jobs=2) == pytest.approx(2 * cost.seconds(1600)[0])
+
+
+def test_cells_count_as_the_engines_student_t_bootstrap_sees_them():
+    # k cells draw their mean with Student-t noise on k - 1 degrees of freedom: worth
+    # k·(z/t)² cells of known spread (quantiles from scipy.stats)
+    z = stats.norm.ppf(0.95)
+    expected = [0.0, 1.0] + [k * (z / stats.t.ppf(0.95, k - 1)) ** 2 for k in (2, 3, 4, 5)]
+    np.testing.assert_allclose(effective_cells([0, 1, 2, 3, 4, 5], 0.9), expected, rtol=1e-9)
+    two, one, three = effective_cells([2, 1, 3])
+    assert two < 0.2 * one and three > 6 * two  # a second repeat alone adds little, the third much
 
 
 def test_pilot_sizes_and_goal_parsing():

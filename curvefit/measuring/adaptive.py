@@ -25,14 +25,19 @@ How cells are chosen (`AdaptiveDesign.run`):
    shrinkage of the answer's squared half-width per unit of compute (optimal design for
    one function of the parameters, "c-optimality", through the delta method): the design
    curve ``e(n) = c + a·n^−p`` is fitted to the measured means with weights
-   ``k_s/σ_s²`` (σ_s, the spread of one cell, a power law in n fitted to the repeats), so
+   ``k_s·(z/t_{k_s−1})²/σ_s²`` (σ_s, the spread of one cell, a power law in n fitted to
+   the repeats; the factor is what the engine's parametric bootstrap, which draws each
+   mean with Student-t noise on k − 1 degrees of freedom, makes of k cells: two count as
+   0.14, three as 0.95, five as 2.98, one as 1; `effective_cells`), so
    the parameters' variance is ``(Jᵀ W J)⁻¹`` and the answer's ``gᵀ(JᵀWJ)⁻¹g`` with ``g``
    the gradient of the answer (the error at the question's size). To it are added, as
    the engine builds its band, the model error seen in forecast validation (``drift ·
    ln(N / n_max)``, shrinking only when a larger size is measured, scaled by the
    calibration's κ) and the fresh-data-set variance; the result is never below the
    interval of the mean measured nearest N (Student t on k − 1 degrees of freedom,
-   which rewards repeats there).
+   which rewards repeats there). A greedy step may add several repeats at one size at
+   once (scored per cell): with Student-t weights a second repeat alone can be worth
+   less than the first, and the third much more.
 4. Compute is counted in rows processed — a cell fits its training rows, then scores
    them and the test rows, so ``2·n + n_test`` — not in measured seconds: the choice must
    be the same whatever machine, ``--jobs`` or backend ran the cells, and after a resume. Measured seconds
@@ -61,6 +66,7 @@ from __future__ import annotations
 import math
 import time
 from dataclasses import dataclass, field, replace
+from functools import lru_cache
 
 import numpy as np
 
@@ -72,7 +78,7 @@ GOAL_KINDS = ("error-at", "samples-for-error", "samples-for-gap", "floor")
 FIRST_SIZES = 5       # sizes of the first pass
 FIRST_REPEATS = 2     # repeats of each first-pass size
 BATCH = 4             # cells chosen per round
-DESIGN_VERSION = 1    # bump when the choice rule changes (journals of older runs are refused)
+DESIGN_VERSION = 2    # bump when the choice rule changes (journals of older runs are refused)
 LEVEL = 0.9
 
 
@@ -381,27 +387,32 @@ class AdaptiveDesign:
                                    np.array(self.sizes, dtype=float))
         if model is None:
             return self._spread(counts)
-        picked = []
+        picked: list[tuple[tuple[int, int], str]] = []
         k = np.array([counts[s] for s in self.sizes], dtype=float)
-        for _ in range(BATCH):
+        while len(picked) < BATCH:
             now = model.half_width2(k)
             best, best_score, best_after = None, 0.0, now
             for i, s in enumerate(self.sizes):
-                if k[i] >= self.repeats:
-                    continue
-                k[i] += 1
-                after = model.half_width2(k)
-                k[i] -= 1
-                score = (now - after) / self.cost(s)
-                if score > best_score * (1 + 1e-9) and now - after > 1e-12 * now:
-                    best, best_score, best_after = i, score, after
+                # one or more repeats at once: a second repeat alone may add little (the
+                # engine's bootstrap draws a size's mean with Student-t noise on k − 1
+                # degrees of freedom), the third and fourth then much
+                for step in range(1, min(self.repeats - int(k[i]), BATCH - len(picked)) + 1):
+                    k[i] += step
+                    after = model.half_width2(k)
+                    k[i] -= step
+                    score = (now - after) / (step * self.cost(s))
+                    if score > best_score * (1 + 1e-9) and now - after > 1e-12 * now:
+                        best, best_score, best_after = (i, step), score, after
             if best is None:
                 break
-            s = int(self.sizes[best])
-            key = (s, int(k[best]))
-            k[best] += 1
-            picked.append((key, f"predicted half-width {format_number(math.sqrt(now), 4)} → "
-                                f"{format_number(math.sqrt(best_after), 4)} for {format_count(s)} rows"))
+            i, step = best
+            s = int(self.sizes[i])
+            why = (f"predicted half-width {format_number(math.sqrt(now), 4)} → "
+                   f"{format_number(math.sqrt(best_after), 4)} for {format_count(s)} rows"
+                   + (f" ({step} repeats)" if step > 1 else ""))
+            for _ in range(step):
+                picked.append(((s, int(k[i])), why))
+                k[i] += 1
         return picked
 
     def _spread(self, counts) -> list[tuple[tuple[int, int], str]]:
@@ -483,7 +494,7 @@ class _DesignModel:
 
     def half_width2(self, k: np.ndarray) -> float:
         """Predicted squared half-width of the answer with ``k[i]`` cells at ``sizes[i]``."""
-        w = k / self.sd ** 2
+        w = effective_cells(k, self.level) / self.sd ** 2
         info = (self.jac * w[:, None]).T @ self.jac
         info += np.eye(3) * 1e-10 * max(np.trace(info), 1e-300)
         try:
@@ -502,6 +513,31 @@ class _DesignModel:
         i = int(np.argmin(np.abs(np.log(self.sizes / self.point)) + np.where(k > 0, 0.0, np.inf)))
         near = (t_quantile(self.level, max(k[i] - 1, 1)) * self.sd[i] / math.sqrt(k[i])) ** 2
         return max(total, near)
+
+
+def effective_cells(k, level: float = LEVEL) -> np.ndarray:
+    """What k cells at one size are worth in the engine's band, in cells of known spread.
+
+    The engine's parametric bootstrap (`curvefit.fitting.bootstrap`) draws a size's mean
+    with Student-t noise on k − 1 degrees of freedom, whose quantile at the band's level
+    is t/z times the normal one, so k cells count as k·(z/t)²; one cell counts as one.
+
+    Examples
+    --------
+    >>> effective_cells([0, 1, 2, 3, 5]).round(2).tolist()    # a 90% band
+    [0.0, 1.0, 0.14, 0.95, 2.98]
+    """
+    k = np.atleast_1d(np.asarray(k, dtype=float))
+    return k * np.array([_share(int(m), float(level)) for m in k])
+
+
+@lru_cache(maxsize=256)
+def _share(m: int, level: float) -> float:
+    from scipy.special import ndtri
+
+    from curvefit.core.stats import t_quantile
+
+    return (float(ndtri((1 + level) / 2)) / t_quantile(level, m - 1)) ** 2 if m >= 2 else 1.0
 
 
 def _cell_values(rows: list[dict], on: str) -> tuple[np.ndarray, np.ndarray]:
