@@ -23,6 +23,21 @@ def files(tmp_path_factory):
     return {"csv": csv, "run": run, "test_only": test_only, "broken": broken, "dir": d}
 
 
+def fit_text_and_json(*args, folder):
+    """One `curvefit fit ARGS --out FILE` run: its text output and the JSON document that
+    --json would print (the same document, test_fit_json_on_a_run_file checks)."""
+    out = folder / f"fit-{len(list(folder.glob('fit-*.json')))}.json"
+    r = run_cli("fit", *args, "--out", out)
+    assert r.returncode == 0, r.stderr
+    return r, json.loads(out.read_text())
+
+
+@pytest.fixture(scope="module")
+def run_fit(files, tmp_path_factory):
+    """`fit RUN --bootstrap 30`, the text and the JSON, shared by the tests that read it."""
+    return fit_text_and_json(files["run"], "--bootstrap", "30", folder=tmp_path_factory.mktemp("runfit"))
+
+
 def test_fit_prints_ranking_and_predictions(files):
     r = run_cli("fit", files["csv"], "--bootstrap", "30")
     assert r.returncode == 0, r.stderr
@@ -40,7 +55,7 @@ def test_fit_json_on_a_run_file(files):
     assert doc["format"] == "curvefit.fit/1" and doc["on"] == "test"
     assert doc["best"] == [f for f in doc["families"] if f["chosen"]][0]["family"]
     assert len(doc["predictions"]) == 2
-    assert json.loads(out.read_text())["best"] == doc["best"]
+    assert json.loads(out.read_text()) == doc  # the file holds what --json prints
 
 
 def test_fit_gap_with_chosen_families(files):
@@ -139,9 +154,9 @@ def test_fit_at_prints_the_forecast_with_its_interval(files):
     from curvefit.core.errors import FitWarning
     from curvefit.fitting.engine import fit_curve
 
-    r = run_cli("fit", files["run"], "--bootstrap", "30", "--at", "20000,50000", "--json")
-    assert r.returncode == 0, r.stderr
-    at = json.loads(r.stdout)["at"]
+    r, doc = fit_text_and_json(files["run"], "--bootstrap", "30", "--at", "20000,50000",
+                               folder=files["dir"])
+    at = doc["at"]
     assert [row["size"] for row in at] == [20000, 50000]
     # the same numbers as the API's CurveFit.predict with the same seed
     fit = fit_curve(Curve.read(files["run"]), bootstrap=30, random_state=0)
@@ -150,8 +165,6 @@ def test_fit_at_prints_the_forecast_with_its_interval(files):
     for row, ref in zip(at, pred.itertuples()):
         assert row["estimate"] == pytest.approx(ref.estimate) and row["low"] == pytest.approx(ref.low)
         assert row["low"] <= row["estimate"] <= row["high"]
-    r = run_cli("fit", files["run"], "--bootstrap", "30", "--at", "20000,50000")
-    assert r.returncode == 0, r.stderr
     block = r.stdout.split("at the sizes asked for:")[1].splitlines()
     assert block[1].split()[:2] == ["size", "test"] and "90% interval" in block[1]
     assert block[2].lstrip().startswith("20,000 (") and block[3].lstrip().startswith("50,000 (")
@@ -190,14 +203,13 @@ def test_bad_forecast_sizes_exit_2(files, args):
     assert len(r.stderr.strip().splitlines()) == 1 and "Traceback" not in r.stderr
 
 
-def test_fit_prints_how_the_forecast_was_made(files):
+def test_fit_prints_how_the_forecast_was_made(files, run_fit):
     """The notes (averaged families, fresh-data variance, the learned correction) are in the
     text output, not only in --json (issue 13: say so when a learned correction is used)."""
     from curvefit.core.curve import Curve
     from curvefit.fitting.engine import fit_curve
 
-    r = run_cli("fit", files["run"], "--bootstrap", "30")
-    assert r.returncode == 0, r.stderr
+    r, _ = run_fit
     printed = [line[len("note: "):] for line in r.stdout.splitlines() if line.startswith("note: ")]
     fit = fit_curve(Curve.read(files["run"]), bootstrap=30, random_state=0)
     assert printed == fit.notes and printed
@@ -226,21 +238,21 @@ def _ranking_follows_the_rule(rows: list[dict]) -> None:
 
 
 @pytest.mark.parametrize("which", ["run", "plateau"])
-def test_ranking_table_is_in_the_order_of_the_rule_that_chooses(files, tmp_path, which):
+def test_ranking_table_is_in_the_order_of_the_rule_that_chooses(files, run_fit, tmp_path, which):
     """Issue 16: the ranking is sorted by the rule that chooses and the runner-up is the
-    second by that rule (checked through the real CLI, --json and the text table)."""
+    second by that rule (checked through the real CLI, the JSON and the text table)."""
     from test_fitting import plateau_curve
 
-    run = files["run"] if which == "run" else plateau_curve().write(tmp_path / "plateau.json")
-    r = run_cli("fit", run, "--bootstrap", "30", "--json")
-    assert r.returncode == 0, r.stderr
-    doc = json.loads(r.stdout)
+    if which == "run":
+        r, doc = run_fit
+    else:
+        r, doc = fit_text_and_json(plateau_curve().write(tmp_path / "plateau.json"), "--bootstrap", "30",
+                                   folder=tmp_path)
     rows = doc["families"]
     assert rows[0]["chosen"] and rows[0]["family"] == doc["best"]
     assert doc["runner_up"] == rows[1]["family"]
     _ranking_follows_the_rule(rows)
     assert doc["settings"]["ranking_rule"]
-    r = run_cli("fit", run, "--bootstrap", "30")
     lines = r.stdout.splitlines()
     assert doc["settings"]["ranking_rule"] in lines[1]
     table = [line.split() for line in lines[3:3 + len(rows)]]
@@ -271,9 +283,7 @@ def test_every_parameter_lies_inside_its_own_interval(tmp_path, family):
     widened interval says so."""
     csv = tmp_path / "pinned.csv"
     _pinned_curve().to_csv(csv, index=False)
-    r = run_cli("fit", csv, "--families", family, "--bootstrap", "100", "--json")
-    assert r.returncode == 0, r.stderr
-    doc = json.loads(r.stdout)
+    r, doc = fit_text_and_json(csv, "--families", family, "--bootstrap", "100", folder=tmp_path)
     for p in doc["parameters"]:
         assert p["low"] <= p["estimate"] <= p["high"], p
         assert p["note"] in ("", "at its bound", "widened to the estimate", "degenerate")
@@ -281,7 +291,6 @@ def test_every_parameter_lies_inside_its_own_interval(tmp_path, family):
         if doc[key] and doc[key]["low"] is not None:
             assert doc[key]["low"] <= doc[key]["estimate"] <= doc[key]["high"], doc[key]
     notes = {p["note"] for p in doc["parameters"]} - {""}
-    r = run_cli("fit", csv, "--families", family, "--bootstrap", "100")
     block = r.stdout.split("chosen:")[1].splitlines()[1:1 + len(doc["parameters"]) + 1]
     for note in notes:
         assert any(line.rstrip().endswith(note) for line in block), (note, block)
