@@ -105,12 +105,13 @@ def test_other_scorers_are_labelled_and_have_no_vc_sections(runs):
 
 def test_capacity_gives_parameters_for_squared_error_and_nothing_for_other_losses(runs):
     d, _ = runs
-    text = _ok(run_cli("capacity", "mse.json", "--bootstrap", "100", cwd=d)).stdout
+    # --out writes the document --json prints (one run for the text and the JSON)
+    text = _ok(run_cli("capacity", "mse.json", "--bootstrap", "100", "--out", "cap-mse.json",
+                       cwd=d)).stdout
     assert "VC units" not in text and "2·σ²·p/n" in text
     assert "Hastie, Tibshirani & Friedman" in text
     _no_e_notation(text)
-    doc = json.loads(_ok(run_cli("capacity", "mse.json", "--bootstrap", "100", "--json",
-                                 cwd=d)).stdout)
+    doc = json.loads((d / "cap-mse.json").read_text())
     assert doc["method"] == "optimism"
     other = _ok(run_cli("capacity", "max.json", "--bootstrap", "100", cwd=d)).stdout
     assert other.startswith("No capacity figure for max error") and "0-1 loss" in other

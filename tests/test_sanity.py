@@ -170,9 +170,10 @@ def test_measure_json_carries_the_constant_predictor(imbalanced, tmp_path):
     assert doc["sanity"]["imbalance_hint"].endswith("--metric balanced_error")
 
 
-def test_fit_and_need_say_it_beside_every_answer(imbalanced):
+def test_fit_and_need_say_it_beside_every_answer(imbalanced, tmp_path):
     run, _ = imbalanced["runs"]["error"]
-    r = run_cli("fit", run, "--bootstrap", "40")
+    # --out writes the document --json prints (tests/test_cli_fit.py): one fit for both
+    r = run_cli("fit", run, "--bootstrap", "40", "--out", tmp_path / "fit.json")
     assert r.returncode == 0, r.stderr
     assert re.search(r"^constant predictor \(always the majority class\): 6\.\d% at 1,125 labels",
                      r.stdout, re.M)
@@ -186,8 +187,8 @@ def test_fit_and_need_say_it_beside_every_answer(imbalanced):
     sanity = json.loads(r.stdout)["sanity"]
     assert sanity["no_better_than_baseline"] is True
     assert sanity["baseline"]["baseline"]["estimate"] == pytest.approx(imbalanced["positives"], abs=0.002)
-    r = run_cli("fit", run, "--bootstrap", "40", "--json")
-    assert json.loads(r.stdout)["sanity"]["baseline"]["sizes_no_better"][-1] == 1125
+    fit = json.loads((tmp_path / "fit.json").read_text())
+    assert fit["sanity"]["baseline"]["sizes_no_better"][-1] == 1125
 
 
 def test_balanced_error_takes_the_hint_away(imbalanced):
