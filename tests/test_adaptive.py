@@ -47,7 +47,7 @@ def test_stops_when_the_precision_is_reached(cancer):
     curve = _adaptive(*cancer, goal="error-at:400", precision=50.0)
     record = curve.meta["adaptive"]
     assert record["stop"]["reason"] == "precision"
-    assert len(record["rounds"]) == 1 and len(curve.points) == len(record["cells"]) == 10
+    assert len(record["rounds"]) == 1 and len(curve.points) == len(record["cells"]) == 12
     assert all(c["reason"] == "first pass" for c in record["cells"])
     assert record["answer"]["relative_width"] <= 50.0
     assert "stopped: the interval width" in record["summary"]
@@ -58,7 +58,7 @@ def test_stops_when_the_budget_is_spent(cancer):
     record = curve.meta["adaptive"]
     assert record["stop"]["reason"] == "budget"
     assert record["fit_seconds"] >= 1e-6
-    assert len(curve.points) == 10          # the first pass always runs
+    assert len(curve.points) == 12          # the first pass (4 sizes x 3) always runs
 
 
 def test_stops_when_every_cell_is_measured(cancer):
@@ -135,8 +135,8 @@ def test_kill_9_then_resume_gives_the_uninterrupted_cells(iris_csv, tmp_path):
             "--goal", "error-at:110", "--precision", "0.0001"]
     out = tmp_path / "run.json"
     journal = tmp_path / "run.json.journal"
-    # kill it inside the second round (first pass: 10 cells)
-    kill_when_journaled(args, out, journal, lines=1 + 12, timeout=240)
+    # kill it inside the second round (first pass: 12 cells, then the grid's 3 others)
+    kill_when_journaled(args, out, journal, lines=1 + 14, timeout=240)
     assert not out.exists()
     kept = len(journal.read_text().splitlines()) - 1
     resumed = run_cli(*args, "--out", out, "--resume")
@@ -194,7 +194,7 @@ def test_plan_only_trains_nothing_it_keeps(iris_csv, tmp_path):
                 "--goal", "floor", "--budget", "60", "--json", cwd=tmp_path)
     assert r.returncode == 0, r.stderr
     plan = json.loads(r.stdout)["plan"]
-    assert len(plan["cells"]) == 10 and plan["grid_cells"] == 50 and "rounds of up to 4" in plan["adaptive"]
+    assert len(plan["cells"]) == 12 and plan["grid_cells"] == 50 and "rounds of about 4" in plan["adaptive"]
     assert list(tmp_path.iterdir()) == []
 
 
