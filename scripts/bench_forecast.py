@@ -25,7 +25,8 @@ calibration that never saw any of its curves.
 
 ``--simulate`` — two simulations with a known truth:
 
-(i) error = 0.05 + 2·n^−0.5 with binomial test noise (1,000 test rows), 5 repeats, 8
+(i) error = 0.05 + 2·n^−0.5 with binomial test noise (1,000 test rows drawn afresh for
+    every repeat, which the curve's metadata says: ``LAW_META``), 5 repeats, 8
     geometric sizes 50–2,000, ``--sim-datasets`` (150) data sets: coverage of the 90%
     band at 2×, 10×, 40× the largest size, of the floor's interval, and the
     samples-needed interval for the errors at 2× and 10× (true n 4,000 and 20,000);
