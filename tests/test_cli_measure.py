@@ -251,12 +251,15 @@ def test_kill_9_then_resume_gives_the_uninterrupted_points(iris_csv, tmp_path):
 
 def test_ctrl_c_exits_130_with_journal_intact(iris_csv, tmp_path):
     model = tmp_path / "slow.py"
+    hold = tmp_path / "hold"  # once it exists, every fit waits: the run cannot end before Ctrl-C
     model.write_text(
-        "import time\n"
+        "import os, time\n"
         "from sklearn.linear_model import LogisticRegression\n"
         "class Slow(LogisticRegression):\n"
         "    def fit(self, X, y):\n"
         "        time.sleep(0.25)\n"
+        f"        while os.path.exists({str(hold)!r}):\n"
+        "            time.sleep(0.05)\n"
         "        return super().fit(X, y)\n"
         "def make_model():\n    return Slow(max_iter=300)\n")
     out = tmp_path / "run.json"
@@ -268,6 +271,7 @@ def test_ctrl_c_exits_130_with_journal_intact(iris_csv, tmp_path):
     deadline = time.time() + 120
     while time.time() < deadline and not (journal.exists() and len(journal.read_text().splitlines()) >= 3):
         time.sleep(0.05)
+    hold.touch()
     proc.send_signal(signal.SIGINT)
     _, stderr = proc.communicate(timeout=60)
     assert proc.returncode == 130, stderr
