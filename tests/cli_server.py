@@ -8,6 +8,12 @@ stdin, stdout and stderr files, and exit code (negative when a signal ended it, 
 `subprocess` reports). curvefit itself is imported afresh in each child, so anything it
 reads from the environment at import sees the test's environment.
 
+A child ends as the interpreter's own exit does what a user can see (non-daemon threads
+joined, atexit handlers run, garbage collected, standard streams flushed) and then leaves
+with ``os._exit``: tearing down the modules inherited from the server would touch every
+page of the copied heap, which cost about a second a command. The server freezes its own
+objects (``gc.freeze``) so that a child's collections skip them for the same reason.
+
 Protocol, on a Unix socket given as the first argument: the client sends one JSON line
 ``{"args", "cwd", "env", "stdin", "stdout", "stderr"}``; the server answers
 ``pid <n>`` once the command runs and ``exit <code>`` when it ends. The server ends when
@@ -16,6 +22,7 @@ its stdin closes (the test session is over or gone).
 
 from __future__ import annotations
 
+import gc
 import json
 import os
 import runpy
@@ -27,8 +34,16 @@ import sys
 
 def _preload() -> None:
     # the libraries a measure/fit/report command loads; not curvefit and not pyplot (its
-    # backend choice reads the environment)
+    # backend choice reads the environment; matplotlib's own settings variables send a
+    # command to a fresh interpreter, tests/conftest.py)
+    import shlex  # noqa: F401
+    import sqlite3  # noqa: F401
+    import tomllib  # noqa: F401
+
     import joblib  # noqa: F401
+    import matplotlib.backends.backend_agg  # noqa: F401
+    import matplotlib.figure  # noqa: F401
+    import matplotlib.ticker  # noqa: F401
     import numpy  # noqa: F401
     import pandas  # noqa: F401
     import rich.console  # noqa: F401
@@ -44,6 +59,10 @@ def _preload() -> None:
     import sklearn.tree  # noqa: F401
     import threadpoolctl  # noqa: F401
     import typer  # noqa: F401
+    try:  # what typer loads to read the options (pydantic), in versions that have it
+        import typer._adapters  # noqa: F401
+    except ImportError:
+        pass
 
 
 def _run_command(request: dict) -> None:
@@ -75,8 +94,29 @@ def _run_command(request: dict) -> None:
 
         traceback.print_exc()
         code = 1
-    # a normal interpreter exit: atexit handlers, flushed streams, joined workers
-    sys.exit(code)
+    _exit(code)
+
+
+def _exit(code: int) -> None:
+    """End the command as the interpreter's exit would, minus tearing down the modules."""
+    import atexit
+    import threading
+
+    try:
+        threading._shutdown()  # joins non-daemon threads (and runs their atexit hooks)
+    except BaseException:
+        import traceback
+
+        traceback.print_exc()
+    atexit._run_exitfuncs()  # loky's executor, weakref finalizers, logging, ...
+    gc.collect()
+    for stream in dict.fromkeys((sys.stdout, sys.stderr, sys.__stdout__, sys.__stderr__)):
+        try:
+            if stream is not None:
+                stream.flush()
+        except Exception:
+            code = code or 120  # the interpreter's exit status when stdout cannot be flushed
+    os._exit(code)
 
 
 def _serve_one(conn: socket.socket) -> None:
@@ -96,6 +136,7 @@ def _serve_one(conn: socket.socket) -> None:
 
 def main(address: str) -> None:
     _preload()
+    gc.freeze()  # the children inherit these objects: their collections need not visit them
     signal.signal(signal.SIGCHLD, signal.SIG_IGN)  # the children reap themselves
     listener = socket.socket(socket.AF_UNIX, socket.SOCK_STREAM)
     listener.bind(address)

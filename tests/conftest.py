@@ -82,6 +82,7 @@ def _stop_server() -> None:
     if proc is not None:
         proc.stdin.close()
         proc.wait(timeout=30)
+        proc.stdout.close()
         shutil.rmtree(_SERVER["folder"], ignore_errors=True)
 
 
