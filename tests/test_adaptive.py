@@ -131,11 +131,11 @@ def test_kill_9_then_resume_gives_the_uninterrupted_cells(iris_csv, tmp_path):
         "        return super().fit(X, y)\n"
         "def make_model():\n    return Slow(max_iter=300)\n")
     args = ["measure", str(iris_csv), "--target", "target", "--model", f"{model}:make_model",
-            "--sizes", "10,20,40,80,110", "--repeats", "3", "--seed", "3", "--quiet",
+            "--sizes", "10,20,40,80,110", "--repeats", "4", "--seed", "3", "--quiet",
             "--goal", "error-at:110", "--precision", "0.0001"]
     out = tmp_path / "run.json"
     journal = tmp_path / "run.json.journal"
-    # kill it inside the second round (first pass: 12 cells, then the grid's 3 others)
+    # kill it after the first pass (12 cells) and before the end (the grid's 20 cells)
     kill_when_journaled(args, out, journal, lines=1 + 14, timeout=240)
     assert not out.exists()
     kept = len(journal.read_text().splitlines()) - 1
@@ -146,7 +146,7 @@ def test_kill_9_then_resume_gives_the_uninterrupted_cells(iris_csv, tmp_path):
 
     ds = cfdata.prepare(cfdata.load_table(iris_csv), "target")
     whole = cf.measure(resolve_model(f"{model}:make_model"), ds.X, ds.y, sizes=[10, 20, 40, 80, 110],
-                       repeats=3, random_state=3, goal="error-at:110", precision=0.0001)
+                       repeats=4, random_state=3, goal="error-at:110", precision=0.0001)
     doc = json.loads(out.read_text())
     assert doc["meta"]["adaptive"]["cells"] == whole.meta["adaptive"]["cells"]
     pd.testing.assert_frame_equal(pd.DataFrame(doc["points"])[COMPARE], whole.points[COMPARE])
