@@ -26,7 +26,7 @@ The last line reads
 ``adaptive/fixed fit-seconds: median R; coverage adaptive A%, fixed F%; ETA ratio median E``
 and the exit code is 0 only when R <= 0.4.
 
-Run (about 15 minutes under `nice -n 19` on the loaded 2-core machine)::
+Run (6-15 minutes under `nice -n 19` on the shared 2-core machine, with the load)::
 
     nice -n 19 .venv/bin/python scripts/bench_adaptive.py [--tasks fair/linear,...] [--seeds 1]
 """
@@ -35,6 +35,7 @@ from __future__ import annotations
 
 import argparse
 import math
+import os
 import sys
 import time
 import warnings
@@ -162,7 +163,8 @@ def main(argv=None) -> int:
     eta = float(np.nanmedian([r["eta_ratio"] for r in rows]))
     print(f"\nreached the fixed grid's width: {sum(r['reached'] for r in rows)}/{len(rows)}; "
           f"wall seconds of the refits between rounds (not fit-seconds): median "
-          f"{np.median([r['refit_s'] for r in rows]):.1f}; targets: ratio <= {TARGET_RATIO}, "
+          f"{np.median([r['refit_s'] for r in rows]):.1f}; load average "
+          f"{'/'.join(f'{v:.1f}' for v in os.getloadavg())}; targets: ratio <= {TARGET_RATIO}, "
           "ETA ratio within 0.7-1.4")
     print(f"adaptive/fixed fit-seconds: median {median:.2f}; coverage adaptive {cov_a:.0f}%, "
           f"fixed {cov_f:.0f}%; ETA ratio median {eta:.2f}")
