@@ -78,15 +78,19 @@ class Cluster:
         return path.read_text()[-2000:] if path.exists() else ""
 
     def close(self):
-        for p in reversed(self.procs):
-            if p.poll() is None:
-                p.terminate()
-        for p in self.procs:
-            try:
-                p.wait(timeout=20)
-            except subprocess.TimeoutExpired:
-                p.kill()
-                p.wait(timeout=20)
+        # the workers first, then the scheduler: a worker stopped by its own SIGTERM and by the
+        # scheduler's close at once could hang in Dask's close until the 20 s below ran out
+        workers = [p for p in self.procs if p in self.workers]
+        for group in (workers, [p for p in self.procs if p not in workers]):
+            for p in group:
+                if p.poll() is None:
+                    p.terminate()
+            for p in group:
+                try:
+                    p.wait(timeout=20)
+                except subprocess.TimeoutExpired:
+                    p.kill()
+                    p.wait(timeout=20)
 
 
 def start_cluster(folder: Path) -> Cluster:
