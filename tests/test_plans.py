@@ -349,3 +349,14 @@ def test_a_budget_split_buys_whole_labels_and_speaks_the_metric(capsys):
     text = capsys.readouterr().out
     assert "overall test MSE after" in text and "MSE now" in text
     assert "%" not in text.replace("50%", "").replace("90%", "")  # shares and the level only
+
+
+def test_a_small_penalty_says_that_buying_nothing_is_cheaper_than_any_purchase():
+    """The law 0.05 + 2·n^−0.5 needs about 16,000 labels for 0.066 (a known answer); at a
+    label cost of 1 a miss's penalty of 500 is the cheaper choice, and the rule says why."""
+    import curvefit as cf
+
+    curve = cf.Curve.from_table(_law_table(3))
+    plan = cf.plan_rounds(curve, test_error=0.066, label_cost=1.0, penalty=500.0, bootstrap=50)
+    assert plan.buy_now == 0
+    assert plan.rule()[0].startswith("Buy nothing: a miss's penalty of 500 costs less")

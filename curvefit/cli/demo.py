@@ -61,10 +61,15 @@ def _print_buying(res) -> None:
                            ((plan.cost_ratios().get(k), v) for k, v in
                             (("one-shot", plan.one_shot), ("upper-end", plan.upper_end)))
                            if r is not None)
-        out.print(f"in rounds ({buying.model}): buy {format_count(plan.buy_now)} labels now, at "
-                  f"most {plan.max_rounds} rounds; expected cost "
-                  f"{format_money(plan.rounds.expected_cost)}"
-                  + (f" ({ratios})" if ratios else ""), markup=False)
+        cost = (f"expected cost {format_money(plan.rounds.expected_cost)}"
+                + (f" ({ratios})" if ratios else ""))
+        if not plan.rounds.totals:   # buying nothing is the cheapest choice: say so and why
+            what = plan.rule()[0].rstrip(".")
+            out.print(f"in rounds ({buying.model}): {what[0].lower()}{what[1:]}; {cost}",
+                      markup=False)
+        else:
+            out.print(f"in rounds ({buying.model}): buy {format_count(plan.buy_now)} labels now, "
+                      f"at most {plan.max_rounds} rounds; {cost}", markup=False)
     split = buying.split
     if split is not None:
         column = buying.slices.column

@@ -161,6 +161,10 @@ class RoundPlan:
                     "probability or state a penalty instead."]
         plan = self.rounds
         if plan is None or not plan.totals:
+            if self.penalty is not None and self.already_reached < 0.5:
+                return [f"Buy nothing: a miss's penalty of {format_money(self.penalty)} costs less "
+                        "than any purchase in rounds is expected to (the labels in hand reach the "
+                        f"target with probability {self.already_reached:.0%})."]
             return ["Buy nothing: the labels in hand are the cheapest choice "
                     f"(they reach the target with probability {self.already_reached:.0%})."]
         lines, before = [], self.current_n

@@ -42,7 +42,7 @@ TITLE = "Demo: fruit grading at a fictional packhouse"
 # The plan in rounds, at invented costs: setting up a labelling round and retraining, and
 # a season graded above the target.
 ROUND_COST = 300.0
-PENALTY = 8000.0
+PENALTY = 20000.0
 MAX_ROUNDS = 3
 # The purchase split per apple variety. Few sizes and repeats, and the boosted trees
 # with 60 iterations instead of 150, keep this step to a few seconds.
