@@ -182,3 +182,27 @@ def test_a_separate_test_set_counts_as_shared_by_every_repeat():
     # the whole binomial variance e(1 − e)/n_test of the largest size is shared
     assert v_given[-1] >= 0.1 * 0.9 / 100 - 1e-12
     assert np.all(v_given > v_drawn)
+
+
+def test_wild_smallest_sizes_do_not_steer_the_fresh_data_variance():
+    from scipy.stats import theilslopes
+
+    from curvefit.core.stats import theil_sen
+    from curvefit.fitting.data import dataset_variance
+
+    # the spread across 5 repeats of a least-squares regression's MSE on scikit-learn's
+    # diabetes table (curvefit measure, LinearRegression, 5 repeats): at 10 and 15 rows
+    # the model is barely determined and the spread is 50–200× the rest
+    sizes = np.array([10, 15, 22, 32, 47, 70, 103, 152, 224, 331], dtype=float)
+    sd = np.array([53706, 19988, 1316, 916, 427, 413, 421, 324, 288, 282], dtype=float)
+    x, y = np.log(sizes), np.log(sd ** 2)
+    ref = theilslopes(y, x, method="joint")         # reference library
+    assert theil_sen(x, y) == pytest.approx((ref.slope, ref.intercept))
+    rows = {"pool": 331.0, "n_test": 111.0, "n_rows": 442.0, "fixed_test": False, "known": True}
+    v, _ = dataset_variance(sizes, sd / math.sqrt(5), np.full(10, 3000.0), np.full(10, 5),
+                            "test", "mse", rows)
+    # the shared part at the largest size follows the spread measured there (282), not a
+    # least-squares line pulled down by the first two sizes (which gave 104 there)
+    rho = 331 / 442
+    implied = math.sqrt(v[-1] * (1 - rho) / rho)
+    assert 150 < implied < 400

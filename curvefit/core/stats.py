@@ -38,6 +38,30 @@ def sem(values) -> float:
     return float(np.std(v, ddof=1) / math.sqrt(v.size))
 
 
+def theil_sen(x, y) -> tuple[float, float]:
+    """``(slope, intercept)`` of the Theil–Sen line: the median of the pairwise slopes,
+    and the median of y − slope·x. Robust to a few wild points (up to about 29% of
+    them), where least squares follows them.
+
+    Examples
+    --------
+    >>> theil_sen([1, 2, 3, 4, 5], [2, 4, 6, 8, 100])
+    (2.0, 0.0)
+
+    References
+    ----------
+    .. [1] P. K. Sen, "Estimates of the regression coefficient based on Kendall's tau",
+           JASA 63(324), 1968.
+    """
+    x, y = np.asarray(x, dtype=float), np.asarray(y, dtype=float)
+    i, j = np.triu_indices(len(x), k=1)
+    keep = x[j] != x[i]
+    if not keep.any():
+        return 0.0, float(np.median(y)) if len(y) else math.nan
+    slope = float(np.median((y[j] - y[i])[keep] / (x[j] - x[i])[keep]))
+    return slope, float(np.median(y - slope * x))
+
+
 def t_quantile(level: float, dof: float) -> float:
     """Two-sided Student-t multiplier for ``level`` with ``dof`` degrees of freedom."""
     level = check_level(level)

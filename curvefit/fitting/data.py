@@ -15,7 +15,7 @@ import numpy as np
 
 from curvefit.core.curve import Curve
 from curvefit.core.errors import InputError
-from curvefit.core.stats import sem
+from curvefit.core.stats import sem, theil_sen
 
 ON_CHOICES = ("test", "train", "gap")
 WEIGHT_CHOICES = ("sem", "index", "none")
@@ -164,8 +164,10 @@ def dataset_variance(sizes, sems, test_means, repeats, on: str, metric: str, row
     seen = spread > 0
     if seen.sum() >= 3:
         # one size's spread from 3–5 repeats is rough (±70%); a power law in n through all
-        # sizes smooths it before 1/(1 − ρ) magnifies it
-        slope, level = np.polyfit(np.log(sizes[seen]), np.log(spread[seen]), 1)
+        # sizes smooths it before 1/(1 − ρ) magnifies it, a robust (Theil–Sen) line in
+        # log space so that the wild spread of the smallest sizes, where a model can barely
+        # be fitted, does not lift it at the sizes that matter
+        slope, level = theil_sen(np.log(sizes[seen]), np.log(spread[seen]))
         spread = np.exp(level + slope * np.log(sizes))
     n_rows = rows["n_rows"]
     if rows["fixed_test"]:

@@ -46,6 +46,8 @@ from typing import Sequence
 
 import numpy as np
 
+from curvefit.core.stats import theil_sen
+
 PRIOR_EXPONENT = 1.0
 EXPONENT_RANGE = (0.0, 3.0)
 # per-cell wall time outside the timed fit (slicing, the constant predictor, the journal),
@@ -114,8 +116,7 @@ def fit_cost_model(sizes: Sequence[float], seconds: Sequence[float],
     if len(levels) == 1:
         b = float(prior_exponent)
     else:
-        i, j = np.triu_indices(len(levels), k=1)
-        b = float(np.median((y[j] - y[i]) / (x[j] - x[i])))
+        b, _ = theil_sen(x, y)
     b = float(np.clip(b, *EXPONENT_RANGE))
     a = float(np.exp(np.median(y - b * x)))
     return CostModel(scale=a, exponent=b, n_cells=int(len(n)), n_sizes=int(len(levels)))
