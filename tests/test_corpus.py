@@ -183,12 +183,13 @@ def test_results_of_the_shipped_calibration_are_stored():
     results = CORPUS / "results"
     forecasts = pd.read_csv(results / "calibrated-forecasts.csv")
     assert forecasts[["dataset", "model"]].drop_duplicates().shape[0] == 128
+    forecasts = forecasts[forecasts["cut"] == "1/4"]      # the README's headline cut
     at_pool = forecasts[forecasts["horizon"] == "pool"]
     mae = lambda col: float(np.mean(np.abs(at_pool[col] - at_pool["measured"])))  # noqa: E731
     assert mae("estimate") / mae("power_law_floor") == pytest.approx(0.89, abs=0.005)
     assert mae("estimate") / mae("last_value") == pytest.approx(0.69, abs=0.005)
     samples = pd.read_csv(results / "calibrated-samples.csv")
-    samples = samples[samples["reference"] == "measured"]
+    samples = samples[(samples["reference"] == "measured") & (samples["cut"] == "1/4")]
     assert float(np.median(np.abs(samples["ln_ratio"]))) == pytest.approx(0.56, abs=0.005)
     assert 0.85 <= samples["covered"].mean() <= 1.0
 
@@ -213,11 +214,12 @@ def _parts(n_rows: int, power: float, slope: float, seed: int = 0, wild_share: f
     measured[wild] = top[wild] * rng.uniform(1.0, 2.0, wild.sum())
     zeros = np.zeros(n_rows)
     return pd.DataFrame({"dataset": rng.choice(list("abcdef"), n_rows), "size": size,
+                         "model": rng.choice(["linear", "knn"], n_rows),
                          "n_fit": n_fit, "at_largest": top, "estimate": estimate,
                          "measured": measured, "truth": np.nan, "flat": False,
                          "bootstrap_low": zeros + 0.01, "bootstrap_high": zeros + 0.01,
                          "families": zeros, "model_error": zeros, "data_set": zeros,
-                         "noise_floor": zeros})
+                         "level_distance": top * np.log(size / n_fit), "noise_floor": zeros})
 
 
 def test_tail_correction_recovers_a_known_law_despite_regime_changes(calibrate):
@@ -243,12 +245,29 @@ def test_kappa_gives_the_band_its_stated_coverage(calibrate):
     assert np.mean((parts["measured"] >= lo) & (parts["measured"] <= hi)) < 0.9
 
 
+def test_a_relative_model_error_is_chosen_where_errors_grow_with_the_level(calibrate):
+    """Forecast errors proportional to the level at the largest size and to ln(n/N) (as
+    on the corpus: a few per cent per factor of n) against parts of one fixed width: κ
+    alone must widen every band to reach the high-level curves, τ gives each its own."""
+    parts = _parts(600, power=1.0, slope=0.0, seed=3, wild_share=0.0)
+    rng = np.random.default_rng(4)
+    parts["measured"] = parts["estimate"] + 0.03 * parts["level_distance"] * rng.standard_normal(600)
+    cal = calibrate.Calibration(source="corpus")
+    kappa, tau = calibrate.fit_band_scales(parts, cal)
+    assert tau == pytest.approx(0.03, abs=0.01)
+    lo, hi = calibrate.band(parts, kappa, cal, tau)
+    assert np.mean((parts["measured"] >= lo) & (parts["measured"] <= hi)) >= 0.9
+    alone = calibrate.fit_kappa(parts, cal, 0.0)
+    assert calibrate.median_width(parts, kappa, cal, tau) < \
+        calibrate.median_width(parts, alone, cal, 0.0) - 0.2
+
+
 def test_leave_one_out_scores_each_data_set_with_the_others_correction(calibrate):
     parts = _parts(300, power=0.8, slope=-0.02, seed=2)
     scored, folds = calibrate.leave_one_out(parts)
     assert sorted(folds) == sorted(parts["dataset"].unique())
     for name, cal in folds.items():
         alone = calibrate.fit_correction(parts[parts["dataset"] != name])
-        assert (cal.drop_power, cal.tail_slope, cal.model_error_scale) == \
-            (alone.drop_power, alone.tail_slope, alone.model_error_scale)
+        assert (cal.drop_power, cal.tail_slope, cal.model_error_scale, cal.relative_error) == \
+            (alone.drop_power, alone.tail_slope, alone.model_error_scale, alone.relative_error)
     assert len(scored) == len(parts)

@@ -97,7 +97,8 @@ def find_crossing(d: FitData, target: float, grid, fitted, band, measured_band,
                       f"below the target, and beyond them {edge}")
         elif widened:
             reason = (f"{edge}: beyond the data the band carries, besides the bootstrap, the "
-                      "model error seen in forecast validation and the spread between families")
+                      "model error seen in forecast validation and on the curve corpus, and the "
+                      "spread between families")
         else:
             reason = (f"more than {(1 - level) / 2:.0%} of the bootstrap curves stay above the "
                       f"target {upto}")

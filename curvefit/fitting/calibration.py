@@ -5,7 +5,12 @@ know exactly: the spread of the bootstrap, the spread between the averaged famil
 the model error seen in forecast validation (``fitting.intervals``). On the curve corpus
 (``corpus/``, real tables from scikit-learn and statsmodels and generated tasks, several
 model types) these together came out wider than the forecast errors they should cover,
-so they are scaled by one factor, ``model_error_scale``, learned there. Where the corpus
+so they are scaled by one factor, ``model_error_scale`` (κ), learned there; beside them
+the band carries a model error relative to the forecast's level that grows with
+ln(n/N), ``relative_error`` (τ): the curves whose own parts are narrow still err by a
+few per cent per factor of n, which one factor on those parts cannot give them without
+widening every other band. κ and τ are chosen together: the narrowest bands (median
+width relative to the level) that cover 90% of the corpus. Where the corpus
 shows the averaged test-error forecast systematically off beyond the data, its change
 there is corrected in log space: F(n) → F(N)·(F(n)/F(N))^p·(n/N)^s beyond the largest
 measured size N (``drop_power`` p, ``tail_slope`` s; the families' own drop, shrunk or
@@ -51,6 +56,12 @@ class Calibration:
     tail_slope : float
         Extra change of ln F per unit of ln(n/N) beyond N (test error only; 0 leaves it;
         below 0 the curves went on falling where the families levelled off).
+    relative_error : float
+        A model error that grows with the distance beyond the largest measured size N,
+        relative to the forecast's level there: its standard deviation at n is
+        ``relative_error`` × |F(N)| × ln(n/N), added to the band in quadrature, unscaled
+        (0 leaves the band as it is). Beside κ it moves width from curves whose own
+        parts are wide to curves whose own parts are narrow but which still err.
     level : float
         Interval level it was fitted at (it scales the band's width, so it carries over
         to other levels through the normal quantile).
@@ -66,6 +77,7 @@ class Calibration:
     drop_scale: float = 1.0
     drop_power: float = 1.0
     tail_slope: float = 0.0
+    relative_error: float = 0.0
     level: float = 0.9
     source: str = "none"
     curves: int = 0
@@ -85,6 +97,9 @@ class Calibration:
         if self.drop_power != 1.0 or self.tail_slope != 0.0:
             drop += (f", the test-error forecast beyond the largest size N corrected to "
                      f"F(N)·(F(n)/F(N))^{self.drop_power:.2f}·(n/N)^{self.tail_slope:+.3f}")
+        if self.relative_error > 0:
+            drop += (f", and a model error of {self.relative_error:.3f} × F(N) per unit of "
+                     "ln(n/N) added to the band")
         return (f"forecasts beyond the measured sizes use a correction learned on {self.curves} "
                 f"curves of {self.datasets} data sets (the model-error parts of the band "
                 f"scaled by {self.model_error_scale:.2f}{drop}; scripts/calibrate_forecasts.py)")
@@ -109,6 +124,9 @@ class Calibration:
                 raise InputError(f"calibration {name} must be > 0, got {value!r}")
         if not (isinstance(cal.tail_slope, (int, float)) and math.isfinite(cal.tail_slope)):
             raise InputError(f"calibration tail_slope must be a finite number, got {cal.tail_slope!r}")
+        value = cal.relative_error
+        if not (isinstance(value, (int, float)) and math.isfinite(value) and value >= 0):
+            raise InputError(f"calibration relative_error must be >= 0, got {value!r}")
         return cal
 
 

@@ -309,10 +309,13 @@ class CurveFit:
         before the calibration: ``size, estimate, bootstrap_low, bootstrap_high`` (the
         averaged curve's bootstrap spread below and above), ``families`` (spread between
         the averaged families), ``model_error`` (from forecast validation, growing with
-        ln n beyond the data), ``data_set`` (what a fresh data set would add) and
-        ``noise_floor`` (the measured mean's interval nearby, over z). The band is
-        z·√(κ²·(bootstrap² + families² + model_error²) + data_set²) on each side, κ the
-        calibration's ``model_error_scale``, and never narrower than z·noise_floor.
+        ln n beyond the data), ``data_set`` (what a fresh data set would add),
+        ``level_distance`` (|F(N)|·ln(n/N): the forecast's level at the largest size N
+        times the distance beyond it) and ``noise_floor`` (the measured mean's interval
+        nearby, over z). The band is z·√(κ²·(bootstrap² + families² + model_error²) +
+        data_set² + (τ·level_distance)²) on each side, κ the calibration's
+        ``model_error_scale`` and τ its ``relative_error``, and never narrower than
+        z·noise_floor.
 
         Examples
         --------

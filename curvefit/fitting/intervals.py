@@ -5,11 +5,12 @@ The forecast averages the families that forecast well (weights from
 forecast towards the level at the largest size. Its band adds, on each side and in
 quadrature: the bootstrap spread of the averaged curve (all averaged families refitted to
 the same redrawn means), the spread between the families, the model error seen in
-forecast validation growing with ln(n / largest size), and the variance a fresh data set
-would bring (``data.dataset_variance``). The first three are scaled by the corpus
-calibration (``fitting.calibration``). A curve that has not fallen beyond its noise gets a
-band open down to 0 beyond the data; no band is narrower than the interval of the mean
-measured nearby.
+forecast validation growing with ln(n / largest size), the variance a fresh data set
+would bring (``data.dataset_variance``), and a model error relative to the forecast's
+level at the largest size, growing with ln(n / largest size). The first three are scaled
+by the corpus calibration's κ, the last is its τ (``fitting.calibration``). A curve that
+has not fallen beyond its noise gets a band open down to 0 beyond the data; no band is
+narrower than the interval of the mean measured nearby.
 """
 
 from __future__ import annotations
@@ -115,8 +116,10 @@ def band_parts(sizes, level: float, data: FitData, fits: dict, boots: dict | Non
     ``estimate``, ``bootstrap_low`` / ``bootstrap_high`` (the averaged curve's bootstrap
     spread below and above), ``families`` (spread between the averaged families),
     ``model_error`` (from forecast validation, growing with ln n beyond the data),
-    ``data_set`` (what a fresh data set would add) and ``noise_floor`` (the half-width of
-    the measured mean's interval nearby over z: no band is narrower). Bootstrap parts are
+    ``data_set`` (what a fresh data set would add), ``level_distance`` (|F(N)|·ln(n/N),
+    the forecast's level at the largest size N times the distance beyond it: the unit of
+    the calibration's relative model error τ) and ``noise_floor`` (the half-width of the
+    measured mean's interval nearby over z: no band is narrower). Bootstrap parts are
     NaN without replicates."""
     sizes = np.asarray(sizes, dtype=float)
     est = averaged_point(sizes, data, fits)
@@ -144,9 +147,12 @@ def band_parts(sizes, level: float, data: FitData, fits: dict, boots: dict | Non
     drift = math.sqrt(sum(w * (fits[k].drift if math.isfinite(fits[k].drift) else 0.0) ** 2
                           for k, w in weights.items()))
     distance = np.maximum(np.log(sizes / data.n_max), 0.0)
+    at_max = abs(float(averaged_point(np.array([data.n_max]), data, fits)[0]))
+    level_distance = (at_max if math.isfinite(at_max) else 0.0) * distance
     return {"estimate": est, "bootstrap_low": boot_lo, "bootstrap_high": boot_hi,
             "families": np.sqrt(spread), "model_error": drift * distance,
             "data_set": np.sqrt(data_variance_at(data, sizes)),
+            "level_distance": level_distance,
             "noise_floor": noise_half_width(data, sizes, level) / z}
 
 
@@ -154,10 +160,10 @@ def prediction_band(sizes, level: float, data: FitData, fits: dict, boots: dict 
                     calibration: Calibration = NO_CALIBRATION):
     """``(low, high)`` arrays: the prediction band of the averaged forecast at ``sizes``.
 
-    On each side: z·√(κ²·(bootstrap² + families² + model_error²) + data_set²) around the
-    averaged forecast corrected by the calibration's ``drop_scale`` (parts as in
-    :func:`band_parts`, κ the calibration's ``model_error_scale``, z the normal quantile
-    of the level); NaN ends without
+    On each side: z·√(κ²·(bootstrap² + families² + model_error²) + data_set²
+    + (τ·level_distance)²) around the averaged forecast corrected by the calibration
+    (parts as in :func:`band_parts`, κ the calibration's ``model_error_scale``, τ its
+    ``relative_error``, z the normal quantile of the level); NaN ends without
     bootstrap. Then the band is opened down to 0 beyond the data for a curve that has not
     fallen (``FLAT_Z``), floored at the interval of the measured mean nearby, and clipped
     at 0 for errors.
@@ -180,7 +186,7 @@ def prediction_band(sizes, level: float, data: FitData, fits: dict, boots: dict 
     z = float(ndtri((1 + level) / 2))
     k2 = calibration.model_error_scale ** 2
     common = parts["families"] ** 2 + parts["model_error"] ** 2
-    data2 = parts["data_set"] ** 2
+    data2 = parts["data_set"] ** 2 + (calibration.relative_error * parts["level_distance"]) ** 2
     lo = est - z * np.sqrt(k2 * (parts["bootstrap_low"] ** 2 + common) + data2)
     hi = est + z * np.sqrt(k2 * (parts["bootstrap_high"] ** 2 + common) + data2)
     nonneg = data.on != "train" and bool(np.nanmin(data.y) >= 0)

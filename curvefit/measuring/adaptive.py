@@ -36,7 +36,8 @@ How cells are chosen (`AdaptiveDesign.run`):
    the gradient of the answer (the error at the question's size). To it are added, as
    the engine builds its band, the model error seen in forecast validation (``drift ·
    ln(N / n_max)``, shrinking only when a larger size is measured, scaled by the
-   calibration's κ) and the fresh-data-set variance; the result is never below the
+   calibration's κ), the calibration's relative model error (``τ·|F(n_max)|·ln(N /
+   n_max)``, unscaled) and the fresh-data-set variance; the result is never below the
    interval of the mean measured nearest N (Student t on k − 1 degrees of freedom,
    which rewards repeats there). A greedy step may add several repeats at one size at
    once (scored per cell): with Student-t weights a second repeat alone can be worth
@@ -461,6 +462,7 @@ class _DesignModel:
     z2: float
     kappa2: float
     drift: float
+    relative: float          # τ·|F| at the largest size: the relative model error per ln n
     point: float | None
     data2: float
     level: float
@@ -480,7 +482,7 @@ class _DesignModel:
         point = answer.point
         jac = _jacobian(sizes, theta)
         grad = np.array([1.0, 0.0, 0.0]) if point is None else _jacobian(np.array([point]), theta)[0]
-        drift, data2 = 0.0, 0.0
+        drift, data2, relative = 0.0, 0.0, 0.0
         if point is not None:
             import warnings
 
@@ -490,10 +492,14 @@ class _DesignModel:
             n_max = float(levels[-1])
             if point > n_max and parts["model_error"] > 0:
                 drift = float(parts["model_error"]) / math.log(point / n_max)
+            if point > n_max:
+                relative = (fit.calibration.relative_error * float(parts["level_distance"])
+                            / math.log(point / n_max))
             data2 = float(parts["data_set"]) ** 2 if np.isfinite(parts["data_set"]) else 0.0
         return cls(sizes=sizes, jac=jac, grad=grad, sd=sd_at(sizes),
                    z2=float(ndtri((1 + LEVEL) / 2)) ** 2,
-                   kappa2=float(fit.calibration.model_error_scale) ** 2, drift=drift, point=point,
+                   kappa2=float(fit.calibration.model_error_scale) ** 2, drift=drift,
+                   relative=relative, point=point,
                    data2=data2, level=LEVEL)
 
     def half_width2(self, k: np.ndarray) -> float:
@@ -506,10 +512,12 @@ class _DesignModel:
         except np.linalg.LinAlgError:
             param = math.inf
         measured = self.sizes[k > 0]
-        model = 0.0
+        model = relative = 0.0
         if self.point is not None and len(measured):
-            model = (self.drift * max(math.log(self.point / measured.max()), 0.0)) ** 2
-        total = self.z2 * (self.kappa2 * (max(param, 0.0) + model) + self.data2)
+            distance = max(math.log(self.point / measured.max()), 0.0)
+            model = (self.drift * distance) ** 2
+            relative = (self.relative * distance) ** 2
+        total = self.z2 * (self.kappa2 * (max(param, 0.0) + model) + relative + self.data2)
         if self.point is None or not len(measured):
             return total
         from curvefit.core.stats import t_quantile
