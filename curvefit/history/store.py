@@ -322,8 +322,14 @@ class Store:
 
     def _check_identity(self) -> None:
         con = self._con
-        app_id = con.execute("PRAGMA application_id").fetchone()[0]
-        n_objects = con.execute("SELECT count(*) FROM sqlite_master").fetchone()[0]
+        # one read snapshot: read one by one, a store that another process creates at this
+        # moment could show its tables but not yet its mark, and pass for a foreign file
+        con.execute("BEGIN")
+        try:
+            n_objects = con.execute("SELECT count(*) FROM sqlite_master").fetchone()[0]
+            app_id = con.execute("PRAGMA application_id").fetchone()[0]
+        finally:
+            con.execute("COMMIT")
         if app_id != APPLICATION_ID and (n_objects or app_id):
             raise InputError(f"{self.path} is an SQLite database but not a curvefit history "
                              "store; give another path for the store")
