@@ -153,7 +153,8 @@ def batch_lm(tgt: Target, theta0: np.ndarray, lo, hi, iters: int = 40):
         trial = np.clip(th + step, lo, hi)
         r_new, c_new = cost_of(trial)
         better = c_new < cost
-        gain = np.where(better, (cost - c_new) / np.maximum(cost, 1e-300), 0.0)
+        with np.errstate(over="ignore", invalid="ignore"):   # an infinite cost improved on
+            gain = np.where(better, (cost - c_new) / np.maximum(cost, 1e-300), 0.0)
         th = np.where(better[:, None], trial, th)
         r = np.where(better[:, None], r_new, r)
         last_gain = np.where(better, gain, np.minimum(last_gain, 1.0) * 0.5)
