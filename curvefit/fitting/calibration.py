@@ -10,7 +10,8 @@ the band carries a model error relative to the forecast's level that grows with
 ln(n/N), ``relative_error`` (τ): the curves whose own parts are narrow still err by a
 few per cent per factor of n, which one factor on those parts cannot give them without
 widening every other band. κ and τ are chosen together: the narrowest bands (median
-width relative to the level) that cover 90% of the corpus. Where the corpus
+width relative to the level) that cover 90% of the corpus' measured means and of its
+generated tasks' true errors, and 85% of each model type's means. Where the corpus
 shows the averaged test-error forecast systematically off beyond the data, its change
 there is corrected in log space: F(n) → F(N)·(F(n)/F(N))^p·(n/N)^s beyond the largest
 measured size N (``drop_power`` p, ``tail_slope`` s; the families' own drop, shrunk or
