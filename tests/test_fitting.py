@@ -253,11 +253,16 @@ def test_samples_for_inverts_predict(nb):
 def test_target_below_the_asymptote_is_not_reachable(nb):
     fit = fit_curve(nb.curve, families="power-law-floor", bootstrap=60)
     asym = fit.asymptote()
-    assert asym is not None and asym.low > 0.01, asym  # naive Bayes levels off well above 1%
-    s = fit.samples_for(test_error=0.5 * asym.low)
+    assert asym is not None and asym.estimate > 0.01, asym  # naive Bayes levels off well above 1%
+    s = fit.samples_for(test_error=0.5 * asym.estimate)
     assert not s.reachable and math.isinf(s.n)
     assert "not reachable by more data with this model" in s.message
     assert s.asymptote == asym
+    # the floor's interval joins the averaged forecast's band far beyond the data, which
+    # here reaches below the target: the verdict says it is uncertain
+    assert asym.low <= 0.5 * asym.estimate and "so this is uncertain" in s.message
+    # a falling curve's floor lies below its error at the largest size
+    assert asym.high <= fit.error_at(fit.largest_size).high + 1e-12
 
 
 def test_already_reached_target(nb_fit):
@@ -550,18 +555,23 @@ def _exact_law_fit():
     return fit_curve(table, bootstrap=100, random_state=0)
 
 
-def test_unreachable_target_keeps_a_finite_lower_end():
+def test_targets_below_and_inside_the_floor_interval():
     fit = _exact_law_fit()
-    # the floor is 5% (90% interval 4.25%–5.7%): 4.2% lies below all of it
+    # the family's floor is 5%; the floor's 90% interval, joined with the averaged
+    # forecast's band far beyond the data, is about 2.5%–7.1%: 2% lies below all of it,
+    # and the band's lower edge reaches it only far beyond the horizon, so no lower end
+    asym = fit.asymptote()
+    assert asym.estimate == pytest.approx(0.05, abs=0.002) and 0.02 < asym.low < 0.042
+    s = fit.samples_for(test_error=0.02)
+    assert not s.reachable and math.isinf(s.n) and math.isinf(s.high) and math.isinf(s.low)
+    assert "not reachable by more data with this model" in s.message
+    assert "levels off at about 5.0% (90% interval" in s.message
+    # 4.2% lies inside the floor's interval: the corrected forecast reaches it only beyond
+    # the horizon, which is said as "more than N" with a finite lower end, not as
+    # unreachable
     s = fit.samples_for(test_error=0.042)
-    assert not s.reachable and math.isinf(s.n) and math.isinf(s.high)
-    assert math.isfinite(s.low) and s.low > fit.largest_size
-    assert "band reaches the target from about" in s.message
-    # 4.5% lies inside the floor's interval: the corrected forecast reaches it only beyond
-    # the horizon, which is said as "more than N", not as unreachable
-    s = fit.samples_for(test_error=0.045)
     assert math.isinf(s.n) and math.isfinite(s.low) and s.low > fit.largest_size
-    assert s.beyond_horizon or "not reachable" in s.message
+    assert s.beyond_horizon and "the 90% interval starts at about" in s.message
 
 
 def test_a_curve_levelling_off_below_the_target_is_never_called_unreachable():
@@ -612,5 +622,13 @@ def test_fit_notes_say_how_the_forecast_was_made(nb_fit):
     expected = top * np.exp(cal.drop_power * np.log(np.maximum(p["estimate"][2:] / top, 1e-3))
                             + cal.tail_slope * np.log(sizes[2:] / fit.largest_size))
     assert e["estimate"][2:].tolist() == pytest.approx(expected.tolist())
-    if cal.model_error_scale < 1:                     # κ < 1 narrows the model-error parts
-        assert (e["high"] - e["low"]).iloc[-1] < (p["high"] - p["low"]).iloc[-1]
+    # the band beyond the data, on each side: z·√(κ²·(bootstrap² + families² +
+    # model_error²) + data_set² + (τ·level_distance)²), never narrower than the noise floor
+    parts = fit.band_parts(sizes[2:])
+    z = 1.6448536269514722                            # normal 95% quantile (scipy.stats.norm)
+    common = parts["families"] ** 2 + parts["model_error"] ** 2
+    rest = parts["data_set"] ** 2 + (cal.relative_error * parts["level_distance"]) ** 2
+    half = z * np.sqrt(cal.model_error_scale ** 2 * (parts["bootstrap_high"] ** 2 + common) + rest)
+    half = np.maximum(half, z * parts["noise_floor"]).to_numpy()
+    assert e["high"][2:].to_numpy() == pytest.approx(e["estimate"][2:].to_numpy() + half)
+    assert cal.relative_error > 0 and parts["level_distance"].iloc[-1] > 0
