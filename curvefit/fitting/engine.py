@@ -464,7 +464,7 @@ class CurveFit:
                     f"its limit {value}{band} is approached only as ln n → ∞")
         if self._state.fits[self.best].family.levels == ():  # no level parameter
             wider = math.isfinite(asym.low) and asym.high > asym.low
-            return f"tends to {value} (fixed by the family{';' + band[2:-1] if wider else ''})"
+            return f"tends to {value} (fixed by the family{'; ' + band[2:-1] if wider else ''})"
         if asym.estimate == 0.0 and (not math.isfinite(asym.high) or asym.high == 0.0):
             return f"levels off at {format_error(0.0, metric)} (the fitted floor is at its lower bound)"
         return f"levels off at about {value}{band}"
