@@ -61,6 +61,18 @@ def test_stops_when_the_budget_is_spent(cancer):
     assert len(curve.points) == 12          # the first pass (4 sizes x 3) always runs
 
 
+def test_a_width_within_a_thousandth_of_the_precision_counts_as_reached(cancer):
+    first = _adaptive(*cancer, goal="error-at:400", precision=50.0).meta["adaptive"]
+    width = first["rounds"][0]["answer"]["relative_width"]
+    # 0.05% over: reached after the first pass, as the same cells give the same width
+    near = _adaptive(*cancer, goal="error-at:400", precision=width / 1.0005).meta["adaptive"]
+    assert near["stop"]["reason"] == "precision" and len(near["rounds"]) == 1
+    # 0.5% over: not reached by the first pass
+    over = _adaptive(*cancer, goal="error-at:400", precision=width / 1.005).meta["adaptive"]
+    assert over["rounds"][0]["answer"]["relative_width"] == pytest.approx(width)
+    assert not (over["stop"]["reason"] == "precision" and len(over["rounds"]) == 1)
+
+
 def test_stops_when_every_cell_is_measured(cancer):
     # four candidate sizes x 2 repeats: the first pass is the whole grid
     curve = _adaptive(*cancer, goal="samples-for-error:0.05", precision=1e-9,
