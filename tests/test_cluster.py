@@ -227,6 +227,21 @@ def _wait_for_cells(path: Path, n: int, proc, limit: float = 120) -> None:
     raise AssertionError(f"fewer than {n} cells journaled after {limit} s")
 
 
+def _finish(proc, cluster: Cluster, journal: Path, limit: float = 300) -> str:
+    """The run's stderr once it ends; if it does not end within ``limit`` seconds, fail with
+    what the run, the journal and the cluster's processes said (a hang is otherwise mute)."""
+    try:
+        return proc.communicate(timeout=limit)[1]
+    except subprocess.TimeoutExpired:
+        proc.kill()
+        _, err = proc.communicate()
+        alive = [p.poll() is None for p in cluster.workers]
+        cells = len(journal.read_text().splitlines()) - 1 if journal.exists() else 0
+        logs = "\n".join(f"--- {name}\n{cluster.log(name)}" for name in ("scheduler", "w0", "w1"))
+        raise AssertionError(f"the run did not end in {limit:.0f} s; workers alive {alive}, "
+                             f"{cells} cells journaled; its stderr:\n{err[-3000:]}\n{logs}") from None
+
+
 @pytest.mark.slow
 def test_worker_killed_mid_run_then_resume(tmp_path):
     X, y = load_wine(return_X_y=True, as_frame=True)  # bundled wine data (scikit-learn)
@@ -250,7 +265,7 @@ def test_worker_killed_mid_run_then_resume(tmp_path):
                                 stderr=subprocess.PIPE, text=True)
         _wait_for_cells(Path(f"{out}.journal"), 2, proc)
         os.kill(c.workers[0].pid, signal.SIGKILL)
-        _, err = proc.communicate(timeout=300)
+        err = _finish(proc, c, Path(f"{out}.journal"))
         assert proc.returncode == 0, err
         got = pd.DataFrame(json.loads(out.read_text())["points"])[COMPARE]
         pd.testing.assert_frame_equal(expected, got)
@@ -270,5 +285,33 @@ def test_worker_killed_mid_run_then_resume(tmp_path):
         assert r.returncode == 0, r.stderr
         got = pd.DataFrame(json.loads(out.read_text())["points"])[COMPARE]
         pd.testing.assert_frame_equal(expected, got)
+    finally:
+        c.close()
+
+
+def _nap(seconds):
+    time.sleep(seconds)
+    return seconds
+
+
+@pytest.mark.slow
+def test_a_cluster_left_without_workers_ends_the_run(tmp_path, monkeypatch):
+    """Dask keeps tasks waiting while no worker is left; the run ends with one line."""
+    from distributed import Client
+
+    from curvefit.core.errors import InputError
+    from curvefit.measuring import parallel
+
+    monkeypatch.setattr(parallel, "NO_WORKER_GRACE", 3.0)
+    c = Cluster(tmp_path / "one", n_workers=1)
+    try:
+        with Client(c.address, timeout="30s") as client:
+            results = parallel.run_on_client(client, [(_nap, (0.5,), {}) for _ in range(6)])
+            t0 = time.monotonic()
+            with pytest.raises(InputError, match="has had no worker for 3 s; start workers"):
+                for i, _ in enumerate(results):
+                    if i == 0:
+                        os.kill(c.workers[0].pid, signal.SIGKILL)
+            assert time.monotonic() - t0 < 60
     finally:
         c.close()

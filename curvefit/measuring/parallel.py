@@ -401,9 +401,10 @@ def run_on_client(client, tasks: list[tuple[Callable, tuple, dict]]) -> Iterator
     the scheduler runs its tasks again on the others (Dask's
     ``distributed.scheduler.allowed-failures``, 3 by default, bounds how often); a task
     that still fails ends the run with one line, and a journaled run continues with
-    ``--resume``. Closing the generator (Ctrl-C) cancels the tasks not yet finished.
+    ``--resume``. A cluster left without any worker would keep the tasks waiting for
+    ever: after `NO_WORKER_GRACE` seconds with none the run ends with one line too.
+    Closing the generator (Ctrl-C) cancels the tasks not yet finished.
     """
-    from distributed import as_completed
     from distributed.scheduler import KilledWorker
 
     shared = _shared_arguments(tasks)
@@ -415,7 +416,7 @@ def run_on_client(client, tasks: list[tuple[Callable, tuple, dict]]) -> Iterator
                              *(futures_of.get(id(a), a) for a in args), pure=False)
                for fn, args, kwargs in tasks]
     try:
-        for fut in as_completed(futures):
+        for fut in _finished(client, futures):
             try:
                 yield fut.result()
             except KilledWorker as exc:
@@ -423,3 +424,35 @@ def run_on_client(client, tasks: list[tuple[Callable, tuple, dict]]) -> Iterator
                                  "finished cells are in the journal: run again with --resume") from None
     finally:
         client.cancel(futures + list(futures_of.values()))
+
+
+NO_WORKER_GRACE = 60.0  # seconds a cluster may stay without workers before the run ends
+_POLL = 2.0             # seconds between two looks at the cluster while nothing finishes
+
+
+def _finished(client, futures: list, grace: float | None = None) -> Iterator[Any]:
+    """The futures in completion order; raise InputError once the scheduler has listed no
+    worker for ``grace`` seconds (default `NO_WORKER_GRACE`) while some are unfinished."""
+    from distributed import as_completed
+
+    grace = NO_WORKER_GRACE if grace is None else grace
+    pending = as_completed(futures)
+    alone_since = None
+    looked = time.monotonic()
+    while not pending.is_empty():
+        if pending.has_ready():
+            alone_since = None
+            yield next(pending)
+            continue
+        time.sleep(0.02)  # what as_completed's own iterator does, with room to look around
+        if time.monotonic() - looked < min(_POLL, grace / 4):
+            continue
+        looked = time.monotonic()
+        if client.scheduler_info().get("workers"):
+            alone_since = None
+        elif alone_since is None:
+            alone_since = looked
+        elif looked - alone_since > grace:
+            raise InputError(f"the Dask cluster at {client.scheduler.address} has had no worker "
+                             f"for {grace:.0f} s; start workers and run again with --resume (the "
+                             "finished cells are in the journal)")
