@@ -106,7 +106,8 @@ def as_curve(rows: pd.DataFrame) -> "cf.Curve":
     meta = {"metric": str(rows["metric"].iloc[0]), "dataset": str(rows["dataset"].iloc[0]),
             "model": str(rows["model"].iloc[0]), "n_pool": int(rows["pool"].iloc[0]),
             "n_test": int(rows["n_test"].median())}
-    return cf.Curve.from_table(rows[CURVE_COLUMNS].reset_index(drop=True), meta=meta)
+    columns = CURVE_COLUMNS + [c for c in ("baseline_error",) if c in rows]
+    return cf.Curve.from_table(rows[columns].reset_index(drop=True), meta=meta)
 
 
 def crossing(sizes, values, target: float) -> float:

@@ -27,7 +27,9 @@ thread by the runner); start it under ``nice -n 19`` on a shared machine::
     nohup nice -n 19 .venv/bin/python scripts/build_corpus.py > corpus/build.log 2>&1 &
 
 Options: ``--only NAME[,NAME]`` (datasets), ``--models NAME[,NAME]``, ``--list`` (print
-the plan and exit), ``--out DIR``. Needs statsmodels (the ``corpus`` extra).
+the plan and exit), ``--out DIR``, ``--add-baseline`` (add the constant predictor's error
+to stored curves, re-running the runner's splits with a constant model; seconds).
+Needs statsmodels (the ``corpus`` extra).
 """
 
 from __future__ import annotations
@@ -55,8 +57,8 @@ import curvefit as cf  # noqa: E402
 
 FORMAT = "curvefit.corpus/1"
 COLUMNS = ["dataset", "source", "model", "task", "metric", "pool", "size", "repeat",
-           "train_error", "test_error", "n_test", "true_error", "true_error_sem",
-           "fit_seconds", "status"]
+           "train_error", "test_error", "n_test", "baseline_error", "true_error",
+           "true_error_sem", "fit_seconds", "status"]
 TEST_SIZE = 0.25
 N_SIZES = 14                # geometric sizes from the smallest to the whole pool
 SMALL_POOL = 1000           # pools below this get more repeats (cheap, steadier means)
@@ -392,7 +394,7 @@ def _curve_rows(curve, table: Table, model: str, pool: int) -> pd.DataFrame:
         "dataset": table.name, "source": table.source, "model": model, "task": table.task,
         "metric": curve.metric, "pool": pool, "size": p["size"], "repeat": p["repeat"],
         "train_error": p["train_error"], "test_error": p["test_error"], "n_test": p["n_test"],
-        "true_error": math.nan, "true_error_sem": math.nan,
+        "baseline_error": p["baseline_error"], "true_error": math.nan, "true_error_sem": math.nan,
         "fit_seconds": p["fit_seconds"].round(4), "status": p["status"]})
 
 
@@ -421,13 +423,56 @@ def true_errors(table: Table, model: str, factory, sizes: list[int], pool: int,
                                             / np.sqrt(frame.notna().sum(axis=1))).to_numpy()})
 
 
-def measure_pair(table: Table, model: str, factory, store: Store) -> dict:
-    t0 = time.perf_counter()
+def _pair_data(table: Table):
+    """The rows a pair is measured on (a generated task draws them from its own seed)."""
     if table.generated:
         rng = np.random.default_rng(_seed(table.name, "data"))
-        X, y = table.load(table.n_rows, rng)
-    else:
-        X, y = table.load()
+        return table.load(table.n_rows, rng)
+    return table.load()
+
+
+def add_baseline(table: Table, models: list[str], store: Store) -> int:
+    """Add the constant predictor's error (``baseline_error``) to the stored curves of
+    ``table``: the runner is run again on the same seeds, hence on the same splits, with
+    a constant model (scikit-learn's DummyClassifier / DummyRegressor, instant), and the
+    column the runner records beside every cell is copied over; the stored test rows
+    are checked to match. Curves measured before the runner recorded that column get it
+    without measuring their model again. Returns the number of cells updated."""
+    from sklearn.dummy import DummyClassifier, DummyRegressor
+
+    path = store.path(table.name)
+    stored = pd.read_csv(path)
+    X, y = _pair_data(table)
+    pool = pool_of(len(y))
+    sizes = plan_sizes(pool, y, table.task)
+    repeats = REPEATS_SMALL if pool < SMALL_POOL else REPEATS
+    constant = DummyRegressor if table.task == "regression" else DummyClassifier
+    parts = []
+    for model in models:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            curve = cf.measure(constant, X, y, sizes=sizes, repeats=repeats, test_size=TEST_SIZE,
+                               random_state=_seed(table.name, model), n_jobs=1)
+        parts.append(curve.points[["size", "repeat", "n_test", "baseline_error"]]
+                     .assign(model=model))
+    new = pd.concat(parts, ignore_index=True)
+    merged = stored.drop(columns=["baseline_error"], errors="ignore").merge(
+        new, on=["model", "size", "repeat"], how="left", suffixes=("", "_constant"), validate="1:1")
+    known = merged["n_test_constant"].notna()
+    if not (merged.loc[known, "n_test"] == merged.loc[known, "n_test_constant"]).all():
+        raise RuntimeError(f"{table.name}: the constant model's test rows differ from the stored ones")
+    merged = merged.drop(columns=["n_test_constant"])
+    tmp = path.with_suffix(".tmp")
+    merged[COLUMNS].to_csv(tmp, index=False, float_format="%.6g", compression="gzip")
+    os.replace(tmp, path)
+    store.index["columns"] = COLUMNS
+    store._write_index()
+    return int(known.sum())
+
+
+def measure_pair(table: Table, model: str, factory, store: Store) -> dict:
+    t0 = time.perf_counter()
+    X, y = _pair_data(table)
     n_rows = len(y)
     pool = pool_of(n_rows)
     sizes = plan_sizes(pool, y, table.task)
@@ -469,6 +514,8 @@ def main(argv=None) -> int:
     ap.add_argument("--only", default="", help="comma-separated dataset names")
     ap.add_argument("--models", default="", help="comma-separated model names")
     ap.add_argument("--list", action="store_true", help="print the plan and exit")
+    ap.add_argument("--add-baseline", action="store_true",
+                    help="add the constant predictor's error to the stored curves and exit")
     args = ap.parse_args(argv)
     only = {s for s in args.only.split(",") if s}
     wanted_models = {s for s in args.models.split(",") if s}
@@ -481,6 +528,12 @@ def main(argv=None) -> int:
             if wanted_models and model not in wanted_models:
                 continue
             plan.append((table, model, factory))
+    if args.add_baseline:
+        for table in tables():
+            done = [m for t, m, _ in plan if t.name == table.name and store.done(t.name, m)]
+            if done:
+                print(f"{table.name}: {add_baseline(table, done, store)} cells", flush=True)
+        return 0
     if args.list:
         for table, model, _ in plan:
             print(f"{table.name:24s} {model:12s} {'done' if store.done(table.name, model) else 'todo'}")
