@@ -156,10 +156,12 @@ def record_curve(rows: pd.DataFrame, bootstrap: int, seed: int) -> list[dict]:
             parts = fit.band_parts(np.array([s for _, s in targets]), interval=LEVEL)
             at_largest = float(fit.band_parts([n_fit], interval=LEVEL)["estimate"].iloc[0])
         flat = any("has not fallen" in note for note in fit.notes)
+        constant = fit.constant_so_far
         for (horizon, s), (_, p) in zip(targets, parts.iterrows()):
             out.append({"dataset": rows["dataset"].iloc[0], "model": rows["model"].iloc[0],
                         "task": rows["task"].iloc[0], "source": rows["source"].iloc[0],
                         "cut": cut, "horizon": horizon, "size": s, "n_fit": n_fit, "flat": flat,
+                        "constant": constant,
                         "at_largest": at_largest,
                         "measured": float(means.loc[s]),
                         "measured_sem": float(np.nan_to_num(sems.loc[s])),
@@ -170,22 +172,30 @@ def record_curve(rows: pd.DataFrame, bootstrap: int, seed: int) -> list[dict]:
     return out
 
 
-def corrected(parts: pd.DataFrame, cal: Calibration = NO_CALIBRATION):
+def corrected(parts: pd.DataFrame, cal: Calibration = NO_CALIBRATION, constant: bool = True):
     """The forecast at the scored sizes with the correction of ``cal`` beyond the largest
-    fitted size, as ``fitting.intervals.corrected_point`` applies it to a test error."""
+    fitted size, as ``fitting.intervals.corrected_point`` applies it to a test error
+    (with ``constant``, F(N)·(n/N)^constant_slope for the curves whose model predicted as
+    a constant does at every fitted size)."""
     top = parts["at_largest"]
+    distance = np.log(parts["size"] / parts["n_fit"])
     est = top + cal.drop_scale * (parts["estimate"] - top)
-    if cal.drop_power == 1.0 and cal.tail_slope == 0.0:
-        return est
-    ratio = np.maximum(est / top.where(top > 0), LOG_FLOOR)
-    logs = cal.drop_power * np.log(ratio) + cal.tail_slope * np.log(parts["size"] / parts["n_fit"])
-    return np.where(top > 0, top * np.exp(logs), est)
+    if cal.drop_power != 1.0 or cal.tail_slope != 0.0:
+        ratio = np.maximum(est / top.where(top > 0), LOG_FLOOR)
+        logs = cal.drop_power * np.log(ratio) + cal.tail_slope * distance
+        est = pd.Series(np.where(top > 0, top * np.exp(logs), est), index=parts.index)
+    if constant and cal.constant_slope != 0.0 and "constant" in parts:
+        fall = top * np.exp(cal.constant_slope * distance)
+        est = pd.Series(np.where(parts["constant"] & (top > 0), fall, est), index=parts.index)
+    return est
 
 
 def log_changes(parts: pd.DataFrame):
     """(forecast log change, ln(n / largest fitted size), measured log change) beyond the
     largest fitted size, relative to the forecast there, for the rows where it is > 0."""
     use = parts[parts["at_largest"] > 0]
+    if "constant" in use:  # those follow constant_slope instead (fit_constant_slope)
+        use = use[~use["constant"].astype(bool)]
     top = use["at_largest"].to_numpy()
     forecast = np.log(np.maximum(use["estimate"].to_numpy() / top, LOG_FLOOR))
     measured = np.log(np.maximum(use["measured"].to_numpy() / top, LOG_FLOOR))
@@ -209,6 +219,25 @@ def fit_tail(parts: pd.DataFrame) -> tuple[float, float]:
     return float(np.clip(np.round(power, 3), 0.2, 3.0)), float(np.clip(np.round(slope, 4), -1.0, 1.0))
 
 
+def fit_constant_slope(parts: pd.DataFrame) -> float:
+    """``constant_slope``: the least-absolute-deviation line through the origin of the
+    measured log change beyond the largest fitted size on ln(n / N), over the curves whose
+    model predicted as a constant does at every fitted size (a weighted median of the
+    ratios, weights ln(n / N)); 0 when there are none."""
+    if "constant" not in parts:
+        return 0.0
+    use = parts[parts["constant"].astype(bool) & (parts["at_largest"] > 0)]
+    if use.empty:
+        return 0.0
+    distance = np.log(use["size"].to_numpy() / use["n_fit"].to_numpy())
+    change = np.log(np.maximum(use["measured"].to_numpy() / use["at_largest"].to_numpy(), LOG_FLOOR))
+    ratio = change / distance
+    order = np.argsort(ratio)
+    cumulative = np.cumsum(distance[order])
+    value = ratio[order][np.searchsorted(cumulative, 0.5 * cumulative[-1])]
+    return float(np.clip(np.round(value, 3), -3.0, 1.0))
+
+
 def fit_drop(parts: pd.DataFrame) -> float:
     """The factor on the forecast change beyond the data that minimises the absolute
     error of the measured means (a weighted median of their ratios), over the curves
@@ -229,15 +258,19 @@ def band(parts: pd.DataFrame, kappa: float, cal: Calibration = NO_CALIBRATION,
     """(low, high) of the corrected 90% band exactly as ``CurveFit.predict`` makes it
     (``fitting.intervals.prediction_band``): the data-set part and the relative model
     error τ·level_distance (τ from ``cal`` unless given) unscaled, open down to 0 for a
-    curve that has not fallen, never narrower than the measured mean's interval nearby,
-    clipped at 0."""
+    curve that has not fallen or whose model predicted as a constant does (whose band
+    also reaches the flat forecast's upper end), never narrower than the measured mean's
+    interval nearby, clipped at 0."""
     tau = cal.relative_error if tau is None else tau
     common = parts["families"] ** 2 + parts["model_error"] ** 2
     data2 = parts["data_set"] ** 2 + (tau * parts["level_distance"]) ** 2
     centre = corrected(parts, cal)
     lo = centre - Z * np.sqrt(kappa ** 2 * (parts["bootstrap_low"] ** 2 + common) + data2)
     hi = centre + Z * np.sqrt(kappa ** 2 * (parts["bootstrap_high"] ** 2 + common) + data2)
-    lo = np.where(parts["flat"], np.minimum(lo, 0.0), lo)
+    constant = parts["constant"].astype(bool) if "constant" in parts else False
+    if "constant" in parts:  # up to the flat forecast's upper end too
+        hi = np.where(constant, np.maximum(hi, corrected(parts, cal, constant=False) + (hi - centre)), hi)
+    lo = np.where(parts["flat"] | constant, np.minimum(lo, 0.0), lo)
     lo = np.minimum(lo, centre - Z * parts["noise_floor"])
     hi = np.maximum(hi, centre + Z * parts["noise_floor"])
     return np.maximum(lo, 0.0), hi
@@ -299,8 +332,9 @@ def fit_correction(parts: pd.DataFrame, with_drop: bool = False, with_tail: bool
     without ``with_relative``) around the corrected forecast."""
     drop = fit_drop(parts) if with_drop else 1.0
     power, slope = fit_tail(parts) if with_tail else (1.0, 0.0)
+    constant = fit_constant_slope(parts) if with_tail else 0.0
     cal = Calibration(drop_scale=drop, drop_power=power, tail_slope=slope, level=LEVEL,
-                      source="corpus", **info)
+                      constant_slope=constant, source="corpus", **info)
     kappa, tau = fit_band_scales(parts, cal, with_relative)
     return replace(cal, model_error_scale=kappa, relative_error=tau)
 
@@ -668,6 +702,8 @@ def main(argv=None) -> int:
         return 0
     if args.cache is not None and args.cache.exists():
         parts = pd.read_csv(args.cache)
+        if "constant" not in parts:
+            raise SystemExit(f"{args.cache} was written before the 'constant' column; remove it")
     else:
         rows = []
         for (dataset, model), curve_rows in bench.curve_groups(points):
@@ -683,7 +719,9 @@ def main(argv=None) -> int:
                          curves=curves,
                          datasets=datasets,
                          note="scripts/calibrate_forecasts.py: the test-error forecast beyond the "
-                              "data corrected in log space (median regression) and the band as "
+                              "data corrected in log space (median regression; a model that "
+                              "predicted as a constant does at every fitted size by the fall "
+                              "of the corpus curves in that state) and the band as "
                               "printed covering 90% of the measured means and of the generated "
                               "tasks' true errors at 2x-10x the fitted sizes and the pool, "
                               "curves cut at 1/4 and 1/10 of their pool")
@@ -695,10 +733,12 @@ def main(argv=None) -> int:
 
     print(f"fitted on all data sets: model_error_scale {cal.model_error_scale:.2f}, "
           f"relative_error {cal.relative_error:.3f}, drop_power "
-          f"{cal.drop_power:.3f}, tail_slope {cal.tail_slope:+.4f}, drop_scale {cal.drop_scale:.2f}; "
+          f"{cal.drop_power:.3f}, tail_slope {cal.tail_slope:+.4f}, constant_slope "
+          f"{cal.constant_slope:+.3f}, drop_scale {cal.drop_scale:.2f}; "
           f"leave-one-data-set-out folds: {span('model_error_scale')}, "
           f"{span('relative_error')}, {span('drop_power')}, "
-          f"{span('tail_slope')}, {span('drop_scale')} (the drop_scale that minimises the "
+          f"{span('tail_slope')}, {span('constant_slope')}, {span('drop_scale')} "
+          f"(the drop_scale that minimises the "
           f"absolute error would be {l1_drop:.2f}{'' if args.fit_drop else ', not applied'})\n")
     for name, table in coverage_tables(scored).items():
         print(f"### {name}\n\n{bench.markdown(table)}\n")

@@ -632,3 +632,13 @@ def test_fit_notes_say_how_the_forecast_was_made(nb_fit):
     half = np.maximum(half, z * parts["noise_floor"]).to_numpy()
     assert e["high"][2:].to_numpy() == pytest.approx(e["estimate"][2:].to_numpy() + half)
     assert cal.relative_error > 0 and parts["level_distance"].iloc[-1] > 0
+
+
+@pytest.mark.parametrize("field,value", [("constant_slope", float("nan")), ("constant_slope", "x"),
+                                         ("tail_slope", float("inf")), ("relative_error", -0.1)])
+def test_a_calibration_with_a_bad_number_is_refused_in_one_line(field, value):
+    from curvefit.core.errors import InputError
+    from curvefit.fitting.calibration import Calibration
+
+    with pytest.raises(InputError, match=f"calibration {field} must be"):
+        Calibration.from_dict({field: value, "source": "corpus"})

@@ -16,7 +16,12 @@ shows the averaged test-error forecast systematically off beyond the data, its c
 there is corrected in log space: F(n) → F(N)·(F(n)/F(N))^p·(n/N)^s beyond the largest
 measured size N (``drop_power`` p, ``tail_slope`` s; the families' own drop, shrunk or
 stretched, and a steady decline per factor of n that they miss); ``drop_scale`` scales
-the change linearly (kept at 1).
+the change linearly (kept at 1). A curve whose model has predicted exactly what the
+constant predictor does at every measured size shows no learning yet, and the families,
+fitted to a flat line, would say it never starts; its forecast beyond N is instead
+F(N)·(n/N)^c, with ``constant_slope`` c the median fall per factor of n of the corpus
+curves that were in that state at their cut (boosted trees on small tables), and its
+band stays open from 0 up to the flat forecast's upper end.
 ``scripts/calibrate_forecasts.py`` fits it leave-one-data-set-out (every data set is
 scored with a factor fitted on the others), reports that score, and writes the factor
 fitted on all data sets to ``calibration.json`` beside this module; the engine reads it
@@ -57,6 +62,10 @@ class Calibration:
     tail_slope : float
         Extra change of ln F per unit of ln(n/N) beyond N (test error only; 0 leaves it;
         below 0 the curves went on falling where the families levelled off).
+    constant_slope : float
+        Change of ln F per unit of ln(n/N) beyond N for a curve whose model has predicted
+        as the constant predictor does at every measured size (``FitData.constant``;
+        test error only; 0 leaves the families' flat forecast).
     relative_error : float
         A model error that grows with the distance beyond the largest measured size N,
         relative to the forecast's level there: its standard deviation at n is
@@ -79,6 +88,7 @@ class Calibration:
     drop_power: float = 1.0
     tail_slope: float = 0.0
     relative_error: float = 0.0
+    constant_slope: float = 0.0
     level: float = 0.9
     source: str = "none"
     curves: int = 0
@@ -98,6 +108,9 @@ class Calibration:
         if self.drop_power != 1.0 or self.tail_slope != 0.0:
             drop += (f", the test-error forecast beyond the largest size N corrected to "
                      f"F(N)·(F(n)/F(N))^{self.drop_power:.2f}·(n/N)^{self.tail_slope:+.3f}")
+        if self.constant_slope != 0.0:
+            drop += (f", a model that has predicted as a constant does at every measured size "
+                     f"forecast as F(N)·(n/N)^{self.constant_slope:+.2f}")
         if self.relative_error > 0:
             drop += (f", and a model error of {self.relative_error:.3f} × F(N) per unit of "
                      "ln(n/N) added to the band")
@@ -123,8 +136,10 @@ class Calibration:
             value = getattr(cal, name)
             if not (isinstance(value, (int, float)) and math.isfinite(value) and value > 0):
                 raise InputError(f"calibration {name} must be > 0, got {value!r}")
-        if not (isinstance(cal.tail_slope, (int, float)) and math.isfinite(cal.tail_slope)):
-            raise InputError(f"calibration tail_slope must be a finite number, got {cal.tail_slope!r}")
+        for name in ("tail_slope", "constant_slope"):
+            value = getattr(cal, name)
+            if not (isinstance(value, (int, float)) and math.isfinite(value)):
+                raise InputError(f"calibration {name} must be a finite number, got {value!r}")
         value = cal.relative_error
         if not (isinstance(value, (int, float)) and math.isfinite(value) and value >= 0):
             raise InputError(f"calibration relative_error must be >= 0, got {value!r}")

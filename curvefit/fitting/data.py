@@ -13,7 +13,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from curvefit.core.curve import Curve
+from curvefit.core.curve import BASELINE_COLUMN, Curve
 from curvefit.core.errors import InputError
 from curvefit.core.stats import sem, theil_sen
 
@@ -45,6 +45,8 @@ class FitData:
     data_var: np.ndarray | None = None
     # how data_var was found: "meta" (pool and test size from the run) or "assumed"
     data_source: str = "none"
+    # the test error equals the constant predictor's in every cell (see constant_so_far)
+    constant: bool = False
 
     @property
     def m(self) -> int:
@@ -93,7 +95,56 @@ def prepare_data(curve: Curve, on: str, weights: str) -> FitData:
                    w_test=least_squares_weights(sizes, sem_test, weights),
                    w_train=least_squares_weights(sizes, sem_train, weights),
                    cells=cells, sign=-1.0 if on == "train" else 1.0, on=on, weights=weights,
-                   data_var=data_var, data_source=source)
+                   data_var=data_var, data_source=source,
+                   constant=on == "test" and constant_so_far(curve))
+
+
+def constant_so_far(curve: Curve) -> bool:
+    """True when, in every finished cell, the model's test error equals the constant
+    predictor's on the same test rows (the ``baseline_error`` column, to 1e-6 relative):
+    the model has predicted as a constant does at every measured size, so the curve
+    shows no learning yet and cannot say when it will start (a boosted tree whose
+    minimum leaf size exceeds what the rows allow, say). False without that column, and
+    for a model that is a constant predictor by design (`constant_by_design`), whose
+    flat curve is all there is.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> c = Curve.from_table(pd.DataFrame({"size": [20, 20, 40], "test_error": [.6, .62, .6],
+    ...                                    "baseline_error": [.6, .62, .6]}))
+    >>> constant_so_far(c)
+    True
+    """
+    if not curve.has_baseline or constant_by_design(curve.meta):
+        return False
+    ok = curve.ok_points()
+    t = ok["test_error"].to_numpy(dtype=float)
+    b = ok[BASELINE_COLUMN].to_numpy(dtype=float)
+    keep = np.isfinite(t)
+    if not keep.any() or not np.isfinite(b[keep]).all():
+        return False
+    return bool(np.allclose(t[keep], b[keep], rtol=1e-6, atol=1e-12))
+
+
+def constant_by_design(meta: dict | None) -> bool:
+    """True when the run's metadata names one of scikit-learn's constant predictors
+    (``sklearn.dummy``), measured on purpose as a reference.
+
+    Examples
+    --------
+    >>> constant_by_design({"model": {"spec": "sklearn.dummy:DummyRegressor"}})
+    True
+    >>> constant_by_design({"model": {"spec": "my.models:make", "name": "DummyClassifier"}})
+    True
+    >>> constant_by_design({"model": {"spec": "sklearn.ensemble:HistGradientBoostingClassifier"}})
+    False
+    """
+    model = (meta or {}).get("model")
+    if not isinstance(model, dict):
+        return False
+    return (str(model.get("spec") or "").startswith("sklearn.dummy")
+            or str(model.get("name") or "") in ("DummyClassifier", "DummyRegressor"))
 
 
 # Share of the rows held out for testing when a curve does not say (the runner's default).

@@ -571,6 +571,13 @@ class CurveFit:
         return self._state.calibration
 
     @property
+    def constant_so_far(self) -> bool:
+        """True when the model's test error equals the constant predictor's in every
+        measured cell (``fitting.data.constant_so_far``): no learning seen yet, so the
+        forecast beyond the data follows the calibration's ``constant_slope``."""
+        return bool(self._state.data.constant)
+
+    @property
     def notes(self) -> list:
         """How the forecast and its intervals were made, in plain sentences (not cautions:
         those are in ``warnings``)."""
@@ -589,7 +596,15 @@ class CurveFit:
                        "say)")
         if s.calibration.active:
             out.append(s.calibration.describe())
-        if d.m >= 2 and self.on != "train" and not falls(d) and bool(np.nanmin(d.y) >= 0):
+        if d.constant:
+            how = (f"beyond them the forecast follows the corpus curves that were in that "
+                   f"state, F(N)·(n/N)^{s.calibration.constant_slope:+.2f}, not this curve"
+                   if s.calibration.constant_slope != 0.0 else
+                   "beyond them its flat forecast is no evidence that it never will")
+            out.append("the model has predicted as the constant predictor does at every "
+                       "measured size: its curve shows no learning yet and cannot say when "
+                       f"it starts; {how}; the band is open down to 0")
+        elif d.m >= 2 and self.on != "train" and not falls(d) and bool(np.nanmin(d.y) >= 0):
             out.append("the measured curve has not fallen beyond its noise, so beyond the "
                        "largest measured size its band is open down to 0")
         return out

@@ -54,12 +54,19 @@ LOG_FLOOR = 1e-3
 
 
 def corrected_point(sizes, data: FitData, fits: dict,
-                    calibration: Calibration = NO_CALIBRATION) -> np.ndarray:
+                    calibration: Calibration = NO_CALIBRATION, constant: bool = True) -> np.ndarray:
     """The averaged forecast with the calibration's correction of its change beyond the
     largest measured size N: ``drop_scale`` on the change, then for a test error above 0
-    at N, F(N)·(F(n)/F(N))^drop_power·(n/N)^tail_slope."""
+    at N, F(N)·(F(n)/F(N))^drop_power·(n/N)^tail_slope; for a model that has predicted
+    as a constant does at every measured size (``data.constant``, with ``constant``),
+    F(N)·(n/N)^constant_slope instead."""
     sizes = np.asarray(sizes, dtype=float)
     est = averaged_point(sizes, data, fits)
+    if constant and data.constant and calibration.constant_slope != 0.0 and data.on == "test":
+        at_max = averaged_point(np.array([data.n_max]), data, fits)[0]
+        if math.isfinite(at_max) and at_max > 0:
+            fall = (np.maximum(sizes, data.n_max) / data.n_max) ** calibration.constant_slope
+            return np.where(sizes > data.n_max, at_max * fall, est)
     logs = calibration.drop_power != 1.0 or calibration.tail_slope != 0.0
     if (calibration.drop_scale == 1.0 and not logs) or not data.m:
         return est
@@ -165,8 +172,9 @@ def prediction_band(sizes, level: float, data: FitData, fits: dict, boots: dict 
     (parts as in :func:`band_parts`, κ the calibration's ``model_error_scale``, τ its
     ``relative_error``, z the normal quantile of the level); NaN ends without
     bootstrap. Then the band is opened down to 0 beyond the data for a curve that has not
-    fallen (``FLAT_Z``), floored at the interval of the measured mean nearby, and clipped
-    at 0 for errors.
+    fallen (``FLAT_Z``) or whose model has predicted as a constant does at every measured
+    size (whose band also reaches the flat forecast's upper end), floored at the interval
+    of the measured mean nearby, and clipped at 0 for errors.
 
     References
     ----------
@@ -189,8 +197,12 @@ def prediction_band(sizes, level: float, data: FitData, fits: dict, boots: dict 
     data2 = parts["data_set"] ** 2 + (calibration.relative_error * parts["level_distance"]) ** 2
     lo = est - z * np.sqrt(k2 * (parts["bootstrap_low"] ** 2 + common) + data2)
     hi = est + z * np.sqrt(k2 * (parts["bootstrap_high"] ** 2 + common) + data2)
+    if data.constant:
+        # no learning seen yet: up to the flat forecast's upper end as well
+        flat = corrected_point(sizes, data, fits, calibration, constant=False)
+        hi = np.maximum(hi, flat + (hi - est))
     nonneg = data.on != "train" and bool(np.nanmin(data.y) >= 0)
-    if nonneg and not falls(data):
+    if nonneg and (data.constant or not falls(data)):
         lo = np.where(sizes > data.n_max, np.minimum(lo, 0.0), lo)
     if NOISE_FLOOR:
         # never narrower than the interval of the measured mean nearby
