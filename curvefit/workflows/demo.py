@@ -112,8 +112,9 @@ def choose_target(fit, largest: float) -> float | None:
     """A target the model reaches a little beyond the data.
 
     The forecast at 3× (else 2×, 1.5×, 1×) the largest measured size, rounded up to half
-    a percentage point; a target whose interval is closed is preferred over one whose
-    upper end is open.
+    a percentage point; a target whose interval is closed and whose answer carries no
+    caution is preferred over one whose upper end is open (a caution: the fitted curve
+    already at the target where the measured mean is not, say).
     """
     fallback = None
     for mult in TARGET_MULTIPLES:
@@ -126,7 +127,7 @@ def choose_target(fit, largest: float) -> float | None:
         except InputError:
             continue
         if ans.reachable and math.isfinite(ans.n):
-            if math.isfinite(ans.high):
+            if math.isfinite(ans.high) and not ans.warnings:
                 return target
             fallback = fallback if fallback is not None else target
     return fallback
