@@ -19,6 +19,15 @@ import pytest
 ROOT = Path(__file__).resolve().parents[1]
 
 
+def default_signals() -> None:
+    """``preexec_fn`` for a command a test stops with a signal: SIGINT, SIGTERM and SIGHUP
+    back to their defaults. A suite started in the background (``cmd &``) or under
+    ``nohup`` passes them on ignored, and the command rightly keeps an ignored SIGHUP
+    (nohup stays nohup) and Python an ignored SIGINT, so the signal would do nothing."""
+    for sig in (signal.SIGINT, signal.SIGTERM, signal.SIGHUP):
+        signal.signal(sig, signal.SIG_DFL)
+
+
 def run_cli(*args, cwd=None, timeout=300, env=None, input=None):
     """Run the real ``curvefit`` command line in its own process; returns CompletedProcess.
 

@@ -11,7 +11,7 @@ import pandas as pd
 import pytest
 from sklearn.datasets import load_iris
 
-from conftest import ROOT, kill_when_journaled, run_cli
+from conftest import ROOT, default_signals, kill_when_journaled, run_cli
 
 LOGREG = "sklearn.linear_model:LogisticRegression"
 COMPARE = ["size", "repeat", "train_error", "test_error", "n_test", "n_test_errors", "status", "message"]
@@ -269,7 +269,8 @@ def test_ctrl_c_exits_130_with_journal_intact(iris_csv, tmp_path):
     proc = subprocess.Popen([sys.executable, "-m", "curvefit.cli.main", "measure", str(iris_csv), "--target",
                              "target", "--model", f"{model}:make_model", "--sizes", "20,50,110",
                              "--repeats", "3", "--quiet", "--out", str(out)],
-                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, cwd=ROOT)
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, cwd=ROOT,
+                            preexec_fn=default_signals)
     deadline = time.time() + 120
     while time.time() < deadline and not (journal.exists() and len(journal.read_text().splitlines()) >= 3):
         time.sleep(0.05)

@@ -18,7 +18,7 @@ from pathlib import Path
 
 import pytest
 
-from tests.conftest import ROOT
+from tests.conftest import ROOT, default_signals
 
 pytestmark = [pytest.mark.skipif(not Path("/proc/self/environ").exists(),
                                  reason="the process table is read from /proc (Linux)"),
@@ -78,7 +78,7 @@ def _start(args, tmp_path, mark):
     env = dict(os.environ, CF_TEST_MARK=mark, TMPDIR=str(scratch))
     return subprocess.Popen([sys.executable, "-m", "curvefit.cli.main", *args],
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
-                            cwd=ROOT, env=env), scratch
+                            cwd=ROOT, env=env, preexec_fn=default_signals), scratch
 
 
 def _wait_for_cells(proc, journal: Path, cells: int):
