@@ -184,7 +184,7 @@ def corrected(parts: pd.DataFrame, cal: Calibration = NO_CALIBRATION, constant: 
         ratio = np.maximum(est / top.where(top > 0), LOG_FLOOR)
         logs = cal.drop_power * np.log(ratio) + cal.tail_slope * distance
         est = pd.Series(np.where(top > 0, top * np.exp(logs), est), index=parts.index)
-    if constant and cal.constant_slope != 0.0 and "constant" in parts:
+    if constant and cal.constant_slope != 0.0:
         fall = top * np.exp(cal.constant_slope * distance)
         est = pd.Series(np.where(parts["constant"] & (top > 0), fall, est), index=parts.index)
     return est
@@ -193,9 +193,8 @@ def corrected(parts: pd.DataFrame, cal: Calibration = NO_CALIBRATION, constant: 
 def log_changes(parts: pd.DataFrame):
     """(forecast log change, ln(n / largest fitted size), measured log change) beyond the
     largest fitted size, relative to the forecast there, for the rows where it is > 0."""
-    use = parts[parts["at_largest"] > 0]
-    if "constant" in use:  # those follow constant_slope instead (fit_constant_slope)
-        use = use[~use["constant"].astype(bool)]
+    # the curves of a constant model follow constant_slope instead (fit_constant_slope)
+    use = parts[(parts["at_largest"] > 0) & ~parts["constant"].astype(bool)]
     top = use["at_largest"].to_numpy()
     forecast = np.log(np.maximum(use["estimate"].to_numpy() / top, LOG_FLOOR))
     measured = np.log(np.maximum(use["measured"].to_numpy() / top, LOG_FLOOR))
@@ -219,23 +218,25 @@ def fit_tail(parts: pd.DataFrame) -> tuple[float, float]:
     return float(np.clip(np.round(power, 3), 0.2, 3.0)), float(np.clip(np.round(slope, 4), -1.0, 1.0))
 
 
+def weighted_median(values: np.ndarray, weights: np.ndarray) -> float:
+    """The value at which the cumulative weight, in the order of the values, reaches half:
+    the minimiser of sum(weights · |values − v|) (a least-absolute-deviation fit)."""
+    order = np.argsort(values)
+    cumulative = np.cumsum(weights[order])
+    return float(values[order][np.searchsorted(cumulative, 0.5 * cumulative[-1])])
+
+
 def fit_constant_slope(parts: pd.DataFrame) -> float:
     """``constant_slope``: the least-absolute-deviation line through the origin of the
     measured log change beyond the largest fitted size on ln(n / N), over the curves whose
     model predicted as a constant does at every fitted size (a weighted median of the
     ratios, weights ln(n / N)); 0 when there are none."""
-    if "constant" not in parts:
-        return 0.0
     use = parts[parts["constant"].astype(bool) & (parts["at_largest"] > 0)]
     if use.empty:
         return 0.0
     distance = np.log(use["size"].to_numpy() / use["n_fit"].to_numpy())
     change = np.log(np.maximum(use["measured"].to_numpy() / use["at_largest"].to_numpy(), LOG_FLOOR))
-    ratio = change / distance
-    order = np.argsort(ratio)
-    cumulative = np.cumsum(distance[order])
-    value = ratio[order][np.searchsorted(cumulative, 0.5 * cumulative[-1])]
-    return float(np.clip(np.round(value, 3), -3.0, 1.0))
+    return float(np.clip(np.round(weighted_median(change / distance, distance), 3), -3.0, 1.0))
 
 
 def fit_drop(parts: pd.DataFrame) -> float:
@@ -246,10 +247,7 @@ def fit_drop(parts: pd.DataFrame) -> float:
     change = (use["estimate"] - use["at_largest"]).to_numpy()
     keep = np.abs(change) > 0
     ratio = ((use["measured"] - use["at_largest"]).to_numpy()[keep]) / change[keep]
-    weight = np.abs(change[keep])
-    order = np.argsort(ratio)
-    cumulative = np.cumsum(weight[order])
-    value = ratio[order][np.searchsorted(cumulative, 0.5 * cumulative[-1])]
+    value = weighted_median(ratio, np.abs(change[keep]))
     return float(np.clip(np.round(value, 2), 0.5, 2.0))
 
 
@@ -267,9 +265,8 @@ def band(parts: pd.DataFrame, kappa: float, cal: Calibration = NO_CALIBRATION,
     centre = corrected(parts, cal)
     lo = centre - Z * np.sqrt(kappa ** 2 * (parts["bootstrap_low"] ** 2 + common) + data2)
     hi = centre + Z * np.sqrt(kappa ** 2 * (parts["bootstrap_high"] ** 2 + common) + data2)
-    constant = parts["constant"].astype(bool) if "constant" in parts else False
-    if "constant" in parts:  # up to the flat forecast's upper end too
-        hi = np.where(constant, np.maximum(hi, corrected(parts, cal, constant=False) + (hi - centre)), hi)
+    constant = parts["constant"].astype(bool)  # up to the flat forecast's upper end too
+    hi = np.where(constant, np.maximum(hi, corrected(parts, cal, constant=False) + (hi - centre)), hi)
     lo = np.where(parts["flat"] | constant, np.minimum(lo, 0.0), lo)
     lo = np.minimum(lo, centre - Z * parts["noise_floor"])
     hi = np.maximum(hi, centre + Z * parts["noise_floor"])
@@ -476,12 +473,13 @@ def _scored_sizes(rec: dict) -> list[float]:
 
 
 def _as_parts(recs: list, curves: list) -> pd.DataFrame:
-    """The rows ``fit_tail`` reads, for point curves ``curves`` of the records."""
+    """The rows ``fit_tail`` reads, for point curves ``curves`` of the records (the
+    variants compare point forecasts of the families; none takes the constant-model path)."""
     rows = []
     for rec, c in zip(recs, curves):
         top = float(c[_at(rec, rec["n_fit"])])
         for s in _scored_sizes(rec):
-            rows.append({"size": s, "n_fit": rec["n_fit"], "at_largest": top,
+            rows.append({"size": s, "n_fit": rec["n_fit"], "at_largest": top, "constant": False,
                          "estimate": float(c[_at(rec, s)]), "measured": float(rec["means"].loc[s])})
     return pd.DataFrame(rows)
 

@@ -216,7 +216,7 @@ def _parts(n_rows: int, power: float, slope: float, seed: int = 0, wild_share: f
     return pd.DataFrame({"dataset": rng.choice(list("abcdef"), n_rows), "size": size,
                          "model": rng.choice(["linear", "knn"], n_rows),
                          "n_fit": n_fit, "at_largest": top, "estimate": estimate,
-                         "measured": measured, "truth": np.nan, "flat": False,
+                         "measured": measured, "truth": np.nan, "flat": False, "constant": False,
                          "bootstrap_low": zeros + 0.01, "bootstrap_high": zeros + 0.01,
                          "families": zeros, "model_error": zeros, "data_set": zeros,
                          "level_distance": top * np.log(size / n_fit), "noise_floor": zeros})
@@ -279,7 +279,6 @@ def test_constant_models_get_their_own_slope_and_do_not_steer_the_tail(calibrate
     (Koenker & Bassett 1978, as above) recovers it, and the tail fit of the others is
     the one it would be without them."""
     parts = _parts(400, power=0.75, slope=-0.03, wild_share=0.0)
-    parts["constant"] = False
     rng = np.random.default_rng(5)
     stuck = _parts(40, power=1.0, slope=0.0, seed=6, wild_share=0.0)
     stuck["estimate"] = stuck["at_largest"]      # the families see a flat line
