@@ -17,7 +17,10 @@ Corpus mode (default) — every curve in corpus/curves/ (one per data set × mod
   |ln(n_answer / n_true)|;
 * baselines, fitted to the same points: an unweighted power-law-with-floor fit
   (``families="power-law-floor", weights="none", bootstrap=0``) and the last measured
-  value (the mean at the largest fitted size; it never reaches a lower target).
+  value (the mean at the largest fitted size; it never reaches a lower target);
+* what the scores can resolve (``resolution``): the true n read again with each size's
+  repeats drawn again, the exact population curve of the generated tasks answering the
+  same targets, and the MAE ratios with a 90% interval over data sets drawn again.
 
 Each curve is scored on its own points only. Nothing here is tuned; a later calibration
 must be fitted with `leave_one_dataset_out`, so that every data set is scored by a
@@ -47,6 +50,7 @@ Run::
     .venv/bin/python scripts/bench_forecast.py --simulate      # both simulations
     .venv/bin/python scripts/bench_forecast.py --only iris,wine --bootstrap 100
     .venv/bin/python scripts/bench_forecast.py --cuts 1/4 --bootstrap 0   # point forecasts only
+    .venv/bin/python scripts/bench_forecast.py --rescore --label calibrated  # tables again, no fits
 """
 
 from __future__ import annotations
@@ -152,6 +156,14 @@ def _side(ref: float, low: float, high: float) -> str:
     return "inside"
 
 
+def cut_sizes(sizes: np.ndarray, pool: float, cuts=CUTS):
+    """(cut, the measured sizes up to it) for each cut that leaves enough sizes to fit."""
+    for cut, frac in cuts:
+        fitted = sizes[sizes <= frac * pool]
+        if len(fitted) >= MIN_FIT_SIZES:
+            yield cut, fitted
+
+
 def evaluate_curve(rows: pd.DataFrame, bootstrap: int = 500, seed: int = 0, cuts=CUTS):
     """Score one stored curve under the cuts (both by default); returns (forecast rows,
     samples rows)."""
@@ -165,10 +177,7 @@ def evaluate_curve(rows: pd.DataFrame, bootstrap: int = 500, seed: int = 0, cuts
             "task": rows["task"].iloc[0], "source": rows["source"].iloc[0], "pool": int(pool)}
     forecasts, answers = [], []
     curve = as_curve(rows)
-    for cut, frac in cuts:
-        fitted_sizes = sizes[sizes <= frac * pool]
-        if len(fitted_sizes) < MIN_FIT_SIZES:
-            continue
+    for cut, fitted_sizes in cut_sizes(sizes, pool, cuts):
         n_fit = float(fitted_sizes.max())
         sub = cf.Curve(curve.points[curve.points["size"] <= n_fit], dict(curve.meta))
         with warnings.catch_warnings():
@@ -201,19 +210,7 @@ def evaluate_curve(rows: pd.DataFrame, bootstrap: int = 500, seed: int = 0, cuts
         # ---- (b) samples needed
         references = [("measured", means)] + ([("truth", truth)] if has_truth else [])
         for ref_name, ref in references:
-            ref_sizes, ref_vals = ref.index.to_numpy(float), ref.to_numpy(float)
-            floor_in_fit = float(np.min(ref_vals[ref_sizes <= n_fit]))
-            fitted_floor = float(means[means.index <= n_fit].min())
-            for k in HORIZONS:
-                s = _nearest(sizes, k * n_fit)
-                if s is None or not (n_fit < s <= pool):
-                    continue
-                target = float(ref.loc[s])
-                if not (target < floor_in_fit and target < fitted_floor):
-                    continue
-                n_true = crossing(ref_sizes, ref_vals, target)
-                if not (n_true > n_fit and math.isfinite(n_true)):
-                    continue
+            for k, target, n_true in targets(ref, means, n_fit, pool):
                 with warnings.catch_warnings():
                     warnings.simplefilter("ignore")
                     ans = choice.samples_for(test_error=target, interval=LEVEL)
@@ -226,6 +223,27 @@ def evaluate_curve(rows: pd.DataFrame, bootstrap: int = 500, seed: int = 0, cuts
                     ln_ratio=_ln_ratio(ans.n, n_true), plf_n=base.n,
                     plf_ln_ratio=_ln_ratio(base.n, n_true)))
     return forecasts, answers
+
+
+def targets(ref: pd.Series, means: pd.Series, n_fit: float, pool: float):
+    """The samples-needed targets of one curve-cut: (k, target, n_true) for the reference
+    curve's value at the measured size nearest k× ``n_fit`` (at most the pool), kept when
+    it lies below every fitted value of the reference and of the measured ``means``, with
+    the size where the reference first reaches it beyond ``n_fit``."""
+    ref_sizes, ref_vals = ref.index.to_numpy(float), ref.to_numpy(float)
+    sizes = means.index.to_numpy(float)
+    floor_in_fit = float(np.min(ref_vals[ref_sizes <= n_fit]))
+    fitted_floor = float(means[means.index <= n_fit].min())
+    for k in HORIZONS:
+        s = _nearest(sizes, k * n_fit)
+        if s is None or not (n_fit < s <= pool):
+            continue
+        target = float(ref.loc[s])
+        if not (target < floor_in_fit and target < fitted_floor):
+            continue
+        n_true = crossing(ref_sizes, ref_vals, target)
+        if n_true > n_fit and math.isfinite(n_true):
+            yield k, target, n_true
 
 
 def _ln_ratio(n: float, n_true: float) -> float:
@@ -271,8 +289,10 @@ def _optimistic(side: pd.Series) -> str:
     return f"{(miss == 'above').sum()}/{len(miss)}" if len(miss) else "0/0"
 
 
-def summarise(forecasts: pd.DataFrame, answers: pd.DataFrame) -> dict[str, pd.DataFrame]:
-    """The tables of the report (markdown-ready strings in cells)."""
+def summarise(forecasts: pd.DataFrame, answers: pd.DataFrame,
+              points: pd.DataFrame | None = None) -> dict[str, pd.DataFrame]:
+    """The tables of the report (markdown-ready strings in cells); with the corpus
+    ``points``, also what the scores can resolve (`resolution`)."""
     out = {}
     # -- headline per cut (and task)
     rows = []
@@ -358,7 +378,113 @@ def summarise(forecasts: pd.DataFrame, answers: pd.DataFrame) -> dict[str, pd.Da
                 if len(a) else "–"
             rows.append(row)
         out["generated vs truth"] = pd.DataFrame(rows)
+    if points is not None:
+        out["what the scores can resolve"] = resolution(points, forecasts, answers)
     return out
+
+
+# ====================================================================== resolution
+def _redrawn_means(rows: pd.DataFrame, draws: int, rng: np.random.Generator) -> np.ndarray:
+    """``draws`` × sizes: each size's mean test error over its repeats drawn again with
+    replacement (the measured curve as another set of repeats might have given it)."""
+    cells = [g.to_numpy(float) for _, g in rows.groupby("size")["test_error"]]
+    return np.column_stack([c[rng.integers(0, len(c), (draws, len(c)))].mean(axis=1)
+                            for c in cells])
+
+
+def _median_abs(x) -> float:
+    x = np.abs(np.asarray(x, float))
+    return float(np.median(x)) if len(x) else math.nan
+
+
+def _ratio_interval(pool_rows: pd.DataFrame, baseline: str, draws: int,
+                    rng: np.random.Generator) -> str:
+    """MAE ÷ a baseline's MAE at the pool, with a 90% interval over data sets drawn with
+    replacement (curves of one data set share its rows, so they are drawn together)."""
+    err = pool_rows.assign(ours=(pool_rows["estimate"] - pool_rows["measured"]).abs(),
+                           theirs=(pool_rows[baseline] - pool_rows["measured"]).abs())
+    per_set = err.groupby("dataset")[["ours", "theirs"]].sum().to_numpy()
+    pick = rng.integers(0, len(per_set), (draws, len(per_set)))
+    sums = per_set[pick].sum(axis=1)
+    low, high = np.quantile(sums[:, 0] / sums[:, 1], [0.05, 0.95])
+    point = per_set[:, 0].sum() / per_set[:, 1].sum()
+    return f"{_num(point)} ({_num(low, 2)}–{_num(high, 2)})"
+
+
+def resolution(points: pd.DataFrame, forecasts: pd.DataFrame, answers: pd.DataFrame,
+               draws: int = 200, seed: int = 0, cuts=CUTS) -> pd.DataFrame:
+    """How finely the corpus scores can tell forecasts apart, per cut.
+
+    * the true n read again off the same curve with each size's repeats drawn again with
+      replacement: the median (over targets) of the median |ln(n_redrawn / n_true)| is the
+      noise of the reference itself;
+    * on the generated tasks, the exact population curve (each size's mean true error,
+      measured on a large fresh sample) answering the same measured targets: what a
+      forecast that knew the truth would score, beside curvefit's score on those targets;
+    * the MAE ratios at the pool with a 90% interval over data sets drawn with replacement.
+    """
+    rng = np.random.default_rng(seed)
+    redrawn, exact = [], []
+    for (dataset, model), rows in curve_groups(points):
+        ok = rows[(rows["status"] == "ok") & np.isfinite(rows["test_error"])]
+        means = ok.groupby("size")["test_error"].mean()
+        sizes, pool = means.index.to_numpy(float), float(rows["pool"].iloc[0])
+        again = _redrawn_means(ok, draws, rng)
+        truth = (ok.groupby("size")["true_error"].mean()
+                 if "true_error" in ok and ok["true_error"].notna().all() else None)
+        for cut, fitted in cut_sizes(sizes, pool, cuts):
+            for k, target, n_true in targets(means, means, float(fitted.max()), pool):
+                key = dict(dataset=dataset, model=model, cut=cut, horizon=f"{k}x")
+                redrawn.append(dict(key, ln=_median_abs(
+                    [_ln_ratio(crossing(sizes, m, target), n_true) for m in again])))
+                if truth is not None:
+                    n_exact = crossing(truth.index.to_numpy(float), truth.to_numpy(float), target)
+                    exact.append(dict(key, ln=_ln_ratio(n_exact, n_true)))
+    columns = ["dataset", "model", "cut", "horizon", "ln"]
+    redrawn, exact = pd.DataFrame(redrawn, columns=columns), pd.DataFrame(exact, columns=columns)
+    measured = answers[answers["reference"] == "measured"]
+    rows = []
+    for cut, _ in cuts:
+        a = measured[measured["cut"] == cut]
+        if a.empty:
+            continue
+        gen = a.merge(exact[exact["cut"] == cut][["dataset", "model", "horizon", "ln"]],
+                      on=["dataset", "model", "horizon"])
+        pool_rows = forecasts[(forecasts["cut"] == cut) & (forecasts["horizon"] == "pool")]
+        rows.append({
+            "cut": cut, "targets": len(a),
+            "curvefit median abs ln ratio": _num(_median_abs(a["ln_ratio"]), 2),
+            "true n re-read with the repeats drawn again": _num(
+                float(np.median(redrawn.loc[redrawn["cut"] == cut, "ln"])), 2),
+            "generated tasks: targets": len(gen),
+            "generated tasks: curvefit": _num(_median_abs(gen["ln_ratio"]), 2),
+            "generated tasks: the exact true curve": _num(_median_abs(gen["ln"]), 2),
+            "MAE ratio to last value (90% over data sets)": _ratio_interval(
+                pool_rows, "last_value", 2000, rng),
+            "MAE ratio to power-law-floor (90% over data sets)": _ratio_interval(
+                pool_rows, "power_law_floor", 2000, rng)})
+    return pd.DataFrame(rows)
+
+
+def rescore(args) -> str:
+    """The tables again from the stored ``<label>-forecasts.csv`` and ``-samples.csv`` (no
+    fitting), under the stored report's first line."""
+    points, _ = load_corpus(args.corpus)
+    res = Path(args.corpus) / "results"
+    try:
+        fc = pd.read_csv(res / f"{args.label}-forecasts.csv")
+        an = pd.read_csv(res / f"{args.label}-samples.csv")
+    except FileNotFoundError as exc:
+        raise SystemExit(f"no stored results for --label {args.label}: {exc.filename}") from None
+    md = res / f"{args.label}-corpus.md"
+    old = md.read_text().splitlines() if md.is_file() else []
+    head = [line for line in old[:old.index("### headline")]] if "### headline" in old else \
+        [f"## Forecast benchmark on the corpus ({args.label})", ""]
+    tables = summarise(fc, an, points)
+    report = "\n".join(head + [f"### {name}\n\n{markdown(t)}\n" for name, t in tables.items()])
+    if not args.no_write:
+        md.write_text(report + "\n")
+    return report
 
 
 def run_corpus(args) -> str:
@@ -386,7 +512,7 @@ def run_corpus(args) -> str:
     if an.empty:
         an = pd.DataFrame(columns=["cut", "reference", "task", "model", "covered", "ln_ratio",
                                    "plf_ln_ratio"])
-    tables = summarise(fc, an)
+    tables = summarise(fc, an, points)
     seconds = time.perf_counter() - start
     text = [f"## Forecast benchmark on the corpus ({args.label})", "",
             f"{len(groups)} curves, {points['dataset'].nunique()} data sets; fitted up to 1/4 and "
@@ -606,10 +732,13 @@ def main(argv=None) -> int:
     ap.add_argument("--sim-datasets", type=int, default=150)
     ap.add_argument("--runner-datasets", type=int, default=40)
     ap.add_argument("--truth-draws", type=int, default=100)
+    ap.add_argument("--rescore", action="store_true",
+                    help="summarise the stored results of --label again, without fitting")
     ap.add_argument("--no-write", action="store_true", help="print only")
     ap.add_argument("--verbose", action="store_true")
     args = ap.parse_args(argv)
-    report = run_simulation(args) if args.simulate else run_corpus(args)
+    report = (run_simulation(args) if args.simulate else rescore(args) if args.rescore
+              else run_corpus(args))
     print()
     print(report)
     return 0

@@ -392,7 +392,7 @@ def run_answers(points: pd.DataFrame, folds: dict, args) -> str:
         forecasts += f
         answers += a
     fc, an = pd.DataFrame(forecasts), pd.DataFrame(answers)
-    tables = bench.summarise(fc, an)
+    tables = bench.summarise(fc, an, points)
     report = "\n".join(f"### {name}\n\n{bench.markdown(t)}\n" for name, t in tables.items())
     if not args.no_results:
         res = Path(args.corpus) / "results"

@@ -194,6 +194,69 @@ def test_results_of_the_shipped_calibration_are_stored():
     assert 0.85 <= samples["covered"].mean() <= 1.0
 
 
+def _law_curve(name: str, floor: float, noise: float, seed: int) -> pd.DataFrame:
+    """A generated curve whose true error is floor + n^-0.5 at 16 sizes 100–12,800
+    (5 repeats, test error = truth + Gaussian noise of sd ``noise``)."""
+    rng = np.random.default_rng(seed)
+    sizes = np.round(100 * 2 ** (np.arange(16) * 7 / 15)).astype(int)
+    size = np.repeat(sizes, 5)
+    truth = floor + size ** -0.5
+    return pd.DataFrame({"dataset": name, "model": "linear", "task": "classification",
+                         "source": "generated", "pool": int(sizes[-1]), "size": size,
+                         "repeat": np.tile(np.arange(5), len(sizes)), "status": "ok",
+                         "true_error": truth,
+                         "test_error": truth + noise * rng.standard_normal(len(size))})
+
+
+def test_the_resolution_of_the_scores(bench):
+    """Without test noise the measured curve is the true curve: the true n read again
+    from re-drawn repeats, and the true curve's own answers, are exact; with noise both
+    move. The ratio's interval over data sets collapses when every data set has the
+    same ratio."""
+    for noise, exact in ((0.0, True), (0.004, False)):
+        points = pd.concat([_law_curve(f"d{i}", 0.02 * i, noise, i) for i in range(4)])
+        answers, forecasts = [], []
+        for (dataset, model), rows in bench.curve_groups(points):
+            ok = rows.groupby("size")["test_error"].mean()
+            pool = float(rows["pool"].iloc[0])
+            for cut, fitted in bench.cut_sizes(ok.index.to_numpy(float), pool):
+                for k, target, n_true in bench.targets(ok, ok, float(fitted.max()), pool):
+                    answers.append(dict(dataset=dataset, model=model, cut=cut, horizon=f"{k}x",
+                                        reference="measured", ln_ratio=0.1))
+                forecasts.append(dict(dataset=dataset, cut=cut, horizon="pool", measured=0.1,
+                                      estimate=0.11, last_value=0.12, power_law_floor=0.105))
+        table = bench.resolution(points, pd.DataFrame(forecasts), pd.DataFrame(answers))
+        assert list(table["cut"]) == ["1/4", "1/10"]
+        assert (table["targets"] > 0).all() and (table["generated tasks: targets"] > 0).all()
+        redrawn = table["true n re-read with the repeats drawn again"].astype(float)
+        true_curve = table["generated tasks: the exact true curve"].astype(float)
+        assert ((redrawn == 0) & (true_curve == 0)).all() == exact
+        assert (redrawn > 0).all() != exact
+        assert set(table["MAE ratio to last value (90% over data sets)"]) == {"0.5 (0.5–0.5)"}
+        assert set(table["curvefit median abs ln ratio"]) == {"0.1"}
+
+
+def test_rescore_rebuilds_the_stored_tables(bench, tmp_path):
+    """--rescore summarises the stored results again under the stored report's title."""
+    results = tmp_path / "results"
+    results.mkdir()
+    (tmp_path / "curves").mkdir()
+    for name in ("index.json",):
+        (tmp_path / name).write_text((CORPUS / name).read_text())
+    for path in sorted((CORPUS / "curves").glob("i*.csv.gz")):
+        (tmp_path / "curves" / path.name).write_bytes(path.read_bytes())
+    for kind in ("forecasts", "samples"):
+        table = pd.read_csv(CORPUS / "results" / f"calibrated-{kind}.csv")
+        table[table["dataset"] == "iris"].to_csv(results / f"x-{kind}.csv", index=False)
+    (results / "x-corpus.md").write_text("## a title kept\n\n### headline\n\nold\n")
+    assert bench.main(["--corpus", str(tmp_path), "--label", "x", "--rescore"]) == 0
+    text = (results / "x-corpus.md").read_text()
+    assert text.startswith("## a title kept\n") and "old" not in text
+    assert "### what the scores can resolve" in text and "| 1/4 |" in text
+    with pytest.raises(SystemExit, match="no stored results for --label y"):
+        bench.main(["--corpus", str(tmp_path), "--label", "y", "--rescore"])
+
+
 @pytest.fixture(scope="module")
 def calibrate():
     return _script("calibrate_forecasts")
