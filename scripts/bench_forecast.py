@@ -413,18 +413,21 @@ def _ratio_interval(pool_rows: pd.DataFrame, baseline: str, draws: int,
 
 def resolution(points: pd.DataFrame, forecasts: pd.DataFrame, answers: pd.DataFrame,
                draws: int = 200, seed: int = 0, cuts=CUTS) -> pd.DataFrame:
-    """How finely the corpus scores can tell forecasts apart, per cut.
+    """How finely the corpus scores can tell forecasts apart: one row per measure, one
+    column per cut.
 
     * the true n read again off the same curve with each size's repeats drawn again with
       replacement: the median (over targets) of the median |ln(n_redrawn / n_true)| is the
       noise of the reference itself;
     * on the generated tasks, the exact population curve (each size's mean true error,
-      measured on a large fresh sample) answering the same measured targets: what a
-      forecast that knew the truth would score, beside curvefit's score on those targets;
+      measured on a large fresh sample) answering the measured targets, and the whole
+      measured curve (every size, the cut ignored) answering the true-error targets: what
+      a forecast that knew either curve would score, beside curvefit's scores on the same
+      targets;
     * the MAE ratios at the pool with a 90% interval over data sets drawn with replacement.
     """
     rng = np.random.default_rng(seed)
-    redrawn, exact = [], []
+    redrawn, exact, whole = [], [], []
     for (dataset, model), rows in curve_groups(points):
         ok = rows[(rows["status"] == "ok") & np.isfinite(rows["test_error"])]
         means = ok.groupby("size")["test_error"].mean()
@@ -433,37 +436,47 @@ def resolution(points: pd.DataFrame, forecasts: pd.DataFrame, answers: pd.DataFr
         truth = (ok.groupby("size")["true_error"].mean()
                  if "true_error" in ok and ok["true_error"].notna().all() else None)
         for cut, fitted in cut_sizes(sizes, pool, cuts):
-            for k, target, n_true in targets(means, means, float(fitted.max()), pool):
+            n_fit = float(fitted.max())
+            for k, target, n_true in targets(means, means, n_fit, pool):
                 key = dict(dataset=dataset, model=model, cut=cut, horizon=f"{k}x")
                 redrawn.append(dict(key, ln=_median_abs(
                     [_ln_ratio(crossing(sizes, m, target), n_true) for m in again])))
                 if truth is not None:
                     n_exact = crossing(truth.index.to_numpy(float), truth.to_numpy(float), target)
                     exact.append(dict(key, ln=_ln_ratio(n_exact, n_true)))
+            for k, target, n_true in (targets(truth, means, n_fit, pool)
+                                      if truth is not None else ()):
+                whole.append(dict(dataset=dataset, model=model, cut=cut, horizon=f"{k}x",
+                                  ln=_ln_ratio(crossing(sizes, means.to_numpy(), target), n_true)))
     columns = ["dataset", "model", "cut", "horizon", "ln"]
-    redrawn, exact = pd.DataFrame(redrawn, columns=columns), pd.DataFrame(exact, columns=columns)
-    measured = answers[answers["reference"] == "measured"]
-    rows = []
+    redrawn, exact, whole = (pd.DataFrame(x, columns=columns) for x in (redrawn, exact, whole))
+    keys = ["dataset", "model", "horizon"]
+    table = {}
     for cut, _ in cuts:
-        a = measured[measured["cut"] == cut]
-        if a.empty:
+        a = answers[answers["cut"] == cut]
+        measured, true = a[a["reference"] == "measured"], a[a["reference"] == "truth"]
+        if measured.empty:
             continue
-        gen = a.merge(exact[exact["cut"] == cut][["dataset", "model", "horizon", "ln"]],
-                      on=["dataset", "model", "horizon"])
+        gen = measured.merge(exact.loc[exact["cut"] == cut, keys + ["ln"]], on=keys)
+        gen_true = true.merge(whole.loc[whole["cut"] == cut, keys + ["ln"]], on=keys)
         pool_rows = forecasts[(forecasts["cut"] == cut) & (forecasts["horizon"] == "pool")]
-        rows.append({
-            "cut": cut, "targets": len(a),
-            "curvefit median abs ln ratio": _num(_median_abs(a["ln_ratio"]), 2),
-            "true n re-read with the repeats drawn again": _num(
+        median = lambda x: _num(_median_abs(x), 2)  # noqa: E731
+        table[cut] = {
+            "samples needed, all targets: curvefit": f"{median(measured['ln_ratio'])} "
+                                                     f"({len(measured)})",
+            "the true n re-read with the repeats drawn again": _num(
                 float(np.median(redrawn.loc[redrawn["cut"] == cut, "ln"])), 2),
-            "generated tasks: targets": len(gen),
-            "generated tasks: curvefit": _num(_median_abs(gen["ln_ratio"]), 2),
-            "generated tasks: the exact true curve": _num(_median_abs(gen["ln"]), 2),
+            "generated tasks, measured targets: curvefit": f"{median(gen['ln_ratio'])} ({len(gen)})",
+            "the same targets answered by the exact true curve": median(gen["ln"]),
+            "generated tasks, true-error targets: curvefit": f"{median(gen_true['ln_ratio'])} "
+                                                            f"({len(gen_true)})",
+            "the same targets answered by the whole measured curve": median(gen_true["ln"]),
             "MAE ratio to last value (90% over data sets)": _ratio_interval(
                 pool_rows, "last_value", 2000, rng),
             "MAE ratio to power-law-floor (90% over data sets)": _ratio_interval(
-                pool_rows, "power_law_floor", 2000, rng)})
-    return pd.DataFrame(rows)
+                pool_rows, "power_law_floor", 2000, rng)}
+    frame = pd.DataFrame(table)
+    return frame.rename_axis("median abs ln(n / n_true), or MAE ratio").reset_index()
 
 
 def rescore(args) -> str:
