@@ -8,7 +8,8 @@ predictor's in every cell. Its flat curve is no evidence that it never learns (o
 curve corpus every curve in that state fell after its cut); the forecast beyond the data
 follows the packaged calibration's ``constant_slope`` and the band stays open from 0 up to
 the flat forecast's upper end. A logistic regression on the same rows learns from the
-start and gets none of this.
+start and gets none of this. Measured on to the whole pool, the boosted tree learns from
+45 rows on; the sizes before are left out of its fit.
 """
 
 import json
@@ -20,6 +21,8 @@ from curvefit.fitting.calibration import packaged_calibration
 from tests.conftest import run_cli
 
 SIZES = "10,15,20,25,30"
+LONG_SIZES = "10,20,30,45,60,80,112"
+LEFT_OUT = "at which the model predicted as the constant predictor does in every repeat"
 NOTE = "has predicted as the constant predictor does at every measured size"
 
 
@@ -36,6 +39,11 @@ def runs(tmp_path_factory):
                     "--out", d / f"{name}.json")
         assert r.returncode == 0, r.stderr
         out[name] = d / f"{name}.json"
+    r = run_cli("measure", d / "iris.csv", "--target", "species", "--model",
+                "sklearn.ensemble:HistGradientBoostingClassifier", "--sizes", LONG_SIZES,
+                "--repeats", "3", "--seed", "1", "--quiet", "--out", d / "long.json")
+    assert r.returncode == 0, r.stderr
+    out["long"] = d / "long.json"
     return out
 
 
@@ -83,3 +91,47 @@ def test_a_model_that_learns_gets_none_of_it(runs):
     doc = _fit(runs["logistic"])
     assert not any(NOTE in n for n in doc["notes"])
     assert doc["sanity"]["no_better_than_baseline"] is False
+
+
+def test_the_sizes_before_learning_are_left_out_of_the_fit(runs):
+    points = json.loads(runs["long"].read_text())["points"]
+    same = {p["size"] for p in points
+            if p["test_error"] == pytest.approx(p["baseline_error"], abs=1e-12)}
+    differ = {p["size"] for p in points} - same
+    assert same == {10, 20, 30} and min(differ) == 45     # no split below 40 rows
+    doc = _fit(runs["long"])
+    assert doc["left_out_sizes"] == [10, 20, 30] and doc["sizes"][0] == 45
+    assert not any(NOTE in n for n in doc["notes"])
+    note = next(n for n in doc["notes"] if LEFT_OUT in n)
+    assert "the 3 smallest sizes (10–30)" in note and "fitted from 45" in note
+    # the iris classes are told apart well once the tree can split: the forecast at the
+    # largest size lies near the measured mean, not on a step from the majority class
+    at_largest = _fit(runs["long"], "--at", "112")["at"][0]
+    largest = [p["test_error"] for p in points if p["size"] == 112]
+    assert max(largest) < 0.2 and at_largest["low"] <= min(largest) <= at_largest["high"]
+    # before the first fitted size the fit says it does not describe the curve
+    r = run_cli("fit", runs["long"], "--at", "20", "--bootstrap", "0")
+    assert r.returncode == 0, r.stderr
+    assert "before the first fitted size (45)" in r.stderr
+
+
+def test_too_few_sizes_after_the_flat_start_keep_it(tmp_path):
+    """Three learning sizes are too few to fit without the flat start: it stays in."""
+    import numpy as np
+    import pandas as pd
+
+    from curvefit.core.curve import Curve
+    from curvefit.fitting.data import MIN_LEARNING_SIZES, before_learning
+
+    sizes = [10, 20, 40, 80, 160, 320]
+    error = [0.6, 0.6, 0.3, 0.2, 0.15, 0.12]
+    for flat, expected in ((2, [10.0, 20.0]), (3, [])):
+        table = pd.DataFrame({"size": sizes, "test_error": [0.6] * flat + error[flat:],
+                              "baseline_error": 0.6})
+        assert len(sizes) - flat >= MIN_LEARNING_SIZES or expected == []
+        assert before_learning(Curve.from_table(table)).tolist() == expected
+    # a constant model by design keeps every size
+    meta = {"model": {"spec": "sklearn.dummy:DummyClassifier"}}
+    table = pd.DataFrame({"size": sizes, "test_error": [0.6] * 2 + error[2:], "baseline_error": 0.6})
+    assert not len(before_learning(Curve.from_table(table, meta=meta)))
+    assert np.isin(20, before_learning(Curve.from_table(table)))

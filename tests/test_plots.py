@@ -123,6 +123,21 @@ def test_learning_curve_single_model_without_fit():
     _png_ok(fig)
 
 
+def test_a_long_model_name_keeps_the_legend_inside_the_figure(measured):
+    """One model whose label is long: the legend takes fewer columns rather than spill
+    past the figure's edges (cut off in the PNG)."""
+    points = measured["tree"].points
+    for label, columns in (("tree", 3), ("HistGradientBoostingClassifier(max_leaf_nodes=8)", 1)):
+        curve = Curve(points, dict(measured["tree"].meta, label=label))
+        fig = plots.learning_curve_figure(curve, cf.fit_curve(curve, bootstrap=20))
+        fig.canvas.draw()
+        legend = fig.legends[0]
+        box = legend.get_window_extent()
+        assert 0 <= box.x0 and box.x1 <= fig.bbox.width
+        assert legend._ncols == columns
+        _png_ok(fig)
+
+
 def test_learning_curve_all_failed_and_unreachable(measured, fitted):
     pts = measured["tree"].points.copy()
     pts["status"] = "failed"

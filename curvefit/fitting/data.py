@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import math
 import warnings
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -19,6 +19,10 @@ from curvefit.core.stats import sem, theil_sen
 
 ON_CHOICES = ("test", "train", "gap")
 WEIGHT_CHOICES = ("sem", "index", "none")
+# Leading sizes at which the model predicted as the constant predictor does are left out
+# of the fit when at least this many sizes remain after them (the families describe
+# learning; sizes before it starts only bend them into steps).
+MIN_LEARNING_SIZES = 4
 # A standard error below this fraction of the median one is raised to it, so a size whose
 # repeats happen to agree cannot dominate the fit (common practice).
 SEM_FLOOR_FRACTION = 0.2
@@ -47,6 +51,9 @@ class FitData:
     data_source: str = "none"
     # the test error equals the constant predictor's in every cell (see constant_so_far)
     constant: bool = False
+    # leading sizes left out of the fit: the model predicted as the constant predictor
+    # does in every cell there (see before_learning)
+    left_out: np.ndarray = field(default_factory=lambda: np.array([]))
 
     @property
     def m(self) -> int:
@@ -65,10 +72,11 @@ class FitData:
 def prepare_data(curve: Curve, on: str, weights: str) -> FitData:
     """Per-size means, standard errors and weights of the quantity ``on``."""
     ok = curve.ok_points()
+    left_out = before_learning(curve)
     t = ok["test_error"].to_numpy(dtype=float)
     r = ok["train_error"].to_numpy(dtype=float)
     s = ok["size"].to_numpy(dtype=float)
-    keep = np.isfinite(t) & np.isfinite(s)
+    keep = np.isfinite(t) & np.isfinite(s) & ~np.isin(s, left_out)
     if on in ("train", "gap"):
         keep &= np.isfinite(r)
     t, r, s = t[keep], r[keep], s[keep]
@@ -96,7 +104,50 @@ def prepare_data(curve: Curve, on: str, weights: str) -> FitData:
                    w_train=least_squares_weights(sizes, sem_train, weights),
                    cells=cells, sign=-1.0 if on == "train" else 1.0, on=on, weights=weights,
                    data_var=data_var, data_source=source,
-                   constant=on == "test" and constant_so_far(curve))
+                   constant=on == "test" and constant_so_far(curve), left_out=left_out)
+
+
+def _as_constant(curve: Curve) -> tuple[np.ndarray, np.ndarray] | None:
+    """(size, matches) of the finished cells with a finite test error: ``matches`` is True
+    where the model's test error equals the constant predictor's on the same test rows
+    (the ``baseline_error`` column, to 1e-6 relative). None without that column, when a
+    cell lacks the constant predictor's error, and for a constant model by design."""
+    if not curve.has_baseline or constant_by_design(curve.meta):
+        return None
+    ok = curve.ok_points()
+    t = ok["test_error"].to_numpy(dtype=float)
+    b = ok[BASELINE_COLUMN].to_numpy(dtype=float)
+    keep = np.isfinite(t)
+    if not keep.any() or not np.isfinite(b[keep]).all():
+        return None
+    return (ok["size"].to_numpy(dtype=float)[keep],
+            np.isclose(t[keep], b[keep], rtol=1e-6, atol=1e-12))
+
+
+def before_learning(curve: Curve) -> np.ndarray:
+    """The leading measured sizes at which the model predicted as the constant predictor
+    does in every cell, when at least ``MIN_LEARNING_SIZES`` sizes follow them (else
+    none): the curve shows learning only from the first size after them, and a fit
+    through the flat start would bend every family into a step (scikit-learn's
+    histogram boosting cannot split fewer than 40 rows, say).
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> n = [10, 20, 40, 80, 160, 320]
+    >>> c = Curve.from_table(pd.DataFrame({"size": n, "test_error": [.6, .6, .3, .2, .15, .12],
+    ...                                    "baseline_error": [.6] * 6}))
+    >>> before_learning(c)
+    array([10., 20.])
+    """
+    cells = _as_constant(curve)
+    if cells is None:
+        return np.array([])
+    size, matches = cells
+    sizes = np.unique(size)
+    constant = np.array([bool(matches[size == v].all()) for v in sizes])
+    lead = int(np.argmin(constant)) if not constant.all() else len(sizes)
+    return sizes[:lead] if 0 < lead and len(sizes) - lead >= MIN_LEARNING_SIZES else np.array([])
 
 
 def constant_so_far(curve: Curve) -> bool:
@@ -116,15 +167,8 @@ def constant_so_far(curve: Curve) -> bool:
     >>> constant_so_far(c)
     True
     """
-    if not curve.has_baseline or constant_by_design(curve.meta):
-        return False
-    ok = curve.ok_points()
-    t = ok["test_error"].to_numpy(dtype=float)
-    b = ok[BASELINE_COLUMN].to_numpy(dtype=float)
-    keep = np.isfinite(t)
-    if not keep.any() or not np.isfinite(b[keep]).all():
-        return False
-    return bool(np.allclose(t[keep], b[keep], rtol=1e-6, atol=1e-12))
+    cells = _as_constant(curve)
+    return cells is not None and bool(cells[1].all())
 
 
 def constant_by_design(meta: dict | None) -> bool:

@@ -551,6 +551,7 @@ class CurveFit:
             "family_weights": self.family_weights,
             "calibration": self._state.calibration.to_dict(),
             "sizes": self._state.data.sizes.tolist(),
+            "left_out_sizes": self._state.data.left_out.tolist(),
             "settings": dict(self._state.settings, n_bootstrap_ok=self.n_bootstrap_ok),
         }
 
@@ -596,6 +597,13 @@ class CurveFit:
                        "say)")
         if s.calibration.active:
             out.append(s.calibration.describe())
+        if len(d.left_out):
+            sizes = d.left_out
+            which = (f"the smallest size ({sizes[0]:,.0f})" if len(sizes) == 1 else
+                     f"the {len(sizes)} smallest sizes ({sizes[0]:,.0f}–{sizes[-1]:,.0f})")
+            out.append(f"{which}, at which the model predicted as the constant predictor "
+                       "does in every repeat, are left out of the fit: the curve is fitted "
+                       f"from {d.sizes[0]:,.0f}, where learning shows")
         if d.constant:
             how = (f"beyond them the forecast follows the corpus curves that were in that "
                    f"state, F(N)·(n/N)^{s.calibration.constant_slope:+.2f}, not this curve"
@@ -691,6 +699,13 @@ class CurveFit:
                           f"{EXTRAPOLATION_FACTOR:g}× the largest measured size "
                           f"({self._state.data.n_max:,.0f}); read with care", FitWarning,
                           stacklevel=3)
+        d = self._state.data
+        early = sizes < d.sizes[0] if len(d.left_out) and d.m else np.zeros(len(sizes), bool)
+        if early.any():
+            warnings.warn(f"predicting at {sizes[early].min():,.0f} samples, before the first "
+                          f"fitted size ({d.sizes[0]:,.0f}): below it the model predicted as "
+                          "the constant predictor does, and the fit describes the curve from "
+                          f"{d.sizes[0]:,.0f} on", FitWarning, stacklevel=3)
         return sizes
 
     def _predict_point(self, sizes):

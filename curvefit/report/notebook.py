@@ -222,7 +222,8 @@ def plot_fit(fit: Any, ax: Any = None, interval: float = INTERVAL) -> Any:
     if field(fit, "on", "test") == "gap" and len(curve.sizes):
         import numpy as np
 
-        grid = np.geomspace(float(curve.sizes.min()), float(curve.sizes.max()) * 4, 120)
+        grid = np.geomspace(plots.fitted_from(fit, float(curve.sizes.min())),
+                            float(curve.sizes.max()) * 4, 120)
         line = (f"fit, {family_name(fit.best)}", grid, fit.predict(grid, interval=interval)["estimate"])
         plots.gap_figure(curve, {model_label(curve, 0): [line]}, ax=ax)
         return ax

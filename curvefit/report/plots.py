@@ -164,6 +164,16 @@ class _FitLines:
     runner_up_estimate: np.ndarray | None
 
 
+def fitted_from(fit: Any, smallest: float) -> float:
+    """Where a fit's line starts: its first fitted size when it left out the sizes before
+    the model learned (``CurveFit.sizes``), else the smallest measured size."""
+    sizes = getattr(fit, "sizes", None)
+    try:
+        return max(smallest, float(sizes[0])) if sizes is not None and len(sizes) else smallest
+    except (TypeError, ValueError):
+        return smallest
+
+
 def _fit_lines(fit: Any, grid: np.ndarray, interval: float) -> _FitLines | None:
     """Read the chosen family's forecast band and the runner-up's line from a fit."""
     if fit is None or not hasattr(fit, "predict"):
@@ -374,7 +384,8 @@ def _draw_fit(ax, fit: Any, summ: pd.DataFrame, a: dict | None, st: dict, label:
         right = a["horizon"]
     if is_finite(span[2]):
         right = min(right, span[2])  # never past the axis: far answers are marked at its edge
-    lines = _fit_lines(fit, np.geomspace(float(summ["size"].min()), right, 160), interval)
+    lines = _fit_lines(fit, np.geomspace(fitted_from(fit, float(summ["size"].min())), right, 160),
+                       interval)
     if lines is None:
         return
     span[1] = max(span[1], right)
@@ -536,7 +547,7 @@ def _legend_outside(ax) -> None:
     cols = [sorted(v, key=lambda t: t[0]) for v in groups.values()]
     if len(cols) <= 1:
         entries = [(h, lab) for col in cols for _, h, lab in col] + loose
-        ncols = min(3, len(entries))
+        ncols = _legend_columns(ax.figure, [lab for _, lab in entries], most=3)
     else:
         depth = max(len(c) for c in cols)
         blank = Rectangle((0, 0), 0, 0, visible=False)
@@ -549,6 +560,22 @@ def _legend_outside(ax) -> None:
     hs, ls = zip(*entries)
     ax.figure.legend(hs, ls, loc="outside lower center", ncols=ncols, handlelength=2.6,
                      columnspacing=1.6)
+
+
+def _legend_columns(fig: Figure, labels: list, most: int) -> int:
+    """At most ``most`` legend columns, fewer when the longest label would push the legend
+    past the figure's width (a long model name)."""
+    import matplotlib as mpl
+    from matplotlib.font_manager import FontProperties
+    from matplotlib.textpath import TextPath
+
+    font = FontProperties(size=mpl.rcParams["legend.fontsize"])
+    size = font.get_size_in_points()
+    text = max((TextPath((0, 0), lab, prop=font).get_extents().width for lab in labels),
+               default=0.0)
+    column = text + (2.6 + 0.8 + 1.6) * size       # handle, its gap, the column spacing
+    fits = int(0.95 * fig.get_figwidth() * 72 // column) if column > 0 else most
+    return max(1, min(most, len(labels), fits))
 
 
 # --------------------------------------------------------------------------- gap
