@@ -135,3 +135,16 @@ def test_too_few_sizes_after_the_flat_start_keep_it(tmp_path):
     table = pd.DataFrame({"size": sizes, "test_error": [0.6] * 2 + error[2:], "baseline_error": 0.6})
     assert not len(before_learning(Curve.from_table(table, meta=meta)))
     assert np.isin(20, before_learning(Curve.from_table(table)))
+
+
+def test_answers_inside_the_measured_range_still_read_every_measured_size(runs):
+    """The left-out sizes are measured all the same: a target between the constant
+    predictor's error and the learned one is reached between the last flat size and the
+    first learned one, and one above the constant predictor's at the smallest size."""
+    r = run_cli("need", runs["long"], "--error", "0.3", "--bootstrap", "40", "--json")
+    assert r.returncode == 0, r.stderr
+    answer = json.loads(r.stdout)["answer"]
+    assert 30 < answer["n"] < 45 and "between the measured sizes 30 and 45" in answer["message"]
+    r = run_cli("need", runs["long"], "--error", "0.9", "--bootstrap", "40", "--json")
+    answer = json.loads(r.stdout)["answer"]
+    assert answer["n"] == 10 and "smallest measured size, 10 labelled" in answer["message"]

@@ -69,10 +69,11 @@ class FitData:
         return np.array([len(c) for c in self.cells], dtype=int)
 
 
-def prepare_data(curve: Curve, on: str, weights: str) -> FitData:
-    """Per-size means, standard errors and weights of the quantity ``on``."""
+def prepare_data(curve: Curve, on: str, weights: str, leave_out: bool = True) -> FitData:
+    """Per-size means, standard errors and weights of the quantity ``on``; without the
+    sizes before the model learned (`before_learning`) unless ``leave_out`` is False."""
     ok = curve.ok_points()
-    left_out = before_learning(curve)
+    left_out = before_learning(curve) if leave_out else np.array([])
     t = ok["test_error"].to_numpy(dtype=float)
     r = ok["train_error"].to_numpy(dtype=float)
     s = ok["size"].to_numpy(dtype=float)

@@ -188,8 +188,12 @@ class SampleEstimate:
 class _State:
     """Everything a CurveFit needs besides its public fields (internal, not frozen)."""
 
-    def __init__(self, data: FitData, fits, boots, settings, calibration: Calibration):
+    def __init__(self, data: FitData, fits, boots, settings, calibration: Calibration,
+                 measured: FitData | None = None):
         self.data = data
+        # every measured size, also those left out of the fit (answers read the measured
+        # curve there)
+        self.measured = data if measured is None else measured
         self.fits = fits
         self.boots = boots        # family -> (B, p) replicates, for the averaged families
         self.boot = None if boots is None else boots.get(settings["best"])  # the chosen one's
@@ -752,7 +756,7 @@ class CurveFit:
         is searched on n ≥ the largest measured size, never below it, so a fitted curve
         that disagrees with the measured points at small n cannot give an answer there.
         """
-        d = self._state.data
+        d, measured = self._state.data, self._state.measured
         grid = search_grid(d)
         horizon = factor * d.n_max
         with np.errstate(all="ignore"):
@@ -765,7 +769,8 @@ class CurveFit:
                 # the answer follows the fitted shape from the measured mean, so it agrees
                 # with the measurement at the largest size
                 fitted, lo_band, hi_band = fitted + shift, lo_band + shift, hi_band + shift
-            c = find_crossing(d, target, grid, fitted, (lo_band, hi_band), mean_band(d, level),
+            c = find_crossing(measured, target, grid, fitted, (lo_band, hi_band),
+                              mean_band(measured, level),
                               horizon=horizon, widened=self._widened(target - shift * shifted,
                                                                      horizon, level),
                               level=level, shifted=shifted)
@@ -798,14 +803,14 @@ class CurveFit:
         else:
             n = float(math.ceil(c.point))
             if c.source == "measured":
-                n = max(n, float(d.sizes[0]))  # fewer than the smallest size were not measured
+                n = max(n, float(measured.sizes[0]))  # fewer were not measured
             low, high = c.low, c.high
             # the chosen family alone levels off above the target: said beside the answer
             below_family = (asym is not None and math.isfinite(asym.estimate)
                             and asym.estimate > target)
             floor = (self.describe_asymptote(level)
                      if c.source == "fitted" and below_family else "")
-            message, cautions = answer_text(d, n, c, kind, target, level, metric, self.best,
+            message, cautions = answer_text(measured, n, c, kind, target, level, metric, self.best,
                                             self.approach == "logarithmic",
                                             info=self.curve.metric_info, floor=floor)
         return SampleEstimate(n=n, low=float(low), high=float(high), level=level, target=target,
@@ -917,7 +922,9 @@ def fit_curve(curve, *, families="auto", on: str = "test", bootstrap: int = BOOT
     second = [k for k in table["family"][1:] if fits[k].theta is not None][:1]
     result = CurveFit(best=best, runner_up=second[0] if second else None, on=on,
                       table=table, warnings=notes, curve=curve,
-                      _state=_State(data, fits, boots, settings, resolve_calibration(calibration)))
+                      _state=_State(data, fits, boots, settings, resolve_calibration(calibration),
+                                    prepare_data(curve, on, weights, leave_out=False)
+                                    if len(data.left_out) else None))
     if bootstrap > 0 and m:
         notes += _wide_interval_warning(result)
     return result
