@@ -73,7 +73,8 @@ def prepare_data(curve: Curve, on: str, weights: str, leave_out: bool = True) ->
     """Per-size means, standard errors and weights of the quantity ``on``; without the
     sizes before the model learned (`before_learning`) unless ``leave_out`` is False."""
     ok = curve.ok_points()
-    left_out = before_learning(curve) if leave_out else np.array([])
+    flat_start = before_learning(curve)
+    left_out = flat_start if leave_out else np.array([])
     t = ok["test_error"].to_numpy(dtype=float)
     r = ok["train_error"].to_numpy(dtype=float)
     s = ok["size"].to_numpy(dtype=float)
@@ -97,8 +98,15 @@ def prepare_data(curve: Curve, on: str, weights: str, leave_out: bool = True) ->
     y, y_sem = {"test": (test, sem_test), "train": (train, sem_train),
                 "gap": (test - train, sem_gap)}[on]
     n_test = ok["n_test"].to_numpy(dtype=float)[keep] if "n_test" in ok else np.array([])
-    data_var, source = dataset_variance(sizes, y_sem, test, np.array([len(c) for c in cells]),
-                                        on, curve.metric, split_sizes(curve.meta, n_test, sizes))
+    # the spread of the sizes where the model learns sets the fresh-data-set variance (a
+    # flat start, kept for answers, adds none: it predicted as the constant predictor)
+    learns = ~np.isin(sizes, flat_start)
+    repeats = np.array([len(c) for c in cells])
+    data_var, source = dataset_variance(sizes[learns], y_sem[learns], test[learns],
+                                        repeats[learns], on, curve.metric,
+                                        split_sizes(curve.meta, n_test, sizes))
+    if data_var is not None and not learns.all():
+        data_var = np.concatenate([np.zeros((~learns).sum()), data_var])
     return FitData(sizes=sizes, y=y, sem=y_sem, w=least_squares_weights(sizes, y_sem, weights),
                    test=test, train=train,
                    w_test=least_squares_weights(sizes, sem_test, weights),
