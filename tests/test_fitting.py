@@ -558,11 +558,12 @@ def _exact_law_fit():
 def test_targets_below_and_inside_the_floor_interval():
     fit = _exact_law_fit()
     # the family's floor is 5%; the floor's 90% interval, joined with the averaged
-    # forecast's band far beyond the data, is about 2.5%–7.1%: 2% lies below all of it,
-    # and the band's lower edge reaches it only far beyond the horizon, so no lower end
+    # forecast's band far beyond the data, is about 1.5%–8.4% (the corpus' relative model
+    # error, τ = 0.04, widens it far out): 1% lies below all of it, and the band's lower
+    # edge reaches it only far beyond the horizon, so no lower end
     asym = fit.asymptote()
-    assert asym.estimate == pytest.approx(0.05, abs=0.002) and 0.02 < asym.low < 0.042
-    s = fit.samples_for(test_error=0.02)
+    assert asym.estimate == pytest.approx(0.05, abs=0.002) and 0.01 < asym.low < 0.042
+    s = fit.samples_for(test_error=0.01)
     assert not s.reachable and math.isinf(s.n) and math.isinf(s.high) and math.isinf(s.low)
     assert "not reachable by more data with this model" in s.message
     assert "levels off at about 5.0% (90% interval" in s.message

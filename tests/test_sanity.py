@@ -104,19 +104,19 @@ def test_answers_and_forecasts_below_the_floor_interval_are_named():
     fit = fit_curve(curve, families="power-law-floor", bootstrap=60, random_state=0)
     asym = fit.asymptote()
     assert 0.02 < asym.low < 0.10 < asym.high < 0.2       # the true floor is 0.10
-    assert floor_note(fit, 0.03, "the target").startswith("the target (3.0%) lies below the fitted "
+    assert floor_note(fit, 0.02, "the target").startswith("the target (2.0%) lies below the fitted "
                                                          "floor's 90% interval")
     assert floor_note(fit, asym.high, "the target") is None
-    forecasts = pd.DataFrame({"size": [3200.0, 1e6], "estimate": [0.15, 0.03]})
+    forecasts = pd.DataFrame({"size": [3200.0, 1e6], "estimate": [0.15, 0.02]})
     [note] = forecast_floor_notes(fit, forecasts)
-    assert note.startswith("the forecast at 1,000,000 labels (3.0%) lies below")
+    assert note.startswith("the forecast at 1,000,000 labels (2.0%) lies below")
     assert forecast_floor_notes(fit, fit.predict([3200, 16000])) == []  # the fit's own forecasts
 
     class Answer:  # a reachable answer that promises a target below the floor
-        reachable, kind, target = True, "test_error", 0.03
+        reachable, kind, target = True, "test_error", 0.02
 
     check = sanity_check(curve, fit, answer=Answer(), forecasts=forecasts)
-    assert len(check.floor) == 2 and check.floor[0].startswith("the target test error (3.0%)")
+    assert len(check.floor) == 2 and check.floor[0].startswith("the target test error (2.0%)")
 
 
 # --------------------------------------------------------------------------- real CLI
