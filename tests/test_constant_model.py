@@ -148,3 +148,17 @@ def test_answers_inside_the_measured_range_still_read_every_measured_size(runs):
     r = run_cli("need", runs["long"], "--error", "0.9", "--bootstrap", "40", "--json")
     answer = json.loads(r.stdout)["answer"]
     assert answer["n"] == 10 and "smallest measured size, 10 labelled" in answer["message"]
+
+
+def test_the_gap_model_leaves_the_flat_start_out_too(runs):
+    """The capacity from the gap is read where the model learns: the sizes at which it
+    predicted as the constant predictor does (gap about 0 by construction) neither pin h
+    nor count as "before the knee"."""
+    r = run_cli("capacity", runs["long"], "--bootstrap", "60", "--json")
+    assert r.returncode == 0, r.stderr
+    doc = json.loads(r.stdout)
+    used = {row["size"]: row["used"] for row in doc["design"]}
+    assert not any(used[n] for n in (10, 20, 30))
+    assert any(n.startswith("Sizes at which the model predicted as the constant predictor does "
+                            "in every repeat were left out: 10, 20, 30.") for n in doc["notes"])
+    assert not any("before the knee" in n and "10" in n for n in doc["notes"])

@@ -45,6 +45,7 @@ from curvefit.core.formatting import (
 )
 from curvefit.core.stats import sem
 from curvefit.core.validate import check_count, check_level, check_seed
+from curvefit.fitting.data import before_learning
 
 # c(ν) = GAP_C0 + GAP_C1·ν in gap(n) ≈ c(ν)·h/n, fitted to the calibration sweep of
 # scripts/bench_capacity.py (logistic regression without penalty, d = 5…50, label noise
@@ -173,14 +174,17 @@ def _fit_h(sizes, means, trains, weights, used, loss: str = "zero_one") -> float
     return float(np.sum(wx * means[used]) / den) if den > 0 else math.nan
 
 
-def _past_the_knee(sizes, means, trains, weights, loss: str = "zero_one") -> tuple[float, np.ndarray]:
-    """h and the sizes used: start from all sizes, keep n ≥ MIN_TAU·h, refit until stable."""
-    used = np.ones(len(sizes), dtype=bool)
+def _past_the_knee(sizes, means, trains, weights, loss: str = "zero_one",
+                   allowed: np.ndarray | None = None) -> tuple[float, np.ndarray]:
+    """h and the sizes used: start from all ``allowed`` sizes (default all), keep
+    n ≥ MIN_TAU·h, refit until stable."""
+    allowed = np.ones(len(sizes), dtype=bool) if allowed is None else np.asarray(allowed, bool)
+    used = allowed.copy()
     h = _fit_h(sizes, means, trains, weights, used, loss)
     for _ in range(20):
         if not (math.isfinite(h) and h > 0):
             break
-        new = sizes >= MIN_TAU * h
+        new = allowed & (sizes >= MIN_TAU * h)
         if np.array_equal(new, used):
             break
         used = new
@@ -199,8 +203,11 @@ def _fit_power(n: np.ndarray, g: np.ndarray, w: np.ndarray) -> float:
     return float(-slope)
 
 
-def _bootstrap(gaps, trains, sizes, used, floor, bootstrap: int, seed: int, loss: str = "zero_one"):
-    """h and b over repeats resampled within each size, with the used sizes held fixed."""
+def _bootstrap(gaps, trains, sizes, used, floor, bootstrap: int, seed: int, loss: str = "zero_one",
+               learned: np.ndarray | None = None):
+    """h and b over repeats resampled within each size, with the used sizes held fixed (b
+    over the ``learned`` sizes, default all)."""
+    learned = np.ones(len(sizes), bool) if learned is None else learned
     rng = np.random.default_rng(np.random.SeedSequence([int(seed), 104729]))
     hs, bs = [], []
     for _ in range(bootstrap):
@@ -214,7 +221,7 @@ def _bootstrap(gaps, trains, sizes, used, floor, bootstrap: int, seed: int, loss
             w.append(1.0 / max(s if math.isfinite(s) else 0.0, floor) ** 2)
         m, t, w = np.array(m), np.array(t), np.array(w)
         hs.append(_fit_h(sizes, m, t, w, used, loss))
-        bs.append(_fit_power(sizes, m, w))
+        bs.append(_fit_power(sizes[learned], m[learned], w[learned]))
     return np.array(hs, float), np.array(bs, float)
 
 
@@ -302,8 +309,11 @@ def effective_capacity(curve, *, bootstrap: int = BOOTSTRAP, random_state: int =
     weights = 1.0 / floored ** 2
     if loss is None:
         return _no_figure(curve, sizes, means, sems, nus, reps, level, seed, probe)
-    h, used = _past_the_knee(sizes, means, nus, weights, loss)
-    b = _fit_power(sizes, means, weights)
+    # sizes at which the model predicted as the constant predictor does carry no gap of
+    # the fitted class: left out like sizes before the knee (fitting.data.before_learning)
+    flat = np.isin(sizes, before_learning(curve))
+    h, used = _past_the_knee(sizes, means, nus, weights, loss, allowed=~flat)
+    b = _fit_power(sizes[~flat], means[~flat], weights[~flat])
     if all(len(v) < 2 for v in gaps.values()):
         return _silent(curve, sizes, means, sems, nus, reps, used, h, math.nan, b, level, seed, True,
                        probe, loss)
@@ -320,12 +330,12 @@ def effective_capacity(curve, *, bootstrap: int = BOOTSTRAP, random_state: int =
     if not (math.isfinite(signal) and signal >= MIN_SIGNAL):
         return _silent(curve, sizes, means, sems, nus, reps, used, h, se_h, b, level, seed, False,
                        probe, loss)
-    boot_h, boot_b = _bootstrap(gaps, trains, sizes, used, floor, bootstrap, seed, loss)
+    boot_h, boot_b = _bootstrap(gaps, trains, sizes, used, floor, bootstrap, seed, loss, ~flat)
     spread = CALIBRATION_SPREAD if loss == "zero_one" else OPTIMISM_SPREAD
     low, high, b_low, b_high = _intervals(h, boot_h, boot_b, level, misfit, spread)
     regime = _regime(means, sems, nus, trains, sizes, used) if loss == "zero_one" else ""
     c_used = float(np.mean(loss_constant(loss, nus[used], means[used])))
-    notes = _gap_notes(curve, sizes, used, misfit, regime, probe, loss)
+    notes = _gap_notes(curve, sizes, used, misfit, regime, probe, loss, flat)
     if loss == "squared":
         message = (f"Effective number of parameters on this data ≈ {format_capacity(h)} "
                    f"({interval_text(low, high, level)}), from the optimism of squared error "
@@ -412,12 +422,18 @@ def _probe_note(probe) -> str:
             " a distribution-free figure for the same learner.")
 
 
-def _gap_notes(curve, sizes, used, misfit, regime, probe, loss: str = "zero_one") -> list[str]:
+def _gap_notes(curve, sizes, used, misfit, regime, probe, loss: str = "zero_one",
+               flat: np.ndarray | None = None) -> list[str]:
     """Caveats to show with the gap model's figure."""
     notes = [_GAP_NOTE if loss == "zero_one" else _OPTIMISM_NOTE]
     if probe is not None:
         notes.append(_probe_note(probe))
-    left_out = [int(n) for n in sizes[~used]]
+    flat = np.zeros(len(sizes), bool) if flat is None else flat
+    if flat.any():
+        notes.append("Sizes at which the model predicted as the constant predictor does in "
+                     "every repeat were left out: "
+                     f"{', '.join(format_count(n) for n in sizes[flat])}.")
+    left_out = [int(n) for n in sizes[~used & ~flat]]
     if left_out:
         notes.append(f"Sizes before the knee (n < {format_number(MIN_TAU, 2)}·{_symbol(loss)}) were "
                      "left out: "
