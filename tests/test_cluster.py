@@ -315,3 +315,37 @@ def test_a_cluster_left_without_workers_ends_the_run(tmp_path, monkeypatch):
             assert time.monotonic() - t0 < 60
     finally:
         c.close()
+
+
+@pytest.mark.slow
+def test_shared_arguments_survive_the_death_of_the_worker_holding_them(tmp_path):
+    """A shared argument is the result of a task (`parallel._share`), not scattered data:
+    when the only worker holding it dies, the scheduler computes it again on the other.
+    Scattered data would be lost for good (Dask: "caused the cluster to lose scattered
+    data, which can't be recovered"), and the tasks needing it would wait for ever, as a
+    worker killed during the broadcast once left a run here."""
+    from distributed import Client
+
+    from curvefit.measuring.parallel import _share
+
+    c = start_cluster(tmp_path / "held")
+    try:
+        with Client(c.address, timeout="60s") as client:
+            payload = np.arange(50_000, dtype=float)
+            [held] = _share(client, [payload])
+            held.result(timeout=60)
+            holders = set(client.who_has([held])[held.key])
+            assert len(holders) == 1
+            names = {info["name"]: address
+                     for address, info in client.scheduler_info()["workers"].items()}
+            victim = next(w for i, w in enumerate(c.workers) if names.get(f"w{i}") in holders)
+            os.kill(victim.pid, signal.SIGKILL)
+            victim.wait(timeout=30)
+            deadline = time.monotonic() + 60
+            while set(client.scheduler_info()["workers"]) & holders:
+                assert time.monotonic() < deadline, "the scheduler never noticed the dead worker"
+                time.sleep(0.2)
+            again = client.submit(np.sum, held, pure=False).result(timeout=60)
+            assert again == payload.sum()
+    finally:
+        c.close()

@@ -37,7 +37,7 @@ from curvefit.measuring.metrics import Metric, constant_loss
 class CellData:
     """Everything a cell needs besides its indices. Shared by every task of a run: its
     large numeric arrays reach local workers as one memory-mapped file and Dask workers
-    as one scattered copy each (`curvefit.measuring.parallel`)."""
+    as the result of one task that returns it (`curvefit.measuring.parallel`)."""
 
     X: Any
     y: np.ndarray

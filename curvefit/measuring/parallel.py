@@ -20,7 +20,9 @@ end, however they end (a worker killed by joblib's abort cannot clean up after i
 
 The table goes to the workers once, not with every task: arguments that several tasks
 share are saved once as memory-mapped files in that scratch folder (local workers map
-the same pages), or scattered to every Dask worker once (the tasks get its future).
+the same pages), or sent to a Dask cluster once as a task of its own that returns it (the
+tasks get its future; Dask copies it to the workers that need it, and computes it again
+on another worker if the one holding it dies, which scattered data would not survive).
 """
 
 from __future__ import annotations
@@ -33,6 +35,7 @@ import sys
 import tempfile
 import threading
 import time
+import warnings
 from typing import Any, Callable, Iterable, Iterator
 
 from curvefit.core.errors import InputError
@@ -290,7 +293,7 @@ def run_tasks(tasks: Iterable[tuple[Callable, tuple, dict]], *, n_jobs: int = 1,
         yield from run_on_client(client, tasks)
 
 
-# objects of these types are never worth scattering (small, and often interned)
+# objects of these types are never worth sharing (small, and often interned)
 _PLAIN = (int, float, complex, bool, str, bytes, type(None))
 
 
@@ -376,28 +379,38 @@ def _mapped(obj, folder: str, memo: dict):
     return out
 
 
-SCATTER_TRIES = 20  # a worker that just died stays on the scheduler's list for a moment
+def _hold(obj):
+    """The object itself: a task whose result is an argument several tasks share."""
+    return obj
 
 
-def _scatter(client, objects: list) -> list:
-    """Send each object to every worker once; retry while the scheduler still lists a
-    worker that died (sending to it fails until the scheduler has noticed)."""
-    for attempt in range(SCATTER_TRIES):
-        try:
-            return client.scatter(objects, broadcast=True, hash=False)
-        except OSError:  # distributed's CommClosedError is an OSError
-            if attempt == SCATTER_TRIES - 1:
-                raise
-            time.sleep(0.5)
-    return []
+def _share(client, objects: list) -> list:
+    """One future per object, each the result of a task that returns it (`_hold`).
+
+    Not ``client.scatter``: scattered data lives only on workers, so a worker that dies
+    while the broadcast is still copying it loses it for good and the tasks wait for ever
+    (seen in a test that kills a worker mid-run); a task's input stays with the scheduler,
+    which runs it again elsewhere.
+    """
+    with _large_graphs_expected():
+        return [client.submit(_hold, obj, pure=False) for obj in objects]
+
+
+@contextlib.contextmanager
+def _large_graphs_expected():
+    """Dask's "Sending large graph" warning silenced: the table goes to the scheduler once
+    (in `_share`, or in the task when only one task uses it), on purpose."""
+    with warnings.catch_warnings():
+        warnings.filterwarnings("ignore", message=".*large graph")
+        yield
 
 
 def run_on_client(client, tasks: list[tuple[Callable, tuple, dict]]) -> Iterator[Any]:
     """Run the tasks on a ``distributed.Client``; yield results in completion order.
 
     Every argument that two or more tasks share (the same object: the table, the model
-    spec) is sent to each worker once with ``client.scatter(broadcast=True)``, and the
-    tasks receive its future, so a task carries only its own cells. When a worker dies,
+    spec) is sent once as the result of a task of its own (`_share`), and the tasks
+    receive its future, so a task carries only its own cells. When a worker dies,
     the scheduler runs its tasks again on the others (Dask's
     ``distributed.scheduler.allowed-failures``, 3 by default, bounds how often); a task
     that still fails ends the run with one line, and a journaled run continues with
@@ -410,11 +423,12 @@ def run_on_client(client, tasks: list[tuple[Callable, tuple, dict]]) -> Iterator
     shared = _shared_arguments(tasks)
     futures_of: dict[int, Any] = {}
     if shared:
-        scattered = _scatter(client, shared)
-        futures_of = {id(obj): fut for obj, fut in zip(shared, scattered)}
-    futures = [client.submit(_dask_call, fn, kwargs,
-                             *(futures_of.get(id(a), a) for a in args), pure=False)
-               for fn, args, kwargs in tasks]
+        held = _share(client, shared)
+        futures_of = {id(obj): fut for obj, fut in zip(shared, held)}
+    with _large_graphs_expected():
+        futures = [client.submit(_dask_call, fn, kwargs,
+                                 *(futures_of.get(id(a), a) for a in args), pure=False)
+                   for fn, args, kwargs in tasks]
     try:
         for fut in _finished(client, futures):
             try:
